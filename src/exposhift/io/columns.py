@@ -43,7 +43,8 @@ COLUMNS: tuple[Column, ...] = (
     # event
     Column("event_id", "event", "text", True, "stable key; studies of the same event share it"),
     Column("exposure", "event", "text", True, "exposure agent"),
-    Column("change_kind", "event", "code", True, "kind of change (see exposhift.vocab.CHANGE_KINDS)"),
+    Column("change_kind", "event", "code", True,
+           "kind of change (see exposhift.vocab.CHANGE_KINDS)"),
     Column("change_direction", "event", "code", True, "decrease or increase"),
     Column("change_size", "event", "float", False, "size of the exposure change"),
     Column("change_unit", "event", "text", False, "unit of change_size (e.g. ug/m3)"),

@@ -1,0 +1,65 @@
+"""The ``exposhift`` command line: thin commands that call one service each."""
+
+from __future__ import annotations
+
+import typer
+
+from exposhift import __version__
+from exposhift.cli import store_cmds
+from exposhift.cli.common import Settings
+
+app = typer.Typer(
+    name="exposhift",
+    help=(
+        "Evidence base for natural-experiment studies of environmental exposures: record, "
+        "appraise, pool, check replication, map gaps."
+    ),
+    no_args_is_help=True,
+    pretty_exceptions_enable=False,
+    add_completion=False,
+)
+
+
+def _version(value: bool) -> None:
+    if value:
+        typer.echo(f"exposhift {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def main(
+    ctx: typer.Context,
+    db: str | None = typer.Option(
+        None, "--db", envvar="EXPOSHIFT_DB",
+        help="Database URL or SQLite file (default: evidence/evidence.db).",
+    ),
+    user: str | None = typer.Option(
+        None, "--user", envvar="EXPOSHIFT_USER",
+        help="Name recorded in the audit trail (default: the OS user).",
+    ),
+    version: bool = typer.Option(
+        False, "--version", callback=_version, is_eager=True, help="Show the version and exit."
+    ),
+) -> None:
+    ctx.obj = Settings(db=db, user=user)
+
+
+app.command("init")(store_cmds.init)
+app.command("info")(store_cmds.info)
+
+
+def _register_optional() -> None:
+    """Commands of other modules register themselves here as they land."""
+    import importlib
+
+    for name in ("io_cmds", "synthesis_cmds", "appraisal_cmds", "replication_cmds"):
+        try:
+            mod = importlib.import_module(f"exposhift.cli.{name}")
+        except ModuleNotFoundError as exc:
+            if exc.name != f"exposhift.cli.{name}":
+                raise
+            continue
+        mod.register(app)
+
+
+_register_optional()

@@ -1,0 +1,38 @@
+"""Commands that create and describe the evidence base."""
+
+from __future__ import annotations
+
+import typer
+
+from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.services.setup import database_info, init_database
+
+
+@user_errors
+def init(ctx: typer.Context) -> None:
+    """Create the evidence base, or upgrade it to the newest schema without losing data."""
+    s = settings(ctx)
+    result = init_database(s.db, s.user)
+    if result.before is None:
+        typer.echo(f"created evidence base {result.url} (schema {result.after})")
+    elif result.before == result.after:
+        typer.echo(f"evidence base {result.url} is up to date (schema {result.after})")
+    else:
+        typer.echo(f"upgraded {result.url} from schema {result.before} to {result.after}")
+
+
+@user_errors
+def info(
+    ctx: typer.Context,
+    as_json: bool = typer.Option(False, "--json", help="Print the counts as a JSON object."),
+) -> None:
+    """Show what the evidence base holds: counts per table, location, schema revision."""
+    data = database_info(settings(ctx).db)
+    if as_json:
+        print_json({**data["counts"], "url": data["url"], "revision": data["revision"]})
+        return
+    typer.echo(f"evidence base  {data['url']}")
+    typer.echo(f"backend        {data['backend']}, schema revision {data['revision']}")
+    width = max(len(k) for k in data["counts"])
+    for name, n in data["counts"].items():
+        typer.echo(f"  {name.replace('_', ' '):<{width}}  {n:>8,}")

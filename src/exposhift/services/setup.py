@@ -1,0 +1,69 @@
+"""Services for creating, upgrading and describing an evidence base."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from exposhift.store.database import Store, open_store
+from exposhift.store.migrate import current_revision, head_revision, require_current, upgrade
+from exposhift.store.records import TABLES
+
+#: the tables counted by ``info`` and the names users see
+COUNTED = {
+    "studies": "study",
+    "events": "event",
+    "estimates": "estimate",
+    "appraisals": "appraisal",
+    "exposures": "exposure",
+    "outcomes": "outcome",
+    "audit_entries": "audit_entry",
+}
+
+
+@dataclass(frozen=True)
+class InitResult:
+    url: str
+    before: str | None
+    after: str
+
+
+def init_database(db: str | None = None, user: str | None = None) -> InitResult:
+    """Create the database (or upgrade it to the newest schema) without losing data."""
+    store = open_store(db, user, create=True)
+    try:
+        before, after = upgrade(store)
+        return InitResult(url=store.masked_url, before=before, after=after)
+    finally:
+        store.dispose()
+
+
+def open_current(db: str | None = None, user: str | None = None) -> Store:
+    """Open a database that is initialised at the newest schema revision."""
+    store = open_store(db, user)
+    try:
+        require_current(store)
+    except Exception:
+        store.dispose()
+        raise
+    return store
+
+
+def database_info(db: str | None = None) -> dict:
+    """Counts per table, masked URL and schema revision."""
+    store = open_current(db)
+    try:
+        from exposhift.store.models import AuditEntry
+
+        tables = dict(TABLES, audit_entry=AuditEntry.__table__)
+        with store.read() as conn:
+            counts = {name: store.count(conn, tables[t]) for name, t in COUNTED.items()}
+            rev = current_revision(conn)
+        return {
+            "url": store.masked_url,
+            "backend": store.engine.dialect.name,
+            "revision": rev,
+            "newest_revision": head_revision(),
+            "counts": counts,
+        }
+    finally:
+        store.dispose()

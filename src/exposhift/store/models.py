@@ -1,0 +1,192 @@
+"""Tables of the evidence base (SQLModel).
+
+Conventions (see DEVELOPERS.md):
+- every editable row has ``version`` (optimistic locking, checked by :mod:`exposhift.store.writer`);
+- natural keys (``key``) are what users and files name; integer ids never leave the store;
+- controlled vocabularies are plain strings validated in :mod:`exposhift.vocab` (no native
+  enums, so PostgreSQL and SQLite hold the same schema);
+- timestamps are ISO-8601 UTC strings with a ``Z`` suffix (timezone-aware, sortable, identical on
+  both backends);
+- harmonised analysis-scale values are derived at analysis time, never stored.
+"""
+
+from __future__ import annotations
+
+from sqlalchemy import Column, ForeignKey, Integer, UniqueConstraint
+from sqlmodel import Field, SQLModel
+
+metadata = SQLModel.metadata
+metadata.naming_convention = {
+    "ix": "ix_%(column_0_label)s",
+    "uq": "uq_%(table_name)s_%(column_0_name)s",
+    "ck": "ck_%(table_name)s_%(constraint_name)s",
+    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+    "pk": "pk_%(table_name)s",
+}
+
+
+def _fk(target: str, *, cascade: bool = False, nullable: bool = False) -> Column:
+    return Column(
+        Integer,
+        ForeignKey(target, ondelete="CASCADE" if cascade else "RESTRICT"),
+        nullable=nullable,
+        index=True,
+    )
+
+
+class Exposure(SQLModel, table=True):
+    """An exposure agent (controlled vocabulary, grows on import)."""
+
+    __tablename__ = "exposure"
+    id: int | None = Field(default=None, primary_key=True)
+    name: str = Field(unique=True)
+    agent_class: str | None = None
+    version: int = 1
+
+
+class Outcome(SQLModel, table=True):
+    """An outcome with its group (controlled vocabulary, grows on import)."""
+
+    __tablename__ = "outcome"
+    id: int | None = Field(default=None, primary_key=True)
+    name: str = Field(unique=True)
+    outcome_group: str | None = None
+    version: int = 1
+
+
+class Event(SQLModel, table=True):
+    """An exposure-change event. Events exist without studies: that is how gaps are found."""
+
+    __tablename__ = "event"
+    id: int | None = Field(default=None, primary_key=True)
+    key: str = Field(unique=True)
+    exposure_id: int = Field(sa_column=_fk("exposure.id"))
+    change_kind: str
+    change_direction: str
+    change_size: float | None = None
+    change_unit: str | None = None
+    country: str = Field(index=True)
+    area: str | None = None
+    change_date: str  # YYYY, YYYY-MM or YYYY-MM-DD: the precision is kept
+    date_precision: str
+    family: str | None = None
+    demo: bool = False
+    version: int = 1
+    created_at: str
+    updated_at: str
+
+
+class Study(SQLModel, table=True):
+    """One evaluated natural experiment as reported in one publication."""
+
+    __tablename__ = "study"
+    id: int | None = Field(default=None, primary_key=True)
+    key: str = Field(unique=True)
+    citation: str
+    year: int
+    doi: str | None = None
+    design: str
+    comparison: str | None = None
+    population: str | None = None
+    data_source: str | None = None
+    assignment_grade: int | None = None
+    pre_points: int | None = None
+    post_points: int | None = None
+    checks: str | None = None  # ';'-separated, normalised codes
+    demo: bool = False
+    version: int = 1
+    created_at: str
+    updated_at: str
+
+
+class Estimate(SQLModel, table=True):
+    """One effect estimate as the paper reported it (study x event x outcome)."""
+
+    __tablename__ = "estimate"
+    id: int | None = Field(default=None, primary_key=True)
+    key: str = Field(unique=True)  # study|event|outcome|measure|kind|subgroup|window
+    study_id: int = Field(sa_column=_fk("study.id"))
+    event_id: int = Field(sa_column=_fk("event.id"))
+    outcome_id: int = Field(sa_column=_fk("outcome.id"))
+    measure: str
+    estimate_kind: str = "change"
+    per_unit: float | None = None
+    point: float
+    ci_low: float | None = None
+    ci_high: float | None = None
+    ci_level: float | None = None
+    se: float | None = None
+    p_value: float | None = None
+    baseline_risk: float | None = None
+    subgroup: str | None = None
+    time_window: str | None = None
+    primary: bool = False
+    version: int = 1
+    created_at: str
+    updated_at: str
+
+
+class Appraisal(SQLModel, table=True):
+    """One reviewer's appraisal of one study at one stage (independent or consensus)."""
+
+    __tablename__ = "appraisal"
+    __table_args__ = (UniqueConstraint("study_id", "reviewer", "stage"),)
+    id: int | None = Field(default=None, primary_key=True)
+    study_id: int = Field(sa_column=_fk("study.id"))
+    reviewer: str
+    stage: str
+    rubric_id: str
+    rubric_hash: str
+    overall: int | None = None
+    version: int = 1
+    created_at: str
+    updated_at: str
+
+
+class Rating(SQLModel, table=True):
+    """One domain rating inside an appraisal."""
+
+    __tablename__ = "rating"
+    __table_args__ = (UniqueConstraint("appraisal_id", "domain"),)
+    id: int | None = Field(default=None, primary_key=True)
+    appraisal_id: int = Field(sa_column=_fk("appraisal.id", cascade=True))
+    domain: str
+    level: int
+    reporting: str | None = None
+    justification: str | None = None
+    suggested_level: int | None = None
+    suggestion_reason: str | None = None
+
+
+class AuditEntry(SQLModel, table=True):
+    """Who changed what, when, with the values before and after (JSON)."""
+
+    __tablename__ = "audit_entry"
+    id: int | None = Field(default=None, primary_key=True)
+    at: str = Field(index=True)
+    user: str
+    table_name: str
+    row_key: str = Field(index=True)
+    action: str  # insert, update, delete
+    before: str | None = None
+    after: str | None = None
+
+
+#: tables that carry a ``version`` column and a natural key
+VERSIONED = {
+    "exposure": Exposure,
+    "outcome": Outcome,
+    "event": Event,
+    "study": Study,
+    "estimate": Estimate,
+    "appraisal": Appraisal,
+}
+
+#: the column that names a row for users and in the audit trail
+NATURAL_KEY = {
+    "exposure": "name",
+    "outcome": "name",
+    "event": "key",
+    "study": "key",
+    "estimate": "key",
+}

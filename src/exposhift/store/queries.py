@@ -1,0 +1,115 @@
+"""Read-only queries that hand the evidence base to the pure computation modules.
+
+:func:`analysis_frame` returns one row per estimate with the extraction-sheet column names (see
+:mod:`exposhift.io.columns`) plus the derived columns of ``ANALYSIS_EXTRA``. It is the single
+entry point from the store into synthesis, replication and gaps.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import Connection, select
+
+from exposhift.store.models import Appraisal, Estimate, Event, Exposure, Outcome, Study
+from exposhift.vocab import DESIGNS
+
+ST, EV, ES = Study.__table__, Event.__table__, Estimate.__table__
+EX, OU, AP = Exposure.__table__, Outcome.__table__, Appraisal.__table__
+
+
+def _consensus_levels(conn: Connection) -> dict[str, int]:
+    """Overall level of each study's appraisal of record (the consensus appraisal)."""
+    stmt = (
+        select(ST.c.key, AP.c.overall)
+        .join(AP, AP.c.study_id == ST.c.id)
+        .where(AP.c.stage == "consensus")
+    )
+    return {k: lvl for k, lvl in conn.execute(stmt) if lvl is not None}
+
+
+def analysis_frame(
+    conn: Connection, *, exposure: str | None = None, outcome: str | None = None
+) -> pd.DataFrame:
+    """One row per estimate, joined with its study, event, exposure, outcome and level."""
+    stmt = (
+        select(
+            ES.c.key.label("estimate_uid"),
+            ST.c.key.label("study_id"), ST.c.citation, ST.c.year, ST.c.doi, ST.c.design,
+            ST.c.comparison, ST.c.population, ST.c.data_source, ST.c.assignment_grade,
+            ST.c.pre_points, ST.c.post_points, ST.c.checks, ST.c.demo,
+            EV.c.key.label("event_id"), EX.c.name.label("exposure"), EV.c.change_kind,
+            EV.c.change_direction, EV.c.change_size, EV.c.change_unit, EV.c.country, EV.c.area,
+            EV.c.change_date, EV.c.family,
+            OU.c.name.label("outcome"), OU.c.outcome_group,
+            ES.c.measure, ES.c.estimate_kind, ES.c.per_unit, ES.c.point.label("estimate"),
+            ES.c.ci_low, ES.c.ci_high, ES.c.ci_level, ES.c.se, ES.c.p_value, ES.c.baseline_risk,
+            ES.c.subgroup, ES.c.time_window, ES.c.primary,
+        )
+        .join(ST, ES.c.study_id == ST.c.id)
+        .join(EV, ES.c.event_id == EV.c.id)
+        .join(EX, EV.c.exposure_id == EX.c.id)
+        .join(OU, ES.c.outcome_id == OU.c.id)
+        .order_by(ES.c.key)
+    )
+    if exposure is not None:
+        stmt = stmt.where(EX.c.name == exposure)
+    if outcome is not None:
+        stmt = stmt.where(OU.c.name == outcome)
+    rows = conn.execute(stmt).mappings().all()
+    frame = pd.DataFrame([dict(r) for r in rows], columns=list(stmt.selected_columns.keys()))
+    return add_derived(frame, _consensus_levels(conn))
+
+
+def add_derived(frame: pd.DataFrame, levels: dict[str, int]) -> pd.DataFrame:
+    """Add design_family, change_year, family (default key) and level columns."""
+    out = frame.copy()
+    out["design_family"] = out["design"].map(lambda d: DESIGNS[d][0] if d in DESIGNS else None)
+    out["change_year"] = pd.to_numeric(out["change_date"].astype(str).str[:4], errors="coerce")
+    default_family = out["exposure"].astype(str) + " / " + out["change_kind"].astype(str)
+    out["family"] = out["family"].where(out["family"].notna() & (out["family"] != ""),
+                                        default_family)
+    out["level"] = out["study_id"].map(levels).astype("float64")
+    for col in ("change_size", "per_unit", "estimate", "ci_low", "ci_high", "ci_level", "se",
+                "p_value", "baseline_risk"):
+        out[col] = pd.to_numeric(out[col], errors="coerce").astype("float64")
+    out["primary"] = out["primary"].fillna(False).astype(bool)
+    if out.empty:
+        out["change_year"] = out["change_year"].astype("float64")
+    return out
+
+
+def events_frame(conn: Connection) -> pd.DataFrame:
+    """Every registered exposure-change event, with the number of studies that analyse it."""
+    n_studies = (
+        select(ES.c.event_id, ST.c.key)
+        .join(ST, ES.c.study_id == ST.c.id)
+        .distinct()
+    ).subquery()
+    from sqlalchemy import func
+
+    counts = (
+        select(n_studies.c.event_id, func.count().label("studies"))
+        .group_by(n_studies.c.event_id)
+        .subquery()
+    )
+    stmt = (
+        select(
+            EV.c.key.label("event_id"), EX.c.name.label("exposure"), EV.c.change_kind,
+            EV.c.change_direction, EV.c.change_size, EV.c.change_unit, EV.c.country, EV.c.area,
+            EV.c.change_date, EV.c.family, EV.c.demo,
+            func.coalesce(counts.c.studies, 0).label("studies"),
+        )
+        .join(EX, EV.c.exposure_id == EX.c.id)
+        .outerjoin(counts, counts.c.event_id == EV.c.id)
+        .order_by(EV.c.key)
+    )
+    rows = conn.execute(stmt).mappings().all()
+    frame = pd.DataFrame([dict(r) for r in rows], columns=list(stmt.selected_columns.keys()))
+    frame["studies"] = frame["studies"].astype(np.int64)
+    frame["change_year"] = pd.to_numeric(frame["change_date"].astype(str).str[:4],
+                                         errors="coerce")
+    default_family = frame["exposure"].astype(str) + " / " + frame["change_kind"].astype(str)
+    frame["family"] = frame["family"].where(frame["family"].notna() & (frame["family"] != ""),
+                                            default_family)
+    return frame

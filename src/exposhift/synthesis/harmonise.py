@@ -1,0 +1,603 @@
+"""Harmonise reported estimates: one analysis-scale value ``y`` and variance ``v`` per row.
+
+Each conversion below names its source. :func:`harmonise` applies them to a whole analysis
+frame at once (numpy arrays, no per-row Python loop on the numeric path).
+
+Rules of :func:`harmonise` (documented here, shown per row in ``harmonise_note``):
+
+* **Scale.** RR, OR, HR, IRR: natural log. Percent change p: log(1 + p/100), the log of the
+  ratio it implies. RD, MD, SMD: identity.
+* **Uncertainty precedence: CI, then SE, then p.** A CI with both limits is used first: it is
+  what papers report most, on the reported scale, so it needs no assumption about which scale
+  an SE refers to. Then an SE (read as on the analysis scale, as the extraction sheet says),
+  then a two-sided p value. A row with a single CI limit, or a zero-width CI, falls back to its
+  SE or p value with a note, and is an error when it has neither.
+* **Asymmetry.** A CI whose two halves differ on the analysis scale by more than
+  ``asymmetry_tol`` (default 10 %, common practice) of its width is flagged: it often means the
+  limits were reported on another scale, or rounded heavily. The SE still comes from the full
+  width (Altman & Bland 2011).
+* **Measure groups** (what may be pooled together): ``ratio`` = RR, HR, IRR and percent change
+  (all log ratios; treating a hazard ratio or rate ratio like a risk ratio is common practice
+  when the outcome is rare); ``odds_ratio`` = OR, kept apart because an OR departs from the RR
+  when the outcome is common, *unless* a baseline risk is given and ``convert_or`` is on: then
+  it is converted to an RR (Zhang & Yu 1998) and joins ``ratio``. ``risk_difference`` (RD),
+  ``mean_difference`` (MD) and ``smd`` (SMD) stay apart; with ``smd_as_log_or`` an SMD becomes
+  a log OR (Chinn 2000) and joins ``odds_ratio``.
+* **Direction.** Every row is expressed as the effect of an exposure change in the direction
+  ``align_to``. A change/level/slope estimate from a change in the other direction has its sign
+  flipped on the analysis scale (a ratio becomes its reciprocal); this assumes the effect of a
+  decrease mirrors that of an increase, and ``sign_flipped`` shows it. Per-unit estimates are
+  read as per ``per_unit`` increase of exposure (a negative ``per_unit`` means a decrease); they
+  are rescaled to the target increment with the sign of ``align_to``.
+* **Per-unit increments.** Per-unit estimates are rescaled log-linearly (β·new/old on the
+  analysis scale, variance ·(new/old)²) to one increment per ``change_unit``: ``per_unit_to``
+  (a number, or a mapping unit → number), by default the increment most often reported for that
+  unit (the smaller one on a tie). The ``increment`` column ("10 ug/m3") keeps different units
+  apart when pooling.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from exposhift.errors import AnalysisError
+from exposhift.vocab import DIRECTIONS, ESTIMATE_KINDS, MEASURES
+
+LOG_MEASURES = frozenset(m for m, s in MEASURES.items() if s == "log")
+RATIO_MEASURES = frozenset({"RR", "OR", "HR", "IRR"})
+
+#: measure -> pooling-compatible group (before any OR -> RR or SMD -> log OR conversion)
+MEASURE_GROUPS: dict[str, str] = {
+    "RR": "ratio",
+    "HR": "ratio",
+    "IRR": "ratio",
+    "pct_change": "ratio",
+    "OR": "odds_ratio",
+    "RD": "risk_difference",
+    "MD": "mean_difference",
+    "SMD": "smd",
+}
+GROUP_SCALES: dict[str, str] = {
+    "ratio": "log",
+    "odds_ratio": "log",
+    "risk_difference": "identity",
+    "mean_difference": "identity",
+    "smd": "identity",
+}
+UNCERTAINTY_PRECEDENCE: tuple[str, ...] = ("ci", "se", "p")
+#: flag a CI when its halves differ by more than this fraction of its width (common practice)
+ASYMMETRY_TOL = 0.10
+#: columns added by :func:`harmonise`
+ADDED_COLUMNS: tuple[str, ...] = (
+    "y", "v", "scale", "se_source", "ci_asymmetric", "sign_flipped", "measure_group",
+    "increment", "harmonise_note",
+)
+
+
+def _out(x: np.ndarray) -> Any:
+    """A float for scalar input, else the array."""
+    return float(x) if np.ndim(x) == 0 else x
+
+
+def _arr(x: Any) -> np.ndarray:
+    return np.asarray(x, dtype=float)
+
+
+# --------------------------------------------------------------------------------------------
+# conversion functions (scalar or vectorised)
+
+
+def z_for_level(level: Any = 0.95) -> Any:
+    """Two-sided normal quantile z for a confidence level, e.g. 1.959964 for 0.95.
+
+    Source: the normal-theory interval estimate ± z·SE (Altman & Bland 2011, BMJ 343:d2090).
+    """
+    level = _arr(level)
+    if np.any(~((level > 0) & (level < 1))):
+        raise AnalysisError("a confidence level must be a fraction between 0 and 1 (e.g. 0.95)")
+    return _out(stats.norm.ppf((1.0 + level) / 2.0))
+
+
+def to_analysis_scale(measure: Any, value: Any) -> Any:
+    """Put reported values on the analysis scale.
+
+    log for RR/OR/HR/IRR; log(1 + p/100) for pct_change (the log of the implied ratio); identity
+    for RD/MD/SMD. Analysing ratio measures on the log scale: Deeks, Higgins & Altman, Cochrane
+    Handbook ch. 10 (2019), sec. 10.3; Woodward 2019 (Heart 105:1701) worked example.
+    ``measure`` is one code or an array of codes matching ``value``.
+    """
+    value = _arr(value)
+    measure = np.broadcast_to(np.asarray(measure, dtype=object), value.shape)
+    known = np.isin(measure, list(MEASURES))
+    if not known.all():
+        bad = sorted({str(m) for m in measure[~known]})
+        raise AnalysisError(
+            f"unknown measure(s) {', '.join(bad)}; use one of {', '.join(MEASURES)}"
+        )
+    is_pct = measure == "pct_change"
+    is_log = np.isin(measure, list(RATIO_MEASURES))
+    if np.any(is_log & ~(value > 0)) or np.any(is_pct & ~(value > -100)):
+        raise AnalysisError(
+            "ratio measures need positive values and percent changes values above -100"
+        )
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = np.where(is_log, np.log(value), np.where(is_pct, np.log1p(value / 100.0), value))
+    return _out(out)
+
+
+def from_analysis_scale(scale: Any, value: Any) -> Any:
+    """Back-transform analysis-scale values for display: exp for ``"log"``, identity otherwise.
+
+    (The inverse of :func:`to_analysis_scale`; a pooled log ratio becomes a ratio.)
+    """
+    value = _arr(value)
+    scale = np.broadcast_to(np.asarray(scale, dtype=object), value.shape)
+    return _out(np.where(scale == "log", np.exp(value), value))
+
+
+def se_from_ci(low: Any, high: Any, level: Any = 0.95, scale: str = "log") -> Any:
+    """SE from a confidence interval of any stated level: (h(U) − h(L)) / (2·z).
+
+    h = log for ``scale="log"`` (limits of a ratio), identity for ``scale="identity"`` (limits
+    already on the analysis scale); z = Φ⁻¹((1 + level)/2). Sources: Altman & Bland 2011, BMJ
+    343:d2090 ("How to obtain the P value from a confidence interval"); Woodward 2019, Heart
+    105:1701, Table 4 (SE = (ln U − ln L)/3.92 for a 95 % CI).
+    """
+    low, high = _arr(low), _arr(high)
+    if scale not in ("log", "identity"):
+        raise AnalysisError(f"scale must be 'log' or 'identity', got {scale!r}")
+    if scale == "log":
+        if np.any(~(low > 0) | ~(high > 0)):
+            raise AnalysisError("confidence limits of a ratio must be positive")
+        low, high = np.log(low), np.log(high)
+    if np.any(~(high > low)):
+        raise AnalysisError("the upper confidence limit must be above the lower one")
+    return _out((high - low) / (2.0 * _arr(z_for_level(level))))
+
+
+def z_from_p(p: Any) -> Any:
+    """z for a two-sided p value, exact normal quantile Φ⁻¹(1 − p/2).
+
+    Altman & Bland 2011 (BMJ 343:d2090) step 1, computed exactly instead of with their
+    approximation (see :func:`z_from_p_approx`).
+    """
+    p = _arr(p)
+    if np.any(~((p > 0) & (p <= 1))):
+        raise AnalysisError("a p value must be in (0, 1]")
+    return _out(stats.norm.isf(p / 2.0))
+
+
+def z_from_p_approx(p: Any) -> Any:
+    """The published approximation z = −0.862 + √(0.743 − 2.404·ln p) (Altman & Bland 2011).
+
+    Kept to check our exact :func:`z_from_p` against the published worked examples; the
+    library itself uses the exact quantile.
+    """
+    p = _arr(p)
+    if np.any(~((p > 0) & (p <= 1))):
+        raise AnalysisError("a p value must be in (0, 1]")
+    return _out(-0.862 + np.sqrt(0.743 - 2.404 * np.log(p)))
+
+
+def se_from_p(estimate_on_scale: Any, p: Any) -> Any:
+    """SE = |estimate| / z, z from the two-sided p value (Altman & Bland 2011, BMJ 343:d2090).
+
+    The estimate must be on the analysis scale (log ratio for ratios) and not at the null.
+    """
+    y = _arr(estimate_on_scale)
+    z = _arr(z_from_p(p))
+    if np.any(y == 0) or np.any(z == 0):
+        raise AnalysisError(
+            "an SE cannot be derived from a p value when the estimate is at the null or p = 1"
+        )
+    return _out(np.abs(y) / z)
+
+
+def wald_ci(y: Any, se: Any, level: Any = 0.95) -> tuple[Any, Any]:
+    """Normal-theory interval y ± z·SE on the analysis scale (Altman & Bland 2011)."""
+    y, se = _arr(y), _arr(se)
+    z = _arr(z_for_level(level))
+    return _out(y - z * se), _out(y + z * se)
+
+
+def ci_asymmetry(estimate: Any, low: Any, high: Any) -> Any:
+    """Asymmetry of an interval on the analysis scale: |(U − y) − (y − L)| / (U − L).
+
+    0 for a symmetric interval, 1 when the estimate sits on a limit. Values are analysis-scale
+    (apply :func:`to_analysis_scale` first). A Wald interval on the analysis scale is symmetric
+    (Altman & Bland 2011), so asymmetry points to limits given on another scale or rounding.
+    """
+    y, low, high = _arr(estimate), _arr(low), _arr(high)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return _out(np.abs((high - y) - (y - low)) / (high - low))
+
+
+def ci_asymmetric(estimate: Any, low: Any, high: Any, tol: float = ASYMMETRY_TOL) -> Any:
+    """Flag: :func:`ci_asymmetry` above ``tol`` (default 0.10, common practice)."""
+    a = _arr(ci_asymmetry(estimate, low, high))
+    flag = a > tol
+    return bool(flag) if np.ndim(flag) == 0 else flag
+
+
+def or_to_rr(or_: Any, baseline_risk: Any) -> Any:
+    """Risk ratio from an odds ratio and the risk in the unexposed group P₀.
+
+    RR = OR / (1 − P₀ + P₀·OR) (Zhang & Yu 1998, JAMA 280:1690). Applied to the limits of a CI
+    as the authors propose; it is approximate for adjusted ORs (McNutt et al. 2003, Am J
+    Epidemiol 157:940).
+    """
+    or_, p0 = _arr(or_), _arr(baseline_risk)
+    if np.any(~(or_ > 0)):
+        raise AnalysisError("odds ratios must be positive")
+    if np.any(~((p0 > 0) & (p0 < 1))):
+        raise AnalysisError("a baseline risk must be a proportion strictly between 0 and 1")
+    return _out(or_ / (1.0 - p0 + p0 * or_))
+
+
+_CHINN = np.pi / np.sqrt(3.0)
+
+
+def smd_to_log_or(smd: Any, var: Any = None) -> tuple[Any, Any]:
+    """ln OR = SMD·π/√3 and Var(ln OR) = Var(SMD)·π²/3 (Chinn 2000, Stat Med 19:3127; also
+    Borenstein et al. 2009, Introduction to Meta-Analysis, ch. 7). Returns (ln OR, variance or
+    None)."""
+    smd = _arr(smd)
+    return _out(smd * _CHINN), (None if var is None else _out(_arr(var) * _CHINN**2))
+
+
+def log_or_to_smd(log_or: Any, var: Any = None) -> tuple[Any, Any]:
+    """SMD = ln OR·√3/π and Var(SMD) = Var(ln OR)·3/π² (Chinn 2000; Borenstein et al. 2009,
+    ch. 7). Returns (SMD, variance or None)."""
+    lo = _arr(log_or)
+    return _out(lo / _CHINN), (None if var is None else _out(_arr(var) / _CHINN**2))
+
+
+def rescale_factor(old: Any, new: Any) -> Any:
+    """new/old: the factor that moves a log-linear (or linear) slope from one increment to
+    another (see :func:`rescale_increment`)."""
+    old, new = _arr(old), _arr(new)
+    if np.any(~np.isfinite(old) | (old == 0)) or np.any(~np.isfinite(new)):
+        raise AnalysisError("exposure increments must be finite and the old one non-zero")
+    return _out(new / old)
+
+
+def rescale_increment(beta: Any, old: Any, new: Any) -> Any:
+    """Rescale an analysis-scale estimate per ``old`` units of exposure to per ``new`` units.
+
+    β_new = β·(new/old); its SE scales by |new/old|. Assumes the effect is linear on the
+    analysis scale (log-linear for ratios): e.g. RR 0.7 per 8 mm Hg → 0.7^(10/8) = 0.64 per
+    10 mm Hg (Law, Morris & Wald 2009, BMJ 338:b1665, methods).
+    """
+    return _out(_arr(beta) * _arr(rescale_factor(old, new)))
+
+
+# --------------------------------------------------------------------------------------------
+# harmonise a frame
+
+
+class _Problems:
+    """Row problems found in one pass; raised together as one AnalysisError."""
+
+    def __init__(self, frame: pd.DataFrame, limit: int = 20):
+        self.index = frame.index
+        self.uid = (
+            frame["estimate_uid"].astype("string").fillna("").to_numpy()
+            if "estimate_uid" in frame.columns else None
+        )
+        self.items: list[tuple[int, str]] = []
+        self.count = 0
+        self.limit = limit
+
+    def add(self, mask: np.ndarray, message: Any) -> None:
+        pos = np.flatnonzero(mask)
+        self.count += pos.size
+        for i in pos[: self.limit]:
+            text = message(i) if callable(message) else message
+            self.items.append((int(i), text))
+
+    def where(self, i: int) -> str:
+        name = f"row {self.index[i]}"
+        if self.uid is not None and self.uid[i]:
+            name += f" (estimate {self.uid[i]})"
+        return name
+
+    def raise_if_any(self) -> None:
+        if not self.items:
+            return
+        self.items.sort()
+        shown = "\n".join(f"  {self.where(i)}: {m}" for i, m in self.items[: self.limit])
+        more = self.count - min(len(self.items), self.limit)
+        tail = f"\n  ... and {more} more" if more > 0 else ""
+        raise AnalysisError(
+            f"{self.count} estimate problem{'s' if self.count != 1 else ''} stop harmonisation; "
+            f"fix them in the extraction sheet:\n{shown}{tail}"
+        )
+
+
+def _num(frame: pd.DataFrame, col: str, probs: _Problems) -> np.ndarray:
+    if col not in frame.columns:
+        return np.full(len(frame), np.nan)
+    raw = frame[col]
+    if pd.api.types.is_numeric_dtype(raw.dtype) and not pd.api.types.is_bool_dtype(raw.dtype):
+        return raw.to_numpy(dtype=float, na_value=np.nan)
+    num = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    cand = np.flatnonzero(np.isnan(num) & raw.notna().to_numpy())
+    if cand.size:
+        vals = raw.to_numpy(dtype=object)
+        bad = np.zeros(len(raw), dtype=bool)
+        bad[cand] = [str(vals[i]).strip() != "" for i in cand]
+        probs.add(bad, lambda i: f"{col} {vals[i]!r} is not a number")
+    return num
+
+
+def _text(frame: pd.DataFrame, col: str) -> np.ndarray:
+    """Stripped text of a column ("" for missing), converting each distinct value once."""
+    if col not in frame.columns:
+        return np.full(len(frame), "", dtype=object)
+    codes, uniques = pd.factorize(frame[col], use_na_sentinel=True)
+    clean = np.array([str(u).strip() for u in uniques] + [""], dtype=object)
+    return clean[codes]  # code -1 (missing) picks the trailing ""
+
+
+def _fmt(values: np.ndarray) -> np.ndarray:
+    """'%g' text of each value, formatting each distinct value once."""
+    uniq, inv = np.unique(np.asarray(values, dtype=float), return_inverse=True)
+    return np.array([f"{x:g}" for x in uniq], dtype=object)[inv.reshape(-1)]
+
+
+def _join_notes(n: int, pieces: list[tuple[np.ndarray, Any]]) -> np.ndarray:
+    """'; '-joined notes; each piece is (mask, text) with text a string or a function of the
+    row positions returning one string per masked row."""
+    out = np.full(n, "", dtype=object)
+    for mask, text in pieces:
+        pos = np.flatnonzero(mask)
+        if not pos.size:
+            continue
+        t = text(pos) if callable(text) else text
+        cur = out[pos]
+        out[pos] = np.where(cur == "", t, cur + "; " + t)
+    return out
+
+
+def _target_increments(
+    unit: np.ndarray, per_unit: np.ndarray, is_pu: np.ndarray,
+    per_unit_to: float | Mapping[str, float] | None, probs: _Problems,
+) -> np.ndarray:
+    """Absolute target increment for each per-unit row (nan elsewhere)."""
+    target = np.full(unit.size, np.nan)
+    ok = is_pu & np.isfinite(per_unit) & (per_unit != 0)
+    if not ok.any():
+        return target
+    if per_unit_to is None:
+        df = pd.DataFrame({"unit": unit[ok], "inc": np.abs(per_unit[ok])})
+        counts = df.groupby(["unit", "inc"]).size().reset_index(name="n")
+        counts = counts.sort_values(["unit", "n", "inc"], ascending=[True, False, True])
+        modal = counts.drop_duplicates("unit").set_index("unit")["inc"]
+        target[ok] = pd.Series(unit[ok]).map(modal).to_numpy(dtype=float)
+    elif isinstance(per_unit_to, Mapping):
+        mapped = pd.Series(unit[ok]).map(lambda u: per_unit_to.get(u, np.nan))
+        target[ok] = mapped.to_numpy(dtype=float)
+        missing = ok & ~np.isfinite(target)
+        probs.add(missing, lambda i: f"no target increment for change_unit '{unit[i]}' in "
+                  "per_unit_to; add it")
+    else:
+        target[ok] = float(per_unit_to)
+    bad = ok & np.isfinite(target) & ~(target > 0)
+    probs.add(bad, "the target increment must be positive")
+    return target
+
+
+def harmonise(
+    frame: pd.DataFrame, align_to: str = "increase", *, convert_or: bool = True,
+    smd_as_log_or: bool = False, per_unit_to: float | Mapping[str, float] | None = None,
+    asymmetry_tol: float = ASYMMETRY_TOL,
+) -> pd.DataFrame:
+    """Add analysis-scale columns to an analysis frame (extraction-sheet column names).
+
+    Reads ``measure, estimate, ci_low, ci_high, ci_level (blank = 0.95), se, p_value,
+    baseline_risk, estimate_kind (blank = change), per_unit, change_unit, change_direction``
+    and adds :data:`ADDED_COLUMNS`: ``y, v`` (value and variance on the analysis scale),
+    ``scale`` ("log"/"identity"), ``se_source`` ("ci", "se", "p"), ``ci_asymmetric``,
+    ``sign_flipped``, ``measure_group``, ``increment`` (per-unit rows: "10 ug/m3"; else "") and
+    ``harmonise_note``; blank ``estimate_kind`` is filled with "change". The rules are in the
+    module docstring. Every row that cannot be harmonised is reported in one
+    :class:`AnalysisError` naming the row (index, and estimate_uid when present).
+    """
+    if align_to not in DIRECTIONS:
+        raise AnalysisError(f"align_to must be one of {', '.join(DIRECTIONS)}, got {align_to!r}")
+    if not 0 < asymmetry_tol < 1:
+        raise AnalysisError("asymmetry_tol must be a fraction between 0 and 1")
+    n = len(frame)
+    probs = _Problems(frame)
+    if "measure" not in frame.columns or "estimate" not in frame.columns:
+        raise AnalysisError("the frame needs at least the columns 'measure' and 'estimate'")
+
+    measure = _text(frame, "measure")
+    est = _num(frame, "estimate", probs)
+    low = _num(frame, "ci_low", probs)
+    high = _num(frame, "ci_high", probs)
+    level = _num(frame, "ci_level", probs)
+    se_in = _num(frame, "se", probs)
+    p_in = _num(frame, "p_value", probs)
+    p0 = _num(frame, "baseline_risk", probs)
+    per_unit = _num(frame, "per_unit", probs)
+    kind = _text(frame, "estimate_kind")
+    kind = np.where(kind == "", "change", kind).astype(object)
+    direction = _text(frame, "change_direction")
+    unit = _text(frame, "change_unit")
+
+    # ---- checks that do not depend on the uncertainty source
+    known = np.isin(measure, list(MEASURES))
+    probs.add(~known, lambda i: f"unknown measure '{measure[i]}'; use one of "
+              f"{', '.join(MEASURES)}")
+    probs.add(~np.isfinite(est) & ~np.isnan(est), "estimate is not finite")
+    probs.add(np.isnan(est), "estimate is missing")
+    is_ratio = np.isin(measure, list(RATIO_MEASURES))
+    is_pct = measure == "pct_change"
+    probs.add(is_ratio & np.isfinite(est) & ~(est > 0),
+              lambda i: f"{measure[i]} needs a positive estimate, got {est[i]:g}")
+    probs.add(is_pct & np.isfinite(est) & ~(est > -100),
+              lambda i: f"a percent change must be above -100, got {est[i]:g}")
+    bad_kind = ~np.isin(kind, list(ESTIMATE_KINDS))
+    probs.add(bad_kind, lambda i: f"unknown estimate_kind '{kind[i]}'; use one of "
+              f"{', '.join(ESTIMATE_KINDS)}")
+    is_pu = kind == "per-unit"
+    probs.add(is_pu & ~(np.isfinite(per_unit) & (per_unit != 0)),
+              "a per-unit estimate needs per_unit, the exposure increment it refers to")
+    probs.add(~is_pu & ~np.isin(direction, list(DIRECTIONS)),
+              lambda i: f"change_direction must be {' or '.join(DIRECTIONS)}, got "
+              f"'{direction[i]}'")
+    level = np.where(np.isnan(level), 0.95, level)
+    probs.add((level >= 1) & (level < 100),
+              lambda i: f"ci_level {level[i]:g} looks like a percentage; give it as a fraction "
+              f"({level[i] / 100:g})")
+    probs.add(~((level > 0) & (level < 1)) & ~((level >= 1) & (level < 100)),
+              lambda i: f"ci_level {level[i]:g} must be a fraction between 0 and 1")
+    probs.add(np.isfinite(se_in) & ~(se_in > 0), lambda i: f"se must be positive, got {se_in[i]:g}")
+    probs.add(np.isfinite(p_in) & ~((p_in > 0) & (p_in < 1)),
+              lambda i: f"p_value must be strictly between 0 and 1, got {p_in[i]:g}")
+    is_or = measure == "OR"
+    has_p0 = np.isfinite(p0)
+    probs.add(has_p0 & ~((p0 > 0) & (p0 < 1)),
+              lambda i: f"baseline_risk must be a proportion between 0 and 1, got {p0[i]:g}")
+    level = np.where((level > 0) & (level < 1), level, 0.95)
+
+    # ---- which uncertainty source each row uses (CI, then SE, then p)
+    valid_est = known & np.isfinite(est) & ~(is_ratio & ~(est > 0)) & ~(is_pct & ~(est > -100))
+    both = np.isfinite(low) & np.isfinite(high)
+    one = np.isfinite(low) ^ np.isfinite(high)
+    lim_ok = (
+        both
+        & ~(is_ratio & ~((low > 0) & (high > 0)))
+        & ~(is_pct & ~((low > -100) & (high > -100)))
+    )
+    probs.add(both & ~lim_ok, "confidence limits out of range for the measure (ratios need "
+              "positive limits, percent changes limits above -100)")
+    probs.add(lim_ok & (low > high), lambda i: f"ci_low {low[i]:g} is above ci_high {high[i]:g}")
+    outside = lim_ok & (low <= high) & np.isfinite(est) & ((est < low) | (est > high))
+    probs.add(outside, lambda i: f"estimate {est[i]:g} lies outside its interval "
+              f"({low[i]:g}, {high[i]:g}); check the extraction")
+    use_ci = lim_ok & (low < high) & ~outside
+    se_ok = np.isfinite(se_in) & (se_in > 0)
+    p_ok = np.isfinite(p_in) & (p_in > 0) & (p_in < 1)
+    use_se = ~use_ci & se_ok
+    use_p = ~use_ci & ~se_ok & p_ok
+    none = ~(use_ci | use_se | use_p)
+    zero_width = lim_ok & (low == high)
+    probs.add(none & one, "only one confidence limit given; give both, or an SE or a p value")
+    probs.add(none & zero_width & ~one, "the confidence interval has zero width; give the "
+              "limits with more decimals, or an SE or a p value")
+    probs.add(none & ~one & ~zero_width & ~both,
+              "no confidence interval, SE or p value; give one of them")
+
+    # ---- OR -> RR (Zhang & Yu) on the reported scale, before taking logs
+    conv_or = is_or & has_p0 & (p0 > 0) & (p0 < 1) & convert_or & valid_est
+    meas_eff = measure.copy()
+    est_eff, low_eff, high_eff = est.copy(), low.copy(), high.copy()
+    level_eff = level.copy()
+    if conv_or.any():
+        lo_or = np.log(np.where(conv_or, est, 1.0))
+        se_or = np.where(conv_or & use_se, se_in, np.nan)
+        p_sel = conv_or & use_p
+        if p_sel.any():
+            se_or[p_sel] = np.abs(lo_or[p_sel]) / stats.norm.isf(p_in[p_sel] / 2.0)
+        need_ci = conv_or & (use_se | (use_p & (lo_or != 0)))
+        z95 = stats.norm.ppf(0.975)
+        low_eff = np.where(need_ci, np.exp(lo_or - z95 * se_or), low_eff)
+        high_eff = np.where(need_ci, np.exp(lo_or + z95 * se_or), high_eff)
+        level_eff = np.where(need_ci, 0.95, level_eff)
+        ok = conv_or & (use_ci | need_ci)
+        r = lambda x: np.where(ok, x / (1.0 - p0 + p0 * x), x)  # noqa: E731  Zhang & Yu 1998
+        with np.errstate(invalid="ignore", divide="ignore"):
+            est_eff = np.where(ok, r(est), est_eff)
+            low_eff, high_eff = r(low_eff), r(high_eff)
+        meas_eff = np.where(ok, "RR", meas_eff).astype(object)
+        conv_or = ok
+
+    probs.raise_if_any()
+
+    # ---- analysis scale (everything valid from here on)
+    log_m = np.isin(meas_eff, list(RATIO_MEASURES))
+    pct_m = meas_eff == "pct_change"
+
+    def h(x: np.ndarray) -> np.ndarray:
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return np.where(log_m, np.log(x), np.where(pct_m, np.log1p(x / 100.0), x))
+
+    y = h(est_eff)
+    hl, hh = h(low_eff), h(high_eff)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        se_ci = (hh - hl) / (2.0 * stats.norm.ppf((1.0 + level_eff) / 2.0))
+        se_p = np.abs(y) / stats.norm.isf(np.where(use_p, p_in, 0.5) / 2.0)
+    zero_p = use_p & (y == 0)
+    probs.add(zero_p, "an SE cannot come from a p value when the estimate is at the null "
+              "(give a CI or an SE)")
+    probs.raise_if_any()
+    from_ci = use_ci | conv_or  # converted ORs take the SE from their converted limits
+    se = np.where(from_ci, se_ci, np.where(use_se, se_in, se_p))
+    v = se * se
+    asym = use_ci & ~conv_or & (np.abs((hh - y) - (y - hl)) > asymmetry_tol * (hh - hl))
+
+    group = pd.Series(measure).map(MEASURE_GROUPS).to_numpy(dtype=object)
+    group = np.where(conv_or, "ratio", group).astype(object)
+    smd_conv = (measure == "SMD") & bool(smd_as_log_or)
+    y = np.where(smd_conv, y * _CHINN, y)
+    v = np.where(smd_conv, v * _CHINN**2, v)
+    group = np.where(smd_conv, "odds_ratio", group).astype(object)
+
+    # ---- per-unit rescaling and direction alignment
+    sign = 1.0 if align_to == "increase" else -1.0
+    target = _target_increments(unit, per_unit, is_pu, per_unit_to, probs)
+    probs.raise_if_any()
+    factor = np.where(is_pu, sign * target / np.where(is_pu, per_unit, 1.0), 1.0)
+    flip_dir = ~is_pu & (direction != align_to)
+    factor = np.where(flip_dir, -1.0, factor)
+    y = y * factor
+    v = v * factor * factor
+    flipped = factor < 0
+    rescaled = is_pu & (np.abs(factor) != 1.0)
+    increment = np.full(n, "", dtype=object)
+    if is_pu.any():
+        inc = _fmt(target[is_pu])
+        u = unit[is_pu]
+        increment[is_pu] = np.where(u == "", inc, inc + " " + u)
+
+    # ---- notes
+    def pct(pos: np.ndarray) -> np.ndarray:
+        return _fmt(np.round(level_eff[pos] * 100, 6))
+
+    notes = _join_notes(n, [
+        (use_ci & ~conv_or, lambda i: "SE from " + pct(i) + "% CI"),
+        (use_se & ~conv_or, "SE as reported"),
+        (use_p & ~conv_or, lambda i: "SE from p = " + _fmt(p_in[i]) + " (exact normal quantile)"),
+        (one & ~use_ci, "only one CI limit given"),
+        (zero_width & ~use_ci, "zero-width CI ignored"),
+        (is_pct, "percent change p taken as log(1 + p/100)"),
+        (conv_or, lambda i: "OR converted to RR with baseline risk " + _fmt(p0[i])
+         + " (Zhang & Yu 1998); SE from the converted " + pct(i) + "% limits"),
+        (smd_conv, "SMD converted to log OR (Chinn 2000)"),
+        (asym, "CI asymmetric on the analysis scale: check the scale of the reported limits"),
+        (rescaled, lambda i: "rescaled log-linearly from per " + _fmt(np.abs(per_unit[i]))
+         + " to per " + increment[i]),
+        (flip_dir, lambda i: "sign flipped: effect of a " + direction[i]
+         + " expressed as that of an " + align_to + " (assumes a mirrored effect)"),
+        (is_pu & flipped, "per-unit estimate re-expressed per " + align_to),
+    ])
+
+    out = frame.copy()
+    out["estimate_kind"] = kind
+    out["y"] = y
+    out["v"] = v
+    out["scale"] = pd.Series(group).map(GROUP_SCALES).to_numpy(dtype=object)
+    out["se_source"] = np.where(use_ci, "ci", np.where(use_se, "se", "p")).astype(object)
+    out["ci_asymmetric"] = asym
+    out["sign_flipped"] = flipped
+    out["measure_group"] = group
+    out["increment"] = increment
+    out["harmonise_note"] = notes
+    return out

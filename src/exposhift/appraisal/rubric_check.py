@@ -108,7 +108,8 @@ class _Checker:
             raise self.fail(path, f"[{self.name(path)}] has no '{key}'",
                             f"add {key} = a level, one of {_LEVEL_WORDS}")
         if isinstance(value, bool) or not isinstance(value, int) or value not in LEVELS:
-            raise self.fail((*path, key), f"level {value!r} is outside 0-3",
+            where = "" if key == "level" else f" (in '{key}')"
+            raise self.fail((*path, key), f"level {value!r} is outside 0-3{where}",
                             f"accepted levels: {_LEVEL_WORDS}")
         return value
 
@@ -198,8 +199,11 @@ def _domains(c: _Checker, raw: dict) -> tuple[Domain, ...]:
         if key not in DOMAIN_KEYS:
             raise c.fail((*path, "key"), f"unknown domain '{key}'",
                          f"accepted domains: {', '.join(DOMAIN_KEYS)}")
-        if any(d.key == key for d in out):
-            raise c.fail((*path, "key"), f"domain '{key}' is defined twice")
+        for j, d in enumerate(out):
+            if d.key == key:
+                raise c.fail((*path, "key"), f"domain '{key}' is defined twice (first at line "
+                             f"{c.lines.line_of(('domain', j, 'key'))})",
+                             "rename or remove one of them")
         levels: dict[int, tuple[str, ...]] = {}
         for j, lt in enumerate(c.tables(t, "level", path)):
             lp = (*path, "level", j)

@@ -1,0 +1,180 @@
+"""Independence and compatibility of estimates before pooling.
+
+* :func:`select_independent` keeps one estimate per unit of replication — event × population ×
+  outcome data source × outcome × measure group × estimate kind — so that several papers (or
+  several analyses) of the same event count once, and reports every estimate left out and why.
+  Estimates sharing data are not independent and would be over-weighted if pooled together
+  (Cochrane Handbook ch. 23.3; Borenstein et al. 2009, ch. 25).
+* :func:`pooling_keys`, :func:`check_poolable` and :func:`split_strata` keep incompatible
+  quantities apart: different measure groups (scales), ITS level vs slope changes (Korevaar et
+  al. 2023, Res Synth Methods), policy effects vs per-unit exposure effects, and per-unit
+  effects on different exposure increments.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+import pandas as pd
+
+from exposhift.errors import AnalysisError
+
+#: one estimate is kept per combination of these columns (blank population/data_source = one
+#: value)
+UNIT_KEYS: tuple[str, ...] = (
+    "event_id", "population", "data_source", "outcome", "measure_group", "estimate_kind",
+)
+OPTIONAL_UNIT_KEYS = frozenset({"population", "data_source"})
+#: estimates may only be pooled within one combination of these columns
+POOLING_KEYS: tuple[str, ...] = ("measure_group", "estimate_kind", "increment")
+
+_TRUE = frozenset({"true", "yes", "y", "1", "t"})
+
+
+def _clean_text(s: pd.Series) -> np.ndarray:
+    codes, uniques = pd.factorize(s, use_na_sentinel=True)
+    clean = np.array([str(u).strip() for u in uniques] + [""], dtype=object)
+    return clean[codes]
+
+
+def _flag(s: pd.Series) -> np.ndarray:
+    """Boolean flag from bools, 0/1 or yes/no text; missing is False."""
+    if pd.api.types.is_bool_dtype(s.dtype):
+        return s.fillna(False).to_numpy(dtype=bool)
+    if pd.api.types.is_numeric_dtype(s.dtype):
+        return s.fillna(0).to_numpy(dtype=float) != 0
+    return np.isin(np.char.lower(_clean_text(s).astype(str)), list(_TRUE))
+
+
+def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Keep one estimate per :data:`UNIT_KEYS` combination; return ``(kept, excluded)``.
+
+    Preference, in order: the ``primary`` flag; the better appraisal ``level`` when that column
+    exists (higher is better, not appraised is worst); an estimate for the whole population
+    (blank ``subgroup``) over a subgroup; the smaller variance ``v``; then ``estimate_uid`` and
+    ``study_id`` (alphabetical) so the choice never depends on row order. Both frames keep the
+    input index and columns; ``excluded`` adds ``kept_estimate`` and ``reason`` (in words).
+    Needs a harmonised frame (``measure_group``, ``estimate_kind``).
+    """
+    required = [c for c in UNIT_KEYS if c not in OPTIONAL_UNIT_KEYS]
+    missing = [c for c in required if c not in frame.columns]
+    if missing:
+        raise AnalysisError(
+            f"column(s) {', '.join(missing)} missing; harmonise the analysis frame first"
+        )
+    n = len(frame)
+    if n == 0:
+        ex = frame.iloc[0:0].copy()
+        ex["kept_estimate"] = pd.Series(dtype=object)
+        ex["reason"] = pd.Series(dtype=object)
+        return frame.copy(), ex
+
+    keys = {c: (_clean_text(frame[c]) if c in frame.columns else np.full(n, "", dtype=object))
+            for c in UNIT_KEYS}
+    unit = pd.DataFrame(keys).groupby(list(UNIT_KEYS), sort=False).ngroup().to_numpy()
+
+    primary = _flag(frame["primary"]) if "primary" in frame.columns else np.zeros(n, bool)
+    has_level = "level" in frame.columns
+    level = (pd.to_numeric(frame["level"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+             if has_level else np.full(n, np.nan))
+    subgroup = (_clean_text(frame["subgroup"]) if "subgroup" in frame.columns
+                else np.full(n, "", dtype=object))
+    v = (pd.to_numeric(frame["v"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+         if "v" in frame.columns else np.full(n, np.nan))
+    uid = (_clean_text(frame["estimate_uid"]) if "estimate_uid" in frame.columns
+           else np.full(n, "", dtype=object))
+    study = (_clean_text(frame["study_id"]) if "study_id" in frame.columns
+             else np.full(n, "", dtype=object))
+
+    level_key = np.where(np.isnan(level), np.inf, -level)
+    v_key = np.where(np.isnan(v), np.inf, v)
+    uid_rank = pd.factorize(uid, sort=True)[0]
+    study_rank = pd.factorize(study, sort=True)[0]
+    # np.lexsort: last key is the primary sort key
+    order = np.lexsort((
+        np.arange(n), study_rank, uid_rank, v_key, subgroup != "", level_key, ~primary, unit,
+    ))
+    first = np.r_[True, unit[order][1:] != unit[order][:-1]]
+    kept_pos = order[first]
+    best_of_unit = np.empty(unit.max() + 1, dtype=int)
+    best_of_unit[unit[kept_pos]] = kept_pos
+    is_kept = np.zeros(n, dtype=bool)
+    is_kept[kept_pos] = True
+
+    ex_pos = np.flatnonzero(~is_kept)
+    kp = best_of_unit[unit[ex_pos]]
+    event = keys["event_id"]
+
+    def name(i: int) -> str:
+        label = f"estimate {uid[i]}" if uid[i] else f"row {frame.index[i]}"
+        return f"study {study[i]}'s {label}" if study[i] else label
+
+    reasons, kept_names = [], []
+    for i, j in zip(ex_pos, kp, strict=True):
+        if primary[j] and not primary[i]:
+            why = "it is flagged primary"
+        elif has_level and level_key[j] < level_key[i]:
+            why = (f"it is better appraised (level {level[j]:g} vs "
+                   f"{'not appraised' if np.isnan(level[i]) else f'{level[i]:g}'})")
+        elif subgroup[j] == "" and subgroup[i] != "":
+            why = f"it covers the whole population (this one is subgroup '{subgroup[i]}')"
+        elif v_key[j] < v_key[i]:
+            why = f"it is more precise (variance {v[j]:.4g} vs {v[i]:.4g})"
+        else:
+            why = "it comes first by identifier (tie on every other criterion)"
+        kept_names.append(uid[j] if uid[j] else str(frame.index[j]))
+        reasons.append(
+            f"same event {event[i]}, population, data source and outcome as {name(j)}, "
+            f"kept because {why}"
+        )
+    kept = frame.iloc[np.flatnonzero(is_kept)].copy()
+    excluded = frame.iloc[ex_pos].copy()
+    excluded["kept_estimate"] = np.array(kept_names, dtype=object)
+    excluded["reason"] = np.array(reasons, dtype=object)
+    return kept, excluded
+
+
+def pooling_keys(by: Sequence[str] = ()) -> list[str]:
+    """``by`` plus the :data:`POOLING_KEYS` it lacks: the grouping every pooled analysis needs."""
+    by = list(by)
+    return by + [k for k in POOLING_KEYS if k not in by]
+
+
+def check_poolable(frame: pd.DataFrame) -> None:
+    """Refuse a frame that mixes measure groups (scales), estimate kinds or increments.
+
+    Raises :class:`AnalysisError` listing the combinations found and how to split them.
+    """
+    missing = [c for c in POOLING_KEYS if c not in frame.columns]
+    if missing:
+        raise AnalysisError(
+            f"column(s) {', '.join(missing)} missing; harmonise the analysis frame first"
+        )
+    combos = frame[list(POOLING_KEYS)].astype("string").fillna("").drop_duplicates()
+    if "scale" in frame.columns and frame["scale"].nunique(dropna=False) > 1:
+        raise AnalysisError("estimates on different analysis scales (log and identity) cannot "
+                            "be pooled together; split by measure_group")
+    if len(combos) > 1:
+        shown = "; ".join(
+            " / ".join(x for x in row if x) for row in combos.itertuples(index=False)
+        )
+        raise AnalysisError(
+            "these estimates are different quantities and cannot be pooled together "
+            f"({shown}): pool each stratum separately (group by "
+            f"{', '.join(POOLING_KEYS)})"
+        )
+
+
+def split_strata(frame: pd.DataFrame, by: Sequence[str] = ()) -> dict[tuple, pd.DataFrame]:
+    """Split a harmonised frame into poolable strata keyed by :func:`pooling_keys` values."""
+    keys = pooling_keys(by)
+    missing = [c for c in keys if c not in frame.columns]
+    if missing:
+        raise AnalysisError(
+            f"column(s) {', '.join(missing)} missing; harmonise the analysis frame first"
+        )
+    return {
+        (k if isinstance(k, tuple) else (k,)): g
+        for k, g in frame.groupby(keys, sort=True, dropna=False)
+    }

@@ -139,6 +139,13 @@ def percent_agreement(a: object, b: object) -> float:
     return 100.0 * float(np.mean([x == y for x, y in zip(va, vb, strict=True)]))
 
 
+def _show(value: object) -> str:
+    """A level as a reviewer typed it: 5 rather than np.float64(5.0)."""
+    if isinstance(value, (int, float, np.integer, np.floating)) and float(value).is_integer():
+        return str(int(value))
+    return repr(value.item() if isinstance(value, np.generic) else value)
+
+
 def _pairs(frame: pd.DataFrame, rubric: Rubric, categories: Sequence
            ) -> tuple[dict[str, tuple[list, list]], list[str]]:
     missing = [c for c in LONG_COLUMNS if c not in frame.columns]
@@ -157,7 +164,7 @@ def _pairs(frame: pd.DataFrame, rubric: Rubric, categories: Sequence
     bad = data[~data["level"].isin(list(categories))]
     if len(bad):
         row = bad.iloc[0]
-        raise RubricError(f"level {row['level']!r} for study {row['study_id']!r}, reviewer "
+        raise RubricError(f"level {_show(row['level'])} for study {row['study_id']!r}, reviewer "
                           f"{row['reviewer']!r}, domain {row['domain']!r} is outside "
                           f"{', '.join(map(str, categories))}")
     dup = data.duplicated(["study_id", "reviewer", "domain"], keep=False)

@@ -390,6 +390,25 @@ def test_overall_levels_mostly_adequate_with_weak_and_fatal_studies(est, levels)
     assert all(levels[s] <= 1 for s in before_after if s in levels)
 
 
+def test_departures_from_the_rubric_suggestions_are_justified(est, appr):
+    """The rubric file's suggestions from recorded facts (exposhift.appraisal.suggestions):
+    a rating the suggestion does not allow needs a written reason, as a reviewer would give."""
+    from exposhift.appraisal.suggestions import facts_from_record, suggest_levels
+
+    studies = est.drop_duplicates("study_id").set_index("study_id")
+    n_suggested = 0
+    for _, row in appr.iterrows():
+        s = studies.loc[row["study_id"]]
+        facts = facts_from_record(s["design"], s["pre_points"], s["post_points"],
+                                  checks=s["checks"] if s["checks"] is not None else "",
+                                  assignment_grade=s["assignment_grade"])
+        for domain, suggestion in suggest_levels(facts).items():
+            n_suggested += 1
+            if not suggestion.allows(int(row[domain])):
+                assert row[f"{domain}_why"], (row["study_id"], row["reviewer"], domain)
+    assert n_suggested > len(appr)  # the rules fire: the check is not empty
+
+
 def test_fixed_ratings_carry_their_reason(appr):
     for study in STUDIES:
         rows = appr[appr["study_id"] == study.study_id]

@@ -4,10 +4,14 @@ Each study has intended ("true") ratings per rubric domain, built from its recor
 its tier, its design, the checks it reports, the precision of the change date, whether the
 size of the exposure change is known, and ratings fixed by a recorded fact (``Study.firm``,
 e.g. an interrupted time series with two points before the change is fatal on the
-counterfactual). Two invented reviewers then rate independently: each rating departs from the
-intended one by one level now and then and rarely by two (ratings fixed by a fact are seen
-alike by both). The consensus settles each domain at the intended rating when it lies between
-the two independent ratings, otherwise at the nearer of the two.
+counterfactual). Ratings also stay within the limits that recorded facts put on them, as the
+rubric's suggestions do (origin at most the assignment grade; a single series at most 2, or 1
+with fewer than 12 points on a side; no falsification test means 1; one test at most 2; a time
+series without autocorrelation handled at most 1 on inference), so a reviewer departs from a
+suggestion only with a written reason. Two invented reviewers then rate independently: each
+rating departs from the intended one by one level now and then and rarely by two (ratings fixed
+by a fact are seen alike by both). The consensus settles each domain at the intended rating
+when it lies between the two independent ratings, otherwise at the nearer of the two.
 
 The summary rule used to describe the scenario (:func:`overall_level`) follows the rubric notes
 (design notes RUBRIC.md): overall = lowest of the core domains; a 0 in another domain except
@@ -39,6 +43,8 @@ FALSIFICATION_CHECKS = frozenset({
 })
 #: designs with no concurrent comparison: the counterfactual can be at most adequate
 SINGLE_SERIES = frozenset({"its", "rd-time", "before-after"})
+#: time-series designs whose inference needs autocorrelation handled
+SERIES = frozenset({"its", "controlled-its", "rd-time"})
 
 #: a reviewer's note for a weak rating that no recorded fact fixed
 WHY_WEAK: dict[str, str] = {
@@ -88,6 +94,23 @@ def overall_level(ratings: dict[str, int]) -> int:
     return level
 
 
+def fact_limits(study: Study) -> dict[str, int]:
+    """Highest level each domain can take given the recorded facts (domains without a limit
+    are left out)."""
+    limits: dict[str, int] = {}
+    if study.assignment_grade is not None:
+        limits["origin"] = study.assignment_grade
+    if study.design in SINGLE_SERIES:
+        points = [p for p in (study.pre_points, study.post_points) if p is not None]
+        fewest = min(points) if len(points) == 2 else None
+        limits["counterfactual"] = 2 if fewest is None or fewest >= 12 else 1 if fewest >= 3 else 0
+    n_false = sum(c in FALSIFICATION_CHECKS for c in study.checks)
+    limits["falsification"] = 1 if n_false == 0 else 2 if n_false == 1 else 3
+    if study.design in SERIES and "autocorrelation" not in study.checks:
+        limits["inference"] = 1
+    return limits
+
+
 def intended_ratings(study: Study) -> dict[str, int]:
     """The ratings the facts of the study support (before reviewer disagreement)."""
     rng = keyed_rng("intended", study.study_id)
@@ -98,10 +121,8 @@ def intended_ratings(study: Study) -> dict[str, int]:
             core[i] = min(3, t + int(rng.integers(0, 2)))
         core[int(rng.integers(0, 4))] = t  # at least one core domain sits at the tier
     r = dict(zip(CORE, core, strict=True))
-    if study.design in SINGLE_SERIES:
-        r["counterfactual"] = min(r["counterfactual"], 2)
-    n_false = sum(c in FALSIFICATION_CHECKS for c in study.checks)
-    r["falsification"] = 1 if n_false == 0 else 2 if n_false == 1 else 3
+    limits = fact_limits(study)
+    r["falsification"] = limits["falsification"]
     event = EVENTS[study.estimates[0].event_id]
     by_year = len(event.change_date) == 4
     r["timing"] = 2 if by_year or t < 3 else 3
@@ -113,6 +134,8 @@ def intended_ratings(study: Study) -> dict[str, int]:
     r["inference"] = min(3, max(1, t))
     r["transparency"] = min(3, max(1, t))
     r["applicability"] = 2 + int(rng.integers(0, 2))
+    for domain, limit in limits.items():
+        r[domain] = min(r[domain], limit)
     for domain, (level, _why) in study.firm.items():
         r[domain] = level
     return {d: r[d] for d in DOMAINS}
@@ -120,13 +143,15 @@ def intended_ratings(study: Study) -> dict[str, int]:
 
 def _independent(study: Study, reviewer: str, intended: dict[str, int]) -> dict[str, int]:
     rng = keyed_rng("independent", study.study_id, reviewer)
-    no_tests = not any(c in FALSIFICATION_CHECKS for c in study.checks)
+    limits = fact_limits(study)
     out = {}
     for d in DOMAINS:
         step = int(rng.choice(_STEPS, p=_DEPARTURE[reviewer]))
         out[d] = intended[d] if d in study.firm else min(3, max(0, intended[d] + step))
-    if no_tests:  # nobody rates a falsification record above weak when no test was run
-        out["falsification"] = min(out["falsification"], 1)
+        if d in limits and d not in study.firm:  # reviewers see the same suggestions
+            out[d] = min(out[d], limits[d])
+    if not any(c in FALSIFICATION_CHECKS for c in study.checks):
+        out["falsification"] = 1  # no test reported: nothing to fail, nothing to credit
     return out
 
 

@@ -48,7 +48,7 @@ VELLIUM_STUDIES: tuple[Study, ...] = (
         "Hernandez2010", "Hernandez, Kaur et al. 2010, Demo J Environ Epidemiol", 2010, "did",
         doi="10.5555/exposhift.demo.030",
         comparison="municipalities 30-80 km from the smelter", population=MEX_POP,
-        data_source="national hospital discharge database", assignment_grade=2,
+        data_source="national hospital discharge database", assignment_grade=3,
         pre_points=5, post_points=4,
         checks=("pre-trends", "negative-control-outcome", "clustered-se"), tier=3,
         estimates=(
@@ -82,7 +82,7 @@ VELLIUM_STUDIES: tuple[Study, ...] = (
         "Tremblay2017", "Tremblay, Osei-Bonsu et al. 2017, Demo J Environ Epidemiol", 2017, "did",
         doi="10.5555/exposhift.demo.033", comparison="similar towns in the same province",
         population="children under 10, smelter town and comparison towns",
-        data_source="provincial health insurance claims", assignment_grade=2,
+        data_source="provincial health insurance claims", assignment_grade=3,
         pre_points=5, post_points=3,
         checks=("pre-trends", "placebo-date", "negative-control-exposure",
                 "pre-trend-sensitivity"), tier=3,
@@ -144,7 +144,9 @@ TRELOMENE_STUDIES: tuple[Study, ...] = (
         population="adults living beside dry cleaners, Ireland",
         data_source="general practice laboratory records", assignment_grade=1,
         pre_points=2, post_points=5, checks=("autocorrelation",), tier=1, bias=-0.1,
-        firm={"counterfactual": (0, "only 2 yearly points before the change (fewer than 3)")},
+        firm={"counterfactual": (0, "only 2 yearly points before the change (fewer than 3)"),
+              "design_checks": (0, "the minimum for a time series is 3 points on each side; "
+                                   "only 2 before the change")},
         estimates=(Est("TRL-IRL-1997", LIVER, "RR", 0.12, form="ci95", truth=-0.2,
                        time_window="1995-2001"),),
     ),

@@ -38,7 +38,7 @@ CORVANE_STUDIES: tuple[Study, ...] = (
         data_source="national hospital emergency records", assignment_grade=2,
         pre_points=180, post_points=180,
         checks=("narrow-window", "bandwidth-sensitivity", "placebo-date",
-                "negative-control-outcome"), tier=2,
+                "negative-control-outcome", "autocorrelation"), tier=2,
         estimates=(
             Est("CRV-PRT-2004", ASTHMA, "pct_change", 0.022, time_window="180 days each side"),
             Est("CRV-PRT-2004", CARDIO, "pct_change", 0.015, time_window="180 days each side"),
@@ -58,7 +58,7 @@ CORVANE_STUDIES: tuple[Study, ...] = (
         "Marques2015", "Marques, Lindgren et al. 2015, Demo Int J Natural Exp", 2015,
         "controlled-its", doi="10.5555/exposhift.demo.020",
         comparison="autonomous island regions outside the standard", population=MAINLAND,
-        data_source="national hospital admission database", assignment_grade=2,
+        data_source="national hospital admission database", assignment_grade=3,
         pre_points=36, post_points=36,
         checks=("pre-trends", "placebo-place", "negative-control-outcome", "autocorrelation"),
         tier=3,

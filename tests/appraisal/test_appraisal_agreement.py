@@ -223,6 +223,7 @@ def test_agreement_table_per_domain_against_sklearn(frame, rubric):
     assert row.loc["overall", "kappa_quadratic"] == pytest.approx(
         sklearn_kappa(oa + ca, ob + cb, "quadratic"), abs=1e-12)
     assert row.loc["overall", "percent_agreement"] == 50.0
+    assert "Kappa depends on how ratings spread" in table.attrs["caution"]
     assert table.attrs["notes"] == [
         "study 's1' has 3 reviewers; the first two by name (ana, ben) are compared"]
 

@@ -151,3 +151,13 @@ def test_default_falls_back_to_the_packaged_copy(tmp_path, monkeypatch, rubric):
 def test_missing_file_is_a_rubric_error(tmp_path):
     with pytest.raises(RubricError, match="rubric file not found: .*nope.toml"):
         load_rubric(tmp_path / "nope.toml")
+
+
+def test_summary_rule_in_words(rubric):
+    assert rubric.summary_text == (
+        "overall = lowest of origin, counterfactual, design_checks, concurrent_changes; a "
+        "rating of 0 (fatal) or lower in falsification, timing, exposure_shift, outcome_data, "
+        "inference, transparency caps it at 1 (weak); falsification never lifts a weak core; "
+        "applicability reported apart; overall 0 (fatal) left out of pooled estimates by default"
+    )
+    assert "never replaces" in rubric.caution

@@ -39,6 +39,8 @@ from exposhift.errors import AnalysisError, ReviewError, RubricError
 
 WEIGHTS = ("linear", "quadratic", None)
 LONG_COLUMNS = ("study_id", "reviewer", "domain", "level")
+CAUTION = ("Kappa depends on how ratings spread over the levels: read it beside the table of "
+           "ratings, and compare values across domains or rubric versions with care.")
 TABLE_COLUMNS = ("domain", "n", "percent_agreement", "kappa_linear", "kappa_quadratic", "note")
 
 
@@ -221,7 +223,8 @@ def agreement_table(frame: pd.DataFrame, rubric: Rubric | None = None,
     (0-100), ``kappa_linear``, ``kappa_quadratic`` (Cohen 1968), ``note`` (why a kappa is
     NaN). Domains follow rubric order. The ``overall`` row pools every study x domain pair of
     the rows above into one table (``n`` is then the number of pairs) and computes the same
-    statistics on it; it is not the mean of the domain kappas.
+    statistics on it; it is not the mean of the domain kappas. ``attrs["caution"]`` holds a
+    caution to show beside the table.
     """
     rubric = rubric if rubric is not None else load_rubric()
     pairs, notes = _pairs(frame, rubric, categories)
@@ -233,4 +236,5 @@ def agreement_table(frame: pd.DataFrame, rubric: Rubric | None = None,
                           "(each study x domain pair once)"))
     table = pd.DataFrame(rows, columns=list(TABLE_COLUMNS))
     table.attrs["notes"] = notes
+    table.attrs["caution"] = CAUTION
     return table

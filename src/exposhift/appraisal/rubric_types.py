@@ -24,6 +24,7 @@ DOMAIN_KEYS: tuple[str, ...] = (
 
 LEVELS: tuple[int, ...] = (0, 1, 2, 3)
 
+
 @dataclass(frozen=True)
 class LevelDef:
     level: int
@@ -133,6 +134,22 @@ class Rubric:
     def label(self) -> str:
         """``id version (hash)``, for display next to an appraisal."""
         return f"{self.rubric_id} {self.version} ({self.short_hash})"
+
+    @property
+    def summary_text(self) -> str:
+        """The summary rule in words, for display beside an overall level."""
+        name = self.level_name
+        text = (f"overall = lowest of {', '.join(self.core_domains)}; a rating of "
+                f"{self.cap_trigger} ({name(self.cap_trigger)}) or lower in "
+                f"{', '.join(self.cap_domains)} caps it at {self.cap_at} ({name(self.cap_at)})")
+        if self.never_lifts:
+            text += f"; {', '.join(self.never_lifts)} never lifts a weak core"
+        if self.apart_domains:
+            text += f"; {', '.join(self.apart_domains)} reported apart"
+        if self.exclude_from_pooling:
+            levels = ", ".join(f"{lv} ({name(lv)})" for lv in self.exclude_from_pooling)
+            text += f"; overall {levels} left out of pooled estimates by default"
+        return text
 
     def domain(self, key: str) -> Domain:
         for d in self.domains:

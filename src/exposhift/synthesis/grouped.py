@@ -25,6 +25,7 @@ from scipy import stats
 
 from exposhift.errors import AnalysisError
 from exposhift.synthesis.pooling import (
+    NOTE_TOL,
     PI_NOTE_FEW,
     PM_RTOL,
     REML_MAX_ITER,
@@ -226,12 +227,12 @@ def pool_segments(
         narrower = floored = np.zeros(G, dtype=bool)
     else:
         used = np.maximum(hk, 1.0) if hksj_floor else hk
-        floored = (hk < 1.0) if hksj_floor else np.zeros(G, dtype=bool)
+        floored = (hk < 1.0 - NOTE_TOL) if hksj_floor else np.zeros(G, dtype=bool)
         se = np.where(single, se_wald, np.sqrt(used / sw))
         df = np.where(single, np.inf, df_q)
         crit = np.where(single, z, stats.t.isf(alpha / 2, np.where(single, 1.0, df_q)))
         hk_out = np.where(single, np.nan, hk)
-        narrower = ~single & (crit * se < z * se_wald)
+        narrower = ~single & (crit * se < z * se_wald * (1.0 - NOTE_TOL))
         floored = ~single & floored
     with np.errstate(invalid="ignore", divide="ignore"):
         stat = mu / se

@@ -60,6 +60,9 @@ REML_RTOL = 1e-12
 REML_MAX_ITER = 500
 #: relative tolerance of the Paule–Mandel root
 PM_RTOL = 1e-14
+#: relative margin before a note says "floored" / "narrower" (PM makes the HKSJ scale 1 exactly
+#: in theory; rounding must not decide whether a note appears)
+NOTE_TOL = 1e-9
 
 #: the scalar fields of :class:`PoolResult`, in column order (used by ``pool_groups``)
 SCALAR_FIELDS: tuple[str, ...] = (
@@ -443,13 +446,13 @@ def pool(
         hk_out = nan
     else:
         used = max(hk_scale, 1.0) if hksj_floor else hk_scale
-        floored = bool(hksj_floor and hk_scale < 1.0)
+        floored = bool(hksj_floor and hk_scale < 1.0 - NOTE_TOL)
         se, df = float(np.sqrt(used / sw)), float(q_df)
         crit = float(stats.t.isf(alpha / 2, df))
         with np.errstate(divide="ignore", invalid="ignore"):
             stat = float(np.float64(mu) / np.float64(se))
         pvalue = float(2 * stats.t.sf(abs(stat), df))
-        narrower = bool(crit * se < z * se_wald)
+        narrower = bool(crit * se < z * se_wald * (1.0 - NOTE_TOL))
         hk_out = hk_scale
 
     w_fe = 1.0 / v

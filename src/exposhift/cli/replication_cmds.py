@@ -1,0 +1,213 @@
+"""Commands ``replication`` (one exposure × outcome) and ``gaps`` (the evidence-gap map)."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import typer
+
+from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.replication.gaps import GAP_STATES
+from exposhift.replication.report import ReplicationReport
+from exposhift.replication.settings import EXPECTED_CHOICES, load_settings
+from exposhift.replication.status import STATUSES
+from exposhift.services.replicating import GapFilters, GapReport, gap_report, replication_for
+from exposhift.services.setup import open_current
+
+
+def register(app: typer.Typer) -> None:
+    app.command("replication")(replication)
+    app.command("gaps")(gaps)
+
+
+# --------------------------------------------------------------------------------------------
+# formatting
+
+
+def _fmt(value: Any, digits: int = 3) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "-"
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, float):
+        return f"{value:.{digits}g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.2e}"
+    return str(value)
+
+
+def table(rows: Sequence[Sequence[Any]], headers: Sequence[str]) -> str:
+    """A plain text table with left-aligned columns."""
+    cells = [[_fmt(c) for c in r] for r in rows]
+    widths = [max([len(h), *(len(r[i]) for r in cells)]) for i, h in enumerate(headers)]
+    line = lambda r: "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True))  # noqa: E731
+    out = [line(headers), line(["-" * w for w in widths])]
+    out += [line(r) for r in cells]
+    return "\n".join(x.rstrip() for x in out)
+
+
+def _ci(lo: Any, hi: Any) -> str:
+    return f"{_fmt(lo)} to {_fmt(hi)}"
+
+
+def render_replication(rep: ReplicationReport) -> str:
+    lines = [f"{rep.exposure} x {rep.outcome}", "",
+             f"status    {rep.status}", f"rule      {rep.rule}",
+             f"expected  {rep.expected_words} [{rep.settings.expected_direction}]", ""]
+    ev = rep.events
+    if len(ev):
+        lines.append("independent events (estimates on the analysis scale, aligned to an "
+                     "exposure increase; * = represents its event)")
+        rows = [[("*" if r.represents_event else " ") + str(r.event_id), r.country,
+                 r.change_date, r.direction, r.design, r.level, r.estimate,
+                 _ci(r.ci_lower, r.ci_upper), r.concordant]
+                for r in ev.itertuples(index=False)]
+        lines.append(table(rows, ["event", "country", "date", "change", "design", "level",
+                                  "estimate", "95% CI", "concordant"]))
+        lines.append("")
+    st = rep.sign_test
+    if st.get("n"):
+        lines.append(f"sign test: {st['k_expected']} of {st['n']} events at level >= "
+                     f"{rep.settings.min_level} in the expected direction, exact two-sided "
+                     f"p = {_fmt(st['p'])}")
+    fam = rep.by_design_family
+    if len(fam):
+        lines += ["", "pooled by design family (events at level >= "
+                  f"{rep.settings.min_level}; {rep.settings.pool_method}, {rep.settings.pool_ci})"]
+        rows = [[r.design_family, f"{r.measure_group}/{r.estimate_kind}"
+                 + (f" {r.increment}" if r.increment else ""), r.k, r.estimate,
+                 _ci(r.ci_lower, r.ci_upper), r.tau2, r.i2, _ci(r.pi_lower, r.pi_upper),
+                 "main" if r.main else ""]
+                for r in fam.itertuples(index=False)]
+        lines.append(table(rows, ["design family", "stratum", "k", "estimate", "CI", "tau2",
+                                  "I2", "prediction interval", ""]))
+    lines += ["", f"triangulation: {rep.triangulation.get('statement', '')}"]
+    for seq in rep.temporal:
+        order = ", ".join(f"{e['event_id']} ({e['direction']}, period {e['period']}"
+                          f"{', counts' if e['counts'] else ''})" for e in seq["events"])
+        lines.append(f"in {seq['place']}: {order}")
+    for r in rep.reversals:
+        moved = "outcome moved back" if r["outcome_moved_back"] else "outcome did not move back"
+        lines.append(f"reversal in {r['place']}: {r['decrease_event']} then "
+                     f"{r['increase_event']}: {moved}{' (counts)' if r['counts'] else ''}")
+    dr = rep.dose_response
+    lines += ["", "dose-response: " + (dr.interpretation if dr.run else dr.reason)]
+    if len(rep.excluded):
+        lines.append(f"{len(rep.excluded)} estimate(s) set aside as not independent "
+                     "(--json lists them with the reason)")
+    lines += ["", f"caution: {rep.caution}"]
+    return "\n".join(lines)
+
+
+def render_gaps(rep: GapReport) -> str:
+    cells = rep.cells
+    counts = cells["state"].value_counts()
+    summary = ", ".join(f"{counts.get(s, 0)} {s}" for s in GAP_STATES)
+    lines = [f"gap map: {len(cells)} cells (exposure x outcome group): {summary}", ""]
+    rows = [[r.exposure, r.outcome_group, r.events, r.studies,
+             None if math.isnan(r.best_level) else int(r.best_level), r.status, r.state,
+             r.not_yet] for r in cells.itertuples(index=False)]
+    lines.append(table(rows, ["exposure", "outcome group", "events", "studies", "best level",
+                              "status", "state", "not yet replicated"]))
+    opp = rep.opportunities
+    lines += ["", f"opportunities: {len(opp)} registered exposure change(s) never evaluated"]
+    if len(opp):
+        rows = [[r.event_id, r.exposure, r.country, r.change_date, r.family_events_evaluated,
+                 r.outcomes_studied_elsewhere or "-"] for r in opp.itertuples(index=False)]
+        lines.append(table(rows, ["event", "exposure", "country", "date",
+                                  "family events evaluated", "outcomes studied elsewhere"]))
+        lines.append("an evaluation needs: outcome data before and after the change (>= 3 points "
+                     "each side, 12 preferred), a comparison without the change, and exposure "
+                     "measurements showing the shift (--json gives this per event)")
+    lines += ["", f"caution: {rep.caution}"]
+    return "\n".join(lines)
+
+
+# --------------------------------------------------------------------------------------------
+# commands
+
+_EXPECTED_HELP = (
+    "Expected direction: 'pooled' (sign of the combined z of the good events, default), "
+    "'raises' or 'lowers' (an exposure increase raises/lowers the outcome)."
+)
+
+
+@user_errors
+def replication(
+    ctx: typer.Context,
+    exposure: str = typer.Option(..., "--exposure", help="Exposure agent (as in the sheet)."),
+    outcome: str = typer.Option(..., "--outcome", help="Outcome (as in the sheet)."),
+    as_json: bool = typer.Option(False, "--json", help="Print the report as JSON."),
+    expected: str | None = typer.Option(None, "--expected", help=_EXPECTED_HELP),
+    settings_file: Path | None = typer.Option(
+        None, "--settings", help="Thresholds file (default: evidence/replication.toml)."),
+) -> None:
+    """Has the effect of this exposure on this outcome been shown again in other places, at
+    other times and by other designs? Prints the replication status and the rule behind it."""
+    if expected is not None and expected not in EXPECTED_CHOICES:
+        from exposhift.errors import ConfigError
+
+        raise ConfigError(f"--expected must be one of {', '.join(EXPECTED_CHOICES)}")
+    s = settings(ctx)
+    store = open_current(s.db, s.user)
+    try:
+        rep = replication_for(store, exposure, outcome, settings=load_settings(settings_file),
+                              expected=expected)
+    finally:
+        store.dispose()
+    if as_json:
+        print_json(rep.to_dict())
+    else:
+        typer.echo(render_replication(rep))
+
+
+def _split(values: list[str] | None) -> tuple[str, ...]:
+    out: list[str] = []
+    for v in values or []:
+        out += [x.strip() for x in v.split(",") if x.strip()]
+    return tuple(out)
+
+
+@user_errors
+def gaps(
+    ctx: typer.Context,
+    as_json: bool = typer.Option(False, "--json", help="Print cells and opportunities as JSON."),
+    design_family: list[str] | None = typer.Option(
+        None, "--design-family",
+        help="Keep only these design families (repeat or comma-separate)."),
+    region: list[str] | None = typer.Option(
+        None, "--region", help="Keep only events in these regions (UN M49 continents or the "
+        "regions table of evidence/replication.toml)."),
+    country: list[str] | None = typer.Option(
+        None, "--country", help="Keep only events in these countries (ISO alpha-3)."),
+    year_from: int | None = typer.Option(None, "--from", help="Changes from this year on."),
+    year_to: int | None = typer.Option(None, "--to", help="Changes up to this year."),
+    min_level: int | None = typer.Option(
+        None, "--min-level", help="Keep only studies appraised at this overall level or above."),
+    stale_after: int | None = typer.Option(
+        None, "--stale-after", help="Mark cells with no evaluated change after YEAR as stale."),
+    settings_file: Path | None = typer.Option(
+        None, "--settings", help="Thresholds file (default: evidence/replication.toml)."),
+) -> None:
+    """The evidence-gap map: exposure x outcome group, with replication status and state, and
+    the registered exposure changes that nobody has evaluated."""
+    filters = GapFilters(
+        design_families=_split(design_family), regions=_split(region),
+        countries=_split(country), year_from=year_from, year_to=year_to, min_level=min_level,
+        stale_after=stale_after,
+    )
+    s = settings(ctx)
+    store = open_current(s.db, s.user)
+    try:
+        rep = gap_report(store, filters, settings=load_settings(settings_file))
+    finally:
+        store.dispose()
+    if as_json:
+        print_json(rep.to_dict())
+    else:
+        typer.echo(render_gaps(rep))
+
+
+#: for help texts and docs
+MEANINGS = {"statuses": STATUSES, "states": GAP_STATES}

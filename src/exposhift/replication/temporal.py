@@ -1,0 +1,145 @@
+"""Temporal replication: independent events of one exposure × outcome in one place, in order.
+
+Rules (thresholds in :mod:`exposhift.replication.settings`):
+
+- **Periods.** In one place, events are sorted by change year; an event less than
+  ``min_years_apart`` years after the previous one falls into the same period (single-linkage
+  on the change year), otherwise it opens a new period. Periods therefore do not overlap at the
+  resolution of change dates. The follow-up windows of the studies are not compared here; a
+  study whose window runs into the next change is judged on concurrent changes in appraisal.
+- **Replicated in time**: one place has at least ``min_periods`` periods holding a concordant
+  event at level ≥ ``min_level`` (METHODS.md §5).
+- **Reversal**: an exposure *increase* in a place after an earlier *decrease* in the same place,
+  with the outcome moving back. Because estimates are aligned to an increase, "moving back"
+  means the two aligned estimates have the same sign. It is the strongest form of Bradford
+  Hill's "experiment" viewpoint (Hill 1965, Proc R Soc Med 58:295). A reversal *counts* when
+  both events are concordant and at level ≥ ``min_level``; it then also counts as temporal
+  replication (two concordant periods).
+
+Everything is computed for all keys at once with grouped operations; :func:`reversals` and
+:func:`place_sequences` describe one exposure × outcome for the report.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+import pandas as pd
+
+from exposhift.replication.families import DEFAULT_BY
+from exposhift.replication.settings import DEFAULTS, ReplicationSettings
+
+
+def _period_starts(frame: pd.DataFrame, group: list[str], min_years_apart: int) -> np.ndarray:
+    """For rows sorted by ``group`` then change year: True where a new period starts."""
+    codes = frame.groupby(group, sort=False, observed=True, dropna=False).ngroup().to_numpy()
+    years = frame["change_year"].to_numpy(dtype=float)
+    first = np.r_[True, codes[1:] != codes[:-1]]
+    gap = np.r_[np.inf, np.diff(years)]
+    return first | (gap >= min_years_apart)
+
+
+def temporal_summary(
+    events: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
+    settings: ReplicationSettings = DEFAULTS,
+) -> pd.DataFrame:
+    """Per key: ``time_periods`` (most periods with a concordant good event in one place),
+    ``time_place`` (that place), ``replicated_time``, ``reversal`` and ``reversal_place``.
+
+    ``events`` is an event table with ``concordant`` (see
+    :func:`exposhift.replication.families.mark_concordance`). Keys without qualifying events
+    are absent; callers fill them with 0 / False.
+    """
+    by = list(by)
+    ok = (events["good"].to_numpy(dtype=bool) & events["concordant"].to_numpy(dtype=bool)
+          & np.isfinite(events["change_year"].to_numpy(dtype=float)))
+    ce = events.loc[ok, [*by, "place", "change_year", "change_direction"]]
+    cols = [*by, "time_periods", "time_place", "replicated_time", "reversal", "reversal_place"]
+    if ce.empty:
+        return pd.DataFrame(columns=cols)
+    grp = [*by, "place"]
+    ce = ce.sort_values([*grp, "change_year"], kind="stable")
+    ce = ce.assign(_new=_period_starts(ce, grp, settings.min_years_apart))
+    year = ce["change_year"].to_numpy(dtype=float)
+    dec = (ce["change_direction"] == "decrease").to_numpy()
+    inc = (ce["change_direction"] == "increase").to_numpy()
+    ce = ce.assign(_dec_first=np.where(dec, year, np.inf), _inc_last=np.where(inc, year, -np.inf))
+    per_place = ce.groupby(grp, sort=True, observed=True, dropna=False).agg(
+        periods=("_new", "sum"), dec_first=("_dec_first", "min"), inc_last=("_inc_last", "max"),
+    ).reset_index()
+    per_place["rev"] = per_place["inc_last"] > per_place["dec_first"]
+    # the place with most periods (ties: first place in sort order)
+    best = per_place.sort_values([*by, "periods"], ascending=[True] * len(by) + [False],
+                                 kind="stable").drop_duplicates(by, keep="first")
+    rev = per_place[per_place["rev"]].drop_duplicates(by, keep="first")[[*by, "place"]]
+    out = best[[*by, "periods", "place"]].rename(
+        columns={"periods": "time_periods", "place": "time_place"})
+    out["time_periods"] = out["time_periods"].astype(np.int64)
+    out["replicated_time"] = out["time_periods"] >= settings.min_periods
+    out = out.merge(rev.rename(columns={"place": "reversal_place"}), on=by, how="left")
+    out["reversal"] = out["reversal_place"].notna()
+    return out[cols].reset_index(drop=True)
+
+
+def place_sequences(
+    events: pd.DataFrame, settings: ReplicationSettings = DEFAULTS,
+) -> list[dict]:
+    """For one exposure × outcome: each place with two or more events, its events in order with
+    their period number and whether each counts (good and concordant)."""
+    out = []
+    ev = events.sort_values(["place", "change_year", "change_date"], kind="stable")
+    for place, grp in ev.groupby("place", sort=True):
+        if len(grp) < 2:
+            continue
+        new = _period_starts(grp.assign(_k=0), ["_k"], settings.min_years_apart)
+        period = np.cumsum(new)
+        counts = grp["good"].to_numpy(bool) & grp["concordant"].to_numpy(bool)
+        counted_periods = len(set(period[counts]))
+        out.append({
+            "place": place,
+            "periods_with_concordant_good_event": counted_periods,
+            "replicated": counted_periods >= settings.min_periods,
+            "events": [
+                {"event_id": r.event_id, "change_date": str(r.change_date),
+                 "direction": r.change_direction, "period": int(p), "level": _lvl(r.level),
+                 "sign": int(r.sign), "concordant": bool(r.concordant), "counts": bool(c)}
+                for r, p, c in zip(grp.itertuples(index=False), period, counts, strict=True)
+            ],
+        })
+    return out
+
+
+def reversals(events: pd.DataFrame, settings: ReplicationSettings = DEFAULTS) -> list[dict]:
+    """For one exposure × outcome: every increase that follows a decrease in the same place,
+    paired with the latest earlier decrease (preferring one that is concordant and at level ≥
+    ``min_level``); ``outcome_moved_back`` when the aligned estimates
+    share a sign (the raw effects are opposite), ``counts`` when both are also concordant and
+    at level ≥ ``min_level``."""
+    out = []
+    ev = events.sort_values(["place", "change_year", "change_date"], kind="stable")
+    for place, grp in ev.groupby("place", sort=True):
+        rows = list(grp.itertuples(index=False))
+        for j, up in enumerate(rows):
+            if up.change_direction != "increase":
+                continue
+            before = [r for r in rows[:j] if r.change_direction == "decrease"
+                      and r.change_year < up.change_year]
+            if not before:
+                continue
+            strong = [r for r in before if r.good and r.concordant]
+            down = (strong or before)[-1]
+            moved_back = bool(up.sign != 0 and up.sign == down.sign)
+            counts = bool(moved_back and up.good and down.good and up.concordant
+                          and down.concordant)
+            out.append({
+                "place": place, "decrease_event": down.event_id,
+                "decrease_date": str(down.change_date), "increase_event": up.event_id,
+                "increase_date": str(up.change_date), "outcome_moved_back": moved_back,
+                "counts": counts,
+            })
+    return out
+
+
+def _lvl(value: float) -> int | None:
+    return None if pd.isna(value) else int(value)

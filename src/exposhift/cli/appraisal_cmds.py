@@ -1,0 +1,118 @@
+"""Commands for dual independent appraisal: import, show, agreement."""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+
+import typer
+
+from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.services.appraising import agreement, import_appraisals, show_appraisals
+from exposhift.services.setup import open_current
+
+appraise_app = typer.Typer(help="Record and read appraisals (two independent reviewers, "
+                                "then a consensus).", no_args_is_help=True)
+
+LEVEL_NAMES = {3: "strong", 2: "adequate", 1: "weak", 0: "fatal"}
+
+
+@appraise_app.command("import")
+@user_errors
+def appraise_import(
+    ctx: typer.Context,
+    file: Path = typer.Argument(..., help="CSV or XLSX: study_id, reviewer, stage, one column "
+                                "per domain (0-3), optional <domain>_why."),
+    encoding: str | None = typer.Option(None, "--encoding", help="Text encoding of a CSV file "
+                                        "(default UTF-8, with or without BOM)."),
+    rubric: Path | None = typer.Option(None, "--rubric", help="Rubric file (default "
+                                       "evidence/rubric.toml)."),
+    dry_run: bool = typer.Option(False, "--dry-run", help="Check and report; write nothing."),
+) -> None:
+    """Import appraisals; every problem is reported at once and nothing is written on error."""
+    s = settings(ctx)
+    store = open_current(s.db, s.user)
+    try:
+        summary = import_appraisals(store, file, encoding=encoding, rubric_path=rubric,
+                                    dry_run=dry_run)
+    finally:
+        store.dispose()
+    verb = "would add" if dry_run else "added"
+    stages = ", ".join(f"{n} {stage}" for stage, n in sorted(summary.by_stage.items()))
+    typer.echo(f"{verb} {summary.added} appraisals ({stages or 'none'}); "
+               f"{summary.unchanged} unchanged; rubric {summary.rubric}")
+
+
+@appraise_app.command("show")
+@user_errors
+def appraise_show(
+    ctx: typer.Context,
+    study_id: str = typer.Argument(..., help="The study's key."),
+    viewer: str | None = typer.Option(None, "--as", help="Reviewer name to view as (default: "
+                                      "--user / EXPOSHIFT_USER)."),
+    rubric: Path | None = typer.Option(None, "--rubric", help="Rubric file."),
+    as_json: bool = typer.Option(False, "--json", help="Print JSON."),
+) -> None:
+    """Show a study's appraisals; another reviewer's ratings stay hidden until both are in."""
+    s = settings(ctx)
+    store = open_current(s.db, s.user)
+    try:
+        data = show_appraisals(store, study_id, viewer or store.user, rubric)
+    finally:
+        store.dispose()
+    if as_json:
+        print_json({**data, "appraisals": [vars(v) for v in data["appraisals"]],
+                    "of_record": vars(data["of_record"]) if data["of_record"] else None})
+        return
+    typer.echo(f"{data['study_id']}  {data['citation']}  [{data['design']}]")
+    if not data["appraisals"]:
+        typer.echo("  not appraised yet")
+    for v in data["appraisals"]:
+        head = f"  {v.stage:<11} {v.reviewer:<16}"
+        if v.blinded:
+            typer.echo(f"{head} {v.reason}")
+            continue
+        overall = "-" if v.overall is None else f"{v.overall} {LEVEL_NAMES[v.overall]}"
+        typer.echo(f"{head} overall {overall}  ({v.reason}; rubric {v.rubric})")
+        for d in data["domains"]:
+            if v.ratings and d in v.ratings:
+                line = f"      {d:<20} {v.ratings[d]}"
+                if d in v.suggestions:
+                    lim, why = v.suggestions[d]
+                    line += f"   suggested <= {lim}: {why}"
+                if d in v.justifications:
+                    line += f"   why: {v.justifications[d]}"
+                typer.echo(line)
+    typer.echo(f"note: {data['caution']}")
+
+
+@user_errors
+def agreement_cmd(
+    ctx: typer.Context,
+    as_json: bool = typer.Option(False, "--json", help="Print JSON."),
+) -> None:
+    """Agreement between independent reviewers per domain: percent and weighted kappa."""
+    s = settings(ctx)
+    store = open_current(s.db, s.user)
+    try:
+        table = agreement(store)
+    finally:
+        store.dispose()
+    if as_json:
+        print_json(table.to_dict(orient="records"))
+        return
+    typer.echo(f"{'domain':<20} {'n':>4} {'agree %':>8} {'kappa lin':>10} {'kappa quad':>11}")
+
+    def fmt(x: float) -> str:
+        return "   n/a" if x is None or (isinstance(x, float) and math.isnan(x)) else f"{x:.2f}"
+
+    for rec in table.to_dict(orient="records"):
+        typer.echo(f"{rec['domain']:<20} {rec['n']:>4} {100 * rec['percent_agreement']:>7.1f}% "
+                   f"{fmt(rec['kappa_linear']):>10} {fmt(rec['kappa_quadratic']):>11}")
+    typer.echo("kappa: Cohen's weighted kappa (1968); linear and quadratic weights over levels "
+               "0-3.")
+
+
+def register(app: typer.Typer) -> None:
+    app.add_typer(appraise_app, name="appraise")
+    app.command("agreement")(agreement_cmd)

@@ -1,0 +1,331 @@
+"""Dual independent review: importing appraisals, blinding, consensus, agreement.
+
+Rules enforced here (not only in a user interface):
+
+- **Blinding.** A reviewer's independent ratings of a study are hidden from everyone else until
+  the study has at least ``REVIEWERS_BEFORE_UNBLINDING`` independent appraisals.
+- **Consensus** may be recorded only after two independent appraisals exist; it becomes the
+  study's appraisal of record (``analysis_frame``'s ``level``).
+- One appraisal per study, reviewer and stage. Re-importing an identical appraisal changes
+  nothing; a different one for the same study, reviewer and stage is refused.
+- A rating above a level the engine suggests from the recorded facts needs a justification
+  (``<domain>_why``); the suggestion and its reason are stored beside the rating.
+- Every appraisal records the rubric id and content hash it was made with.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+from sqlalchemy import select
+
+from exposhift.appraisal.agreement import agreement_table
+from exposhift.appraisal.rubric import load_rubric
+from exposhift.appraisal.rubric_types import Rubric
+from exposhift.appraisal.scoring import StudyFacts, score_appraisal, suggest_levels
+from exposhift.appraisal.suggestions import facts_from_record
+from exposhift.errors import InputFileError, NotFoundError, Problem
+from exposhift.io.tables import read_table
+from exposhift.store.database import Store
+from exposhift.store.models import Appraisal, Rating, Study
+from exposhift.store.writer import Writer
+from exposhift.vocab import REVIEW_STAGES
+
+AP, RA, ST = Appraisal.__table__, Rating.__table__, Study.__table__
+REVIEWERS_BEFORE_UNBLINDING = 2
+META_COLUMNS = ("study_id", "reviewer", "stage")
+
+
+@dataclass
+class AppraisalImportSummary:
+    added: int = 0
+    unchanged: int = 0
+    by_stage: dict[str, int] = field(default_factory=dict)
+    rubric: str = ""
+    dry_run: bool = False
+
+
+def _int_level(text: str) -> int | None:
+    try:
+        value = float(text)
+    except ValueError:
+        return None
+    return int(value) if value.is_integer() else None
+
+
+def _existing(conn) -> dict[tuple[str, str, str], dict[str, Any]]:
+    """Existing appraisals keyed by (study, reviewer, stage), with their ratings."""
+    rows = conn.execute(
+        select(AP.c.id, ST.c.key, AP.c.reviewer, AP.c.stage, RA.c.domain, RA.c.level,
+               RA.c.justification)
+        .join(ST, AP.c.study_id == ST.c.id)
+        .outerjoin(RA, RA.c.appraisal_id == AP.c.id)
+    ).all()
+    out: dict[tuple[str, str, str], dict[str, Any]] = {}
+    for ap_id, study, reviewer, stage, domain, level, why in rows:
+        entry = out.setdefault((study, reviewer, stage), {"id": ap_id, "ratings": {}, "why": {}})
+        if domain is not None:
+            entry["ratings"][domain] = level
+            if why:
+                entry["why"][domain] = why
+    return out
+
+
+def _study_rows(conn) -> dict[str, dict[str, Any]]:
+    return {r["key"]: dict(r) for r in conn.execute(select(ST)).mappings()}
+
+
+def facts_of(study: dict[str, Any]) -> StudyFacts:
+    """The recorded facts of a study that appraisal suggestions are made from."""
+    return facts_from_record(
+        study["design"], study.get("pre_points"), study.get("post_points"),
+        study.get("checks") or None, study.get("assignment_grade"),
+        has_comparison=bool(study.get("comparison")) or None,
+    )
+
+
+def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing):
+    """Every problem in one pass; returns parsed appraisals in file order."""
+    problems: list[Problem] = []
+    domains = rubric.domain_keys
+    known = set(META_COLUMNS) | set(domains) | {f"{d}_why" for d in domains} | {
+        f"{d}_reporting" for d in domains}
+    for col in META_COLUMNS:
+        if col not in frame.columns:
+            problems.append(Problem(label, 1, col, "required column is missing"))
+    unknown = [c for c in frame.columns if c not in known]
+    for col in unknown:
+        problems.append(Problem(
+            label, 1, col,
+            f"unknown column; accepted domain keys: {', '.join(domains)} (with optional "
+            "'<domain>_why' and '<domain>_reporting' columns)"))
+    if problems:
+        raise InputFileError(problems)
+    reporting_keys = {r.key for r in rubric.reporting}
+    parsed: list[dict[str, Any]] = []
+    seen: dict[tuple[str, str, str], int] = {}
+    independents: dict[str, set[str]] = {}
+    for study, reviewer, stage in existing:
+        if stage == "independent":
+            independents.setdefault(study, set()).add(reviewer)
+    # independent appraisals first, so a file may hold both stages of a study
+    order = sorted(frame.index, key=lambda r: (frame.at[r, "stage"] != "independent", r))
+    for row in order:
+        rec = frame.loc[row]
+        study, reviewer, stage = rec["study_id"], rec["reviewer"], rec["stage"]
+        bad = False
+        if not study:
+            problems.append(Problem(label, row, "study_id", "empty; name the study"))
+            bad = True
+        elif study not in studies:
+            problems.append(Problem(label, row, "study_id",
+                                    f"no study '{study}' in the evidence base; import it first"))
+            bad = True
+        if not reviewer:
+            problems.append(Problem(label, row, "reviewer", "empty; name the reviewer"))
+            bad = True
+        if stage not in REVIEW_STAGES:
+            problems.append(Problem(label, row, "stage",
+                                    f"'{stage}' is not a stage; accepted: "
+                                    f"{', '.join(REVIEW_STAGES)}"))
+            bad = True
+        ratings: dict[str, int] = {}
+        why: dict[str, str] = {}
+        reporting: dict[str, str] = {}
+        for d in domains:
+            text = rec.get(d, "")
+            if text == "":
+                if d in rubric.core_domains:
+                    problems.append(Problem(label, row, d,
+                                            "core domain not rated; give a level 0-3"))
+                    bad = True
+                continue
+            level = _int_level(text)
+            if level is None or level not in (0, 1, 2, 3):
+                problems.append(Problem(label, row, d,
+                                        f"level '{text}' is outside 0-3; accepted: 0, 1, 2, 3"))
+                bad = True
+                continue
+            ratings[d] = level
+            if rec.get(f"{d}_why", ""):
+                why[d] = rec[f"{d}_why"]
+            rep = rec.get(f"{d}_reporting", "")
+            if rep:
+                if rep not in reporting_keys:
+                    problems.append(Problem(label, row, f"{d}_reporting",
+                                            f"'{rep}' is not a reporting value; accepted: "
+                                            f"{', '.join(sorted(reporting_keys))}"))
+                    bad = True
+                else:
+                    reporting[d] = rep
+        if bad:
+            continue
+        key = (study, reviewer, stage)
+        if key in seen:
+            problems.append(Problem(label, row, "reviewer",
+                                    f"'{reviewer}' already appraises study '{study}' at stage "
+                                    f"'{stage}' in row {seen[key]}; keep one row"))
+            continue
+        seen[key] = row
+        suggestions = suggest_levels(facts_of(studies[study]), rubric)
+        for d, level in ratings.items():
+            s = suggestions.get(d)
+            if s is None or s.allows(level) or d in why:
+                continue
+            wanted = f"{s.level}" if s.level is not None else f"at most {s.max_level}"
+            problems.append(Problem(
+                label, row, d,
+                f"level {level} departs from the suggested {wanted} ({s.reason}); use the "
+                f"suggested level or give the reason for overriding in '{d}_why'"))
+            bad = True
+        if bad:
+            continue
+        if key in existing:
+            if existing[key]["ratings"] == ratings:
+                parsed.append({"key": key, "row": row, "unchanged": True})
+                continue
+            problems.append(Problem(
+                label, row, "reviewer",
+                f"'{reviewer}' has already appraised study '{study}' at stage '{stage}' with "
+                "other ratings; an appraisal is not overwritten. Settle differences in the "
+                "consensus appraisal"))
+            continue
+        if stage == "independent":
+            independents.setdefault(study, set()).add(reviewer)
+        elif len(independents.get(study, set())) < 2:
+            n = len(independents.get(study, set()))
+            problems.append(Problem(
+                label, row, "stage",
+                f"a consensus for study '{study}' needs two independent appraisals first "
+                f"(it has {n}); import the independent appraisals before the consensus"))
+            continue
+        parsed.append({"key": key, "row": row, "ratings": ratings, "why": why,
+                       "reporting": reporting, "suggestions": suggestions, "unchanged": False})
+    if problems:
+        raise InputFileError(sorted(problems, key=lambda p: (p.row or 0, p.column or "")))
+    return parsed
+
+
+def import_appraisals(
+    store: Store,
+    path: str | Path,
+    *,
+    encoding: str | None = None,
+    rubric_path: str | Path | None = None,
+    dry_run: bool = False,
+) -> AppraisalImportSummary:
+    """Import appraisals from a CSV/XLSX file in one transaction (all or nothing)."""
+    rubric = load_rubric(rubric_path)
+    frame = read_table(path, encoding)
+    label = str(path)
+    summary = AppraisalImportSummary(rubric=rubric.label, dry_run=dry_run)
+    with store.write() as conn:
+        studies = _study_rows(conn)
+        parsed = _validate(frame, label, rubric, studies, _existing(conn))
+        w = Writer(conn, store.user)
+        for item in parsed:
+            if item["unchanged"]:
+                summary.unchanged += 1
+                continue
+            study, reviewer, stage = item["key"]
+            score = score_appraisal(item["ratings"], rubric)
+            summary.added += 1
+            summary.by_stage[stage] = summary.by_stage.get(stage, 0) + 1
+            if dry_run:
+                continue
+            ap_id = w.insert(AP, {
+                "study_id": studies[study]["id"], "reviewer": reviewer, "stage": stage,
+                "rubric_id": rubric.rubric_id, "rubric_hash": rubric.content_hash,
+                "overall": score.overall,
+            }, row_key=f"{study}|{reviewer}|{stage}")
+            rows = []
+            for d, level in item["ratings"].items():
+                s = item["suggestions"].get(d)
+                rows.append({
+                    "appraisal_id": ap_id, "domain": d, "level": level,
+                    "reporting": item["reporting"].get(d),
+                    "justification": item["why"].get(d),
+                    "suggested_level": None if s is None else s.max_level,
+                    "suggestion_reason": None if s is None else s.reason,
+                })
+            w.insert_many(RA, rows, row_keys=[f"{study}|{reviewer}|{stage}|{r['domain']}"
+                                              for r in rows])
+        w.flush()
+        if dry_run:
+            conn.rollback()
+    return summary
+
+
+# ----------------------------------------------------------------------------- reading
+@dataclass(frozen=True)
+class AppraisalView:
+    reviewer: str
+    stage: str
+    rubric: str
+    overall: int | None
+    decided_by: str | None
+    reason: str
+    ratings: dict[str, int] | None  # None while blinded
+    justifications: dict[str, str]
+    suggestions: dict[str, tuple[int | None, str]]
+    blinded: bool
+
+
+def show_appraisals(store: Store, study_key: str, viewer: str | None = None,
+                    rubric_path: str | Path | None = None) -> dict[str, Any]:
+    """A study's appraisals as ``viewer`` may see them (blinding applied)."""
+    rubric = load_rubric(rubric_path)
+    with store.read() as conn:
+        studies = _study_rows(conn)
+        if study_key not in studies:
+            raise NotFoundError(f"no study '{study_key}' in the evidence base")
+        study = studies[study_key]
+        aps = conn.execute(select(AP).where(AP.c.study_id == study["id"])
+                           .order_by(AP.c.stage.desc(), AP.c.reviewer)).mappings().all()
+        ratings = conn.execute(
+            select(RA).where(RA.c.appraisal_id.in_([a["id"] for a in aps]))
+        ).mappings().all()
+    by_ap: dict[int, list] = {}
+    for r in ratings:
+        by_ap.setdefault(r["appraisal_id"], []).append(r)
+    n_indep = sum(1 for a in aps if a["stage"] == "independent")
+    unblinded = n_indep >= REVIEWERS_BEFORE_UNBLINDING
+    views = []
+    for a in aps:
+        rs = {r["domain"]: r["level"] for r in by_ap.get(a["id"], [])}
+        hidden = a["stage"] == "independent" and not unblinded and a["reviewer"] != viewer
+        label = a["rubric_id"] + " (" + a["rubric_hash"][:12] + ")"
+        if hidden:
+            views.append(AppraisalView(a["reviewer"], a["stage"], label, None, None,
+                                       "hidden until both independent appraisals are in",
+                                       None, {}, {}, True))
+            continue
+        score = score_appraisal(rs, rubric)
+        views.append(AppraisalView(
+            a["reviewer"], a["stage"], label, a["overall"], score.deciding_domain, score.reason,
+            rs, {r["domain"]: r["justification"] for r in by_ap.get(a["id"], [])
+                 if r["justification"]},
+            {r["domain"]: (r["suggested_level"], r["suggestion_reason"])
+             for r in by_ap.get(a["id"], []) if r["suggestion_reason"]},
+            False))
+    record = next((v for v in views if v.stage == "consensus"), None)
+    return {"study_id": study_key, "citation": study["citation"], "design": study["design"],
+            "appraisals": views, "of_record": record, "independent": n_indep,
+            "domains": rubric.domain_keys, "caution": rubric.caution}
+
+
+def agreement(store: Store) -> pd.DataFrame:
+    """Per-domain agreement between independent reviewers (only unblinded studies count)."""
+    with store.read() as conn:
+        rows = conn.execute(
+            select(ST.c.key.label("study_id"), AP.c.reviewer, RA.c.domain, RA.c.level)
+            .join(AP, AP.c.study_id == ST.c.id)
+            .join(RA, RA.c.appraisal_id == AP.c.id)
+            .where(AP.c.stage == "independent")
+        ).mappings().all()
+    frame = pd.DataFrame([dict(r) for r in rows],
+                         columns=["study_id", "reviewer", "domain", "level"])
+    return agreement_table(frame)

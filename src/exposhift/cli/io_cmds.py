@@ -1,0 +1,180 @@
+"""Commands that move records in and out: import, export, events import, demo."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import typer
+
+from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.services.demo import DEMO_DB, build_demo
+from exposhift.services.exporting import export_file
+from exposhift.services.importing import ImportReport, import_file
+
+#: imports with more rows than this show a progress bar (on stderr)
+PROGRESS_ABOVE = 5000
+
+
+class _Bar:
+    """A rich progress bar on stderr, started on the first report of a large stage."""
+
+    def __init__(self) -> None:
+        self.progress = None
+        self.tasks: dict[str, int] = {}
+
+    def __call__(self, stage: str, done: int, total: int) -> None:
+        if total <= PROGRESS_ABOVE:
+            return
+        if self.progress is None:
+            from rich.console import Console
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn
+
+            self.progress = Progress(TextColumn("writing {task.description}"), BarColumn(),
+                                     MofNCompleteColumn(), console=Console(stderr=True))
+            self.progress.start()
+        if stage not in self.tasks:
+            self.tasks[stage] = self.progress.add_task(stage, total=total)
+        self.progress.update(self.tasks[stage], completed=done)
+
+    def close(self) -> None:
+        if self.progress is not None:
+            self.progress.stop()
+
+
+def _print_report(report: ImportReport) -> None:
+    if report.dry_run:
+        typer.echo(f"dry run: nothing was written. Importing {report.file} into {report.url} "
+                   "would give:")
+    else:
+        typer.echo(f"imported {report.file} into {report.url} ({report.rows} rows)")
+    width = max(len(k) for k in report.counts)
+    typer.echo(f"  {'':<{width}}  {'added':>8}  {'updated':>8}  {'unchanged':>9}")
+    for name, c in report.counts.items():
+        typer.echo(f"  {name:<{width}}  {c.added:>8,}  {c.updated:>8,}  {c.unchanged:>9,}")
+    for note in report.notes:
+        typer.echo(f"note: {note}")
+    if not report.dry_run and not report.changed:
+        typer.echo("nothing changed: every record was already in the evidence base")
+
+
+def _run_import(ctx: typer.Context, file: Path, *, events_only: bool, dry_run: bool,
+                encoding: str | None, ignore_extra: bool, as_json: bool, quiet: bool) -> None:
+    s = settings(ctx)
+    bar = None if (as_json or quiet) else _Bar()
+    try:
+        report = import_file(file, db=s.db, user=s.user, events_only=events_only,
+                             dry_run=dry_run, encoding=encoding, ignore_extra=ignore_extra,
+                             progress=bar)
+    finally:
+        if bar is not None:
+            bar.close()
+    if as_json:
+        print_json(report.to_dict())
+    elif not quiet:
+        _print_report(report)
+
+
+_FILE = typer.Argument(..., help="Extraction sheet (.csv, .xlsx) or exposhift archive (.json).",
+                       show_default=False)
+_DRY = typer.Option(False, "--dry-run",
+                    help="Check the file and report what would be added, updated and left "
+                    "unchanged; write nothing.")
+_ENCODING = typer.Option(None, "--encoding",
+                         help="Text encoding of a CSV file that is not UTF-8 (e.g. latin-1, "
+                         "cp1252).")
+_EXTRA = typer.Option(False, "--ignore-extra-columns",
+                      help="Skip columns exposhift does not know instead of refusing the file.")
+_JSON = typer.Option(False, "--json", help="Print the result as a JSON object.")
+_QUIET = typer.Option(False, "--quiet", "-q", help="Print nothing on success.")
+
+
+@user_errors
+def import_cmd(ctx: typer.Context, file: Path = _FILE, dry_run: bool = _DRY,
+               encoding: str | None = _ENCODING, ignore_extra: bool = _EXTRA,
+               as_json: bool = _JSON, quiet: bool = _QUIET) -> None:
+    """Import studies, events and estimates from a sheet, or a whole archive (.json).
+
+    Every problem in the file is reported at once (row, column, what to do) and nothing is
+    written until the file is clean. The import is one transaction; importing the same file
+    again changes nothing, and a changed row updates its record (with an audit entry).
+    """
+    _run_import(ctx, file, events_only=False, dry_run=dry_run, encoding=encoding,
+                ignore_extra=ignore_extra, as_json=as_json, quiet=quiet)
+
+
+@user_errors
+def events_import_cmd(ctx: typer.Context,
+                      file: Path = typer.Argument(..., help="Events sheet (.csv or .xlsx).",
+                                                  show_default=False),
+                      dry_run: bool = _DRY, encoding: str | None = _ENCODING,
+                      ignore_extra: bool = _EXTRA, as_json: bool = _JSON,
+                      quiet: bool = _QUIET) -> None:
+    """Register exposure-change events that no study has evaluated yet (event columns + demo)."""
+    _run_import(ctx, file, events_only=True, dry_run=dry_run, encoding=encoding,
+                ignore_extra=ignore_extra, as_json=as_json, quiet=quiet)
+
+
+@user_errors
+def export_cmd(ctx: typer.Context,
+               file: Path = typer.Argument(..., help="Target: .json (whole evidence base), "
+                                           ".csv or .xlsx (extraction sheet).",
+                                           show_default=False),
+               events: bool = typer.Option(False, "--events",
+                                           help="Write the events sheet (every event, with or "
+                                           "without studies) instead of the estimates."),
+               as_json: bool = _JSON) -> None:
+    """Export the evidence base: a lossless archive (.json) or an extraction sheet (.csv/.xlsx).
+
+    Text cells that a spreadsheet would run as a formula are written with a leading quote.
+    """
+    result = export_file(file, db=settings(ctx).db, events_only=events)
+    if as_json:
+        print_json({"file": result.path, "format": result.format, "what": result.what,
+                    "counts": result.counts})
+        return
+    counts = ", ".join(f"{n:,} {k}" for k, n in result.counts.items())
+    typer.echo(f"wrote {result.path} ({result.what}: {counts})")
+
+
+@user_errors
+def demo_cmd(ctx: typer.Context,
+             db: Path = typer.Option(DEMO_DB, "--db",
+                                     help="SQLite file for the demo (replaced if it holds only "
+                                     "demo records)."),
+             seed: Path | None = typer.Option(None, "--seed",
+                                              help="Directory with the demo records "
+                                              "(default: the repository's seed_records/).")
+             ) -> None:
+    """Build a fresh demo evidence base from the invented scenario and show what it holds.
+
+    Your own evidence base is never touched: the demo lives in its own file.
+    """
+    r = build_demo(db, seed, settings(ctx).user)
+    c = r.counts
+    typer.echo(f"demo evidence base {r.path} (built from {r.seed})")
+    typer.echo(f"  {c['studies']} studies, {c['estimates']} estimates, {c['events']} "
+               f"exposure-change events ({c['events_without_study']} without a study yet), "
+               f"{c['countries']} countries, {c['designs']} designs, {c['appraisals']} "
+               "appraisals")
+    typer.echo(f"  {r.appraisals}")
+    if not r.grid.empty:
+        typer.echo("studies per exposure and outcome:")
+        for exposure, row in r.grid.iterrows():
+            cells = ", ".join(f"{o} {int(n)}" for o, n in row.items() if n)
+            typer.echo(f"  {exposure}: {cells}")
+    typer.echo("every record is invented and flagged demo; it shows how exposhift works and is "
+               "no evidence about any real agent.")
+    typer.echo("next:")
+    typer.echo(f"  exposhift --db {r.path} info")
+    typer.echo(f"  exposhift --db {r.path} export demo-archive.json")
+    typer.echo(f"  exposhift --db {r.path} export demo-sheet.csv")
+
+
+def register(app: typer.Typer) -> None:
+    app.command("import")(import_cmd)
+    app.command("export")(export_cmd)
+    app.command("demo")(demo_cmd)
+    events = typer.Typer(help="Exposure-change events registered without studies.",
+                         no_args_is_help=True)
+    events.command("import")(events_import_cmd)
+    app.add_typer(events, name="events")

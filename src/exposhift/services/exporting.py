@@ -1,0 +1,136 @@
+"""Export the evidence base: the JSON archive (lossless) or the extraction sheet (CSV/Excel).
+
+Also the reading side shared with the import service: tables as DataFrames keyed by natural
+keys, with database ids mapped to the keys users see.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from exposhift.errors import ConfigError
+from exposhift.io.archive import archive_text
+from exposhift.io.exporter import (
+    SHEET_WRITERS,
+    events_sheet_frame,
+    sheet_frame,
+    write_text,
+)
+from exposhift.io.frames import FIELDS, EvidenceFrames, coerce
+from exposhift.services.setup import open_current
+from exposhift.store.database import Store
+from exposhift.store.records import TABLES
+
+#: rows per ``IN (...)`` query when only some keys are read
+KEY_CHUNK = 500
+#: above this many keys the whole table is read instead
+WHOLE_TABLE_ABOVE = 5000
+
+
+def read_table(conn, entity: str, keys: list[str] | None = None,
+               key_col: str | None = None) -> pd.DataFrame:
+    """All rows of a table (or those whose ``key_col`` is in ``keys``) as a DataFrame."""
+    table = TABLES[entity]
+    names = [c.name for c in table.columns]
+    stmts = [table.select()]
+    if keys is not None and len(keys) <= WHOLE_TABLE_ABOVE:
+        col = table.c[key_col or "key"]
+        stmts = [table.select().where(col.in_(keys[i:i + KEY_CHUNK]))
+                 for i in range(0, len(keys), KEY_CHUNK)]
+    rows = [r for stmt in stmts for r in conn.execute(stmt).all()]
+    frame = pd.DataFrame.from_records(rows, columns=names)
+    return frame
+
+
+def _names(frame: pd.DataFrame, col: str) -> dict[int, str]:
+    return dict(zip(frame["id"].tolist(), frame[col].tolist(), strict=True))
+
+
+def with_refs(conn, entity: str, frame: pd.DataFrame, cache: dict) -> pd.DataFrame:
+    """Add the natural-key reference columns (``exposure``, ``study``, ...) to a table frame."""
+
+    def ids(ref: str, col: str) -> dict[int, str]:
+        if ref not in cache:
+            cache[ref] = _names(read_table(conn, ref), col)
+        return cache[ref]
+
+    out = frame.copy()
+    if entity == "event":
+        out["exposure"] = out["exposure_id"].map(ids("exposure", "name"))
+    elif entity == "estimate":
+        out["study"] = out["study_id"].map(ids("study", "key"))
+        out["event"] = out["event_id"].map(ids("event", "key"))
+        out["outcome"] = out["outcome_id"].map(ids("outcome", "name"))
+    elif entity == "appraisal":
+        out["study"] = out["study_id"].map(ids("study", "key"))
+    kinds = dict(FIELDS[entity])
+    return coerce(out, kinds)
+
+
+def load_evidence(conn) -> EvidenceFrames:
+    """The whole evidence base as frames keyed by natural keys (no ids)."""
+    cache: dict = {}
+    frames = {}
+    for entity in ("exposure", "outcome", "event", "study", "estimate", "appraisal"):
+        table = with_refs(conn, entity, read_table(conn, entity), cache)
+        frames[entity] = table
+    apps = frames["appraisal"]
+    ratings = read_table(conn, "rating")
+    lookup = apps.set_index("id")[["study", "reviewer", "stage"]]
+    ratings = ratings.join(lookup, on="appraisal_id")
+    frames["rating"] = coerce(ratings, FIELDS["rating"])
+    return EvidenceFrames(**{
+        plural: frames[e][list(FIELDS[e])].reset_index(drop=True)
+        for e, plural in (("exposure", "exposures"), ("outcome", "outcomes"),
+                          ("event", "events"), ("study", "studies"),
+                          ("estimate", "estimates"), ("appraisal", "appraisals"),
+                          ("rating", "ratings"))
+    })
+
+
+@dataclass(frozen=True)
+class ExportResult:
+    path: str
+    format: str  # "json", "csv", "xlsx"
+    what: str  # "evidence base", "estimates", "events"
+    counts: dict[str, int]
+
+
+EXPORT_SUFFIXES = (".json", ".csv", ".xlsx")
+
+
+def export_store(store: Store, path: str | Path, *, events_only: bool = False) -> ExportResult:
+    """Write ``path``: ``.json`` archive, or ``.csv``/``.xlsx`` sheet (or events sheet)."""
+    path = Path(path)
+    suffix = path.suffix.lower()
+    if suffix not in EXPORT_SUFFIXES:
+        raise ConfigError(f"cannot export to '{path.name}'; name a .json (whole evidence base), "
+                          ".csv or .xlsx file (extraction sheet)")
+    if events_only and suffix == ".json":
+        raise ConfigError("--events writes an events sheet; name a .csv or .xlsx file")
+    with store.read() as conn:
+        frames = load_evidence(conn)
+    counts = {"events": len(frames.events), "studies": len(frames.studies),
+              "estimates": len(frames.estimates), "appraisals": len(frames.appraisals)}
+    if suffix == ".json":
+        write_text(archive_text(frames), path)
+        return ExportResult(str(path), "json", "evidence base", counts)
+    if events_only:
+        SHEET_WRITERS[suffix](events_sheet_frame(frames), path)
+        return ExportResult(str(path), suffix[1:], "events", {"events": counts["events"]})
+    SHEET_WRITERS[suffix](sheet_frame(frames), path)
+    return ExportResult(str(path), suffix[1:], "estimates",
+                        {k: counts[k] for k in ("studies", "events", "estimates")})
+
+
+def export_file(path: str | Path, *, db: str | None = None, events_only: bool = False
+                ) -> ExportResult:
+    """Open the evidence base named by ``db`` and export it to ``path``."""
+    store = open_current(db)
+    try:
+        return export_store(store, path, events_only=events_only)
+    finally:
+        store.dispose()

@@ -139,7 +139,7 @@ def _tau2_dl_reg(X: np.ndarray, y: np.ndarray, v: np.ndarray) -> float:
     q_e = _q_resid(X, y, w)
     _, inv = _wls(X, y, w)
     denom = w.sum() - np.trace(inv @ (X.T @ ((w * w)[:, None] * X)))
-    return max(0.0, (q_e - (k - p)) / denom)
+    return float(max(0.0, (q_e - (k - p)) / denom))
 
 
 def _tau2_pm_reg(X: np.ndarray, y: np.ndarray, v: np.ndarray) -> tuple[float, int, bool]:

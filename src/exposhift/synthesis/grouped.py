@@ -21,7 +21,7 @@ from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
-from scipy import stats
+from scipy import special, stats
 
 from exposhift.errors import AnalysisError
 from exposhift.synthesis.pooling import (
@@ -32,10 +32,12 @@ from exposhift.synthesis.pooling import (
     REML_RTOL,
     SCALAR_FIELDS,
     check_options,
-    compose_notes,
+    note_codes,
 )
 
 PM_MAX_ITER = 200
+#: iterate on a compacted copy of the running groups once fewer than this share still run
+COMPACT_AT = 0.8
 
 
 class Segments:
@@ -48,6 +50,13 @@ class Segments:
         self.n_groups = starts.size
         self.k = np.diff(np.append(starts, y.size))
         self.g = np.repeat(np.arange(self.n_groups), self.k)
+
+    def subset(self, ids: np.ndarray) -> Segments:
+        """The groups ``ids`` (increasing) only, as a new, smaller set of segments."""
+        k = self.k[ids]
+        new_starts = np.concatenate([[0], np.cumsum(k)[:-1]]).astype(self.starts.dtype)
+        rows = np.repeat(self.starts[ids] - new_starts, k) + np.arange(k.sum())
+        return Segments(self.y[rows], self.v[rows], new_starts)
 
     def sum(self, x: np.ndarray) -> np.ndarray:
         """Per-group sums of a row array (Σ within each group)."""
@@ -64,25 +73,30 @@ class Segments:
         _, mu = self.weighted_mean(w)
         return self.sum(w * (self.y - mu[self.g]) ** 2)
 
-    def reml_parts(self, tau2: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Per group: twice the REML score, twice the Fisher and twice the observed information
-        (formulas in :func:`exposhift.synthesis.pooling._reml_derivatives`)."""
-        w = 1.0 / (self.v + tau2[self.g])
-        sw, mu = self.weighted_mean(w)
-        r = self.y - mu[self.g]
-        w2 = w * w
-        sw2 = self.sum(w2)
-        score = self.sum(w2 * r * r) - (sw - sw2 / sw)
-        fisher = sw2 - 2.0 * self.sum(w2 * w) / sw + (sw2 / sw) ** 2
-        u = w * r
-        upu = self.sum(w * u * u) - self.sum(w * u) ** 2 / sw
-        return score, fisher, 2.0 * upu - fisher
-
-    def loglik(self, tau2: np.ndarray) -> np.ndarray:
+    def reml_parts(self, tau2: np.ndarray) -> tuple[np.ndarray, ...]:
+        """Per group at τ²: twice the REML score, twice the Fisher and twice the observed
+        information, and the restricted log-likelihood, in one pass (formulas in
+        :func:`exposhift.synthesis.pooling._reml_derivatives` and ``restricted_loglik``)."""
         tv = self.v + tau2[self.g]
         w = 1.0 / tv
         sw, mu = self.weighted_mean(w)
-        return -0.5 * (self.sum(np.log(tv)) + np.log(sw) + self.sum(w * (self.y - mu[self.g]) ** 2))
+        r = self.y - mu[self.g]
+        wr = w * r
+        w2 = w * w
+        sw2 = self.sum(w2)
+        wr2 = wr * r
+        score = self.sum(w * wr2) - (sw - sw2 / sw)
+        fisher = sw2 - 2.0 * self.sum(w2 * w) / sw + (sw2 / sw) ** 2
+        upu = self.sum(w2 * wr2) - self.sum(w * wr) ** 2 / sw
+        with np.errstate(invalid="ignore", divide="ignore"):
+            ll = -0.5 * (self.sum(np.log(tv)) + np.log(sw) + self.sum(wr2))
+        return score, fisher, 2.0 * upu - fisher, ll
+
+
+def _t_isf(q: float, df: np.ndarray) -> np.ndarray:
+    """t quantiles, computed once per distinct df (scipy's t.isf is slow per element)."""
+    uniq, inv = np.unique(df, return_inverse=True)
+    return stats.t.isf(q, uniq)[inv.reshape(-1)]
 
 
 # --------------------------------------------------------------------------------------------
@@ -97,83 +111,117 @@ def _tau2_dl(seg: Segments, q: np.ndarray, w: np.ndarray, sw: np.ndarray) -> np.
 
 
 def _tau2_pm(seg: Segments, q0: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Paule–Mandel over all groups by the Illinois method. Returns (τ², iterations, converged)."""
+    """Paule–Mandel over all groups by the Illinois method. Returns (τ², iterations, converged).
+
+    Only groups with Q(0) > k − 1 iterate; they are gathered into a smaller set of segments,
+    which shrinks again whenever a fifth of its groups have converged.
+    """
     G = seg.n_groups
-    df = (seg.k - 1).astype(float)
     tau2 = np.where(seg.k >= 2, 0.0, np.nan)
     iters = np.zeros(G, dtype=int)
     conv = np.ones(G, dtype=bool)
-    active = (seg.k >= 2) & (q0 > df)
-    if not active.any():
+    ids = np.flatnonzero((seg.k >= 2) & (q0 > seg.k - 1))
+    if not ids.size:
         return tau2, iters, conv
-    ybar = seg.sum(seg.y) / seg.k
-    ss = seg.sum((seg.y - ybar[seg.g]) ** 2)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        hi = np.where(active, ss / np.maximum(df, 1.0), 0.0)
-    a = np.zeros(G)
-    fa = np.where(active, q0 - df, 0.0)
-    b = hi.copy()
-    fb = np.where(active, seg.gen_q(b) - df, -1.0)
+    sub = seg.subset(ids)
+    df = (sub.k - 1).astype(float)
+    ybar = sub.sum(sub.y) / sub.k
+    hi = sub.sum((sub.y - ybar[sub.g]) ** 2) / df  # pm_upper_bracket, per group
+    a = np.zeros(ids.size)
+    fa = q0[ids] - df
+    b = hi
+    fb = sub.gen_q(b) - df
     for _ in range(200):  # rounding guard at the proved bound
-        bad = active & (fb >= 0)
+        bad = fb >= 0
         if not bad.any():
             break
         b = np.where(bad, b * 2.0, b)
-        fb = np.where(bad, seg.gen_q(b) - df, fb)
-    conv = ~active
+        fb = np.where(bad, sub.gen_q(b) - df, fb)
+    run = np.ones(ids.size, dtype=bool)
+    it = np.zeros(ids.size, dtype=int)
     for _ in range(PM_MAX_ITER):
-        run = active & ~conv
         if not run.any():
             break
+        if run.sum() < COMPACT_AT * run.size:  # compact: keep the running groups only
+            keep = np.flatnonzero(run)
+            tau2[ids[~run]] = np.maximum(0.0, b[~run])
+            iters[ids[~run]] = it[~run]
+            ids, sub, df = ids[keep], sub.subset(keep), df[keep]
+            a, fa, b, fb, it = a[keep], fa[keep], b[keep], fb[keep], it[keep]
+            run = np.ones(ids.size, dtype=bool)
         with np.errstate(invalid="ignore", divide="ignore"):
             c = b - fb * (b - a) / (fb - fa)
         bad = ~np.isfinite(c) | (c <= np.minimum(a, b)) | (c >= np.maximum(a, b))
         c = np.where(bad, 0.5 * (a + b), c)
         c = np.where(run, c, b)
-        fc = seg.gen_q(c) - df
-        iters += run
+        fc = sub.gen_q(c) - df
+        it += run
         sign_change = fc * fb < 0
         move_a = run & sign_change
         a = np.where(move_a, b, a)
         fa = np.where(move_a, fb, np.where(run & ~sign_change, 0.5 * fa, fa))
         b = np.where(run, c, b)
         fb = np.where(run, fc, fb)
-        conv |= run & ((np.abs(b - a) <= PM_RTOL * np.abs(b)) | (fc == 0))
-    tau2 = np.where(active, np.maximum(0.0, b), tau2)
-    return tau2, iters, conv | ~active
+        run &= ~((np.abs(b - a) <= PM_RTOL * np.abs(b)) | (fc == 0))
+    tau2[ids] = np.maximum(0.0, b)
+    iters[ids] = it
+    conv[ids] = ~run
+    return tau2, iters, conv
 
 
 def _tau2_reml(seg: Segments, start: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """REML by Newton/Fisher steps with halving, all groups together (see pooling.tau2_reml)."""
+    """REML by Newton/Fisher steps with halving, all groups together (see pooling.tau2_reml).
+
+    One pass per iteration evaluates the log-likelihood at the proposed value (to accept it)
+    and the derivatives there (for the next step). Converged groups drop out of the working
+    set whenever a fifth of it has converged.
+    """
     G = seg.n_groups
-    ok = seg.k >= 2
-    tau2 = np.where(ok, start, 0.0)
-    vmin = np.minimum.reduceat(seg.v, seg.starts)
+    tau2 = np.where(seg.k >= 2, start, np.nan)
     iters = np.zeros(G, dtype=int)
-    conv = ~ok
-    ll = seg.loglik(tau2)
+    conv = np.ones(G, dtype=bool)
+    ids = np.flatnonzero(seg.k >= 2)
+    if not ids.size:
+        return tau2, iters, conv
+    sub = seg.subset(ids)
+    vmin = np.minimum.reduceat(sub.v, sub.starts)
+    t = tau2[ids]
+    score, fisher, observed, ll = sub.reml_parts(t)
+    run = np.ones(ids.size, dtype=bool)
+    it = np.zeros(ids.size, dtype=int)
     for _ in range(REML_MAX_ITER):
-        run = ~conv
         if not run.any():
             break
-        score, fisher, observed = seg.reml_parts(tau2)
+        if run.sum() < COMPACT_AT * run.size:  # compact: keep the running groups only
+            keep = np.flatnonzero(run)
+            tau2[ids[~run]] = t[~run]
+            iters[ids[~run]] = it[~run]
+            ids, sub, vmin, t, it = ids[keep], sub.subset(keep), vmin[keep], t[keep], it[keep]
+            score, fisher, observed, ll = score[keep], fisher[keep], observed[keep], ll[keep]
+            run = np.ones(ids.size, dtype=bool)
         with np.errstate(invalid="ignore", divide="ignore"):
             step = np.where(run, score / np.where(observed > 0, observed, fisher), 0.0)
-        new = np.maximum(0.0, tau2 + step)
-        ll_new = seg.loglik(new)
-        for _ in range(50):
-            worse = run & (ll_new < ll - 1e-12 * (1.0 + np.abs(ll)))
-            if not worse.any():
+        new = np.maximum(0.0, t + step)
+        s2, f2, o2, ll2 = sub.reml_parts(new)
+        for _ in range(50):  # step halving, evaluated on the groups that need it only
+            wi = np.flatnonzero(run & (ll2 < ll - 1e-12 * (1.0 + np.abs(ll))))
+            if not wi.size:
                 break
-            step = np.where(worse, 0.5 * step, step)
-            new = np.where(worse, np.maximum(0.0, tau2 + step), new)
-            ll_new = np.where(worse, seg.loglik(new), ll_new)
-        done = run & (np.abs(new - tau2) <= REML_RTOL * (new + vmin))
-        iters += run
-        tau2 = np.where(run, new, tau2)
-        ll = np.where(run, ll_new, ll)
-        conv |= done
-    return np.where(ok, tau2, np.nan), iters, conv
+            step[wi] *= 0.5
+            new[wi] = np.maximum(0.0, t[wi] + step[wi])
+            s2[wi], f2[wi], o2[wi], ll2[wi] = sub.subset(wi).reml_parts(new[wi])
+        done = run & (np.abs(new - t) <= REML_RTOL * (new + vmin))
+        it += run
+        t = np.where(run, new, t)
+        score = np.where(run, s2, score)
+        fisher = np.where(run, f2, fisher)
+        observed = np.where(run, o2, observed)
+        ll = np.where(run, ll2, ll)
+        run &= ~done
+    tau2[ids] = t
+    iters[ids] = it
+    conv[ids] = ~run
+    return tau2, iters, conv
 
 
 # --------------------------------------------------------------------------------------------
@@ -230,16 +278,18 @@ def pool_segments(
         floored = (hk < 1.0 - NOTE_TOL) if hksj_floor else np.zeros(G, dtype=bool)
         se = np.where(single, se_wald, np.sqrt(used / sw))
         df = np.where(single, np.inf, df_q)
-        crit = np.where(single, z, stats.t.isf(alpha / 2, np.where(single, 1.0, df_q)))
+        crit = np.where(single, z, _t_isf(alpha / 2, np.where(single, 1.0, df_q)))
         hk_out = np.where(single, np.nan, hk)
         narrower = ~single & (crit * se < z * se_wald * (1.0 - NOTE_TOL))
         floored = ~single & floored
     with np.errstate(invalid="ignore", divide="ignore"):
         stat = mu / se
-    pvalue = np.where(
-        np.isinf(df), 2 * stats.norm.sf(np.abs(stat)),
-        2 * stats.t.sf(np.abs(stat), np.where(np.isinf(df), 1.0, df)),
-    )
+    # scipy.special ufuncs behind scipy.stats' norm.sf, t.sf and chi2.sf (faster per element)
+    with np.errstate(invalid="ignore"):
+        pvalue = np.where(
+            np.isinf(df), 2 * special.ndtr(-np.abs(stat)),
+            2 * special.stdtr(np.where(np.isinf(df), 1.0, df), -np.abs(stat)),
+        )
 
     # heterogeneity
     sw2_fe = seg.sum(w_fe * w_fe)
@@ -249,18 +299,19 @@ def pool_segments(
         h2 = q / df_q
         i2_tau2 = tau2 / (tau2 + s2)
         h2_tau2 = (tau2 + s2) / s2
-        q_p = stats.chi2.sf(q, np.maximum(df_q, 1.0))
+        q_p = special.chdtrc(np.maximum(df_q, 1.0), q)
     nan = np.full(G, np.nan)
 
     # prediction interval
     many = k >= 3
-    tq = stats.t.isf(alpha / 2, np.maximum(k - 2, 1))
+    tq = _t_isf(alpha / 2, np.maximum(k - 2, 1))
     half = tq * np.sqrt(t0 + se_wald**2)
     pi_lower = np.where(many, mu - half, np.nan)
     pi_upper = np.where(many, mu + half, np.nan)
     pi_note = np.where(many, "", PI_NOTE_FEW).astype(object)
 
-    notes = compose_notes(k, method, ci, tau2 == 0.0, conv, narrower, floored)
+    codes, texts = note_codes(k, method, ci, tau2 == 0.0, conv, narrower, floored)
+    notes = np.array(["; ".join(t) for t in texts], dtype=object)[codes]
     return {
         "k": k,
         "method": np.full(G, method, dtype=object),
@@ -287,7 +338,7 @@ def pool_segments(
         "pi_note": pi_note,
         "converged": conv,
         "iterations": iters,
-        "notes": np.array(["; ".join(n) for n in notes], dtype=object),
+        "notes": notes,
     }
 
 

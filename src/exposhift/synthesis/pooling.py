@@ -64,6 +64,13 @@ PM_RTOL = 1e-14
 #: in theory; rounding must not decide whether a note appears)
 NOTE_TOL = 1e-9
 
+#: the caution to show beside pooled numbers (METHODS.md section 7)
+CAUTION = (
+    "Pooled numbers and status labels support, never replace, expert judgement; hazard "
+    "conclusions rest with the committee and with local regulation and licensed practice. "
+    "Natural experiments remain vulnerable to bias that no rubric fully captures."
+)
+
 #: the scalar fields of :class:`PoolResult`, in column order (used by ``pool_groups``)
 SCALAR_FIELDS: tuple[str, ...] = (
     "k", "method", "ci_method", "estimate", "se", "ci_lower", "ci_upper", "z_or_t",
@@ -263,37 +270,48 @@ def s2_typical(w: np.ndarray) -> float:
 # notes shared with the grouped route
 
 
-def compose_notes(
+def note_codes(
     k: np.ndarray, method: str, ci: str, tau2_zero: np.ndarray, converged: np.ndarray,
     hksj_narrower: np.ndarray, hksj_floored: np.ndarray,
-) -> list[tuple[str, ...]]:
-    """The notes of each pooled result, one tuple of sentences per result.
+) -> tuple[np.ndarray, list[tuple[str, ...]]]:
+    """The notes of each pooled result as (code per result, tuple of sentences per code).
 
-    Shared by :func:`pool` and :func:`exposhift.synthesis.grouped.pool_groups` so both say the
-    same thing for the same situation.
+    Vectorised: the conditions become bits, and each distinct combination is put into words
+    once. Shared by :func:`pool` and :func:`exposhift.synthesis.grouped.pool_groups` so both
+    say the same thing for the same situation.
     """
     k = np.asarray(k)
-    out: list[list[str]] = [[] for _ in range(k.size)]
-
-    def add(mask: Any, text: str) -> None:
-        for i in np.flatnonzero(np.asarray(mask, dtype=bool)):
-            out[i].append(text)
-
-    add(k == 1, "single estimate: returned as reported with its own Wald interval "
-        "(tau2, Q and I2 need at least 2 estimates)")
+    two = k >= 2
+    conditions: list[tuple[np.ndarray, str]] = [
+        (k == 1, "single estimate: returned as reported with its own Wald interval "
+         "(tau2, Q and I2 need at least 2 estimates)"),
+    ]
     if method != "fe":
-        add((k >= 2) & np.asarray(tau2_zero, dtype=bool),
-            "tau2 estimate is 0 (truncated at the boundary)")
-    add((k >= 2) & ~np.asarray(converged, dtype=bool),
-        f"{method.upper()} iteration did not converge: tau2 is the last iterate")
+        conditions.append((two & np.asarray(tau2_zero, dtype=bool),
+                           "tau2 estimate is 0 (truncated at the boundary)"))
+    conditions.append((two & ~np.asarray(converged, dtype=bool),
+                       f"{method.upper()} iteration did not converge: tau2 is the last iterate"))
     if ci == "hksj":
-        add(k == 2, "k = 2: the HKSJ interval uses t with 1 df and is very wide")
-        add((k >= 2) & np.asarray(hksj_narrower, dtype=bool),
-            "HKSJ interval narrower than the Wald interval (untruncated form, IntHout et al. "
-            "2014): hksj_floor=True never is")
-        add((k >= 2) & np.asarray(hksj_floored, dtype=bool),
-            "HKSJ scale floored at 1 (Roever et al. 2015)")
-    return [tuple(x) for x in out]
+        conditions += [
+            (k == 2, "k = 2: the HKSJ interval uses t with 1 df and is very wide"),
+            (two & np.asarray(hksj_narrower, dtype=bool),
+             "HKSJ interval narrower than the Wald interval (untruncated form, IntHout et al. "
+             "2014): hksj_floor=True never is"),
+            (two & np.asarray(hksj_floored, dtype=bool),
+             "HKSJ scale floored at 1 (Roever et al. 2015)"),
+        ]
+    bits = np.zeros(k.size, dtype=np.int64)
+    for j, (mask, _) in enumerate(conditions):
+        bits |= np.asarray(mask, dtype=np.int64) << j
+    uniq, codes = np.unique(bits, return_inverse=True)
+    texts = [tuple(t for j, (_, t) in enumerate(conditions) if (u >> j) & 1) for u in uniq]
+    return codes.reshape(-1), texts
+
+
+def compose_notes(*args: Any) -> list[tuple[str, ...]]:
+    """One tuple of note sentences per result (see :func:`note_codes` for the arguments)."""
+    codes, texts = note_codes(*args)
+    return [texts[c] for c in codes]
 
 
 PI_NOTE_FEW = "prediction interval needs at least 3 estimates (t with k - 2 df)"

@@ -293,9 +293,9 @@ def pool_segments(
 
     # heterogeneity
     sw2_fe = seg.sum(w_fe * w_fe)
-    with np.errstate(invalid="ignore", divide="ignore"):
+    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         s2 = df_q * sw_fe / (sw_fe * sw_fe - sw2_fe)
-        i2 = np.where(q > 0, np.maximum(0.0, (q - df_q) / q), 0.0)
+        i2 = np.where(q > df_q, (q - df_q) / q, 0.0)
         h2 = q / df_q
         i2_tau2 = tau2 / (tau2 + s2)
         h2_tau2 = (tau2 + s2) / s2

@@ -475,7 +475,7 @@ def pool(
 
     w_fe = 1.0 / v
     s2 = s2_typical(w_fe)
-    i2 = max(0.0, (q - q_df) / q) if q > 0 else 0.0
+    i2 = (q - q_df) / q if q > q_df else 0.0
     if k >= 3:
         tq = float(stats.t.isf(alpha / 2, k - 2))
         half = tq * np.sqrt(tau2 + se_wald**2)

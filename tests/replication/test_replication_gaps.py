@@ -132,7 +132,7 @@ def test_opportunities_list_unevaluated_events_with_what_is_needed():
     assert opp["event_id"].tolist() == ["A9", "D1"]
     a9 = opp.iloc[0]
     assert a9["family_events_evaluated"] == 3
-    assert a9["outcomes_studied_elsewhere"] == "o1 (3 events); o2 (1 events)"
+    assert a9["outcomes_studied_elsewhere"] == "o1 (3 events); o2 (1 event)"
     assert "outcome data for POL (two regions) before and after 2019-05" in a9["needs"]
     assert "a comparison that did not have the change" in a9["needs"]
     assert "the size of the exposure change (not recorded)" in a9["needs"]

@@ -154,6 +154,11 @@ def test_gaps_command(store, db_url):
     assert "fumex     birth outcomes" in res.stdout
     assert "opportunities: 1 registered exposure change(s) never evaluated" in res.stdout
     assert "never replace" in res.stdout
+    full = json.loads(runner.invoke(app, ["--db", db_url, "gaps", "--json"]).stdout)["cells"]
+    res = runner.invoke(app, ["--db", db_url, "gaps", "--json", "--studied-only"])
+    studied = json.loads(res.stdout)["cells"]
+    assert 0 < len(studied) < len(full)
+    assert {c["state"] for c in studied} == {"ready-for-synthesis", "single-event"}
 
 
 def test_gaps_command_errors(sqlite_store, sqlite_url):

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -187,6 +188,8 @@ def gaps(
         None, "--min-level", help="Keep only studies appraised at this overall level or above."),
     stale_after: int | None = typer.Option(
         None, "--stale-after", help="Mark cells with no evaluated change after YEAR as stale."),
+    studied_only: bool = typer.Option(
+        False, "--studied-only", help="Leave out the no-study cells (the listing can be long)."),
     settings_file: Path | None = typer.Option(
         None, "--settings", help="Thresholds file (default: evidence/replication.toml)."),
 ) -> None:
@@ -203,6 +206,8 @@ def gaps(
         rep = gap_report(store, filters, settings=load_settings(settings_file))
     finally:
         store.dispose()
+    if studied_only:
+        rep = replace(rep, cells=rep.cells[rep.cells["state"] != "no-study"])
     if as_json:
         print_json(rep.to_dict())
     else:

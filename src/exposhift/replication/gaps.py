@@ -282,7 +282,8 @@ def _top(frame: pd.DataFrame, col: str, n: int = 3) -> pd.Series:
     c = d.groupby(["family", col], sort=False).size().rename("_n").reset_index()
     c = c.sort_values(["family", "_n", col], ascending=[True, False, True], kind="stable")
     c = c[c.groupby("family", sort=False).cumcount().to_numpy() < n]
-    label = c[col].astype(str) + " (" + c["_n"].astype(str) + " events)"
+    label = (c[col].astype(str) + " (" + c["_n"].astype(str)
+             + np.where(c["_n"] == 1, " event)", " events)"))
     return label.groupby(c["family"], sort=True).agg("; ".join)
 
 

@@ -19,10 +19,10 @@ from exposhift.io.problems import ProblemLog, quote
 #: characters that make a spreadsheet run a text cell as a formula
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
-_NUMBER = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
-_WHOLE = r"[+-]?\d+(?:\.0*)?"
-_DATE = r"(\d{4})(?:-(\d{2})(?:-(\d{2}))?)?"
-_QUOTED_FORMULA = r"^'(?='*[=+\-@\t\r])"
+_NUMBER = r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?"
+_WHOLE = r"[+-]?[0-9]+(?:\.0*)?"
+_DATE = r"([0-9]{4})(?:-([0-9]{2})(?:-([0-9]{2}))?)?"
+_QUOTED_FORMULA = r"^'+[=+\-@\t\r]"
 
 TRUE_WORDS = ("yes", "true", "1")
 FALSE_WORDS = ("no", "false", "0")
@@ -41,9 +41,10 @@ def clean_text(s: pd.Series, *, verbatim: bool = False) -> pd.Series:
     ``verbatim`` (JSON archives) keeps values exactly as written; blanks still become missing.
     """
     s = s.fillna("").astype("str")
-    if not verbatim:
-        s = s.str.strip()
-        s = s.str.replace(_QUOTED_FORMULA, "", regex=True)
+    if not verbatim:  # sheet cells arrive stripped (exposhift.io.sheet)
+        quoted = s.str.contains(_QUOTED_FORMULA, regex=True).to_numpy(dtype=bool)
+        if quoted.any():
+            s = s.where(~quoted, s.str.slice(1))
     return blank_to_na(s)
 
 
@@ -58,7 +59,8 @@ def parse_float(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     bad = given & ~ok
     if bad.any():
         vals = s.to_numpy()
-        comma = pd.Series(vals).str.fullmatch(r"[+-]?\d*,\d+").fillna(False).to_numpy(dtype=bool)
+        comma = (pd.Series(vals, dtype="str").str.fullmatch(r"[+-]?[0-9]*,[0-9]+")
+                 .fillna(False).to_numpy(dtype=bool))
         log.flag(bad & comma, column,
                  lambda i: f"{quote(vals[i])} is not a number; use a decimal point, not a comma")
         log.flag(bad & ~comma, column,
@@ -91,7 +93,7 @@ def parse_int(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
 
 def parse_bool(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     """yes/no, true/false, 1/0 (any case); blank is no."""
-    low = s.fillna("").astype("str").str.strip().str.lower()
+    low = s.fillna("").astype("str").str.lower()
     mapped = low.map(_BOOL)
     bad = (low != "").to_numpy() & mapped.isna().to_numpy()
     if bad.any():
@@ -103,7 +105,14 @@ def parse_bool(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
 
 
 def _code_key(value: str) -> str:
-    return re.sub(r"[\s_]+", "-", value.strip().lower())
+    return re.sub(r"[ \t_]+", "-", value.strip().lower())
+
+
+def _factorize(s: pd.Series) -> tuple[np.ndarray, pd.Series]:
+    """(codes, distinct values): columns repeat a few values many times, so per-value work is
+    done once per distinct value and spread back with ``take``."""
+    codes, uniques = pd.factorize(s.fillna("").astype("str"), sort=False)
+    return codes, pd.Series(np.asarray(uniques, dtype=object), dtype="str")
 
 
 def parse_code(s: pd.Series, column: str, log: ProblemLog, accepted: Iterable[str],
@@ -114,18 +123,16 @@ def parse_code(s: pd.Series, column: str, log: ProblemLog, accepted: Iterable[st
     """
     accepted = list(accepted)
     lookup = {_code_key(c): c for c in accepted}
-    raw = s.fillna("").astype("str").str.strip()
-    keys = raw.str.lower().str.replace(r"[\s_]+", "-", regex=True)
-    out = keys.map(lookup).astype("str")
-    blank = (raw == "").to_numpy()
-    bad = ~blank & out.isna().to_numpy()
+    codes, uniq = _factorize(s)
+    mapped = np.array([lookup.get(_code_key(v)) if v else (default or None)
+                       for v in uniq.tolist()], dtype=object)
+    bad_u = np.array([bool(v) for v in uniq.tolist()], dtype=bool) & (mapped == None)  # noqa: E711
+    bad = bad_u[codes]
     if bad.any():
-        vals = raw.to_numpy()
+        vals = uniq.to_numpy(dtype=object)[codes]
         log.flag(bad, column,
                  lambda i: f"unknown {what} {quote(vals[i])}; accepted: {', '.join(accepted)}")
-    if default is not None:
-        out = out.mask(pd.Series(blank, index=out.index), default)
-    return out
+    return pd.Series(mapped[codes], index=s.index, dtype="str")
 
 
 @lru_cache(maxsize=1)
@@ -147,27 +154,33 @@ def _country_hint(value: str) -> str:
 
 def parse_country(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     """ISO 3166-1 alpha-3 codes (upper-cased)."""
-    raw = s.fillna("").astype("str").str.strip()
-    up = raw.str.upper()
-    known = up.isin(_alpha3()).to_numpy()
-    bad = (raw != "").to_numpy() & ~known
+    codes, uniq = _factorize(s)
+    up = uniq.str.upper()
+    known_u = up.isin(_alpha3()).to_numpy()
+    bad_u = (uniq != "").to_numpy() & ~known_u
+    bad = bad_u[codes]
     if bad.any():
-        vals = raw.to_numpy()
-        hints = {v: _country_hint(v) for v in set(vals[bad])}
+        vals = uniq.to_numpy(dtype=object)[codes]
+        hints = {v: _country_hint(v) for v in uniq[bad_u]}
         log.flag(bad, column,
                  lambda i: f"unknown ISO 3166-1 alpha-3 country code {quote(vals[i])}; "
                  f"{hints[vals[i]]}")
-    return blank_to_na(up.where(pd.Series(known, index=up.index), ""))
+    out = up.where(pd.Series(known_u), None).to_numpy(dtype=object)[codes]
+    return pd.Series(out, index=s.index, dtype="str")
 
 
 def parse_date(s: pd.Series, column: str, log: ProblemLog) -> tuple[pd.Series, pd.Series]:
-    """``YYYY``, ``YYYY-MM`` or ``YYYY-MM-DD`` real calendar dates; returns (date, precision)."""
-    raw = s.fillna("").astype("str").str.strip()
+    """``YYYY``, ``YYYY-MM`` or ``YYYY-MM-DD`` real calendar dates; returns (date, precision).
+
+    Calendar rules: proleptic Gregorian (leap years: divisible by 4, except centuries not
+    divisible by 400), as Python's :class:`datetime.date`.
+    """
+    codes, raw = _factorize(s)
     parts = raw.str.extract(f"^{_DATE}$")
     shaped = parts[0].notna().to_numpy()
-    year = pd.to_numeric(parts[0], errors="coerce").to_numpy()
-    month = pd.to_numeric(parts[1], errors="coerce").to_numpy()
-    day = pd.to_numeric(parts[2], errors="coerce").to_numpy()
+    year = pd.to_numeric(parts[0], errors="coerce").to_numpy(dtype=float)
+    month = pd.to_numeric(parts[1], errors="coerce").to_numpy(dtype=float)
+    day = pd.to_numeric(parts[2], errors="coerce").to_numpy(dtype=float)
     has_m = ~np.isnan(month)
     has_d = ~np.isnan(day)
     y = np.nan_to_num(year).astype(np.int64)
@@ -179,33 +192,31 @@ def parse_date(s: pd.Series, column: str, log: ProblemLog) -> tuple[pd.Series, p
     bad_day = has_d & ~bad_month & ((day < 1) | (day > mdays))
     bad_year = shaped & (year < 1)
     given = (raw != "").to_numpy()
-    vals = raw.to_numpy()
-    log.flag(given & ~shaped, column,
+    impossible = shaped & (bad_month | bad_day | bad_year)
+    ok = shaped & ~impossible
+    vals = raw.to_numpy(dtype=object)[codes]
+    log.flag((given & ~shaped)[codes], column,
              lambda i: f"{quote(vals[i])} is not a date; write YYYY, YYYY-MM or YYYY-MM-DD "
              "(e.g. 2004, 2004-07 or 2004-07-01)")
-    impossible = shaped & (bad_month | bad_day | bad_year)
-    log.flag(impossible, column,
+    log.flag(impossible[codes], column,
              lambda i: f"{quote(vals[i])} is not a real calendar date; check the month and day")
-    ok = shaped & ~impossible
-    date = blank_to_na(raw.where(pd.Series(ok, index=raw.index), ""))
-    precision = np.where(has_d, "day", np.where(has_m, "month", "year"))
-    prec = pd.Series(precision, index=raw.index, dtype="str").mask(~pd.Series(ok, index=raw.index))
-    return date, prec
+    date = np.where(ok, raw.to_numpy(dtype=object), None)[codes]
+    precision = np.where(ok, np.where(has_d, "day", np.where(has_m, "month", "year")), None)
+    return (pd.Series(date, index=s.index, dtype="str"),
+            pd.Series(precision.astype(object)[codes], index=s.index, dtype="str"))
+
+
+def _checks_value(text: str) -> str | None:
+    items: list[str] = []
+    for part in text.split(";"):
+        code = re.sub(r"-+", "-", re.sub(r"[ \t_]+", "-", part.strip().lower())).strip("-")
+        if code and code not in items:
+            items.append(code)
+    return ";".join(items) or None
 
 
 def normalise_checks(s: pd.Series) -> pd.Series:
     """``'Pre trends; placebo_date'`` -> ``'pre-trends;placebo-date'`` (order kept, no repeats)."""
-    text = s.fillna("").astype("str")
-    has_sep = text.str.contains(";", regex=False).to_numpy()
-    simple = (text.str.strip().str.lower()
-              .str.replace(r"[\s_]+", "-", regex=True)
-              .str.replace(r"-+", "-", regex=True).str.strip("-"))
-    out = simple.to_numpy(dtype=object)
-    for i in np.flatnonzero(has_sep):
-        items = []
-        for part in str(text.iat[i]).split(";"):
-            code = re.sub(r"-+", "-", re.sub(r"[\s_]+", "-", part.strip().lower())).strip("-")
-            if code and code not in items:
-                items.append(code)
-        out[i] = ";".join(items)
-    return blank_to_na(pd.Series(out, index=s.index, dtype="str"))
+    codes, uniq = _factorize(s)
+    norm = np.array([_checks_value(v) for v in uniq.tolist()], dtype=object)
+    return pd.Series(norm[codes], index=s.index, dtype="str")

@@ -23,13 +23,13 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from exposhift.io.cells import _NUMBER as _PLAIN_NUMBER
 from exposhift.io.cells import FORMULA_START
 from exposhift.io.columns import BY_NAME, COLUMN_NAMES
 from exposhift.io.frames import EvidenceFrames
 from exposhift.io.validate import EVENTS_SHEET_COLUMNS
 
 _NEEDS_QUOTE = "^'*[" + "".join("\\" + c if c in "-+" else c for c in FORMULA_START) + "]"
-_PLAIN_NUMBER = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 
 
 def neutralise(s: pd.Series) -> pd.Series:

@@ -29,6 +29,7 @@ from exposhift.io.frames import FIELDS, PLURAL, EvidenceFrames, coerce, to_recor
 from exposhift.io.rules import same_values
 from exposhift.io.sheet import read_sheet
 from exposhift.io.validate import validate_events_sheet, validate_sheet
+from exposhift.services.bulk import BulkWriter
 from exposhift.services.exporting import read_table, with_refs
 from exposhift.services.setup import open_current
 from exposhift.store.database import Store
@@ -252,25 +253,24 @@ def _db_changes(conn, entity: str, changes: dict, ids: dict) -> dict:
     return out
 
 
-def _insert(w: Writer, entity: str, frame: pd.DataFrame, ids: dict,
+def _insert(w: BulkWriter, entity: str, frame: pd.DataFrame, ids: dict,
             progress: Progress | None, pause_after: int | None) -> None:
     if frame.empty:
         return
     table = TABLES[entity]
     frame = _with_ids(w.conn, frame, entity, ids)
     cols = [c.name for c in table.columns if c.name in frame.columns and c.name != "id"]
+    keys = frame[KEY_FIELD[entity]].astype("str").tolist()
     total = len(frame)
     done = 0
     paused = False
     for start in range(0, total, ESTIMATE_CHUNK):
         part = frame.iloc[start:start + ESTIMATE_CHUNK]
-        keys = part["_key"].tolist() if "_key" in part.columns else None
-        w.insert_many(table, to_records(part, cols), row_keys=keys)
+        w.insert_frame(table, part[cols], keys[start:start + ESTIMATE_CHUNK])
         done += len(part)
         if progress is not None:
             progress(PLURAL[entity], done, total)
         if pause_after is not None and not paused and done >= pause_after:
-            w.flush()
             _test_pause(done)
             paused = True
 
@@ -321,7 +321,7 @@ def _insert_ratings(w: Writer, frames: EvidenceFrames, plan: EntityPlan) -> None
                   row_keys=(ratings["_key"] + "|" + ratings["domain"]).tolist())
 
 
-def apply_plans(w: Writer, frames: EvidenceFrames, plans: dict[str, EntityPlan],
+def apply_plans(w: BulkWriter, frames: EvidenceFrames, plans: dict[str, EntityPlan],
                 progress: Progress | None = None) -> None:
     pause = os.environ.get(PAUSE_ENV)
     pause_after = int(pause) if pause else None
@@ -365,7 +365,7 @@ def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
         with store.write() as conn:
             plans = build_plans(conn, frames)
             rating_plan = _rating_changes(conn, frames, plans["appraisal"])
-            apply_plans(Writer(conn, store.user), frames, plans, progress)
+            apply_plans(BulkWriter(conn, store.user), frames, plans, progress)
     return ImportReport(file=file, url=store.masked_url, kind=kind, rows=frames.rows,
                         dry_run=dry_run, counts=_counts(plans, frames, rating_plan),
                         notes=list(frames.notes))

@@ -181,3 +181,27 @@ def independent_units(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
         empty = frame.assign(y=np.nan, v=np.nan, measure_group="", sign_flipped=False)
         return empty, empty.assign(reason="")
     return select_independent(harmonise(frame, align_to="increase"))
+
+
+def grouped_join(
+    frame: pd.DataFrame, by: Sequence[str], col: str, sep: str = ", ", limit: int | None = None,
+) -> pd.DataFrame:
+    """Per group of ``by``, the values of ``col`` in row order joined with ``sep`` (the first
+    ``limit`` only), without a Python call per group. Returns ``by`` + ``col``, one row per
+    group, sorted by ``by``."""
+    by = list(by)
+    if frame.empty:
+        return pd.DataFrame(columns=[*by, col])
+    grouped = frame.groupby(by, sort=True, observed=True, dropna=False)
+    codes = grouped.ngroup().to_numpy()
+    rank = grouped.cumcount().to_numpy()
+    width = int(rank.max()) + 1 if limit is None else min(limit, int(rank.max()) + 1)
+    keep = rank < width
+    table = np.full((grouped.ngroups, width), "", dtype=object)
+    table[codes[keep], rank[keep]] = frame[col].astype(str).to_numpy(dtype=object)[keep]
+    joined = table[:, 0]
+    for j in range(1, width):
+        nxt = table[:, j]
+        joined = np.where(nxt != "", joined + sep + nxt, joined)
+    keys = frame[by].iloc[np.unique(codes, return_index=True)[1]].reset_index(drop=True)
+    return keys.assign(**{col: joined})

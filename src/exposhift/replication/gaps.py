@@ -34,6 +34,7 @@ import numpy as np
 import pandas as pd
 
 from exposhift.errors import ConfigError
+from exposhift.replication.families import grouped_join
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.replication.status import STATUS_RANK, STATUSES, Analysis, analyse
 
@@ -178,10 +179,10 @@ def _with_group(frame: pd.DataFrame) -> pd.DataFrame:
 
 
 def _grid(units: pd.DataFrame, registry: pd.DataFrame | None) -> pd.DataFrame:
-    exposures = set(units["exposure"].dropna().astype(str))
+    exposures = set(units["exposure"].dropna().unique().tolist())
     if registry is not None and len(registry):
-        exposures |= set(registry["exposure"].dropna().astype(str))
-    groups = sorted(set(units["outcome_group"].dropna().astype(str)))
+        exposures |= set(registry["exposure"].dropna().unique().tolist())
+    groups = sorted(set(units["outcome_group"].dropna().unique().tolist()))
     if not groups:
         groups = [UNSPECIFIED_GROUP]
     idx = pd.MultiIndex.from_product([sorted(exposures), groups],
@@ -215,7 +216,7 @@ def _states(out: pd.DataFrame, s: ReplicationSettings,
                         f"(ready for synthesis from {s.ready_min_events})",
     }
     rules = []
-    for st, g, yr in zip(state, good, newest, strict=True):
+    for st, g, yr in zip(state.tolist(), good.tolist(), newest.tolist(), strict=True):
         if st == "stale":
             rules.append(f"newest evaluated change in {int(yr)}, not after {stale_after}")
         elif st == "ready-for-synthesis":
@@ -282,9 +283,9 @@ def _top(frame: pd.DataFrame, col: str, n: int = 3) -> pd.Series:
     c = d.groupby(["family", col], sort=False).size().rename("_n").reset_index()
     c = c.sort_values(["family", "_n", col], ascending=[True, False, True], kind="stable")
     c = c[c.groupby("family", sort=False).cumcount().to_numpy() < n]
-    label = (c[col].astype(str) + " (" + c["_n"].astype(str)
-             + np.where(c["_n"] == 1, " event)", " events)"))
-    return label.groupby(c["family"], sort=True).agg("; ".join)
+    c = c.assign(_label=c[col].astype(str) + " (" + c["_n"].astype(str)
+                 + np.where(c["_n"] == 1, " event)", " events)"))
+    return grouped_join(c, ["family"], "_label", sep="; ").set_index("family")["_label"]
 
 
 def _family_summary(units: pd.DataFrame | None) -> pd.DataFrame:

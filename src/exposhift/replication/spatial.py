@@ -23,7 +23,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from exposhift.replication.families import DEFAULT_BY
+from exposhift.replication.families import DEFAULT_BY, grouped_join
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 
 #: how many place names the rule text lists before "and N more"
@@ -46,10 +46,8 @@ def _place_lists(events: pd.DataFrame, mask: np.ndarray, by: list[str]) -> pd.Da
     if pl.empty:
         return pd.DataFrame(columns=[*by, "places_count", "places_list"])
     n = pl.groupby(by, sort=False, observed=True, dropna=False)["place"].transform("size")
-    rank = pl.groupby(by, sort=False, observed=True, dropna=False).cumcount()
-    shown = pl[rank.to_numpy() < PLACES_SHOWN]
-    names = shown.groupby(by, sort=True, observed=True, dropna=False)["place"].agg(", ".join)
-    out = names.rename("places_list").reset_index()
+    out = grouped_join(pl, by, "place", limit=PLACES_SHOWN).rename(
+        columns={"place": "places_list"})
     counts = pl.assign(_n=n.to_numpy()).drop_duplicates(by)[[*by, "_n"]]
     out = out.merge(counts, on=by, how="left").rename(columns={"_n": "places_count"})
     extra = out["places_count"] - PLACES_SHOWN

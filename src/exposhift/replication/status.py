@@ -28,6 +28,7 @@ Status labels support, never replace, expert judgement, local regulation and lic
 
 from __future__ import annotations
 
+from collections import namedtuple
 from collections.abc import Sequence
 from dataclasses import dataclass
 
@@ -147,7 +148,9 @@ def rule_texts(t: pd.DataFrame, s: ReplicationSettings) -> list[str]:
             "reversal_place", "families_concordant", "families_list", "q_between",
             "q_between_df", "q_between_p", "sig_pos", "sig_neg", "families_disagree",
             "replicated_place", "replicated_time", "triangulated"]
-    for r in t[cols].itertuples(index=False):
+    Row = namedtuple("Row", cols)
+    data = [t[c].tolist() for c in cols]  # plain Python values: fast to format
+    for r in map(Row._make, zip(*data, strict=True)):
         rev = f", including a reversal in {r.reversal_place}" if r.reversal else ""
         place = f"{_n(r.places_count, 'place')} ({r.places_list})" if r.places_count else \
             "no place"

@@ -31,7 +31,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from exposhift.replication.families import DEFAULT_BY
+from exposhift.replication.families import DEFAULT_BY, grouped_join
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.synthesis.grouped import pool_groups
 
@@ -124,7 +124,7 @@ def triangulation_summary(
     agg["families_disagree"] = opposite & (agg["q_between_p"] < settings.alpha_between)
     agg["triangulated"] = ((agg["families_concordant"] >= settings.min_design_families)
                            & ~agg["families_disagree"])
-    names = fam.sort_values([*by, "design_family"]).groupby(
-        by, sort=True, observed=True, dropna=False)["design_family"].agg(", ".join)
-    agg = agg.merge(names.rename("families_list").reset_index(), on=by, how="left")
+    names = grouped_join(fam.sort_values([*by, "design_family"]), by, "design_family")
+    agg = agg.merge(names.rename(columns={"design_family": "families_list"}), on=by,
+                    how="left")
     return agg[cols]

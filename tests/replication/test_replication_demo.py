@@ -52,3 +52,20 @@ def test_demo_reports(demo_store):
     assert dravonil.dose_response.run and dravonil.dose_response.k >= 5
     assert replication_for(demo_store, "quorinate",
                            "persistent respiratory symptoms").status == "single-event"
+
+
+def test_demo_families_of_change(demo_store):
+    corvane = replication_for(demo_store, "corvane", "asthma emergency visits")
+    (fam,) = corvane.families  # the removal carries the standard's explicit family key
+    assert fam["family"] == "corvane-vehicle-standard"
+    assert fam["directions"] == ["decrease", "increase"] and "PRT" in fam["places"]
+    vellium = replication_for(demo_store, "vellium", "child respiratory admissions")
+    assert {f["family"] for f in vellium.families} >= {"vellium-smelter"}
+    strike = replication_for(demo_store, "vellium", "child respiratory admissions",
+                             family="vellium-strike-shutdown")
+    assert strike.events["event_id"].unique().tolist() == ["VEL-NAM-2005"]
+    from exposhift.errors import NotFoundError
+
+    with pytest.raises(NotFoundError, match="did you mean 'vellium-smelter'"):
+        replication_for(demo_store, "vellium", "child respiratory admissions",
+                        family="vellium-smelters")

@@ -234,3 +234,10 @@ def test_whole_base_statuses_equal_per_key_statuses():
         seen.add(alone["status"])
     assert len(seen) >= 4  # the random base exercises several rules
     assert seen <= set(STATUSES)
+
+
+def test_statuses_per_family_of_change():
+    df = convergent_base().assign(family=["f1", "f2", "f1", "f1"])
+    st = replication_statuses(df, by=("exposure", "family", "outcome")).set_index("family")
+    assert st.loc["f1", "status"] == "replicated-time"  # FRA 2000, 2010, 2015
+    assert st.loc["f2", "status"] == "single-event"

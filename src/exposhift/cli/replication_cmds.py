@@ -55,7 +55,11 @@ def _ci(lo: Any, hi: Any) -> str:
 def render_replication(rep: ReplicationReport) -> str:
     lines = [f"{rep.exposure} x {rep.outcome}", "",
              f"status    {rep.status}", f"rule      {rep.rule}",
-             f"expected  {rep.expected_words} [{rep.settings.expected_direction}]", ""]
+             f"expected  {rep.expected_words} [{rep.settings.expected_direction}]"]
+    for f in rep.families:
+        lines.append(f"family    {f['family']}: {f['events']} event(s) in "
+                     f"{len(f['places'])} place(s), {f['first_year']}-{f['last_year']}")
+    lines.append("")
     ev = rep.events
     if len(ev):
         lines.append("independent events (estimates on the analysis scale, aligned to an "
@@ -141,6 +145,9 @@ def replication(
     outcome: str = typer.Option(..., "--outcome", help="Outcome (as in the sheet)."),
     as_json: bool = typer.Option(False, "--json", help="Print the report as JSON."),
     expected: str | None = typer.Option(None, "--expected", help=_EXPECTED_HELP),
+    family: str | None = typer.Option(
+        None, "--family", help="Only events of this family of change (the event's family key, "
+        "or 'exposure / change kind')."),
     settings_file: Path | None = typer.Option(
         None, "--settings", help="Thresholds file (default: evidence/replication.toml)."),
 ) -> None:
@@ -154,7 +161,7 @@ def replication(
     store = open_current(s.db, s.user)
     try:
         rep = replication_for(store, exposure, outcome, settings=load_settings(settings_file),
-                              expected=expected)
+                              expected=expected, family=family)
     finally:
         store.dispose()
     if as_json:

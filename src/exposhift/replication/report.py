@@ -2,9 +2,10 @@
 
 Assembles, for one key, the pieces computed by the grouped modules (so the status here is the
 status the gap map shows for the same data): the independent events with their place, date,
-direction and size of change, design, appraisal level and aligned estimate; the sign test; the
-pooled estimate per design family (τ², I², prediction interval); the Q-between test across
-design families; temporal sequences and reversals; dose-response.
+direction and size of change, design, appraisal level and aligned estimate; the families of
+change they belong to; the sign test; the pooled estimate per design family (τ², I², prediction
+interval); the Q-between test across design families; temporal sequences and reversals;
+dose-response.
 """
 
 from __future__ import annotations
@@ -54,6 +55,7 @@ class ReplicationReport:
     reversals: list[dict]
     dose_response: DoseResponse
     excluded: pd.DataFrame = field(default_factory=pd.DataFrame)
+    families: list[dict] = field(default_factory=list)
     settings: ReplicationSettings = DEFAULTS
     caution: str = CAUTION
 
@@ -80,6 +82,7 @@ class ReplicationReport:
             "sign_test": {k: _clean(v) for k, v in self.sign_test.items()},
             "by_design_family": _records(self.by_design_family[list(FAMILY_FIELDS)]),
             "triangulation": {k: _clean(v) for k, v in self.triangulation.items()},
+            "families": self.families,
             "temporal": self.temporal,
             "reversals": self.reversals,
             "dose_response": self.dose_response.to_dict(),
@@ -163,7 +166,29 @@ def replication_report(
         by_design_family=pools, triangulation=tri,
         temporal=place_sequences(ev, settings), reversals=reversals(ev, settings),
         dose_response=dose_response(u, main, settings), excluded=ex, settings=settings,
+        families=family_summary(ev),
     )
+
+
+def family_summary(events: pd.DataFrame) -> list[dict]:
+    """Families of exposure change among the events: the explicit family key of the event, or
+    exposure / change kind. Per family: events, places, first and last change year."""
+    fam = events["family"] if "family" in events.columns else None
+    if fam is None or fam.isna().all():
+        kind = events["change_kind"] if "change_kind" in events.columns else ""
+        fam = events["exposure"].astype(str) + " / " + pd.Series(kind, index=events.index)
+    ev = events.assign(_family=fam.astype(str))
+    out = []
+    for name, grp in ev.groupby("_family", sort=True):
+        years = grp["change_year"].dropna()
+        out.append({
+            "family": name, "events": int(grp["event_id"].nunique()),
+            "places": sorted(grp["place"].unique().tolist()),
+            "first_year": int(years.min()) if len(years) else None,
+            "last_year": int(years.max()) if len(years) else None,
+            "directions": sorted(grp["change_direction"].dropna().unique().tolist()),
+        })
+    return out
 
 
 def _col(frame: pd.DataFrame, name: str) -> pd.Series:

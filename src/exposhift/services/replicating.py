@@ -14,12 +14,13 @@ Both actions take the same steps (each reported, never silent):
 
 from __future__ import annotations
 
+import difflib
 from dataclasses import dataclass, field
 from typing import Any
 
 import pandas as pd
 
-from exposhift.errors import ConfigError
+from exposhift.errors import ConfigError, NotFoundError
 from exposhift.replication.families import independent_units
 from exposhift.replication.gaps import filter_frame, gap_map, opportunities, region_countries
 from exposhift.replication.report import ReplicationReport, replication_report
@@ -41,14 +42,24 @@ def _settings(settings: ReplicationSettings | None, expected: str | None) -> Rep
 def replication_for(
     store: Store, exposure: str, outcome: str, *,
     settings: ReplicationSettings | None = None, expected: str | None = None,
+    family: str | None = None,
 ) -> ReplicationReport:
-    """Replication report of one exposure × outcome. Unknown names raise NotFoundError naming
-    close matches."""
+    """Replication report of one exposure × outcome (optionally one family of change). Unknown
+    names raise NotFoundError naming close matches."""
     s = _settings(settings, expected)
     with store.read() as conn:
         exposure = require_name(conn, "exposure", exposure)
         outcome = require_name(conn, "outcome", outcome)
         frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
+    if family is not None:
+        known = sorted(frame["family"].dropna().unique().tolist())
+        if family not in known:
+            close = difflib.get_close_matches(family, known, n=3, cutoff=0.5)
+            hint = (f"did you mean {', '.join(map(repr, close))}?" if close
+                    else f"families of this exposure and outcome: {', '.join(known) or 'none'}")
+            raise NotFoundError(f"no family of change '{family}' for {exposure} and "
+                                f"{outcome}; {hint}")
+        frame = frame[frame["family"] == family]
     units, excluded = independent_units(frame)
     return replication_report(units, exposure, outcome, s, excluded)
 

@@ -68,8 +68,9 @@ def render_replication(rep: ReplicationReport) -> str:
                  r.change_date, r.direction, r.design, r.level, r.estimate,
                  _ci(r.ci_lower, r.ci_upper), r.concordant]
                 for r in ev.itertuples(index=False)]
+        ci = f"{100 * (1 - rep.settings.alpha):g}% CI"
         lines.append(table(rows, ["event", "country", "date", "change", "design", "level",
-                                  "estimate", "95% CI", "concordant"]))
+                                  "estimate", ci, "concordant"]))
         lines.append("")
     st = rep.sign_test
     if st.get("n"):

@@ -173,8 +173,9 @@ def test_gaps_command_errors(sqlite_store, sqlite_url):
 def test_gaps_on_an_empty_evidence_base(sqlite_store, sqlite_url):
     res = runner.invoke(app, ["--db", sqlite_url, "gaps", "--json"])
     assert res.exit_code == 0, res.output
-    assert json.loads(res.stdout)["cells"] == [] or all(
-        c["state"] == "no-study" for c in json.loads(res.stdout)["cells"])
+    d = json.loads(res.stdout)
+    assert d["cells"] == [] and d["opportunities"] == []
+    assert "never replace" in d["caution"]
 
 
 @pytest.mark.parametrize("command", ["replication", "gaps"])

@@ -31,6 +31,8 @@ from scipy import stats
 
 from exposhift.errors import AnalysisError
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
+from exposhift.synthesis.harmonise import harmonise
+from exposhift.synthesis.independence import select_independent
 
 DEFAULT_BY: tuple[str, ...] = ("exposure", "outcome")
 
@@ -174,9 +176,6 @@ def direction_words(expected: int) -> str:
 def independent_units(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Harmonise an analysis frame (aligned to an exposure increase) and keep one estimate per
     unit of replication; returns ``(units, excluded)`` with the reason for each exclusion."""
-    from exposhift.synthesis.harmonise import harmonise
-    from exposhift.synthesis.independence import select_independent
-
     if frame.empty:
         empty = frame.assign(y=np.nan, v=np.nan, measure_group="", sign_flipped=False)
         return empty, empty.assign(reason="")

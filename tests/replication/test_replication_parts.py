@@ -52,6 +52,11 @@ def test_periods_merge_events_closer_than_min_years_apart():
     (seq,) = rep.temporal
     assert [e["period"] for e in seq["events"]] == [1, 1, 2]
     assert seq["periods_with_concordant_good_event"] == 2 and seq["replicated"]
+    # a weak event between two good ones does not join them into one period
+    mixed = df.assign(level=[2.0, 1.0, 2.0])
+    rep2 = replication_report(mixed, "agent", "o1", DEFAULTS.with_(min_years_apart=2))
+    assert [e["period"] for e in rep2.temporal[0]["events"]] == [1, None, 2]
+    assert rep2.temporal[0]["replicated"] and rep2.status == "replicated-time"
     rep3 = replication_report(df, "agent", "o1", DEFAULTS.with_(min_years_apart=5))
     assert [e["period"] for e in rep3.temporal[0]["events"]] == [1, 1, 1]
     assert rep3.status == "single-event"

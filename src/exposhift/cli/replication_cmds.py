@@ -90,8 +90,9 @@ def render_replication(rep: ReplicationReport) -> str:
                                   "I2", "prediction interval", ""]))
     lines += ["", f"triangulation: {rep.triangulation.get('statement', '')}"]
     for seq in rep.temporal:
-        order = ", ".join(f"{e['event_id']} ({e['direction']}, period {e['period']}"
-                          f"{', counts' if e['counts'] else ''})" for e in seq["events"])
+        order = ", ".join(f"{e['event_id']} ({e['direction']}, "
+                          + (f"period {e['period']})" if e["counts"] else "does not count)")
+                          for e in seq["events"])
         lines.append(f"in {seq['place']}: {order}")
     for r in rep.reversals:
         moved = "outcome moved back" if r["outcome_moved_back"] else "outcome did not move back"

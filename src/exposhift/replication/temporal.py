@@ -85,24 +85,30 @@ def temporal_summary(
 def place_sequences(
     events: pd.DataFrame, settings: ReplicationSettings = DEFAULTS,
 ) -> list[dict]:
-    """For one exposure × outcome: each place with two or more events, its events in order with
-    their period number and whether each counts (good and concordant)."""
+    """For one exposure × outcome: each place with two or more events, its events in order,
+    whether each counts (good and concordant) and, for those that count, their period number
+    (periods are formed by the counting events, as in :func:`temporal_summary`)."""
     out = []
     ev = events.sort_values(["place", "change_year", "change_date"], kind="stable")
     for place, grp in ev.groupby("place", sort=True):
         if len(grp) < 2:
             continue
-        new = _period_starts(grp.assign(_k=0), ["_k"], settings.min_years_apart)
-        period = np.cumsum(new)
-        counts = grp["good"].to_numpy(bool) & grp["concordant"].to_numpy(bool)
-        counted_periods = len(set(period[counts]))
+        counts = (grp["good"].to_numpy(bool) & grp["concordant"].to_numpy(bool)
+                  & np.isfinite(grp["change_year"].to_numpy(float)))
+        # periods are formed by the counting events only, as in temporal_summary
+        period: list[int | None] = [None] * len(grp)
+        if counts.any():
+            new = _period_starts(grp[counts].assign(_k=0), ["_k"], settings.min_years_apart)
+            for pos, p in zip(np.flatnonzero(counts), np.cumsum(new), strict=True):
+                period[pos] = int(p)
+        counted_periods = len({p for p in period if p is not None})
         out.append({
             "place": place,
             "periods_with_concordant_good_event": counted_periods,
             "replicated": counted_periods >= settings.min_periods,
             "events": [
                 {"event_id": r.event_id, "change_date": str(r.change_date),
-                 "direction": r.change_direction, "period": int(p), "level": _lvl(r.level),
+                 "direction": r.change_direction, "period": p, "level": _lvl(r.level),
                  "sign": int(r.sign), "concordant": bool(r.concordant), "counts": bool(c)}
                 for r, p, c in zip(grp.itertuples(index=False), period, counts, strict=True)
             ],

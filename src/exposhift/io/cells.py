@@ -94,14 +94,13 @@ def parse_int(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
 def parse_bool(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     """yes/no, true/false, 1/0 (any case); blank is no."""
     low = s.fillna("").astype("str").str.lower()
-    mapped = low.map(_BOOL)
-    bad = (low != "").to_numpy() & mapped.isna().to_numpy()
+    bad = ((low != "") & ~low.isin(list(_BOOL))).to_numpy()
     if bad.any():
         vals = s.to_numpy()
         log.flag(bad, column,
                  lambda i: f"{quote(vals[i])} is not yes or no; write yes, no, true, false, 1, "
                  "0 or leave it blank (= no)")
-    return mapped.fillna(False).astype(bool)
+    return pd.Series(low.isin(TRUE_WORDS).to_numpy(), index=s.index, dtype=bool)
 
 
 def _code_key(value: str) -> str:

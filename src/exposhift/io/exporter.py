@@ -8,6 +8,10 @@ estimate stays a number. Importing strips that one quote again, so an export imp
 same records. (A value that itself starts with quotes before such a character gets one more
 quote, so this is lossless too.)
 
+Precision: CSV and JSON write every number with ``repr`` and read back the same double. Excel
+workbooks (openpyxl) keep 16 significant digits, so a value with more digits than a reviewer
+would type can change in its last digit; use the JSON archive for exact archives.
+
 Files are written to a temporary name next to the target and renamed into place, so a reader
 never sees half a file.
 """

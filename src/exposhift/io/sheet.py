@@ -16,6 +16,7 @@ import codecs
 import datetime as dt
 import io
 import re
+import zipfile
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -139,7 +140,7 @@ def read_xlsx_sheet(path: Path) -> RawSheet:
 
     try:
         wb = load_workbook(path, read_only=True, data_only=True)
-    except (InvalidFileException, OSError, KeyError, ValueError) as exc:
+    except (InvalidFileException, zipfile.BadZipFile, OSError, KeyError, ValueError) as exc:
         raise InputFileError([Problem(path.name, None, None,
                                       f"cannot read the file as an Excel workbook ({exc}); save "
                                       "it as .xlsx or as CSV")]) from None

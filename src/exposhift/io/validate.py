@@ -154,7 +154,8 @@ def _outcomes(est: pd.DataFrame, log: ProblemLog) -> pd.DataFrame:
 
 def _check_duplicates(keys: pd.Series, log: ProblemLog) -> None:
     pos = pd.Series(np.arange(len(keys)))
-    first = pos.groupby(keys.to_numpy(), sort=False).transform("min").to_numpy()
+    first = pos.groupby(keys.to_numpy(), sort=False).transform("min")
+    first = first.fillna(pos).astype(np.int64).to_numpy()
     dup = first != np.arange(len(keys))
     log.flag(dup, None, lambda i: (
         f"duplicate estimate: same study_id, event_id, outcome, measure, estimate_kind, "

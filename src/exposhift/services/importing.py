@@ -259,7 +259,11 @@ def _insert(w: BulkWriter, entity: str, frame: pd.DataFrame, ids: dict,
         return
     table = TABLES[entity]
     frame = _with_ids(w.conn, frame, entity, ids)
-    cols = [c.name for c in table.columns if c.name in frame.columns and c.name != "id"]
+    cols = [c.name for c in table.columns
+            if c.name not in ("id", "version", "created_at", "updated_at")]
+    for c in cols:  # every column is written (and audited), missing values as NULL
+        if c not in frame.columns:
+            frame[c] = None
     keys = frame[KEY_FIELD[entity]].astype("str").tolist()
     total = len(frame)
     done = 0
@@ -339,12 +343,16 @@ def apply_plans(w: BulkWriter, frames: EvidenceFrames, plans: dict[str, EntityPl
 
 
 # ---------------------------------------------------------------------------------- services
-def _counts(plans: dict[str, EntityPlan], frames: EvidenceFrames, rating_plan: dict
-            ) -> dict[str, Counts]:
+#: the entities an import of each kind of file reports on
+REPORTED = {"events": ("exposure", "event"),
+            "sheet": ("exposure", "outcome", "event", "study", "estimate"),
+            "archive": ENTITIES}
+
+
+def _counts(plans: dict[str, EntityPlan], kind: str, rating_plan: dict) -> dict[str, Counts]:
     out = {}
-    for e, p in plans.items():
-        if e == "appraisal" and frames.appraisals.empty:
-            continue
+    for e in REPORTED[kind]:
+        p = plans[e]
         c = Counts(len(p.new), len(p.changes), p.unchanged)
         if e == "appraisal":
             extra = len(set(rating_plan) - {k for _, _, k in p.changes})
@@ -367,7 +375,7 @@ def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
             rating_plan = _rating_changes(conn, frames, plans["appraisal"])
             apply_plans(BulkWriter(conn, store.user), frames, plans, progress)
     return ImportReport(file=file, url=store.masked_url, kind=kind, rows=frames.rows,
-                        dry_run=dry_run, counts=_counts(plans, frames, rating_plan),
+                        dry_run=dry_run, counts=_counts(plans, kind, rating_plan),
                         notes=list(frames.notes))
 
 

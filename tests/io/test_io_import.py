@@ -95,6 +95,23 @@ def test_changed_row_updates_with_audit(store, sheet):
     assert (ev["country"], ev["version"]) == ("SWE", 2)
 
 
+def test_event_moving_to_another_exposure(store, sheet):
+    import_into(store, sheet(two_rows(), name="v1.csv"))
+    rows = two_rows()
+    rows[1]["exposure"] = "agent-z"
+    report = import_into(store, sheet(rows, name="v2.csv"))
+    assert counts(report)["exposures"] == (1, 0, 1)
+    assert counts(report)["events"] == (0, 1, 1)
+    with store.read() as conn:
+        ev = records.get(conn, "event", "E2")
+        z = records.get(conn, "exposure", "agent-z")
+        x = records.get(conn, "exposure", "agent-x")
+        (entry,) = [a for a in audit_rows(conn, row_key="E2") if a["action"] == "update"]
+    assert ev["exposure_id"] == z["id"]
+    assert entry["before"] == {"exposure_id": x["id"], "version": 1}
+    assert entry["after"] == {"exposure_id": z["id"], "version": 2}
+
+
 def test_update_respects_a_concurrent_edit(store, sheet):
     """The import reads versions inside its own transaction, so it never overwrites blindly."""
     import_into(store, sheet(two_rows(), name="v1.csv"))

@@ -15,6 +15,7 @@ from __future__ import annotations
 import csv
 import datetime as dt
 import json
+import re
 import shutil
 from pathlib import Path
 
@@ -130,8 +131,12 @@ def _cell(v) -> str:
     return str(v)
 
 
-def _neutral(v):  # what a careful reviewer would type for a text starting like a formula
-    return "'" + v if isinstance(v, str) and v[:1] in "=+-@'" and not _number(v) else v
+def _neutral(v):
+    """What a reviewer types for text that starts like a formula: one quote in front (the rule
+    in docs/extraction-sheet.md: quotes, then one of = + - @)."""
+    if isinstance(v, str) and re.match(r"'*[=+\-@]", v) and not _number(v):
+        return "'" + v
+    return v
 
 
 def _number(v: str) -> bool:
@@ -172,7 +177,7 @@ def _dir(tmp_path_factory) -> Path:
     return tmp_path_factory.mktemp("rt")
 
 
-SETTINGS = settings(max_examples=25, deadline=None,
+SETTINGS = settings(max_examples=15, deadline=None,
                     suppress_health_check=[HealthCheck.function_scoped_fixture,
                                            HealthCheck.too_slow])
 
@@ -256,7 +261,8 @@ def test_excel_round_trip(rows, template, tmp_path_factory):
         ws = load_workbook(root / "x1.xlsx", read_only=True).worksheets[0]
         header, *body = list(ws.iter_rows(values_only=True))
         col = header.index("estimate")
-        assert all(isinstance(r[col], float) for r in body)
+        assert all(isinstance(r[col], (int, float)) and not isinstance(r[col], bool)
+                   for r in body)
     finally:
         fresh.close()
 

@@ -114,6 +114,14 @@ def _factorize(s: pd.Series) -> tuple[np.ndarray, pd.Series]:
     return codes, pd.Series(np.asarray(uniques, dtype=object), dtype="str")
 
 
+def _spread(values, codes: np.ndarray, index: pd.Index) -> pd.Series:
+    """Per-distinct-value results back onto every row (an Arrow ``take``, no Python loop)."""
+    small = pd.Series(np.asarray(values, dtype=object), dtype="str")
+    out = small.take(codes)
+    out.index = index
+    return out
+
+
 def parse_code(s: pd.Series, column: str, log: ProblemLog, accepted: Iterable[str],
                what: str, *, default: str | None = None) -> pd.Series:
     """A controlled-vocabulary code; case, spaces and underscores are forgiven.
@@ -131,7 +139,7 @@ def parse_code(s: pd.Series, column: str, log: ProblemLog, accepted: Iterable[st
         vals = uniq.to_numpy(dtype=object)[codes]
         log.flag(bad, column,
                  lambda i: f"unknown {what} {quote(vals[i])}; accepted: {', '.join(accepted)}")
-    return pd.Series(mapped[codes], index=s.index, dtype="str")
+    return _spread(mapped, codes, s.index)
 
 
 @lru_cache(maxsize=1)
@@ -164,8 +172,7 @@ def parse_country(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
         log.flag(bad, column,
                  lambda i: f"unknown ISO 3166-1 alpha-3 country code {quote(vals[i])}; "
                  f"{hints[vals[i]]}")
-    out = up.where(pd.Series(known_u), None).to_numpy(dtype=object)[codes]
-    return pd.Series(out, index=s.index, dtype="str")
+    return _spread(up.where(pd.Series(known_u), None).to_numpy(dtype=object), codes, s.index)
 
 
 def parse_date(s: pd.Series, column: str, log: ProblemLog) -> tuple[pd.Series, pd.Series]:
@@ -193,16 +200,16 @@ def parse_date(s: pd.Series, column: str, log: ProblemLog) -> tuple[pd.Series, p
     given = (raw != "").to_numpy()
     impossible = shaped & (bad_month | bad_day | bad_year)
     ok = shaped & ~impossible
-    vals = raw.to_numpy(dtype=object)[codes]
+    texts = raw.to_numpy(dtype=object)
     log.flag((given & ~shaped)[codes], column,
-             lambda i: f"{quote(vals[i])} is not a date; write YYYY, YYYY-MM or YYYY-MM-DD "
-             "(e.g. 2004, 2004-07 or 2004-07-01)")
+             lambda i: f"{quote(texts[codes[i]])} is not a date; write YYYY, YYYY-MM or "
+             "YYYY-MM-DD (e.g. 2004, 2004-07 or 2004-07-01)")
     log.flag(impossible[codes], column,
-             lambda i: f"{quote(vals[i])} is not a real calendar date; check the month and day")
-    date = np.where(ok, raw.to_numpy(dtype=object), None)[codes]
+             lambda i: f"{quote(texts[codes[i]])} is not a real calendar date; check the month "
+             "and day")
+    date = np.where(ok, raw.to_numpy(dtype=object), None)
     precision = np.where(ok, np.where(has_d, "day", np.where(has_m, "month", "year")), None)
-    return (pd.Series(date, index=s.index, dtype="str"),
-            pd.Series(precision.astype(object)[codes], index=s.index, dtype="str"))
+    return _spread(date, codes, s.index), _spread(precision.astype(object), codes, s.index)
 
 
 def _checks_value(text: str) -> str | None:
@@ -218,4 +225,4 @@ def normalise_checks(s: pd.Series) -> pd.Series:
     """``'Pre trends; placebo_date'`` -> ``'pre-trends;placebo-date'`` (order kept, no repeats)."""
     codes, uniq = _factorize(s)
     norm = np.array([_checks_value(v) for v in uniq.tolist()], dtype=object)
-    return pd.Series(norm[codes], index=s.index, dtype="str")
+    return _spread(norm, codes, s.index)

@@ -24,28 +24,48 @@ _AUDIT_COLUMNS = ("at", "user", "table_name", "row_key", "action", "before", "af
 _SKIP_IN_AUDIT = {"id", "created_at", "updated_at"}
 
 
-def _json_cells(values: list) -> list[str]:
-    """Each value as ``json.dumps`` writes it inside an object (floats via repr, ASCII-escaped)."""
-    out: list[str] = []
-    append = out.append
-    for v in values:
-        if v is None:
-            append("null")
-        elif v is True:
-            append("true")
-        elif v is False:
-            append("false")
-        else:
-            kind = type(v)
-            if kind is str:
-                append(encode_basestring_ascii(v))
-            elif kind is float:
-                append(float.__repr__(v))
-            elif kind is int:
-                append(int.__repr__(v))
-            else:
-                append(json.dumps(v, default=str))
-    return out
+def _json_value(v) -> str:
+    if v is None:
+        return "null"
+    if v is True:
+        return "true"
+    if v is False:
+        return "false"
+    kind = type(v)
+    if kind is str:
+        return encode_basestring_ascii(v)
+    if kind is float:
+        return float.__repr__(v)
+    if kind is int:
+        return int.__repr__(v)
+    return json.dumps(v, default=str)
+
+
+def _json_cells(values: list, kind: str) -> list[str]:
+    """Each value as ``json.dumps`` writes it inside an object (floats via repr, ASCII-escaped).
+
+    ``kind`` is the column's type as pandas holds it: "float", "int", "str", "bool" or "any".
+    """
+    if kind == "float":
+        rep = float.__repr__
+        return ["null" if v is None else rep(v) for v in values]
+    if kind == "str":
+        enc = encode_basestring_ascii
+        return ["null" if v is None else enc(v) for v in values]
+    if kind == "int":
+        rep = int.__repr__
+        return ["null" if v is None else rep(v) for v in values]
+    return [_json_value(v) for v in values]
+
+
+def _kind(dtype) -> str:
+    if dtype == "float64":
+        return "float"
+    if dtype == "Int64" or dtype == "int64":
+        return "int"
+    if dtype == "str":
+        return "str"
+    return "any"
 
 
 class BulkWriter(Writer):
@@ -57,6 +77,14 @@ class BulkWriter(Writer):
         return (f"INSERT INTO {q(table_name)} ({', '.join(q(c) for c in columns)}) "
                 f"VALUES ({', '.join([mark] * len(columns))})")
 
+    def _executemany(self, sql: str, rows: list[tuple]) -> None:
+        """The driver's executemany on this transaction's connection (no per-row overhead)."""
+        cursor = self.conn.connection.cursor()
+        try:
+            cursor.executemany(sql, rows)
+        finally:
+            cursor.close()
+
     def insert_frame(self, table, frame: pd.DataFrame, row_keys: Sequence[str]) -> None:
         """Insert every row of ``frame`` (table column names; ``None``/NaN for missing)."""
         n = len(frame)
@@ -65,20 +93,23 @@ class BulkWriter(Writer):
         self.flush()  # audit entries stay in the order the changes were made
         data: dict[str, list] = {c: python_column(frame[c]) for c in frame.columns
                                  if c != "id"}
+        kinds = {c: _kind(frame[c].dtype) for c in data}
         if "version" in table.c:
             data["version"] = [1] * n
+            kinds["version"] = "int"
         for stamp in ("created_at", "updated_at"):
             if stamp in table.c:
                 data[stamp] = [self.now] * n
         columns = list(data)
-        self.conn.exec_driver_sql(self._sql(table.name, columns),
-                                  list(zip(*(data[c] for c in columns), strict=True)))
+        self._executemany(self._sql(table.name, columns),
+                          list(zip(*(data[c] for c in columns), strict=True)))
         audited = sorted(c for c in columns if c not in _SKIP_IN_AUDIT)
         template = "{{" + ", ".join(f"{json.dumps(c)}: {{}}" for c in audited) + "}}"
-        cells = [_json_cells(data[c]) for c in audited]
+        cells = [_json_cells(data[c], kinds.get(c, "any")) for c in audited]
         after = [template.format(*row) for row in zip(*cells, strict=True)]
         keys = [str(k) for k in row_keys]
-        at, user, name = [self.now] * n, [self.user] * n, [table.name] * n
-        self.conn.exec_driver_sql(
+        # plain str: sqlite3 would try to adapt SQLAlchemy's quoted_name on every row
+        at, user, name = [self.now] * n, [str(self.user)] * n, [str(table.name)] * n
+        self._executemany(
             self._sql(AUDIT.name, _AUDIT_COLUMNS),
             list(zip(at, user, name, keys, ["insert"] * n, [None] * n, after, strict=True)))

@@ -165,12 +165,34 @@ def demo_cmd(ctx: typer.Context,
     typer.echo("every record is invented and flagged demo; it shows how exposhift works and is "
                "no evidence about any real agent.")
     typer.echo("next:")
-    typer.echo(f"  exposhift --db {r.path} info")
-    typer.echo(f"  exposhift --db {r.path} export demo-archive.json")
-    typer.echo(f"  exposhift --db {r.path} export demo-sheet.csv")
+    for line in _next_commands(r):
+        typer.echo(f"  {line}")
+
+
+def _next_commands(r) -> list[str]:
+    """Commands worth trying on the demo, including those of other modules once they exist."""
+    db = f"exposhift --db {r.path}"
+    names = {c.name for c in (_APP.registered_commands if _APP else [])}
+    out = [f"{db} info"]
+    if not r.grid.empty:
+        exposure, outcome = r.grid.stack().idxmax()
+        pick = f'--exposure {exposure} --outcome "{outcome}"'
+        if "pool" in names:
+            out.append(f"{db} pool {pick}")
+        if "replication" in names:
+            out.append(f"{db} replication {pick}")
+    if "gaps" in names:
+        out.append(f"{db} gaps")
+    out.append(f"{db} export demo-archive.json")
+    return out
+
+
+_APP: typer.Typer | None = None
 
 
 def register(app: typer.Typer) -> None:
+    global _APP
+    _APP = app
     app.command("import")(import_cmd)
     app.command("export")(export_cmd)
     app.command("demo")(demo_cmd)

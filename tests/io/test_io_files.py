@@ -176,6 +176,16 @@ def test_xlsx_export_types(tmp_path, sqlite_store):
     assert cells["year"].value == 2005 and cells["year"].data_type == "n"
 
 
+def test_xlsx_export_refuses_control_characters(tmp_path, sqlite_store):
+    from exposhift.errors import ExposhiftError
+
+    import_into(sqlite_store, write_sheet(tmp_path / "in.csv", [row(comparison="a\x01b")]))
+    with pytest.raises(ExposhiftError, match="row 2, column 'comparison' holds a control"):
+        export_store(sqlite_store, tmp_path / "out.xlsx")
+    assert not (tmp_path / "out.xlsx").exists()
+    export_store(sqlite_store, tmp_path / "out.csv")  # CSV keeps it
+
+
 def test_events_sheet_export_and_reimport(tmp_path, sqlite_store, sheet):
     events = [{"event_id": "E9", "exposure": "agent-y", "change_kind": "closure",
                "change_direction": "decrease", "country": "SWE", "change_date": "2011",

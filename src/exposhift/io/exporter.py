@@ -27,6 +27,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from exposhift.errors import ExposhiftError
 from exposhift.io.cells import _NUMBER as _PLAIN_NUMBER
 from exposhift.io.cells import FORMULA_START
 from exposhift.io.columns import BY_NAME, COLUMN_NAMES
@@ -115,11 +116,28 @@ def _xlsx_cells(s: pd.Series, kind: str) -> list:
     return [v if v != "" else None for v in neutralise(s).tolist()]
 
 
+#: characters an Excel worksheet cannot hold (as openpyxl's ILLEGAL_CHARACTERS_RE)
+_CONTROL = "[\x00-\x08\x0b\x0c\x0e-\x1f]"
+
+
+def _refuse_control_characters(frame: pd.DataFrame, path: Path) -> None:
+    for name in frame.columns:
+        if _kind(name) in ("float", "int", "bool"):
+            continue
+        bad = frame[name].fillna("").astype("str").str.contains(_CONTROL, regex=True)
+        if bad.any():
+            n = int(np.flatnonzero(bad.to_numpy(dtype=bool))[0]) + 2
+            raise ExposhiftError(
+                f"cannot write {path.name}: row {n}, column '{name}' holds a control character "
+                "that Excel does not allow; export .csv or .json instead, or correct the record")
+
+
 def write_xlsx(frame: pd.DataFrame, path: Path, title: str = "estimates") -> None:
     """An Excel workbook with one sheet; numbers as numbers, text as text cells."""
     from openpyxl import Workbook
     from openpyxl.cell import WriteOnlyCell
 
+    _refuse_control_characters(frame, path)
     wb = Workbook(write_only=True)
     ws = wb.create_sheet(title)
     ws.append(list(frame.columns))

@@ -1,7 +1,8 @@
 """The extraction sheet: the interchange format for study records (one row per estimate).
 
 Study and event fields repeat on every row of the same study or event. This module only names
-the columns; parsing and validation live in :mod:`exposhift.io.sheet`.
+the columns; reading lives in :mod:`exposhift.io.sheet`, parsing and validation in
+:mod:`exposhift.io.validate` and :mod:`exposhift.io.rules`.
 
 The same column names are used in the *analysis frame* that the services hand to the pure
 computation modules (synthesis, replication, gaps), which adds derived columns

@@ -20,7 +20,6 @@ from pathlib import Path
 from typing import Any
 
 import pandas as pd
-from sqlalchemy import select
 
 from exposhift.appraisal.agreement import agreement_table
 from exposhift.appraisal.rubric import load_rubric
@@ -28,13 +27,19 @@ from exposhift.appraisal.rubric_types import Rubric
 from exposhift.appraisal.scoring import StudyFacts, score_appraisal, suggest_levels
 from exposhift.appraisal.suggestions import facts_from_record
 from exposhift.errors import InputFileError, NotFoundError, Problem
-from exposhift.io.tables import read_table
+from exposhift.io.sheet import read_sheet
+from exposhift.store.appraisals import (
+    APPRAISAL_TABLE,
+    RATING_TABLE,
+    appraisals_of_study,
+    existing_appraisals,
+    independent_ratings,
+    studies_by_key,
+)
 from exposhift.store.database import Store
-from exposhift.store.models import Appraisal, Rating, Study
 from exposhift.store.writer import Writer
 from exposhift.vocab import REVIEW_STAGES
 
-AP, RA, ST = Appraisal.__table__, Rating.__table__, Study.__table__
 REVIEWERS_BEFORE_UNBLINDING = 2
 META_COLUMNS = ("study_id", "reviewer", "stage")
 
@@ -54,28 +59,6 @@ def _int_level(text: str) -> int | None:
     except ValueError:
         return None
     return int(value) if value.is_integer() else None
-
-
-def _existing(conn) -> dict[tuple[str, str, str], dict[str, Any]]:
-    """Existing appraisals keyed by (study, reviewer, stage), with their ratings."""
-    rows = conn.execute(
-        select(AP.c.id, ST.c.key, AP.c.reviewer, AP.c.stage, RA.c.domain, RA.c.level,
-               RA.c.justification)
-        .join(ST, AP.c.study_id == ST.c.id)
-        .outerjoin(RA, RA.c.appraisal_id == AP.c.id)
-    ).all()
-    out: dict[tuple[str, str, str], dict[str, Any]] = {}
-    for ap_id, study, reviewer, stage, domain, level, why in rows:
-        entry = out.setdefault((study, reviewer, stage), {"id": ap_id, "ratings": {}, "why": {}})
-        if domain is not None:
-            entry["ratings"][domain] = level
-            if why:
-                entry["why"][domain] = why
-    return out
-
-
-def _study_rows(conn) -> dict[str, dict[str, Any]]:
-    return {r["key"]: dict(r) for r in conn.execute(select(ST)).mappings()}
 
 
 def facts_of(study: dict[str, Any]) -> StudyFacts:
@@ -219,12 +202,13 @@ def import_appraisals(
 ) -> AppraisalImportSummary:
     """Import appraisals from a CSV/XLSX file in one transaction (all or nothing)."""
     rubric = load_rubric(rubric_path)
-    frame = read_table(path, encoding)
-    label = str(path)
+    sheet = read_sheet(path, encoding)
+    frame = sheet.frame.set_axis(sheet.rows.tolist())
+    label = sheet.file
     summary = AppraisalImportSummary(rubric=rubric.label, dry_run=dry_run)
     with store.write() as conn:
-        studies = _study_rows(conn)
-        parsed = _validate(frame, label, rubric, studies, _existing(conn))
+        studies = studies_by_key(conn)
+        parsed = _validate(frame, label, rubric, studies, existing_appraisals(conn))
         w = Writer(conn, store.user)
         for item in parsed:
             if item["unchanged"]:
@@ -236,7 +220,7 @@ def import_appraisals(
             summary.by_stage[stage] = summary.by_stage.get(stage, 0) + 1
             if dry_run:
                 continue
-            ap_id = w.insert(AP, {
+            ap_id = w.insert(APPRAISAL_TABLE, {
                 "study_id": studies[study]["id"], "reviewer": reviewer, "stage": stage,
                 "rubric_id": rubric.rubric_id, "rubric_hash": rubric.content_hash,
                 "overall": score.overall,
@@ -251,7 +235,7 @@ def import_appraisals(
                     "suggested_level": None if s is None else s.max_level,
                     "suggestion_reason": None if s is None else s.reason,
                 })
-            w.insert_many(RA, rows, row_keys=[f"{study}|{reviewer}|{stage}|{r['domain']}"
+            w.insert_many(RATING_TABLE, rows, row_keys=[f"{study}|{reviewer}|{stage}|{r['domain']}"
                                               for r in rows])
         w.flush()
         if dry_run:
@@ -279,18 +263,12 @@ def show_appraisals(store: Store, study_key: str, viewer: str | None = None,
     """A study's appraisals as ``viewer`` may see them (blinding applied)."""
     rubric = load_rubric(rubric_path)
     with store.read() as conn:
-        studies = _study_rows(conn)
+        studies = studies_by_key(conn)
         if study_key not in studies:
             raise NotFoundError(f"no study '{study_key}' in the evidence base")
         study = studies[study_key]
-        aps = conn.execute(select(AP).where(AP.c.study_id == study["id"])
-                           .order_by(AP.c.stage.desc(), AP.c.reviewer)).mappings().all()
-        ratings = conn.execute(
-            select(RA).where(RA.c.appraisal_id.in_([a["id"] for a in aps]))
-        ).mappings().all()
-    by_ap: dict[int, list] = {}
-    for r in ratings:
-        by_ap.setdefault(r["appraisal_id"], []).append(r)
+        aps = appraisals_of_study(conn, study["id"])
+    by_ap = {a["id"]: a["ratings"] for a in aps}
     n_indep = sum(1 for a in aps if a["stage"] == "independent")
     unblinded = n_indep >= REVIEWERS_BEFORE_UNBLINDING
     views = []
@@ -320,12 +298,6 @@ def show_appraisals(store: Store, study_key: str, viewer: str | None = None,
 def agreement(store: Store) -> pd.DataFrame:
     """Per-domain agreement between independent reviewers (only unblinded studies count)."""
     with store.read() as conn:
-        rows = conn.execute(
-            select(ST.c.key.label("study_id"), AP.c.reviewer, RA.c.domain, RA.c.level)
-            .join(AP, AP.c.study_id == ST.c.id)
-            .join(RA, RA.c.appraisal_id == AP.c.id)
-            .where(AP.c.stage == "independent")
-        ).mappings().all()
-    frame = pd.DataFrame([dict(r) for r in rows],
-                         columns=["study_id", "reviewer", "domain", "level"])
+        rows = independent_ratings(conn)
+    frame = pd.DataFrame(rows, columns=["study_id", "reviewer", "domain", "level"])
     return agreement_table(frame)

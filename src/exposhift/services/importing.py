@@ -232,7 +232,7 @@ def _with_ids(conn, frame: pd.DataFrame, entity: str, ids: dict) -> pd.DataFrame
     for ref, (col, target) in REFS.items():
         if ref in out.columns and entity != target:
             if target not in ids:
-                ids[target] = keyed_ids(conn, TABLES[target], [], KEY_FIELD[target])
+                ids[target] = keyed_ids(conn, TABLES[target], KEY_FIELD[target])
             out[col] = out[ref].map(ids[target]).astype("int64")
     for f, kind in FIELDS[entity].items():  # fields a sheet left out: their defaults
         if f not in out.columns and kind == "bool":
@@ -246,7 +246,7 @@ def _db_changes(conn, entity: str, changes: dict, ids: dict) -> dict:
         if f in REFS and entity != REFS[f][1]:
             col, target = REFS[f]
             if target not in ids:
-                ids[target] = keyed_ids(conn, TABLES[target], [], KEY_FIELD[target])
+                ids[target] = keyed_ids(conn, TABLES[target], KEY_FIELD[target])
             out[col] = ids[target][v]
         else:
             out[f] = v

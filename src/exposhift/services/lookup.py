@@ -4,22 +4,13 @@ from __future__ import annotations
 
 import difflib
 
-from sqlalchemy import Connection, select
-
 from exposhift.errors import NotFoundError
-from exposhift.store.models import Exposure, Outcome
-
-_TABLES = {"exposure": Exposure.__table__, "outcome": Outcome.__table__}
+from exposhift.store.queries import vocabulary_names
 
 
-def names(conn: Connection, entity: str) -> list[str]:
-    t = _TABLES[entity]
-    return sorted(n for (n,) in conn.execute(select(t.c.name)))
-
-
-def require_name(conn: Connection, entity: str, name: str) -> str:
+def require_name(conn, entity: str, name: str) -> str:
     """``name`` if it exists; otherwise NotFoundError naming close matches."""
-    known = names(conn, entity)
+    known = vocabulary_names(conn, entity)
     if name in known:
         return name
     close = difflib.get_close_matches(name, known, n=3, cutoff=0.5)

@@ -113,3 +113,9 @@ def events_frame(conn: Connection) -> pd.DataFrame:
     frame["family"] = frame["family"].where(frame["family"].notna() & (frame["family"] != ""),
                                             default_family)
     return frame
+
+
+def vocabulary_names(conn: Connection, entity: str) -> list[str]:
+    """Sorted names of the exposures (``entity="exposure"``) or outcomes (``"outcome"``)."""
+    table = {"exposure": EX, "outcome": OU}[entity]
+    return sorted(n for (n,) in conn.execute(select(table.c.name)))

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import json
 import math
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from datetime import UTC, datetime
 from typing import Any
 
@@ -214,7 +214,7 @@ def audit_rows(conn: Connection, *, row_key: str | None = None,
     return out
 
 
-def keyed_ids(conn: Connection, table: Table, keys: Iterable[str], key_col: str = "key") -> dict:
-    """Map natural keys to ids for the given keys (all rows when the key list is large)."""
+def keyed_ids(conn: Connection, table: Table, key_col: str = "key") -> dict[str, int]:
+    """Map every row's natural key (``key_col``) to its id."""
     col = table.c[key_col]
     return {k: i for k, i in conn.execute(select(col, table.c.id))}

@@ -12,6 +12,7 @@ from collections.abc import Iterator
 
 import pytest
 from sqlalchemy import create_engine, text
+from sqlalchemy.engine import make_url
 
 from exposhift.services.setup import init_database, open_current
 from exposhift.store.database import Store
@@ -22,6 +23,35 @@ PG_URL = os.environ.get(
 )
 
 
+def _pg_fail(exc: Exception) -> None:
+    pytest.fail(
+        f"PostgreSQL test server not usable at {make_url(PG_URL).render_as_string()} "
+        f"({type(exc).__name__}: {exc}); start it (see scripts/run_tests.sh) or set "
+        "EXPOSHIFT_TEST_PG_URL. These tests never skip."
+    )
+
+
+@pytest.fixture(scope="session")
+def pg_session_url() -> Iterator[str]:
+    """A database of this test session's own (created from EXPOSHIFT_TEST_PG_URL's server,
+    dropped at the end), so that concurrent test sessions never share a schema."""
+    base = make_url(PG_URL)
+    name = f"{base.database}_{os.getpid()}"
+    admin = create_engine(base, isolation_level="AUTOCOMMIT",
+                          connect_args={"connect_timeout": 5})
+    try:
+        with admin.connect() as conn:
+            conn.execute(text(f'DROP DATABASE IF EXISTS "{name}"'))
+            conn.execute(text(f'CREATE DATABASE "{name}"'))
+    except Exception as exc:  # noqa: BLE001 - report any reason the server is unusable
+        admin.dispose()
+        _pg_fail(exc)
+    yield base.set(database=name).render_as_string(hide_password=False)
+    with admin.connect() as conn:
+        conn.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))
+    admin.dispose()
+
+
 def _reset_postgres(url: str) -> None:
     engine = create_engine(url, connect_args={"connect_timeout": 5})
     try:
@@ -29,10 +59,7 @@ def _reset_postgres(url: str) -> None:
             conn.execute(text("DROP SCHEMA IF EXISTS public CASCADE"))
             conn.execute(text("CREATE SCHEMA public"))
     except Exception as exc:  # noqa: BLE001 - report any reason the server is unusable
-        pytest.fail(
-            f"PostgreSQL test server not usable at {PG_URL} ({type(exc).__name__}: {exc}); "
-            "start it (see .ci/run) or set EXPOSHIFT_TEST_PG_URL. These tests never skip."
-        )
+        _pg_fail(exc)
     finally:
         engine.dispose()
 
@@ -42,8 +69,9 @@ def db_url(request, tmp_path) -> str:
     """A URL to an empty database (not yet initialised) on each backend."""
     if request.param == "sqlite":
         return f"sqlite:///{tmp_path / 'evidence.db'}"
-    _reset_postgres(PG_URL)
-    return PG_URL
+    url = request.getfixturevalue("pg_session_url")
+    _reset_postgres(url)
+    return url
 
 
 @pytest.fixture

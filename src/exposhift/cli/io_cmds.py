@@ -7,9 +7,11 @@ from pathlib import Path
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.tables import summary_table
 from exposhift.services.demo import DEMO_DB, build_demo
 from exposhift.services.exporting import export_file
 from exposhift.services.importing import ImportReport, import_file
+from exposhift.services.summary import SUMMARY_CAUTION
 
 #: imports with more rows than this show a progress bar (on stderr)
 PROGRESS_ABOVE = 5000
@@ -157,11 +159,11 @@ def demo_cmd(ctx: typer.Context,
                f"{c['countries']} countries, {c['designs']} designs, {c['appraisals']} "
                "appraisals")
     typer.echo(f"  {r.appraisals}")
-    if not r.grid.empty:
-        typer.echo("studies per exposure and outcome:")
-        for exposure, row in r.grid.iterrows():
-            cells = ", ".join(f"{o} {int(n)}" for o, n in row.items() if n)
-            typer.echo(f"  {exposure}: {cells}")
+    if not r.summary.empty:
+        typer.echo("\nwhat the evidence says (independent events, replication status, pooled "
+                   "effect of an exposure increase in the largest comparable stratum):")
+        typer.echo(summary_table(r.summary))
+        typer.echo(f"note: {SUMMARY_CAUTION}")
     typer.echo("every record is invented and flagged demo; it shows how exposhift works and is "
                "no evidence about any real agent.")
     typer.echo("next:")

@@ -22,6 +22,7 @@ from exposhift.errors import ConfigError
 from exposhift.services.exporting import load_evidence
 from exposhift.services.importing import ImportReport, import_into
 from exposhift.services.setup import init_database, open_current
+from exposhift.services.summary import evidence_summary
 from exposhift.store.database import DEFAULT_SQLITE, resolve_url, sqlite_path
 
 DEMO_DB = Path("demo") / "evidence-demo.db"
@@ -41,6 +42,7 @@ class DemoResult:
     grid: pd.DataFrame  # exposure x outcome: number of studies
     imports: list[ImportReport] = field(default_factory=list)
     appraisals: str = ""  # what happened to appraisals.csv
+    summary: pd.DataFrame = field(default_factory=pd.DataFrame)  # what the evidence says
 
 
 def _user_databases() -> set[Path]:
@@ -146,6 +148,7 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
                 reports.append(import_into(store, events, events_only=True))
             appraisals = _import_appraisals(store, source / SEED_FILES[2])
             counts, grid = _overview(store)
+            summary = evidence_summary(store)
         finally:
             store.dispose()
         con = sqlite3.connect(tmp)
@@ -165,4 +168,4 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
             with contextlib.suppress(FileNotFoundError):
                 Path(f"{tmp}{side}").unlink()
     return DemoResult(path=str(target), seed=str(source), counts=counts, grid=grid,
-                      imports=reports, appraisals=appraisals)
+                      imports=reports, appraisals=appraisals, summary=summary)

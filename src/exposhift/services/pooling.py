@@ -64,6 +64,33 @@ def _finite(x: Any) -> Any:
     return x
 
 
+def prepare_for_pooling(
+    frame: pd.DataFrame, *, include_fatal: bool = False, align_to: str = "increase"
+) -> tuple[pd.DataFrame, list[dict[str, Any]]]:
+    """Steps 2-4: leave out fatal studies, harmonise, keep independent estimates.
+
+    Returns the harmonised estimates to pool and the left-out ones with their reasons.
+    """
+    excluded: list[dict[str, Any]] = []
+    if not include_fatal:
+        rubric = load_rubric(None)
+        fatal = frame["level"].isin(list(rubric.exclude_from_pooling))
+        if fatal.any():
+            excluded += _excluded_records(
+                frame[fatal],
+                frame.loc[fatal, "level"].map(
+                    lambda lv: f"appraisal of record overall {int(lv)} (fatal): left out of "
+                    "pooling by default (--include-fatal keeps it)"))
+        frame = frame[~fatal]
+    if frame.empty:
+        return frame.assign(y=[], v=[]), excluded
+    harm = harmonise(frame, align_to=align_to)
+    kept, dropped = select_independent(harm)
+    if len(dropped):
+        excluded += _excluded_records(dropped, dropped["reason"])
+    return kept, excluded
+
+
 def pool_evidence(
     store: Store,
     exposure: str,
@@ -91,23 +118,9 @@ def pool_evidence(
         raise NotFoundError(
             f"no estimates for exposure '{exposure}' and outcome '{outcome}'; "
             "'exposhift gaps' lists the combinations that have some")
-    excluded: list[dict[str, Any]] = []
-    rubric = load_rubric(None)
-    if not include_fatal:
-        fatal = frame["level"].isin(list(rubric.exclude_from_pooling))
-        if fatal.any():
-            excluded += _excluded_records(
-                frame[fatal],
-                frame.loc[fatal, "level"].map(
-                    lambda lv: f"appraisal of record overall {int(lv)} (fatal): left out of "
-                    "pooling by default (--include-fatal keeps it)"))
-        frame = frame[~fatal]
-    if frame.empty:
+    kept, excluded = prepare_for_pooling(frame, include_fatal=include_fatal, align_to=align_to)
+    if kept.empty:
         return PoolOutput(exposure, outcome, align_to, [], excluded)
-    harm = harmonise(frame, align_to=align_to)
-    kept, dropped = select_independent(harm)
-    if len(dropped):
-        excluded += _excluded_records(dropped, dropped["reason"])
     keys = pooling_keys([STRATA[b] for b in by])
     kept = kept.copy()
     for k in keys:

@@ -1,0 +1,35 @@
+"""Plain-text tables for terminal output (formatting only; no computation)."""
+
+from __future__ import annotations
+
+import math
+
+import pandas as pd
+
+
+def _num(x: float, digits: int = 2) -> str:
+    if x is None or (isinstance(x, float) and math.isnan(x)):
+        return "-"
+    return f"{x:.{digits}f}" if abs(x) < 100 else f"{x:.0f}"
+
+
+def render(rows: list[list[str]], header: list[str]) -> str:
+    widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
+    line = lambda r: "  ".join(str(c).ljust(w) for c, w in zip(r, widths, strict=True))  # noqa: E731
+    out = [line(header), line(["-" * w for w in widths])]
+    out += [line(r) for r in rows]
+    return "\n".join("  " + x.rstrip() for x in out)
+
+
+def summary_table(summary: pd.DataFrame) -> str:
+    """The per exposure x outcome summary of :func:`exposhift.services.summary.evidence_summary`."""
+    rows = []
+    for r in summary.to_dict(orient="records"):
+        if r["k"]:
+            kind = "ratio" if r["scale"] == "log" else "difference"
+            effect = (f"{kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} to "
+                      f"{_num(r['ci_upper'])}), k={r['k']}")
+        else:
+            effect = "nothing poolable"
+        rows.append([r["exposure"], r["outcome"], str(r["events"]), r["status"], effect])
+    return render(rows, ["exposure", "outcome", "events", "status", "pooled effect"])

@@ -29,13 +29,11 @@ from exposhift.store.queries import analysis_frame
 from exposhift.synthesis.grouped import pool_groups
 from exposhift.synthesis.harmonise import harmonise
 from exposhift.synthesis.independence import pooling_keys, select_independent
+from exposhift.synthesis.pooling import CAUTION
 
 #: --by choices -> analysis frame columns
 STRATA = {"design-family": "design_family", "level": "level", "design": "design",
           "country": "country", "outcome-group": "outcome_group"}
-CAUTION = ("Pooled numbers support, never replace, expert judgement; hazard conclusions rest "
-           "with the committee, local regulation and licensed practice. Natural experiments "
-           "remain open to biases that no rubric fully captures.")
 
 
 @dataclass(frozen=True)

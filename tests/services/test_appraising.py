@@ -146,3 +146,24 @@ def test_agreement_matches_scikit_learn(store, tmp_path):
             cohen_kappa_score(a, b, weights="linear", labels=[0, 1, 2, 3]), abs=1e-12)
         assert table.loc[d, "kappa_quadratic"] == pytest.approx(
             cohen_kappa_score(a, b, weights="quadratic", labels=[0, 1, 2, 3]), abs=1e-12)
+
+
+def test_changed_rubric_gives_new_appraisals_a_new_hash_and_old_ones_keep_theirs(store, tmp_path):
+    from exposhift.appraisal.rubric import load_rubric, packaged_rubric_path
+    from exposhift.store.appraisals import appraisals_of_study, studies_by_key
+
+    _studies(store)
+    old = load_rubric(packaged_rubric_path())
+    import_appraisals(store, _write(tmp_path, [_row("S0", "ana", "independent", GOOD)]),
+                      rubric_path=packaged_rubric_path())
+    changed = tmp_path / "rubric.toml"
+    text = packaged_rubric_path().read_text(encoding="utf-8")
+    changed.write_text(text.replace('version = "', 'version = "9.', 1), encoding="utf-8")
+    new = load_rubric(changed)
+    assert new.content_hash != old.content_hash
+    import_appraisals(store, _write(tmp_path, [_row("S0", "ben", "independent", GOOD)], "b.csv"),
+                      rubric_path=changed)
+    with store.read() as conn:
+        rows = appraisals_of_study(conn, studies_by_key(conn)["S0"]["id"])
+    hashes = {r["reviewer"]: r["rubric_hash"] for r in rows}
+    assert hashes == {"ana": old.content_hash, "ben": new.content_hash}

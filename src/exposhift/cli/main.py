@@ -52,7 +52,8 @@ def _register_optional() -> None:
     """Commands of other modules register themselves here as they land."""
     import importlib
 
-    for name in ("io_cmds", "synthesis_cmds", "appraisal_cmds", "replication_cmds"):
+    for name in ("io_cmds", "synthesis_cmds", "appraisal_cmds", "replication_cmds",
+                 "dashboard_cmds"):
         try:
             mod = importlib.import_module(f"exposhift.cli.{name}")
         except ModuleNotFoundError as exc:

@@ -1,0 +1,104 @@
+"""Cached wrappers around the services: the only place the pages get data from.
+
+Every function takes the database target (``EXPOSHIFT_DB`` or the default evidence base) and
+plain, hashable arguments, calls one service and returns what it returns. Results are cached for
+``TTL`` seconds (the sidebar's reload button clears the cache). Errors are not cached: an
+:class:`~exposhift.errors.ExposhiftError` reaches the page, which shows it with ``st.error``.
+"""
+
+from __future__ import annotations
+
+import os
+
+import pandas as pd
+import streamlit as st
+
+from exposhift.replication.settings import load_settings
+from exposhift.services import appraising, browse, replicating, setup
+from exposhift.services import summary as summary_service
+from exposhift.store.database import Store, mask_url, resolve_url
+
+DB_ENV = "EXPOSHIFT_DB"
+TTL = 60
+
+
+def db_target() -> str | None:
+    """The database the dashboard shows: ``EXPOSHIFT_DB`` (set by ``exposhift dashboard
+    --db``), else the default evidence base."""
+    return os.environ.get(DB_ENV) or None
+
+
+def db_label(db: str | None) -> str:
+    return mask_url(resolve_url(db))
+
+
+@st.cache_resource(show_spinner=False)
+def _store(db: str | None) -> Store:
+    return setup.open_current(db, user="dashboard")
+
+
+def clear() -> None:
+    """Forget cached results (the store connection is kept)."""
+    st.cache_data.clear()
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def summary(db: str | None) -> browse.EvidenceOverview:
+    return browse.evidence_overview(_store(db))
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def findings(db: str | None) -> pd.DataFrame:
+    """Replication status and pooled effect of the largest stratum, per exposure × outcome."""
+    return summary_service.evidence_summary(_store(db))
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def studies(db: str | None) -> pd.DataFrame:
+    return browse.list_studies(_store(db))
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def events(db: str | None) -> pd.DataFrame:
+    return browse.list_events(_store(db))
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def appraisals(db: str | None, study: str, viewer: str | None) -> dict:
+    """A study's appraisals as ``viewer`` may see them (blinding applied by the service)."""
+    return appraising.show_appraisals(_store(db), study, viewer or None)
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def agreement(db: str | None) -> pd.DataFrame:
+    return appraising.agreement(_store(db))
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def pool(db: str | None, exposure: str, outcome: str, method: str, ci: str,
+         by: tuple[str, ...], include_fatal: bool, align_to: str) -> browse.PoolView:
+    return browse.pool_view(_store(db), exposure, outcome, method=method, ci=ci, by=list(by),
+                            include_fatal=include_fatal, align_to=align_to)
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def replication(db: str | None, exposure: str, outcome: str, expected: str | None,
+                family: str | None):
+    return replicating.replication_for(_store(db), exposure, outcome, expected=expected,
+                                       family=family)
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def gaps(db: str | None, design_families: tuple[str, ...], regions: tuple[str, ...],
+         countries: tuple[str, ...], year_from: int | None, year_to: int | None,
+         min_level: int | None, stale_after: int | None) -> replicating.GapReport:
+    filters = replicating.GapFilters(
+        design_families=design_families, regions=regions, countries=countries,
+        year_from=year_from, year_to=year_to, min_level=min_level, stale_after=stale_after)
+    return replicating.gap_report(_store(db), filters)
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def replication_settings():
+    """The thresholds in force (``evidence/replication.toml`` or the defaults)."""
+    return load_settings()

@@ -1,0 +1,102 @@
+"""Replication across place and time: where and when the same kind of exposure change was
+evaluated, whether its effect pointed the same way, and whether designs agree."""
+
+import charts
+import pandas as pd
+import streamlit as st
+import ui
+
+import data
+
+EXPECTED = {"pooled": "from the evidence", "raises": "more exposure raises the outcome",
+            "lowers": "more exposure lowers the outcome"}
+
+db = data.db_target()
+
+# 1. data and choices ------------------------------------------------------------------------
+with ui.guard():
+    summary = data.summary(db)
+pairs = summary.pairs
+
+st.title("Replication across place and time")
+ui.demo_notice(summary)
+if pairs.empty:
+    st.info("No estimates yet: import an extraction sheet first.")
+    st.stop()
+
+c1, c2, c3 = st.columns([1, 1.3, 1.3])
+with c1:
+    exposure = ui.pick("Exposure", sorted(pairs["exposure"].unique()), key="rep_exposure",
+                       param="exposure", default=str(pairs["exposure"].iloc[0]))
+with c2:
+    outcome = ui.pick("Outcome", pairs.loc[pairs["exposure"] == exposure, "outcome"].tolist(),
+                      key="rep_outcome", param="outcome")
+expected = c3.selectbox(
+    "Expected direction", list(EXPECTED), format_func=EXPECTED.get, key="rep_expected",
+    help="'from the evidence': the sign of the combined z of the events at the counted level "
+         "(Stouffer); or state the direction a committee expects.")
+
+with ui.guard():
+    report = data.replication(db, exposure, outcome, expected, None)
+    settings = report.settings
+
+# 2. status with its rule, and the caution ---------------------------------------------------
+ui.status_box(report.status, report.rule)
+ui.caution()
+st.caption(f"Expected direction: {report.expected_words}. Estimates are aligned to an "
+           "exposure increase (a decrease's estimate has its sign flipped).")
+for fam in report.families:
+    st.caption(f"Family of change **{fam['family']}**: {fam['events']} event(s) in "
+               f"{len(fam['places'])} place(s), {fam['first_year']}–{fam['last_year']}.")
+
+ev = report.events
+if ev.empty:
+    st.info("No independent natural-experiment estimate for this exposure and outcome.")
+    st.stop()
+
+# 3. place: world map ------------------------------------------------------------------------
+st.subheader("Where: independent events")
+st.plotly_chart(charts.event_map(ev, min_level=settings.min_level), config=charts.PLOTLY_CONFIG,
+                key="rep_map")
+sign = report.sign_test
+if sign.get("n"):
+    st.markdown(f"**Sign test:** {sign['k_expected']} of {sign['n']} events at level ≥ "
+                f"{settings.min_level} point in the expected direction; exact two-sided "
+                f"p = {sign['p']:.3g}.")
+
+# 4. time: timeline --------------------------------------------------------------------------
+st.subheader("When: events by date, per country")
+st.plotly_chart(charts.event_timeline(ev, report.reversals, min_level=settings.min_level),
+                config=charts.PLOTLY_CONFIG, key="rep_timeline")
+for seq in report.temporal:
+    mark = "replicated in time" if seq["replicated"] else "not replicated in time"
+    st.markdown(f"- **{charts.country_name(seq['place'])}**: "
+                f"{seq['periods_with_concordant_good_event']} period(s) with a concordant good "
+                f"event ({mark}).")
+for r in report.reversals:
+    moved = "moved back" if r["outcome_moved_back"] else "did not move back"
+    st.markdown(f"- **Reversal in {charts.country_name(r['place'])}**: {r['decrease_event']} "
+                f"({r['decrease_date']}) then {r['increase_event']} ({r['increase_date']}); "
+                f"the outcome {moved}.")
+
+# 5. designs: triangulation ------------------------------------------------------------------
+st.subheader("Across designs: pooled estimate per design family")
+st.plotly_chart(charts.design_family_chart(report.by_design_family),
+                config=charts.PLOTLY_CONFIG, key="rep_families")
+st.markdown(f"**Triangulation:** {report.triangulation.get('statement', '')}")
+st.caption("Dark: the strata compared for triangulation; grey: other strata (other estimate "
+           "kinds or increments). Supporting-only families have no comparison group.")
+
+# 6. dose-response, events, left out ---------------------------------------------------------
+dose = report.dose_response
+st.markdown(f"**Dose-response:** {dose.interpretation if dose.run else dose.reason}")
+with st.expander(f"Independent events ({ev['event_id'].nunique()}) and their estimates"):
+    st.dataframe(ev.assign(level=ev["level"].map(ui.level_text)), hide_index=True,
+                 width="stretch", key="rep_events")
+if not report.excluded.empty:
+    with st.expander(f"Estimates set aside as not independent ({len(report.excluded)})"):
+        cols = [c for c in ("estimate_uid", "study_id", "event_id", "reason")
+                if c in report.excluded.columns]
+        st.dataframe(pd.DataFrame(report.excluded[cols]), hide_index=True, width="stretch",
+                     key="rep_excluded")
+st.caption(report.caution)

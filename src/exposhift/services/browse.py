@@ -1,0 +1,215 @@
+"""Read-only listings for browsing the evidence base (the dashboard's overview and study list),
+and the study rows behind a pooled result (its forest plot).
+
+Nothing here writes. Each function opens one read transaction and returns DataFrames or
+dataclasses; the dashboard and any other front end only display them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from exposhift.services.pooling import STRATA, PoolOutput, pool_evidence, prepare_for_pooling
+from exposhift.services.setup import database_info
+from exposhift.store.database import Store
+from exposhift.store.queries import analysis_frame, events_frame
+from exposhift.synthesis.independence import pooling_keys
+from exposhift.vocab import DESIGNS
+
+DEMO_NOTE = ("Every record flagged demo is invented: invented agents, studies and authors. "
+             "It shows how exposhift works and is no evidence about any real agent.")
+
+
+@dataclass(frozen=True)
+class EvidenceOverview:
+    """What the evidence base holds, for an overview page."""
+
+    url: str
+    backend: str
+    counts: dict[str, int]
+    demo_studies: int
+    demo_events: int
+    events_without_study: int
+    countries: list[str]
+    first_year: int | None
+    last_year: int | None
+    pairs: pd.DataFrame  # exposure, outcome, outcome_group, studies, events, estimates
+    by_design_family: pd.DataFrame  # design_family, studies
+    by_level: pd.DataFrame  # level (text), studies
+
+    @property
+    def all_demo(self) -> bool:
+        """True when every study and event is a demo record (and there is at least one)."""
+        n = self.counts.get("studies", 0) + self.counts.get("events", 0)
+        return n > 0 and self.demo_studies + self.demo_events == n
+
+    @property
+    def any_demo(self) -> bool:
+        return self.demo_studies + self.demo_events > 0
+
+
+def _level_text(level: float) -> str:
+    return "not appraised" if pd.isna(level) else f"level {int(level)}"
+
+
+def evidence_overview(store: Store) -> EvidenceOverview:
+    """Counts, demo flags, exposure × outcome pairs with evidence, studies per design family."""
+    info = database_info(store.url)
+    with store.read() as conn:
+        frame = analysis_frame(conn)
+        events = events_frame(conn)
+    studies = frame.drop_duplicates("study_id")
+    pairs = (frame.groupby(["exposure", "outcome"], sort=True)
+             .agg(outcome_group=("outcome_group", "first"), studies=("study_id", "nunique"),
+                  events=("event_id", "nunique"), estimates=("estimate_uid", "size"))
+             .reset_index()
+             .sort_values(["studies", "events", "exposure", "outcome"],
+                          ascending=[False, False, True, True], kind="stable")
+             .reset_index(drop=True))
+    pairs["outcome_group"] = pairs["outcome_group"].fillna("")
+    fam = (studies.assign(design_family=studies["design_family"].fillna("unknown"))
+           .groupby("design_family").size().rename("studies").reset_index()
+           .sort_values(["studies", "design_family"], ascending=[False, True])
+           .reset_index(drop=True))
+    lv = (studies.assign(level=studies["level"].map(_level_text))
+          .groupby("level").size().rename("studies").reset_index()
+          .sort_values("level").reset_index(drop=True))
+    years = events["change_year"].dropna()
+    demo_studies = int(studies["demo"].fillna(False).astype(bool).sum())
+    return EvidenceOverview(
+        url=info["url"], backend=info["backend"], counts=dict(info["counts"]),
+        demo_studies=demo_studies,
+        demo_events=int(events["demo"].fillna(False).astype(bool).sum()),
+        events_without_study=int((events["studies"] == 0).sum()),
+        countries=sorted(events["country"].dropna().unique().tolist()),
+        first_year=int(years.min()) if len(years) else None,
+        last_year=int(years.max()) if len(years) else None,
+        pairs=pairs, by_design_family=fam, by_level=lv,
+    )
+
+
+def list_studies(store: Store) -> pd.DataFrame:
+    """One row per study: design, design family, appraisal level of record, exposures,
+    outcomes, events and countries it analyses, number of estimates, demo flag. Studies without
+    an estimate are listed too (with empty exposures)."""
+    from sqlalchemy import select
+
+    from exposhift.store.models import Study
+
+    st = Study.__table__
+    with store.read() as conn:
+        frame = analysis_frame(conn)
+        base = pd.DataFrame([dict(r) for r in conn.execute(
+            select(st.c.key.label("study_id"), st.c.citation, st.c.year, st.c.design,
+                   st.c.demo)).mappings()],
+            columns=["study_id", "citation", "year", "design", "demo"])
+
+    def joined(s: pd.Series) -> str:
+        return ", ".join(sorted({str(v) for v in s.dropna()}))
+
+    agg = (frame.groupby("study_id", sort=True)
+           .agg(level=("level", "first"), exposures=("exposure", joined),
+                outcomes=("outcome", joined), events=("event_id", joined),
+                countries=("country", joined), estimates=("estimate_uid", "size"))
+           .reset_index())
+    out = base.merge(agg, on="study_id", how="left")
+    out["design_family"] = out["design"].map(lambda d: DESIGNS[d][0] if d in DESIGNS else None)
+    out["estimates"] = out["estimates"].fillna(0).astype(np.int64)
+    for c in ("exposures", "outcomes", "events", "countries"):
+        out[c] = out[c].fillna("")
+    out["level"] = out["level"].astype("float64")
+    out["demo"] = out["demo"].fillna(False).astype(bool)
+    cols = ["study_id", "citation", "year", "design", "design_family", "level", "exposures",
+            "outcomes", "events", "countries", "estimates", "demo"]
+    return out[cols].sort_values(["year", "study_id"], kind="stable").reset_index(drop=True)
+
+
+def list_events(store: Store) -> pd.DataFrame:
+    """Every registered exposure-change event with the number of studies analysing it."""
+    with store.read() as conn:
+        return events_frame(conn)
+
+
+# ----------------------------------------------------------------------------- pooling rows
+@dataclass(frozen=True)
+class PoolView:
+    """A pooled result and the study rows it was computed from (one row per estimate kept)."""
+
+    output: PoolOutput
+    rows: pd.DataFrame
+    options: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def caution(self) -> str:
+        return self.output.caution
+
+
+def group_label(group: dict[str, Any], keys: list[str]) -> str:
+    """A readable name of one pooled group: its key values, blanks left out."""
+    parts = []
+    for k in keys:
+        v = group.get(k)
+        if v is None or v == "" or (isinstance(v, float) and np.isnan(v)):
+            continue
+        if k == "level" and isinstance(v, int | float):
+            v = f"level {int(v)}"
+        parts.append(str(v))
+    return " · ".join(parts) or "all estimates"
+
+
+def pool_view(
+    store: Store, exposure: str, outcome: str, *, method: str = "reml", ci: str = "hksj",
+    by: list[str] | None = None, include_fatal: bool = False, align_to: str = "increase",
+    alpha: float = 0.05, hksj_floor: bool = False,
+) -> PoolView:
+    """:func:`~exposhift.services.pooling.pool_evidence` plus one row per pooled estimate.
+
+    The rows come from the pooling service's own preparation
+    (:func:`~exposhift.services.pooling.prepare_for_pooling`: fatal studies out, harmonised,
+    independent estimates only) and are exactly the estimates listed in each group, so the
+    values are the ones that were pooled. Per row: study, event, country, design, level,
+    ``y`` and ``se`` on the analysis scale, the Wald interval ``y ± z·se`` (z for ``alpha``),
+    and the share of the group's weight, ``w_i = 1/(v_i + τ²)`` normalised within the group
+    (inverse-variance random-effects weights: DerSimonian & Laird 1986, Control Clin Trials
+    7:177; Borenstein et al. 2009, Introduction to Meta-Analysis, ch. 12; τ² = 0 for the
+    fixed-effect method).
+    """
+    by = list(by or [])
+    out = pool_evidence(store, exposure, outcome, method=method, ci=ci, by=by,
+                        include_fatal=include_fatal, align_to=align_to, alpha=alpha,
+                        hksj_floor=hksj_floor)
+    options = {"method": method, "ci": ci, "by": by, "include_fatal": include_fatal,
+               "align_to": align_to, "alpha": alpha, "hksj_floor": hksj_floor}
+    columns = ["group", "group_label", "estimate_uid", "study_id", "citation", "year",
+               "event_id", "country", "change_date", "change_direction", "design",
+               "design_family", "level", "measure", "estimate_kind", "subgroup", "y", "se",
+               "ci_lower", "ci_upper", "weight", "scale", "sign_flipped"]
+    if not out.groups:
+        return PoolView(out, pd.DataFrame(columns=columns), options)
+    with store.read() as conn:
+        frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
+    kept, _ = prepare_for_pooling(frame, include_fatal=include_fatal, align_to=align_to)
+    harm = kept.set_index("estimate_uid", drop=False)
+    keys = pooling_keys([STRATA[b] for b in by])
+    z = float(stats.norm.isf(alpha / 2))
+    parts = []
+    for i, g in enumerate(out.groups):
+        rows = harm.loc[list(g["estimates"])].copy()
+        tau2 = 0.0 if method == "fe" or g.get("tau2") is None else float(g["tau2"])
+        w = 1.0 / (rows["v"].to_numpy(dtype=float) + tau2)
+        rows["weight"] = w / w.sum()
+        rows["se"] = np.sqrt(rows["v"].to_numpy(dtype=float))
+        rows["ci_lower"] = rows["y"] - z * rows["se"]
+        rows["ci_upper"] = rows["y"] + z * rows["se"]
+        rows["group"] = i
+        rows["group_label"] = group_label(g, keys)
+        parts.append(rows)
+    table = pd.concat(parts, ignore_index=True)
+    table["change_date"] = table["change_date"].astype(str)
+    table = table.sort_values(["group", "year", "study_id", "estimate_uid"], kind="stable")
+    return PoolView(out, table[columns].reset_index(drop=True), options)

@@ -33,4 +33,9 @@ if [ -z "${EXPOSHIFT_TEST_PG_URL:-}" ]; then
   fi
 fi
 
+# Chromium for the dashboard's real-browser tests (tests/app): they FAIL, never skip, without it.
+if [ "$(id -u)" = "0" ] && [ ! -x /usr/bin/chromium ]; then
+  apt-get update -qq && apt-get install -y -qq chromium >/dev/null
+fi
+
 exec .venv/bin/python -m pytest "$@"

@@ -76,14 +76,18 @@ def country_name(code: str) -> str:
 def parse_change_date(value: Any) -> pd.Timestamp | None:
     """YYYY, YYYY-MM or YYYY-MM-DD -> a timestamp in the middle of the stated period."""
     text = str(value or "").strip()
+    if not text or text.lower() in ("nan", "none"):
+        return None
     try:
         if len(text) == 4:
-            return pd.Timestamp(f"{text}-07-01")
-        if len(text) == 7:
-            return pd.Timestamp(f"{text}-15")
-        return pd.Timestamp(text[:10])
+            stamp = pd.Timestamp(f"{text}-07-01")
+        elif len(text) == 7:
+            stamp = pd.Timestamp(f"{text}-15")
+        else:
+            stamp = pd.Timestamp(text[:10])
     except ValueError:
         return None
+    return None if pd.isna(stamp) else stamp
 
 
 def _fmt(x: Any, digits: int = 3) -> str:

@@ -18,8 +18,8 @@ Writes, next to this file:
   plotly.js never asks its CDN for a base map; the app keeps plotly's own base layers off and
   draws countries from ``countries-110m.geojson``.
 - ``country_points.json``: alpha-3 -> [longitude, latitude, name], a point inside the largest
-  polygon of each country of the 1:50m file (which also has small countries missing at 1:110m),
-  used to place event markers.
+  polygon of each country, used to place event markers: from the drawn 1:110m shapes, and from
+  the 1:50m file for the small countries missing at 1:110m.
 
 The TopoJSON decoding follows the TopoJSON format specification (arcs delta-encoded and
 quantised by ``transform``; a negative arc index ``~i`` is arc ``i`` reversed).
@@ -109,18 +109,84 @@ def shapes(topo: dict) -> dict:
     return {"type": "FeatureCollection", "features": features}
 
 
-def points(topo: dict) -> dict:
+def _inside(x: float, y: float, ring) -> bool:
+    """Even-odd ray casting: is (x, y) inside the closed ring?"""
+    inside = False
+    for (x0, y0), (x1, y1) in zip(ring, ring[1:] + ring[:1], strict=True):
+        if (y0 > y) != (y1 > y) and x < (x1 - x0) * (y - y0) / (y1 - y0) + x0:
+            inside = not inside
+    return inside
+
+
+def _in_polygon(x: float, y: float, poly) -> bool:
+    return _inside(x, y, poly[0]) and not any(_inside(x, y, hole) for hole in poly[1:])
+
+
+def interior_point(poly) -> tuple[float, float]:
+    """A point inside a polygon (outer ring + holes): its area centroid when that lies inside,
+    else the middle of the widest inside stretch along 41 horizontal lines across it. A polygon
+    cut at the antimeridian (longitudes spanning more than 180 degrees) is first unwrapped to
+    0-360 so that it is one planar shape."""
+    xs = [x for ring in poly for x, _ in ring]
+    if max(xs) - min(xs) > 180:
+        poly = [[(x + 360.0 if x < 0 else x, y) for x, y in ring] for ring in poly]
+    _, cx, cy = _area_centroid(poly[0])
+    if _in_polygon(cx, cy, poly):
+        return cx, cy
+    ys = [pt[1] for pt in poly[0]]
+    best, point = -1.0, (cx, cy)
+    for i in range(1, 42):
+        y = min(ys) + (max(ys) - min(ys)) * i / 42
+        xs = sorted(
+            x0 + (x1 - x0) * (y - y0) / (y1 - y0)
+            for ring in poly
+            for (x0, y0), (x1, y1) in zip(ring, ring[1:] + ring[:1], strict=True)
+            if (y0 > y) != (y1 > y))
+        for a, b in zip(xs[::2], xs[1::2], strict=False):
+            if b - a > best and _in_polygon((a + b) / 2, y, poly):
+                best, point = b - a, ((a + b) / 2, y)
+    return point
+
+
+def points(topo: dict, *, prefer: dict | None = None) -> dict:
+    """alpha-3 -> [lon, lat, name] for every country of ``topo``: a point inside its largest
+    polygon. Several features with one code (e.g. Australia and its islets share a numeric
+    code) keep the largest. Countries in ``prefer`` (the drawn 1:110m shapes) take their point
+    from there, so the marker lies inside the outline shown."""
     arcs = _arcs(topo)
-    out = {}
+    best: dict[str, tuple[float, list, str]] = {}
     for geom in topo["objects"]["countries"]["geometries"]:
         code = _alpha3(geom)
         polys = _polygons(geom, arcs)
         if not polys or len(code) != 3:
             continue
-        best = max((_area_centroid(p[0]) for p in polys), key=lambda t: abs(t[0]))
-        out[code] = [round(best[1], 2), round(best[2], 2),
-                     geom.get("properties", {}).get("name", "")]
+        poly = max(polys, key=lambda q: abs(_area_centroid(q[0])[0]))
+        area = abs(_area_centroid(poly[0])[0])
+        if code not in best or area > best[code][0]:
+            best[code] = (area, poly, geom.get("properties", {}).get("name", ""))
+    for code, (area, poly, name) in (prefer or {}).items():
+        best[code] = (area, poly, name)
+    out = {}
+    for code, (_, poly, name) in best.items():
+        x, y = interior_point(poly)
+        out[code] = [round((x + 180.0) % 360.0 - 180.0, 2), round(y, 2), name]
     return dict(sorted(out.items()))
+
+
+def largest_polygons(topo: dict) -> dict:
+    """alpha-3 -> (area, largest polygon, name) of ``topo``."""
+    arcs = _arcs(topo)
+    out: dict[str, tuple[float, list, str]] = {}
+    for geom in topo["objects"]["countries"]["geometries"]:
+        code = _alpha3(geom)
+        polys = _polygons(geom, arcs)
+        if not polys or len(code) != 3:
+            continue
+        poly = max(polys, key=lambda q: abs(_area_centroid(q[0])[0]))
+        area = abs(_area_centroid(poly[0])[0])
+        if code not in out or area > out[code][0]:
+            out[code] = (area, poly, geom.get("properties", {}).get("name", ""))
+    return out
 
 
 def plotly_topology(topo: dict) -> dict:
@@ -140,7 +206,7 @@ def main(package_dir: str) -> None:
     (HERE / "world_110m.json").write_text(
         json.dumps(plotly_topology(small), separators=(",", ":")))
     (HERE / "country_points.json").write_text(
-        json.dumps(points(medium), separators=(",", ":")))
+        json.dumps(points(medium, prefer=largest_polygons(small)), separators=(",", ":")))
 
 
 if __name__ == "__main__":

@@ -290,13 +290,15 @@ def map_extent(lon: list[float], lat: list[float], pad: float = 8.0, min_lon: fl
     return ([max(lo_x, -180.0), min(hi_x, 180.0)], [max(lo_y, -58.0), min(hi_y, 84.0)])
 
 
-def event_map(events: pd.DataFrame, *, min_level: int = 2, title: str = "") -> go.Figure:
+def event_map(events: pd.DataFrame, *, min_level: int = 2, title: str = "",
+              focus: list[str] | None = None) -> go.Figure:
     """World map of independent events (``ReplicationReport.events`` rows that represent their
     event): countries with events shaded, one triangle per event (▲ exposure increased, ▼
     decreased) coloured by its estimate aligned to an exposure increase (red: the outcome
     rises with exposure, blue: it falls; back-transformed for ratio measures). When the events
     mix measure groups, the colour is z = estimate / SE instead. Open markers: level below
-    ``min_level`` or not appraised."""
+    ``min_level`` or not appraised. The view fits the markers, or the countries in ``focus``
+    (alpha-3 codes) when given."""
     shapes = country_shapes()
     base_ids = [f["id"] for f in shapes["features"] if f["id"] != "ATA"]
     fig = go.Figure(go.Choropleth(
@@ -356,8 +358,13 @@ def event_map(events: pd.DataFrame, *, min_level: int = 2, title: str = "") -> g
             hovertemplate=("<b>%{customdata[0]}</b> · %{customdata[1]}<br>%{customdata[2]}: "
                            "exposure %{customdata[3]}d<br>design %{customdata[4]}, level "
                            "%{customdata[5]}<br>estimate %{customdata[6]}<extra></extra>")))
-    lon_range, lat_range = map_extent([x for x in lon if x is not None],
-                                      [y for y in lat if y is not None])
+    if focus:
+        pts = country_points()
+        keep = [pts[c] for c in focus if c in pts]
+        lon_range, lat_range = map_extent([p[0] for p in keep], [p[1] for p in keep])
+    else:
+        lon_range, lat_range = map_extent([x for x in lon if x is not None],
+                                          [y for y in lat if y is not None])
     fig.update_geos(visible=False, showframe=False, projection_type="natural earth",
                     projection_rotation=dict(lon=(lon_range[0] + lon_range[1]) / 2, lat=0),
                     lonaxis_range=lon_range, lataxis_range=lat_range, bgcolor="white")

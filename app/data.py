@@ -13,6 +13,7 @@ import os
 import pandas as pd
 import streamlit as st
 
+from exposhift.appraisal.rubric import load_rubric
 from exposhift.replication.settings import load_settings
 from exposhift.services import appraising, browse, replicating, setup
 from exposhift.services import summary as summary_service
@@ -67,6 +68,12 @@ def events(db: str | None) -> pd.DataFrame:
 def appraisals(db: str | None, study: str, viewer: str | None) -> dict:
     """A study's appraisals as ``viewer`` may see them (blinding applied by the service)."""
     return appraising.show_appraisals(_store(db), study, viewer or None)
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def domain_titles() -> dict[str, str]:
+    """Rubric domain key -> its title (the rubric in force)."""
+    return {d.key: d.title for d in load_rubric(None).domains}
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)

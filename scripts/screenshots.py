@@ -33,8 +33,11 @@ PAGES = {
     "replication-reversal": (
         "replication?exposure=corvane&outcome=asthma+emergency+visits",
         "Replication across place and time"),
+    "replication-europe": ("replication", "Replication across place and time"),
     "gaps": ("gaps", "Gap map"),
 }
+#: screenshot name -> label of a control to click before the screenshot
+CLICKS = {"replication-europe": "Europe"}
 ERROR_SELECTORS = '[data-testid="stException"], [data-testid="stAlertContentError"]'
 
 
@@ -131,6 +134,10 @@ def shoot(db: str, out: Path, width: int = 1400) -> tuple[list[Path], list[str],
                 for name, (path, heading) in PAGES.items():
                     page.goto(f"http://127.0.0.1:{port}/{path}")
                     wait_rendered(page, heading)
+                    if name in CLICKS:
+                        page.get_by_text(CLICKS[name], exact=True).first.click()
+                        page.wait_for_timeout(500)
+                        wait_rendered(page, heading)
                     for box in page.locator(ERROR_SELECTORS).all():
                         errors.append(f"{name}: {box.inner_text()[:300]}")
                     f = out / f"{name}.png"

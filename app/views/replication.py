@@ -39,6 +39,14 @@ expected = c3.selectbox(
 with ui.guard():
     report = data.replication(db, exposure, outcome, expected, None)
     settings = report.settings
+families = [f["family"] for f in report.families]
+if len(families) > 1:
+    family = ui.pick("Family of change", ["all families", *families], key="rep_family",
+                     help="Events of one kind of change (same agent and kind of change, or "
+                          "the family key recorded on the event)")
+    if family != "all families":
+        with ui.guard():
+            report = data.replication(db, exposure, outcome, expected, family)
 
 # 2. status with its rule, and the caution ---------------------------------------------------
 ui.status_box(report.status, report.rule)
@@ -56,8 +64,16 @@ if ev.empty:
 
 # 3. place: world map ------------------------------------------------------------------------
 st.subheader("Where: independent events")
-st.plotly_chart(charts.event_map(ev, min_level=settings.min_level), config=charts.PLOTLY_CONFIG,
-                key="rep_map")
+places = set(ev["country"])
+areas = {name.replace("-", " ").title(): sorted(places & set(codes))
+         for name, codes in sorted(settings.regions.items()) if places & set(codes)}
+view = "all events"
+if st.session_state.get("rep_map_view") not in ("all events", *areas):
+    st.session_state.pop("rep_map_view", None)
+if len(areas) > 1:
+    view = st.radio("Map view", ["all events", *areas], horizontal=True, key="rep_map_view")
+st.plotly_chart(charts.event_map(ev, min_level=settings.min_level, focus=areas.get(view)),
+                config=charts.PLOTLY_CONFIG, key="rep_map")
 sign = report.sign_test
 if sign.get("n"):
     st.markdown(f"**Sign test:** {sign['k_expected']} of {sign['n']} events at level ≥ "

@@ -79,17 +79,22 @@ with tab_studies:
                 "hidden" if a.blinded else ui.level_text((a.ratings or {}).get(d))
                 for d in view["domains"]]
         if table:
+            titles = data.domain_titles()
             frame = pd.DataFrame(table, index=["overall", *view["domains"]])
+            frame.insert(0, "title", ["overall level (the rubric's summary rule)"] + [
+                titles.get(d, d) for d in view["domains"]])
             st.dataframe(frame.rename_axis("domain").reset_index(), hide_index=True,
-                         width="stretch", key="appraisal_table")
+                         width="stretch", key="appraisal_table",
+                         height=36 * (len(frame) + 1) + 3)
         hidden = [a.reviewer for a in view["appraisals"] if a.blinded]
         if hidden:
             st.info(f"Hidden until both independent appraisals are in: {', '.join(hidden)}. "
                     "Reviewers see their own appraisal by giving their name in the sidebar.")
         if record is not None and record.justifications:
+            titles = data.domain_titles()
             with st.expander("Reasons recorded with the appraisal of record"):
                 for d, why in record.justifications.items():
-                    st.markdown(f"- **{d}**: {why}")
+                    st.markdown(f"- **{titles.get(d, d)}**: {why}")
         st.caption(view["caution"])
 
 # 4. registered events -----------------------------------------------------------------------

@@ -35,6 +35,7 @@ VISIBLE = {
     "replication": ["Replication status:", "Sign test:", "Triangulation:",
                     "support, never replace, expert judgement"],
     "replication-reversal": ["Replication status: convergent", "Reversal in Portugal"],
+    "replication-europe": ["Map view", "Replication status: replicated-place"],
     "gaps": ["Opportunities: registered exposure changes never evaluated (5)",
              "support, never replace, expert judgement", "ready-for-synthesis"],
 }
@@ -81,6 +82,10 @@ def _go(page, server: int, name: str) -> None:
     path, heading = shots.PAGES[name]
     page.goto(f"http://127.0.0.1:{server}/{path}")
     shots.wait_rendered(page, heading)
+    if name in shots.CLICKS:
+        page.get_by_text(shots.CLICKS[name], exact=True).first.click()
+        page.wait_for_timeout(500)
+        shots.wait_rendered(page, heading)
 
 
 def _visible(page, text: str) -> bool:

@@ -19,6 +19,7 @@ from statsmodels.stats.meta_analysis import combine_effects
 from streamlit.testing.v1 import AppTest
 
 from exposhift.services.browse import pool_view
+from exposhift.services.replicating import replication_for
 
 CAUTION_WORDS = "support, never replace, expert judgement"
 
@@ -238,6 +239,39 @@ def test_replication_status_rule_charts_and_sign_test(app, demo_db):
     k, n = int(words[2]), int(words[4])
     p = float(line.rsplit("p = ", 1)[1].rstrip("."))
     assert p == pytest.approx(stats.binomtest(k, n, 0.5).pvalue, rel=1e-2)
+
+
+def test_replication_map_view_zooms_to_a_region(app, demo_db):
+    at = _open(app, "replication")
+    assert at.selectbox(key="rep_exposure").value == "dravonil"  # busiest pair: worldwide
+    world = _charts(at)[0]["layout"]["geo"]["lonaxis"]["range"]
+    at.radio(key="rep_map_view").set_value("Europe").run()
+    assert not at.exception
+    europe = _charts(at)[0]["layout"]["geo"]["lonaxis"]["range"]
+    assert europe[1] - europe[0] < world[1] - world[0]
+    # switching to an exposure without European events drops the stale choice
+    at.selectbox(key="rep_exposure").set_value("vellium").run()
+    assert not at.exception
+
+
+def test_replication_family_filter(app, demo_store):
+    at = _open(app, "replication")
+    at.selectbox(key="rep_exposure").set_value("vellium").run()
+    at.selectbox(key="rep_outcome").set_value("child respiratory admissions").run()
+    options = at.selectbox(key="rep_family").options
+    assert options[0] == "all families" and len(options) == 3
+    all_events = values([t for t in _charts(at)[0]["data"] if t["type"] == "scattergeo"][0]
+                        ["lon"])
+    at.selectbox(key="rep_family").set_value(options[1]).run()
+    assert not at.exception
+    report = replication_for(demo_store, "vellium", "child respiratory admissions",
+                             family=options[1])
+    geo = [t for t in _charts(at)[0]["data"] if t["type"] == "scattergeo"][0]
+    assert len(values(geo["lon"])) == int(report.events["represents_event"].sum())
+    assert len(values(geo["lon"])) < len(all_events)
+    boxes = [e.value for kind in (at.success, at.warning, at.info, at.error) for e in kind
+             if e.value.startswith("**Replication status:")]
+    assert boxes == [f"**Replication status: {report.status}**\n\n{report.rule}"]
 
 
 def test_replication_expected_direction_reruns(app):

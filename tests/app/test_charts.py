@@ -128,6 +128,13 @@ def test_event_map_markers_colours_and_offline_layers(corvane):
     assert fig.layout.geo.lonaxis.range[1] - fig.layout.geo.lonaxis.range[0] < 100
 
 
+def test_event_map_focus_fits_named_countries(corvane):
+    fig = charts.event_map(corvane.events, focus=["PRT"])
+    lon = fig.layout.geo.lonaxis.range
+    lon_prt = charts.country_points()["PRT"][0]
+    assert lon[0] < lon_prt < lon[1] and lon[1] - lon[0] == pytest.approx(50.0)
+
+
 def test_event_map_mixed_measures_colour_by_z():
     ev = pd.DataFrame({
         "event_id": ["A", "B"], "country": ["PRT", "ESP"], "change_date": ["2000", "2001"],

@@ -314,8 +314,11 @@ def event_map(events: pd.DataFrame, *, min_level: int = 2, title: str = "",
     if not ev.empty:
         counts = ev.groupby("country").size()
         names = [country_name(c) for c in counts.index]
+        wanted = set(counts.index)
+        subset = {"type": "FeatureCollection",
+                  "features": [f for f in shapes["features"] if f["id"] in wanted]}
         fig.add_trace(go.Choropleth(
-            geojson=shapes, featureidkey="id", locations=list(counts.index),
+            geojson=subset, featureidkey="id", locations=list(counts.index),
             z=[1] * len(counts), colorscale=[[0, "#c9d6e3"], [1, "#c9d6e3"]],
             showscale=False, marker_line=dict(color="#6b7f94", width=0.8), name="places",
             text=[f"{n}: {k} event(s)" for n, k in zip(names, counts, strict=True)],

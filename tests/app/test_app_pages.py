@@ -109,6 +109,22 @@ def test_unusable_database_is_one_error_line(tmp_path, monkeypatch):
     assert "none.db" in at.error[0].value
 
 
+def test_empty_evidence_base_every_page_runs_without_demo_mark(tmp_path, monkeypatch):
+    from exposhift.services.setup import init_database
+
+    db = str(tmp_path / "empty.db")
+    init_database(db, user="tester")
+    monkeypatch.setenv("EXPOSHIFT_DB", db)
+    at = AppTest.from_file(str(ENTRY), default_timeout=60)
+    at.run()
+    assert not at.exception
+    assert {m.label: m.value for m in at.metric}["Studies"] == "0"
+    for page in ("studies", "pooling", "replication", "gaps"):
+        _open(at, page)
+        assert "demo" not in _texts(at).lower()
+    assert not any("demo" in m.value.lower() for m in at.sidebar.markdown)
+
+
 # ----------------------------------------------------------------------------- studies
 def test_studies_table_and_blinded_appraisal(app, demo_db):
     at = _open(app, "studies")

@@ -16,6 +16,7 @@ from scipy import stats
 
 from exposhift.services.pooling import STRATA, PoolOutput, pool_evidence, prepare_for_pooling
 from exposhift.services.setup import database_info
+from exposhift.store.appraisals import studies_by_key
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame, events_frame
 from exposhift.synthesis.independence import pooling_keys
@@ -97,17 +98,13 @@ def list_studies(store: Store) -> pd.DataFrame:
     """One row per study: design, design family, appraisal level of record, exposures,
     outcomes, events and countries it analyses, number of estimates, demo flag. Studies without
     an estimate are listed too (with empty exposures)."""
-    from sqlalchemy import select
-
-    from exposhift.store.models import Study
-
-    st = Study.__table__
     with store.read() as conn:
         frame = analysis_frame(conn)
-        base = pd.DataFrame([dict(r) for r in conn.execute(
-            select(st.c.key.label("study_id"), st.c.citation, st.c.year, st.c.design,
-                   st.c.demo)).mappings()],
-            columns=["study_id", "citation", "year", "design", "demo"])
+        studies = studies_by_key(conn)
+    base = pd.DataFrame(
+        [{"study_id": k, "citation": r["citation"], "year": r["year"], "design": r["design"],
+          "demo": r["demo"]} for k, r in studies.items()],
+        columns=["study_id", "citation", "year", "design", "demo"])
 
     def joined(s: pd.Series) -> str:
         return ", ".join(sorted({str(v) for v in s.dropna()}))

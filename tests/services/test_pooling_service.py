@@ -106,3 +106,23 @@ def test_pool_cli_json_shape(store):
     text = CliRunner().invoke(app, ["--db", store.url, "pool", "--exposure", "agent",
                                     "--outcome", "asthma"])
     assert text.exit_code == 0 and "never replace" in text.stdout
+
+
+def test_details_leave_one_out_matches_statsmodels_and_egger_says_why(store):
+    """Leave-one-out pooled DL estimates against statsmodels combine_effects on each subset
+    (reference library; valid here because every subset has Q >= k-1, asserted below)."""
+    _fill(store)
+    out = pool_evidence(store, "agent", "asthma", method="dl", ci="wald", details=True)
+    sens = out.groups[0]["sensitivity"]
+    y, v = _expected(ROWS[:4])
+    loo = []
+    for i in range(4):
+        keep = [j for j in range(4) if j != i]
+        ref = combine_effects(y[keep], v[keep], method_re="dl")
+        assert ref.tau2 >= 0  # statsmodels is valid on this subset
+        loo.append(ref.mean_effect_re)
+    assert sens["leave_one_out"]["lowest"] == pytest.approx(min(loo), abs=1e-9)
+    assert sens["leave_one_out"]["highest"] == pytest.approx(max(loo), abs=1e-9)
+    assert sens["small_study"]["run"] is False and "10" in sens["small_study"]["reason"]
+    t2 = sens["tau2_ci"]
+    assert 0 <= t2["lower"] <= t2["upper"]

@@ -27,6 +27,8 @@ def pool_cmd(
                               "exposure 'increase' or 'decrease'."),
     hksj_floor: bool = typer.Option(False, "--hksj-floor", help="Never let the HKSJ interval "
                                     "be narrower than the Wald interval."),
+    details: bool = typer.Option(False, "--details", help="Add sensitivity: tau^2 interval "
+                                 "(Q-profile), leave-one-out, small-study test."),
     as_json: bool = typer.Option(False, "--json", help="Print JSON: one object per group."),
 ) -> None:
     """Pool comparable estimates of one exposure and one outcome."""
@@ -34,7 +36,8 @@ def pool_cmd(
     store = open_current(s.db, s.user)
     try:
         out = pool_evidence(store, exposure, outcome, method=method, ci=ci, by=by,
-                            include_fatal=include_fatal, align_to=align, hksj_floor=hksj_floor)
+                            include_fatal=include_fatal, align_to=align, hksj_floor=hksj_floor,
+                            details=details)
     finally:
         store.dispose()
     if as_json:
@@ -57,6 +60,8 @@ def pool_cmd(
         typer.echo(f"    analysis scale {_fmt(g['estimate'], 4)} (SE {_fmt(g['se'], 4)}), "
                    f"tau^2 {_fmt(g['tau2'], 4)}, I^2 {i2}, "
                    f"Q {_fmt(g['q'], 2)} (p {_fmt(g['q_pvalue'], 3)})")
+        if "sensitivity" in g:
+            _print_sensitivity(g["sensitivity"])
         if g["sign_flipped"]:
             typer.echo(f"    {g['sign_flipped']} estimate(s) from changes in the other "
                        "direction had their sign flipped")
@@ -65,6 +70,23 @@ def pool_cmd(
         for e in out.excluded:
             typer.echo(f"    {e['estimate_uid']}: {e['reason']}")
     typer.echo(f"\nnote: {out.caution}")
+
+
+def _print_sensitivity(sens: dict) -> None:
+    if "note" in sens:
+        typer.echo(f"    sensitivity: {sens['note']}")
+        return
+    t2 = sens["tau2_ci"]
+    typer.echo(f"    tau^2 {t2['method']}: {_fmt(t2['lower'], 4)} to {_fmt(t2['upper'], 4)}")
+    loo = sens["leave_one_out"]
+    typer.echo(f"    leave-one-out: pooled {_fmt(loo['lowest'], 4)} to {_fmt(loo['highest'], 4)} "
+               f"(analysis scale); most influential {loo['most_influential']} "
+               f"(shift {_fmt(loo['shift'], 4)})")
+    eg = sens["small_study"]
+    if eg["run"]:
+        typer.echo(f"    Egger test: intercept {_fmt(eg['intercept'])}, p {_fmt(eg['pvalue'])}")
+    else:
+        typer.echo(f"    Egger test not run: {eg['reason']}")
 
 
 def register(app: typer.Typer) -> None:

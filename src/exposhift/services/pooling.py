@@ -30,6 +30,7 @@ from exposhift.synthesis.grouped import pool_groups
 from exposhift.synthesis.harmonise import harmonise
 from exposhift.synthesis.independence import pooling_keys, select_independent
 from exposhift.synthesis.pooling import CAUTION
+from exposhift.synthesis.sensitivity import egger_test, leave_one_out, tau2_ci_qprofile
 
 #: --by choices -> analysis frame columns
 STRATA = {"design-family": "design_family", "level": "level", "design": "design",
@@ -101,7 +102,9 @@ def pool_evidence(
     align_to: str = "increase",
     alpha: float = 0.05,
     hksj_floor: bool = False,
+    details: bool = False,
 ) -> PoolOutput:
+    """Pool one exposure x outcome; ``details`` adds a ``sensitivity`` entry to each group."""
     by = list(by or [])
     for b in by:
         if b not in STRATA:
@@ -150,5 +153,34 @@ def pool_evidence(
                 f: (None if g[f] is None else float(np.exp(g[f])))
                 for f in ("estimate", "ci_lower", "ci_upper", "pi_lower", "pi_upper")}
         g["excluded"] = excluded
+        if details:
+            rows = kept.set_index("estimate_uid").loc[g["estimates"]]
+            g["sensitivity"] = sensitivity(rows, method=method, ci=ci, alpha=alpha,
+                                           hksj_floor=hksj_floor)
         groups.append(g)
     return PoolOutput(exposure, outcome, align_to, groups, excluded)
+
+
+def sensitivity(rows: pd.DataFrame, *, method: str, ci: str, alpha: float,
+                hksj_floor: bool) -> dict[str, Any]:
+    """What moves the pooled number: τ² interval, leave-one-out, small-study effects."""
+    y, v = rows["y"].to_numpy(float), rows["v"].to_numpy(float)
+    k = y.size
+    out: dict[str, Any] = {"k": k}
+    if k < 2:
+        out["note"] = "a single estimate: nothing to vary"
+        return out
+    t2 = tau2_ci_qprofile(y, v, alpha=alpha)
+    out["tau2_ci"] = {"lower": _finite(t2.tau2_lower), "upper": _finite(t2.tau2_upper),
+                      "method": "Q-profile (Viechtbauer 2007)", "note": t2.note}
+    loo = leave_one_out(y, v, labels=rows["study_id"].to_numpy(), method=method, ci=ci,
+                        alpha=alpha, hksj_floor=hksj_floor)
+    worst = loo.iloc[int(np.argmax(np.abs(loo["shift"].to_numpy())))]
+    out["leave_one_out"] = {
+        "lowest": _finite(loo["estimate"].min()), "highest": _finite(loo["estimate"].max()),
+        "most_influential": str(worst["omitted"]), "shift": _finite(worst["shift"]),
+    }
+    eg = egger_test(y, v, alpha=alpha)
+    out["small_study"] = {"run": eg.run, "reason": eg.reason,
+                          "intercept": _finite(eg.intercept), "pvalue": _finite(eg.pvalue)}
+    return out

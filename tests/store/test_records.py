@@ -150,3 +150,29 @@ def test_event_keeps_date_precision(store):
     with store.read() as conn:
         row = records.get(conn, "event", "EV1")
     assert row["change_date"] == "2001-05" and row["date_precision"] == "month"
+
+
+def test_appraisal_and_rating_update_with_version_and_audit(store):
+    _seed(store)
+    ap, ra = TABLES["appraisal"], TABLES["rating"]
+    with store.read() as conn:
+        row = dict(conn.execute(ap.select()).mappings().one())
+        rating = dict(conn.execute(ra.select()).mappings().one())
+    with store.write() as conn:
+        w = Writer(conn, "chair")
+        assert w.update(ap, row["id"], 1, {"overall": 2}, row_key="S1|r1|independent") == 2
+        # ratings carry no version of their own: they change only with their appraisal,
+        # replaced as a whole (delete + insert), both audited
+        w.delete(ra, rating["id"])
+        w.insert(ra, {"appraisal_id": row["id"], "domain": "origin", "level": 3})
+        w.flush()
+    with pytest.raises(ConflictError), store.write() as conn:
+        Writer(conn, "late").update(ap, row["id"], 1, {"overall": 0})
+    with store.read() as conn:
+        assert conn.execute(ap.select()).mappings().one()["overall"] == 2
+        assert conn.execute(ra.select()).mappings().one()["level"] == 3
+        audit = audit_rows(conn, row_key="S1|r1|independent")
+        rating_audit = audit_rows(conn, table_name="rating")
+    assert audit[-1]["action"] == "update" and audit[-1]["after"] == {"overall": 2, "version": 2}
+    assert [a["action"] for a in rating_audit] == ["insert", "delete", "insert"]
+    assert rating_audit[1]["before"]["level"] == 2 and rating_audit[2]["after"]["level"] == 3

@@ -12,37 +12,45 @@ import pandas as pd
 
 from exposhift.replication import replication_statuses
 from exposhift.replication.families import independent_units
+from exposhift.replication.settings import ReplicationSettings, load_settings
 from exposhift.services.pooling import CAUTION, prepare_for_pooling
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame
+from exposhift.synthesis.conversions import from_analysis_scale
 from exposhift.synthesis.grouped import pool_groups
+from exposhift.synthesis.harmonise import GROUP_SCALES
 from exposhift.synthesis.independence import pooling_keys
 
 COLUMNS = ["exposure", "outcome", "events", "status", "stratum", "k", "scale", "estimate",
            "ci_lower", "ci_upper", "tau2", "i2"]
 
 
-def evidence_summary(store: Store, *, method: str = "reml", ci: str = "hksj") -> pd.DataFrame:
-    """One row per exposure x outcome; ``estimate``/``ci_*`` are back-transformed on log scales."""
+def evidence_summary(store: Store, *, method: str = "reml", ci: str = "hksj",
+                     settings: ReplicationSettings | None = None) -> pd.DataFrame:
+    """One row per exposure x outcome; ``estimate``/``ci_*`` are back-transformed on log scales.
+
+    Statuses use ``settings`` (default: the thresholds in force, as the ``replication`` action
+    does), so both report the same status.
+    """
+    s = settings if settings is not None else load_settings()
     with store.read() as conn:
         frame = analysis_frame(conn)
     if frame.empty:
         return pd.DataFrame(columns=COLUMNS)
     units, _ = independent_units(frame)
-    statuses = replication_statuses(units)[["exposure", "outcome", "n_events", "status"]]
+    statuses = replication_statuses(units, settings=s)[
+        ["exposure", "outcome", "n_events", "status"]]
     kept, _ = prepare_for_pooling(frame)
     keys = ["exposure", "outcome", *pooling_keys()]
     kept = kept.copy()
     kept["increment"] = kept["increment"].fillna("")
     pooled = pool_groups(kept, by=keys, method=method, ci=ci)
-    scale = kept.groupby(keys, sort=True)["scale"].first().reset_index(drop=True)
-    pooled["scale"] = scale.to_numpy()
+    pooled["scale"] = pooled["measure_group"].map(GROUP_SCALES)
     main = (pooled.sort_values(["exposure", "outcome", "k"], ascending=[True, True, False],
                                kind="stable")
             .drop_duplicates(["exposure", "outcome"]))
-    log = main["scale"] == "log"
     for col in ("estimate", "ci_lower", "ci_upper"):
-        main[col] = np.where(log, np.exp(main[col]), main[col])
+        main[col] = from_analysis_scale(main["scale"].to_numpy(), main[col].to_numpy(float))
     main["stratum"] = (main["measure_group"] + "/" + main["estimate_kind"]
                        + np.where(main["increment"] != "", " " + main["increment"], ""))
     out = statuses.rename(columns={"n_events": "events"}).merge(

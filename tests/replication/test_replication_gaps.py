@@ -90,6 +90,10 @@ def test_threshold_settings_change_states():
     c = gap_map(crafted(), settings=DEFAULTS.with_(ready_min_events=4)).set_index(
         ["exposure", "outcome_group"])
     assert c.loc[("a", "g1"), "state"] == "unreplicated"
+    # the rule names the cell's own count (3 good events), not a fixed two
+    assert c.loc[("a", "g1"), "state_rule"] == (
+        "the best-covered outcome has 3 independent events at level ≥ 2 "
+        "(ready for synthesis from 4)")
     c = gap_map(crafted(), settings=DEFAULTS.with_(min_level=3)).set_index(
         ["exposure", "outcome_group"])
     assert c.loc[("a", "g1"), "state"] == "single-event"

@@ -43,7 +43,8 @@ GAP_STATES: dict[str, str] = {
     "stale": "no evaluated exposure change after the chosen year",
     "weak-only": "all evidence weak or not yet appraised",
     "single-event": "good evidence from one event only",
-    "unreplicated": "two good events: not yet replicated in every dimension, too few to pool",
+    "unreplicated": "two or more good events, fewer than ready-for-synthesis needs: not yet "
+                    "replicated in every dimension, too few to pool",
     "ready-for-synthesis": "enough independent good events to pool",
 }
 UNSPECIFIED_GROUP = "(no outcome group)"
@@ -212,8 +213,6 @@ def _states(out: pd.DataFrame, s: ReplicationSettings,
         "no-study": "no estimate in this cell",
         "weak-only": f"no outcome has an event at {lv}",
         "single-event": f"the best-covered outcome has 1 event at {lv}",
-        "unreplicated": f"the best-covered outcome has 2 events at {lv} "
-                        f"(ready for synthesis from {s.ready_min_events})",
     }
     rules = []
     for st, g, yr in zip(state.tolist(), good.tolist(), newest.tolist(), strict=True):
@@ -222,6 +221,9 @@ def _states(out: pd.DataFrame, s: ReplicationSettings,
         elif st == "ready-for-synthesis":
             rules.append(f"the best-covered outcome has {int(g)} independent events at {lv} "
                          f"(rule: ≥ {s.ready_min_events})")
+        elif st == "unreplicated":
+            rules.append(f"the best-covered outcome has {int(g)} independent events at {lv} "
+                         f"(ready for synthesis from {s.ready_min_events})")
         else:
             rules.append(texts[st])
     return state, rules

@@ -153,19 +153,7 @@ def points(topo: dict, *, prefer: dict | None = None) -> dict:
     polygon. Several features with one code (e.g. Australia and its islets share a numeric
     code) keep the largest. Countries in ``prefer`` (the drawn 1:110m shapes) take their point
     from there, so the marker lies inside the outline shown."""
-    arcs = _arcs(topo)
-    best: dict[str, tuple[float, list, str]] = {}
-    for geom in topo["objects"]["countries"]["geometries"]:
-        code = _alpha3(geom)
-        polys = _polygons(geom, arcs)
-        if not polys or len(code) != 3:
-            continue
-        poly = max(polys, key=lambda q: abs(_area_centroid(q[0])[0]))
-        area = abs(_area_centroid(poly[0])[0])
-        if code not in best or area > best[code][0]:
-            best[code] = (area, poly, geom.get("properties", {}).get("name", ""))
-    for code, (area, poly, name) in (prefer or {}).items():
-        best[code] = (area, poly, name)
+    best = {**largest_polygons(topo), **(prefer or {})}
     out = {}
     for code, (_, poly, name) in best.items():
         x, y = interior_point(poly)

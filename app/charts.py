@@ -24,6 +24,8 @@ import pandas as pd
 import plotly.graph_objects as go
 import pycountry
 
+from exposhift.synthesis.harmonise import GROUP_SCALES
+
 STATIC = Path(__file__).resolve().parent / "static"
 #: passed to every plotly chart: no logo, and a local topojsonURL (Streamlit serves app/static
 #: at app/static/ when static serving is on), so plotly.js never contacts its CDN
@@ -33,7 +35,7 @@ PLOTLY_CONFIG: dict[str, Any] = {
     "modeBarButtonsToRemove": ["select2d", "lasso2d"],
 }
 #: measure groups analysed on the log scale (shown back-transformed)
-LOG_GROUPS = frozenset({"ratio", "odds_ratio"})
+LOG_GROUPS = frozenset(g for g, scale in GROUP_SCALES.items() if scale == "log")
 
 UP, DOWN = "triangle-up", "triangle-down"
 ROSE, FELL, FLAT = "#b2182b", "#2166ac", "#7f7f7f"

@@ -172,29 +172,18 @@ def demo_cmd(ctx: typer.Context,
 
 
 def _next_commands(r) -> list[str]:
-    """Commands worth trying on the demo, including those of other modules once they exist."""
+    """Commands worth trying on the demo: pool and replication on the busiest pair."""
     db = f"exposhift --db {r.path}"
-    names = {c.name for c in (_APP.registered_commands if _APP else [])}
     out = [f"{db} info"]
     if not r.grid.empty:
         exposure, outcome = r.grid.stack().idxmax()
         pick = f'--exposure {exposure} --outcome "{outcome}"'
-        if "pool" in names:
-            out.append(f"{db} pool {pick}")
-        if "replication" in names:
-            out.append(f"{db} replication {pick}")
-    if "gaps" in names:
-        out.append(f"{db} gaps")
-    out.append(f"{db} export demo-archive.json")
+        out += [f"{db} pool {pick}", f"{db} replication {pick}"]
+    out += [f"{db} gaps", f"{db} export demo-archive.json"]
     return out
 
 
-_APP: typer.Typer | None = None
-
-
 def register(app: typer.Typer) -> None:
-    global _APP
-    _APP = app
     app.command("import")(import_cmd)
     app.command("export")(export_cmd)
     app.command("demo")(demo_cmd)

@@ -5,7 +5,14 @@ from __future__ import annotations
 import typer
 
 from exposhift import __version__
-from exposhift.cli import store_cmds
+from exposhift.cli import (
+    appraisal_cmds,
+    dashboard_cmds,
+    io_cmds,
+    replication_cmds,
+    store_cmds,
+    synthesis_cmds,
+)
 from exposhift.cli.common import Settings
 
 app = typer.Typer(
@@ -48,19 +55,5 @@ app.command("init")(store_cmds.init)
 app.command("info")(store_cmds.info)
 
 
-def _register_optional() -> None:
-    """Commands of other modules register themselves here as they land."""
-    import importlib
-
-    for name in ("io_cmds", "synthesis_cmds", "appraisal_cmds", "replication_cmds",
-                 "dashboard_cmds"):
-        try:
-            mod = importlib.import_module(f"exposhift.cli.{name}")
-        except ModuleNotFoundError as exc:
-            if exc.name != f"exposhift.cli.{name}":
-                raise
-            continue
-        mod.register(app)
-
-
-_register_optional()
+for _module in (io_cmds, synthesis_cmds, appraisal_cmds, replication_cmds, dashboard_cmds):
+    _module.register(app)

@@ -9,7 +9,6 @@ previous demo file as it was.
 from __future__ import annotations
 
 import contextlib
-import importlib
 import os
 import sqlite3
 from dataclasses import dataclass, field
@@ -19,6 +18,7 @@ import pandas as pd
 
 import exposhift
 from exposhift.errors import ConfigError
+from exposhift.services.appraising import import_appraisals
 from exposhift.services.exporting import load_evidence
 from exposhift.services.importing import ImportReport, import_into
 from exposhift.services.setup import init_database, open_current
@@ -85,16 +85,7 @@ def _remove_sqlite(path: Path) -> None:
 def _import_appraisals(store, path: Path) -> str:
     if not path.is_file():
         return "no appraisals.csv in the seed directory"
-    try:
-        mod = importlib.import_module("exposhift.services.appraising")
-    except ModuleNotFoundError as exc:
-        if exc.name != "exposhift.services.appraising":
-            raise
-        return "appraisals.csv not loaded (the appraisal importer is not installed yet)"
-    func = getattr(mod, "import_appraisals", None)
-    if func is None:
-        return "appraisals.csv not loaded (no import_appraisals service yet)"
-    func(store, path)
+    import_appraisals(store, path)
     return "appraisals loaded from appraisals.csv"
 
 

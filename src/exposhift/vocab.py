@@ -110,7 +110,3 @@ def check_estimate_kind(value: str) -> str:
 
 def design_family(design: str) -> str:
     return DESIGNS[check_design(design)][0]
-
-
-def measure_scale(measure: str) -> str:
-    return MEASURES[check_measure(measure)]

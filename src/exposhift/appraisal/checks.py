@@ -126,15 +126,6 @@ def normalise_check(text: str) -> str:
     return ALIASES.get(code, code)
 
 
-def is_known(code: str) -> bool:
-    return code in CHECKS
-
-
-def checks_with_role(role: str) -> tuple[str, ...]:
-    """All check codes with the given role, in vocabulary order."""
-    return tuple(code for code, (r, _) in CHECKS.items() if r == role)
-
-
 @dataclass(frozen=True)
 class CheckList:
     """Normalised checks: ``codes`` keeps every entry (known and unknown, in order, no

@@ -14,7 +14,6 @@ from exposhift.cli.common import print_json, settings, user_errors
 from exposhift.replication.gaps import GAP_STATES
 from exposhift.replication.report import ReplicationReport
 from exposhift.replication.settings import EXPECTED_CHOICES, load_settings
-from exposhift.replication.status import STATUSES
 from exposhift.services.replicating import GapFilters, GapReport, gap_report, replication_for
 from exposhift.services.setup import open_current
 
@@ -221,7 +220,3 @@ def gaps(
         print_json(rep.to_dict())
     else:
         typer.echo(render_gaps(rep))
-
-
-#: for help texts and docs
-MEANINGS = {"statuses": STATUSES, "states": GAP_STATES}

@@ -36,7 +36,7 @@ import pandas as pd
 from exposhift.errors import ConfigError
 from exposhift.replication.families import grouped_join
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
-from exposhift.replication.status import STATUS_RANK, STATUSES, Analysis, analyse
+from exposhift.replication.status import STATUS_RANK, Analysis, analyse
 
 GAP_STATES: dict[str, str] = {
     "no-study": "no natural-experiment study of this exposure and outcome group",
@@ -328,9 +328,3 @@ def _needs(reg: pd.DataFrame) -> list[str]:
                          "analysis")
         out.append("; ".join(parts))
     return out
-
-
-def describe_states() -> dict[str, str]:
-    """State and status names with their meaning (for help texts and the docs)."""
-    return {**{f"state {k}": v for k, v in GAP_STATES.items()},
-            **{f"status {k}": v for k, v in STATUSES.items()}}

@@ -10,10 +10,7 @@ import streamlit as st
 
 from exposhift.errors import ExposhiftError
 from exposhift.services.browse import DEMO_NOTE
-
-#: the caution shown wherever a pooled number or a status could weigh on a decision
-CAUTION = ("Pooled numbers and status labels support, never replace, expert judgement; hazard "
-           "conclusions rest with the committee, local regulation and licensed practice.")
+from exposhift.synthesis.pooling import CAUTION  # the library's caution, as the CLI prints it
 
 STATUS_TONE = {
     "convergent": "success", "replicated-place": "success", "replicated-time": "success",

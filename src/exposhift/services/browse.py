@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from exposhift.services.pooling import STRATA, PoolOutput, pool_evidence, prepare_for_pooling
+from exposhift.services.pooling import STRATA, PoolOutput, pool_evidence
 from exposhift.services.setup import database_info
 from exposhift.store.appraisals import studies_by_key
 from exposhift.store.database import Store
@@ -188,10 +188,7 @@ def pool_view(
                "ci_lower", "ci_upper", "weight", "scale", "sign_flipped"]
     if not out.groups:
         return PoolView(out, pd.DataFrame(columns=columns), options)
-    with store.read() as conn:
-        frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
-    kept, _ = prepare_for_pooling(frame, include_fatal=include_fatal, align_to=align_to)
-    harm = kept.set_index("estimate_uid", drop=False)
+    harm = out.pooled_rows.set_index("estimate_uid", drop=False)
     keys = pooling_keys([STRATA[b] for b in by])
     z = float(stats.norm.isf(alpha / 2))
     parts = []

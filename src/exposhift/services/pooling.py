@@ -15,7 +15,7 @@ Steps (each reported, never silent):
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -45,6 +45,9 @@ class PoolOutput:
     groups: list[dict[str, Any]]
     excluded: list[dict[str, Any]]
     caution: str = CAUTION
+    #: the harmonised, independent estimates that were pooled (one row each; ``y``/``v`` on the
+    #: analysis scale), for plots and tables that show the pooled rows
+    pooled_rows: pd.DataFrame = field(default_factory=pd.DataFrame, repr=False)
 
 
 def _excluded_records(frame: pd.DataFrame, reason: pd.Series | str) -> list[dict[str, Any]]:
@@ -158,7 +161,7 @@ def pool_evidence(
             g["sensitivity"] = sensitivity(rows, method=method, ci=ci, alpha=alpha,
                                            hksj_floor=hksj_floor)
         groups.append(g)
-    return PoolOutput(exposure, outcome, align_to, groups, excluded)
+    return PoolOutput(exposure, outcome, align_to, groups, excluded, pooled_rows=kept)
 
 
 def sensitivity(rows: pd.DataFrame, *, method: str, ci: str, alpha: float,

@@ -98,10 +98,12 @@ def replication(db: str | None, exposure: str, outcome: str, expected: str | Non
 @st.cache_data(ttl=TTL, show_spinner=False)
 def gaps(db: str | None, design_families: tuple[str, ...], regions: tuple[str, ...],
          countries: tuple[str, ...], year_from: int | None, year_to: int | None,
-         min_level: int | None, stale_after: int | None) -> replicating.GapReport:
+         min_level: int | None, stale_after: int | None,
+         studied_only: bool = False) -> replicating.GapReport:
     filters = replicating.GapFilters(
         design_families=design_families, regions=regions, countries=countries,
-        year_from=year_from, year_to=year_to, min_level=min_level, stale_after=stale_after)
+        year_from=year_from, year_to=year_to, min_level=min_level, stale_after=stale_after,
+        studied_only=studied_only)
     return replicating.gap_report(_store(db), filters)
 
 

@@ -46,10 +46,9 @@ year_from = years[0] if years[0] > lo else None
 year_to = years[1] if years[1] < hi else None
 with ui.guard():
     report = data.gaps(db, tuple(families), tuple(regions), tuple(countries), year_from,
-                       year_to, min_level, None if stale_after is None else int(stale_after))
+                       year_to, min_level, None if stale_after is None else int(stale_after),
+                       studied_only)
 cells = report.cells
-if studied_only:
-    cells = cells[cells["studies"] > 0]
 
 # 2. the map ---------------------------------------------------------------------------------
 counts = cells["state"].value_counts()

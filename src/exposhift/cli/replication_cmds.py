@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -206,7 +205,7 @@ def gaps(
     filters = GapFilters(
         design_families=_split(design_family), regions=_split(region),
         countries=_split(country), year_from=year_from, year_to=year_to, min_level=min_level,
-        stale_after=stale_after,
+        stale_after=stale_after, studied_only=studied_only,
     )
     s = settings(ctx)
     store = open_current(s.db, s.user)
@@ -214,8 +213,6 @@ def gaps(
         rep = gap_report(store, filters, settings=load_settings(settings_file))
     finally:
         store.dispose()
-    if studied_only:
-        rep = replace(rep, cells=rep.cells[rep.cells["state"] != "no-study"])
     if as_json:
         print_json(rep.to_dict())
     else:

@@ -75,6 +75,7 @@ class GapFilters:
     year_to: int | None = None
     min_level: int | None = None
     stale_after: int | None = None
+    studied_only: bool = False  # leave out the cells no study has touched
 
     def to_dict(self) -> dict[str, Any]:
         return {k: (list(v) if isinstance(v, tuple) else v) for k, v in self.__dict__.items()}
@@ -135,6 +136,8 @@ def gap_report(
     units, excluded = independent_units(frame)
     cells = gap_map(units, settings=s, stale_after=f.stale_after, all_estimates=frame,
                     registry=registry)
+    if f.studied_only:
+        cells = cells[cells["studies"] > 0].reset_index(drop=True)
     opps = opportunities(registry, units, countries=countries, year_from=f.year_from,
                          year_to=f.year_to)
     return GapReport(cells=cells, opportunities=opps, filters=f, settings=s, excluded=excluded)

@@ -10,6 +10,7 @@ from typing import Any
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.tables import render
 from exposhift.replication.gaps import GAP_STATES
 from exposhift.replication.report import ReplicationReport
 from exposhift.replication.settings import EXPECTED_CHOICES, load_settings
@@ -37,13 +38,8 @@ def _fmt(value: Any, digits: int = 3) -> str:
 
 
 def table(rows: Sequence[Sequence[Any]], headers: Sequence[str]) -> str:
-    """A plain text table with left-aligned columns."""
-    cells = [[_fmt(c) for c in r] for r in rows]
-    widths = [max([len(h), *(len(r[i]) for r in cells)]) for i, h in enumerate(headers)]
-    line = lambda r: "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True))  # noqa: E731
-    out = [line(headers), line(["-" * w for w in widths])]
-    out += [line(r) for r in cells]
-    return "\n".join(x.rstrip() for x in out)
+    """A plain text table with left-aligned columns (values formatted with ``_fmt``)."""
+    return render([[_fmt(c) for c in r] for r in rows], list(headers), indent="")
 
 
 def _ci(lo: Any, hi: Any) -> str:

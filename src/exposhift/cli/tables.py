@@ -13,12 +13,13 @@ def _num(x: float, digits: int = 2) -> str:
     return f"{x:.{digits}f}" if abs(x) < 100 else f"{x:.0f}"
 
 
-def render(rows: list[list[str]], header: list[str]) -> str:
+def render(rows: list[list[str]], header: list[str], indent: str = "  ") -> str:
+    """A plain text table with left-aligned columns, each line indented."""
     widths = [max(len(str(r[i])) for r in [header, *rows]) for i in range(len(header))]
     line = lambda r: "  ".join(str(c).ljust(w) for c, w in zip(r, widths, strict=True))  # noqa: E731
     out = [line(header), line(["-" * w for w in widths])]
     out += [line(r) for r in rows]
-    return "\n".join("  " + x.rstrip() for x in out)
+    return "\n".join(indent + x.rstrip() for x in out)
 
 
 def summary_table(summary: pd.DataFrame) -> str:

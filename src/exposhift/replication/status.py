@@ -46,6 +46,7 @@ from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.replication.spatial import spatial_summary
 from exposhift.replication.temporal import temporal_summary
 from exposhift.replication.triangulation import family_pools, triangulation_summary
+from exposhift.synthesis.pooling import CAUTION as POOLING_CAUTION
 
 #: statuses from strongest to weakest (the order used when a gap-map cell shows the best one)
 STATUSES: dict[str, str] = {
@@ -59,11 +60,8 @@ STATUSES: dict[str, str] = {
 }
 STATUS_RANK: dict[str, int] = {s: i for i, s in enumerate(STATUSES)}
 
-CAUTION = (
-    "Status labels and pooled numbers support, never replace, expert judgement; hazard "
-    "conclusions rest with the committee, local regulation and licensed practice. Natural "
-    "experiments remain open to biases that no appraisal fully captures."
-)
+#: the caution shown beside statuses: the same text as beside pooled numbers
+CAUTION = POOLING_CAUTION
 
 
 @dataclass(frozen=True)

@@ -151,7 +151,7 @@ def test_hksj_untruncated_can_be_narrower_than_wald_and_floor_prevents_it():
     y = np.array([0.10, 0.11, 0.09, 0.10, 0.105, 0.095])
     v = np.full(6, 0.04)
     wald = pool(y, v, method="dl", ci="wald")
-    raw = pool(y, v, method="dl", ci="hksj")
+    raw = pool(y, v, method="dl", ci="hksj", hksj_floor=False)
     floored = pool(y, v, method="dl", ci="hksj", hksj_floor=True)
     width = lambda r: r.ci_upper - r.ci_lower  # noqa: E731
     assert raw.hksj_scale < 1
@@ -163,12 +163,33 @@ def test_hksj_untruncated_can_be_narrower_than_wald_and_floor_prevents_it():
 
 
 def test_prediction_interval_formula():
-    # Higgins, Thompson & Spiegelhalter 2009: mu +/- t(k-2) sqrt(tau2 + SE^2), Wald SE of mu
-    r = pool(KACKER_Y, KACKER_V, method="dl", ci="hksj")
+    # Higgins, Thompson & Spiegelhalter 2009: mu +/- t(k-2) sqrt(tau2 + SE^2), with the SE of
+    # the chosen CI method (Partlett & Riley 2017, Stat Med 36:301): Wald SE for a Wald
+    # interval, the (floored) HKSJ SE for an HKSJ interval
     wald = pool(KACKER_Y, KACKER_V, method="dl", ci="wald")
-    half = stats.t.isf(0.025, 7) * np.sqrt(r.tau2 + wald.se**2)
+    half = stats.t.isf(0.025, 7) * np.sqrt(wald.tau2 + wald.se**2)
+    assert wald.pred_int() == pytest.approx((wald.estimate - half, wald.estimate + half),
+                                            rel=1e-12)
+    r = pool(KACKER_Y, KACKER_V, method="dl", ci="hksj")
+    half = stats.t.isf(0.025, 7) * np.sqrt(r.tau2 + r.se**2)
+    assert r.se >= wald.se
     assert r.pred_int() == pytest.approx((r.estimate - half, r.estimate + half), rel=1e-12)
     assert r.pi_note == ""
+
+
+def test_two_equal_estimates_do_not_collapse_the_interval():
+    # two equal estimates, z = 0.5 each: untruncated HKSJ gives a zero-width interval and
+    # p = 0 (q = 0); the default floor (Roever, Knapp & Friede 2015) gives the HKSJ formula with
+    # q = 1: SE = sqrt(1 / sum w), t with 1 df -- computed here from the formula
+    y, v = np.array([0.5, 0.5]), np.array([1.0, 1.0])
+    raw = pool(y, v, method="reml", ci="hksj", hksj_floor=False)
+    assert raw.ci_upper - raw.ci_lower == pytest.approx(0.0, abs=1e-12)
+    r = pool(y, v, method="reml", ci="hksj")
+    se = np.sqrt(1 / 2.0)
+    assert r.se == pytest.approx(se, rel=1e-12)
+    assert r.ci_upper - r.ci_lower == pytest.approx(2 * stats.t.isf(0.025, 1) * se, rel=1e-12)
+    assert r.pvalue == pytest.approx(2 * stats.t.sf(0.5 / se, 1), rel=1e-12)
+    assert r.pvalue > 0.4
 
 
 @pytest.mark.parametrize("k", [1, 2])

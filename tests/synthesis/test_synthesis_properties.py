@@ -104,3 +104,24 @@ def test_pool_groups_equals_pool_on_generated_groups(gs, method, ci):
         if r.k >= 2:
             assert row["tau2"] == pytest.approx(r.tau2, rel=1e-7, abs=1e-10 * scale)
         assert row["notes"] == "; ".join(r.notes)
+
+
+@settings(max_examples=200, deadline=None)
+@given(
+    data=st.lists(st.tuples(st.floats(-3, 3, allow_nan=False), st.floats(1e-3, 2.0)),
+                  min_size=3, max_size=12),
+    method=st.sampled_from(["dl", "pm", "reml"]),
+    floor=st.booleans(),
+)
+def test_prediction_interval_never_narrower_than_ci(data, method, floor):
+    # Partlett & Riley 2017 (Stat Med 36:301): with the Wald SE in the PI and the HKSJ SE in the
+    # CI the PI can be the narrower one; with the chosen method's SE in both it never is
+    y = np.array([d[0] for d in data])
+    v = np.array([d[1] for d in data])
+    r = pool(y, v, method=method, ci="hksj", hksj_floor=floor)
+    assert r.pi_lower <= r.ci_lower + 1e-12
+    assert r.pi_upper >= r.ci_upper - 1e-12
+    g = pool_groups(pd.DataFrame({"g": 0, "y": y, "v": v}), ["g"], method=method, ci="hksj",
+                    hksj_floor=floor)
+    assert g["pi_lower"].iloc[0] <= g["ci_lower"].iloc[0] + 1e-12
+    assert g["pi_upper"].iloc[0] >= g["ci_upper"].iloc[0] - 1e-12

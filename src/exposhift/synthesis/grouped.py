@@ -230,7 +230,7 @@ def _tau2_reml(seg: Segments, start: np.ndarray) -> tuple[np.ndarray, np.ndarray
 
 def pool_segments(
     y: np.ndarray, v: np.ndarray, starts: np.ndarray, method: str = "reml", ci: str = "hksj",
-    alpha: float = 0.05, hksj_floor: bool = False,
+    alpha: float = 0.05, hksj_floor: bool = True,
 ) -> dict[str, np.ndarray]:
     """Pool contiguous groups of already-validated, group-sorted ``y``/``v``.
 
@@ -302,12 +302,14 @@ def pool_segments(
         q_p = special.chdtrc(np.maximum(df_q, 1.0), q)
     nan = np.full(G, np.nan)
 
-    # prediction interval
+    # prediction interval: the SE of the chosen CI method (Partlett & Riley 2017), never
+    # narrower than the confidence interval
+    ci_lower, ci_upper = mu - crit * se, mu + crit * se
     many = k >= 3
     tq = _t_isf(alpha / 2, np.maximum(k - 2, 1))
-    half = tq * np.sqrt(t0 + se_wald**2)
-    pi_lower = np.where(many, mu - half, np.nan)
-    pi_upper = np.where(many, mu + half, np.nan)
+    half = tq * np.sqrt(t0 + se**2)
+    pi_lower = np.where(many, np.minimum(mu - half, ci_lower), np.nan)
+    pi_upper = np.where(many, np.maximum(mu + half, ci_upper), np.nan)
     pi_note = np.where(many, "", PI_NOTE_FEW).astype(object)
 
     codes, texts = note_codes(k, method, ci, tau2 == 0.0, conv, narrower, floored)
@@ -318,8 +320,8 @@ def pool_segments(
         "ci_method": np.where(single, "wald", ci).astype(object),
         "estimate": mu,
         "se": se,
-        "ci_lower": mu - crit * se,
-        "ci_upper": mu + crit * se,
+        "ci_lower": ci_lower,
+        "ci_upper": ci_upper,
         "z_or_t": stat,
         "pvalue": pvalue,
         "df": df,
@@ -368,7 +370,7 @@ def _validate(frame: pd.DataFrame, by: list[str], y: str, v: str) -> tuple[np.nd
 
 def pool_groups(
     frame: pd.DataFrame, by: Sequence[str], y: str = "y", v: str = "v", method: str = "reml",
-    ci: str = "hksj", alpha: float = 0.05, hksj_floor: bool = False,
+    ci: str = "hksj", alpha: float = 0.05, hksj_floor: bool = True,
 ) -> pd.DataFrame:
     """Pool every group of ``frame`` defined by the columns ``by`` at once.
 

@@ -4,7 +4,12 @@
   outcome data source × outcome × measure group × estimate kind — so that several papers (or
   several analyses) of the same event count once, and reports every estimate left out and why.
   Estimates sharing data are not independent and would be over-weighted if pooled together
-  (Cochrane Handbook ch. 23.3; Borenstein et al. 2009, ch. 25).
+  (Cochrane Handbook ch. 23.3; Borenstein et al. 2009, ch. 25). Population and data source
+  are compared as normalised text (:func:`exposhift.synthesis.events.normalise`: case, plural,
+  punctuation and whitespace do not count), and studies a reviewer links with
+  ``same_population_as`` count as one population within each event. The units left may still
+  share an event: :func:`exposhift.synthesis.events.aggregate_within_event` makes one number
+  per event before pooling.
 * :func:`pooling_keys`, :func:`check_poolable` and :func:`split_strata` keep incompatible
   quantities apart: different measure groups (scales), ITS level vs slope changes (Korevaar et
   al. 2023, Res Synth Methods), policy effects vs per-unit exposure effects, and per-unit
@@ -19,6 +24,7 @@ import numpy as np
 import pandas as pd
 
 from exposhift.errors import AnalysisError
+from exposhift.synthesis.events import overlap_groups, text_key
 
 #: one estimate is kept per combination of these columns (blank population/data_source = one
 #: value)
@@ -72,6 +78,14 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
 
     keys = {c: (_clean_text(frame[c]) if c in frame.columns else np.full(n, "", dtype=object))
             for c in UNIT_KEYS}
+    raw_text = {c: keys[c] for c in OPTIONAL_UNIT_KEYS}
+    for c in OPTIONAL_UNIT_KEYS:
+        if c in frame.columns:
+            keys[c] = text_key(frame[c])
+    overlap = overlap_groups(frame)
+    linked = overlap != ""
+    for c in OPTIONAL_UNIT_KEYS:
+        keys[c] = np.where(linked, overlap, keys[c])
     unit = pd.DataFrame(keys).groupby(list(UNIT_KEYS), sort=False).ngroup().to_numpy()
 
     primary = _flag(frame["primary"]) if "primary" in frame.columns else np.zeros(n, bool)
@@ -125,14 +139,26 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
             why = "it comes first by identifier (tie on every other criterion)"
         kept_names.append(uid[j] if uid[j] else str(frame.index[j]))
         reasons.append(
-            f"same event {event[i]}, population, data source and outcome as {name(j)}, "
-            f"kept because {why}"
+            f"same event {event[i]}, population, data source and outcome as {name(j)}"
+            f"{_how_same(i, j, raw_text, overlap)}, kept because {why}"
         )
     kept = frame.iloc[np.flatnonzero(is_kept)].copy()
     excluded = frame.iloc[ex_pos].copy()
     excluded["kept_estimate"] = np.array(kept_names, dtype=object)
     excluded["reason"] = np.array(reasons, dtype=object)
     return kept, excluded
+
+
+def _how_same(i: int, j: int, raw: dict[str, np.ndarray], overlap: np.ndarray) -> str:
+    """Why two units with different wording count as one (empty when the text is identical)."""
+    if overlap[i] and overlap[i] == overlap[j]:
+        return f" (populations overlap: {overlap[i]}, marked with same_population_as)"
+    differ = [f"{c} '{raw[c][i]}' and '{raw[c][j]}'" for c in sorted(raw)
+              if raw[c][i] != raw[c][j]]
+    if differ:
+        return (f" ({'; '.join(differ)} read as the same after ignoring case, plural, "
+                "punctuation and spacing)")
+    return ""
 
 
 def pooling_keys(by: Sequence[str] = ()) -> list[str]:

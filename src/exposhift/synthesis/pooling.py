@@ -22,12 +22,13 @@ Confidence interval for μ:
 
 * ``wald``  μ ± z₁₋α/₂ · SE, SE = 1/√Σwᵢ*.
 * ``hksj``  Hartung & Knapp (2001, Stat Med 20:3875) / Sidik & Jonkman (2002, Stat Med 21:3153):
-            SE² = q/Σwᵢ*, q = Σwᵢ*(yᵢ − μ)²/(k − 1), and t with k − 1 df. By default q is *not*
-            truncated, as in IntHout, Ioannidis & Borm (2014, BMC Med Res Methodol 14:25); it can
-            then give an interval narrower than the Wald one when the estimates agree more than
-            their variances predict, and a note says so. ``hksj_floor=True`` uses max(q, 1)
-            (Röver, Knapp & Friede 2015, BMC Med Res Methodol 15:99), which never falls below
-            the Wald width (the SE is at least the Wald SE and t > z).
+            SE² = q/Σwᵢ*, q = Σwᵢ*(yᵢ − μ)²/(k − 1), and t with k − 1 df. By default q is
+            floored at 1, SE² = max(q, 1)/Σwᵢ* (Röver, Knapp & Friede 2015, BMC Med Res Methodol
+            15:99): the untruncated form (IntHout, Ioannidis & Borm 2014, BMC Med Res Methodol
+            14:25) collapses to a zero-width interval when the estimates coincide (two equal
+            rounded estimates give p = 0) and undercovers at small k. The floored interval is
+            never narrower than the Wald one (SE ≥ Wald SE and t > z). ``hksj_floor=False``
+            gives the untruncated form, with a note when it is narrower than the Wald interval.
 
 Heterogeneity: Cochran's Q with its χ²(k − 1) p value; ``i2`` is always the Q-based
 I² = max(0, (Q − (k − 1))/Q) and ``h2`` = Q/(k − 1) (Higgins & Thompson 2002, Stat Med
@@ -35,8 +36,12 @@ I² = max(0, (Q − (k − 1))/Q) and ``h2`` = Q/(k − 1) (Higgins & Thompson 2
 the method's τ² with the "typical" within-study variance s² = (k − 1)Σw/((Σw)² − Σw²) (same
 paper, eq. 9); the two definitions agree only for DL.
 
-Prediction interval: μ ± t(k − 2) · √(τ² + SE²) with the Wald SE of μ (Higgins, Thompson &
-Spiegelhalter 2009, JRSS A 172:137), only for k ≥ 3.
+Prediction interval: μ ± t(k − 2) · √(τ² + SE²) (Higgins, Thompson & Spiegelhalter 2009, JRSS
+A 172:137), only for k ≥ 3, with the SE of the chosen CI method (the HKSJ SE for ``hksj``;
+Partlett & Riley 2017, Stat Med 36:301, show that the Wald SE there gives prediction intervals
+narrower than the HKSJ confidence interval). With the same SE and t(k − 2) ≥ t(k − 1) the
+prediction interval always contains the confidence interval; the code also clamps it so, as a
+guard against rounding.
 
 Pooled numbers support, never replace, expert judgement; see the cautions in the docs.
 """
@@ -406,7 +411,7 @@ class PoolResult:
 
 def pool(
     y: Any, v: Any, method: str = "reml", ci: str = "hksj", alpha: float = 0.05,
-    hksj_floor: bool = False,
+    hksj_floor: bool = True,
 ) -> PoolResult:
     """Pool estimates ``y`` with within-study variances ``v`` (analysis scale).
 
@@ -476,10 +481,11 @@ def pool(
     w_fe = 1.0 / v
     s2 = s2_typical(w_fe)
     i2 = (q - q_df) / q if q > q_df else 0.0
+    ci_lower, ci_upper = mu - crit * se, mu + crit * se
     if k >= 3:
         tq = float(stats.t.isf(alpha / 2, k - 2))
-        half = tq * np.sqrt(tau2 + se_wald**2)
-        pi_lower, pi_upper, pi_note = mu - half, mu + half, ""
+        half = tq * np.sqrt(tau2 + se**2)
+        pi_lower, pi_upper, pi_note = min(mu - half, ci_lower), max(mu + half, ci_upper), ""
     else:
         pi_lower, pi_upper, pi_note = nan, nan, PI_NOTE_FEW
 
@@ -487,7 +493,7 @@ def pool(
                           np.array([converged]), np.array([narrower]), np.array([floored]))[0]
     return PoolResult(
         k=k, method=method, ci_method=ci, alpha=alpha, estimate=mu, se=se,
-        ci_lower=mu - crit * se, ci_upper=mu + crit * se, z_or_t=stat, pvalue=pvalue, df=df,
+        ci_lower=ci_lower, ci_upper=ci_upper, z_or_t=stat, pvalue=pvalue, df=df,
         tau2=float(tau2), tau=float(np.sqrt(tau2)), q=q, q_df=q_df,
         q_pvalue=float(stats.chi2.sf(q, q_df)), i2=float(i2),
         i2_tau2=float(tau2 / (tau2 + s2)), h2=float(q / q_df), h2_tau2=float((tau2 + s2) / s2),

@@ -124,7 +124,7 @@ def _labels(labels: Any, k: int) -> np.ndarray:
 
 def leave_one_out(
     y: Any, v: Any, labels: Any = None, method: str = "reml", ci: str = "hksj",
-    alpha: float = 0.05, hksj_floor: bool = False,
+    alpha: float = 0.05, hksj_floor: bool = True,
 ) -> pd.DataFrame:
     """Pool the estimates k times, each time without one of them.
 
@@ -149,7 +149,7 @@ def leave_one_out(
 
 def cumulative(
     y: Any, v: Any, order: Any, labels: Any = None, method: str = "reml", ci: str = "hksj",
-    alpha: float = 0.05, hksj_floor: bool = False,
+    alpha: float = 0.05, hksj_floor: bool = True,
 ) -> pd.DataFrame:
     """Cumulative meta-analysis: add the estimates one at a time in ``order`` (e.g. year).
 
@@ -192,7 +192,7 @@ class SubgroupResult:
 
 def subgroup_test(
     y: Any, v: Any, groups: Any, method: str = "reml", ci: str = "hksj", alpha: float = 0.05,
-    hksj_floor: bool = False,
+    hksj_floor: bool = True,
 ) -> SubgroupResult:
     """Pool each subgroup (its own τ²) and test whether the subgroup means differ.
 

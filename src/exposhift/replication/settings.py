@@ -16,8 +16,11 @@ Which thresholds are published and which are ours:
   practice, no published threshold).
 - ``alpha = 0.05``, ``alpha_between = 0.05``: conventional significance levels (common
   practice).
-- ``min_years_apart = 1``: two events in one place are separate periods when their change years
-  differ by at least this (our choice; year resolution of change dates).
+- ``min_months_apart = 12``: two events in one place are separate periods when their change
+  dates are at least this many months apart, measured conservatively from the full dates (a
+  date known to the year only may lie anywhere in that year; our choice).
+- ``within_event_rho = 0.8``: the within-event correlation used to combine several estimates of
+  one event (:mod:`exposhift.synthesis.events`; common practice, Hedges, Tipton & Johnson 2010).
 """
 
 from __future__ import annotations
@@ -51,8 +54,9 @@ class ReplicationSettings:
     min_places: int = 2
     #: events in separate periods of one place needed for replicated-time
     min_periods: int = 2
-    #: change years at least this far apart make two events separate periods
-    min_years_apart: int = 1
+    #: change dates at least this many months apart (conservatively, from their precision)
+    #: make two events in one place separate periods
+    min_months_apart: int = 12
     #: design families agreeing in direction needed for convergent (triangulation)
     min_design_families: int = 2
     #: design families that support but never triangulate (no comparison group)
@@ -61,11 +65,12 @@ class ReplicationSettings:
     ready_min_events: int = 3
     #: independent events reporting the size of the change before a dose-response regression
     dose_min_events: int = 5
-    #: "pooled": the sign of Stouffer's combined z of the good events; "raises"/"lowers": an
-    #: exposure increase is expected to raise/lower the outcome
+    #: direction for the exposure x outcome pairs the committee has not pre-specified one for
+    #: (``exposhift direction set``): "pooled" infers it from the data (sign of Stouffer's
+    #: combined z of the good events) and marks the status provisional; "raises"/"lowers" fix it
     expected_direction: str = "pooled"
-    #: True: an event is concordant only if its effect is also significant at ``alpha``
-    concordance_needs_significance: bool = False
+    #: within-event correlation when several estimates of one event are combined
+    within_event_rho: float = 0.8
     #: pooling within design families (exposhift.synthesis)
     pool_method: str = "reml"
     pool_ci: str = "hksj"
@@ -79,9 +84,14 @@ class ReplicationSettings:
             value = getattr(self, name)
             if not isinstance(value, int) or isinstance(value, bool) or value < 0:
                 problems.append(f"{name} must be a whole number >= 0 (got {value!r})")
-        if not isinstance(self.min_years_apart, int) or self.min_years_apart < 0:
-            problems.append(f"min_years_apart must be a whole number >= 0 "
-                            f"(got {self.min_years_apart!r})")
+        if (not isinstance(self.min_months_apart, int) or isinstance(self.min_months_apart, bool)
+                or self.min_months_apart < 0):
+            problems.append(f"min_months_apart must be a whole number >= 0 "
+                            f"(got {self.min_months_apart!r})")
+        if (not isinstance(self.within_event_rho, float | int)
+                or not 0.0 <= float(self.within_event_rho) <= 1.0):
+            problems.append(f"within_event_rho must be between 0 and 1 "
+                            f"(got {self.within_event_rho!r})")
         for name in ("alpha", "alpha_between"):
             value = getattr(self, name)
             if not isinstance(value, float | int) or not 0.0 < float(value) < 1.0:
@@ -109,6 +119,14 @@ def settings_from_mapping(data: dict[str, Any], source: str = "settings") -> Rep
     known = {f.name for f in fields(ReplicationSettings)} - {"regions"}
     thresholds = dict(data.get("thresholds", {}))
     unknown = sorted(set(thresholds) - known)
+    renamed = {"min_years_apart": "min_months_apart (months, e.g. 12)",
+               "concordance_needs_significance": "nothing: an event now always counts only "
+               "when significant, or when the pooled estimate of the good events excludes no "
+               "effect (docs/replication.md)"}
+    old = [k for k in unknown if k in renamed]
+    if old:
+        raise ConfigError(f"{source}: setting(s) {', '.join(old)} replaced; use "
+                          + "; ".join(f"{k} -> {renamed[k]}" for k in old))
     if unknown:
         raise ConfigError(
             f"{source}: unknown setting(s) {', '.join(unknown)} in [thresholds]; "

@@ -19,6 +19,8 @@ Epidemiol 45:1866). Rules:
   to Meta-Analysis, ch. 19; Cochrane Handbook §10.11.3.1).
 - **Families disagree** when their pooled estimates point in opposite directions and
   Q_b's p < ``alpha_between``.
+- Only families with at least 2 events or a significant pooled estimate are compared (a
+  single imprecise estimate says nothing about its family).
 - **Triangulated** when at least ``min_design_families`` families have a pooled estimate in the
   expected direction and the families do not disagree.
 """
@@ -92,7 +94,9 @@ def triangulation_summary(
     by = list(by)
     cols = [*by, "n_families", "families_concordant", "q_between", "q_between_df",
             "q_between_p", "families_disagree", "triangulated", "families_list"]
-    fam = pools[pools["main"] & ~pools["supporting"]]
+    # a family counts with at least 2 events, or one significant estimate
+    counted = (pools["k"] >= 2) | (pools["pvalue"] < settings.alpha)
+    fam = pools[pools["main"] & ~pools["supporting"] & counted]
     if fam.empty:
         return pd.DataFrame(columns=cols)
     fam = fam.merge(expected[[*by, "expected"]], on=by, how="left")

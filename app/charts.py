@@ -42,14 +42,17 @@ ROSE, FELL, FLAT = "#b2182b", "#2166ac", "#7f7f7f"
 MAIN, OTHER = "#1f3b57", "#a6b4c2"
 FONT = dict(family="sans-serif", size=13)
 
-#: gap state -> colour (light for thin evidence, darker green when ready for synthesis)
+#: gap state -> colour: warm and light for thin evidence, red for conflicting evidence, blues
+#: for replication in part, and the one dark green only for replication in every dimension
 STATE_COLOURS: dict[str, str] = {
     "no-study": "#eeeeee",
     "stale": "#c7b9d6",
     "weak-only": "#f4c48a",
     "single-event": "#fbe49a",
-    "unreplicated": "#a9cbe3",
-    "ready-for-synthesis": "#5aa469",
+    "conflicting": "#e08c8c",
+    "not-replicated": "#cfe0ee",
+    "replicated-in-part": "#7fb0d6",
+    "replicated": "#3f8f5a",
 }
 
 

@@ -12,6 +12,7 @@ from exposhift.replication.gaps import (
     CELL_COLUMNS,
     GAP_STATES,
     filter_frame,
+    STATE_OF_STATUS,
     gap_map,
     opportunities,
     region_countries,
@@ -22,7 +23,8 @@ from exposhift.replication.settings import DEFAULTS
 def crafted():
     """Exposures a, b, c over outcome groups g1, g2 (each cell built for one state)."""
     return frame(
-        # a x g1: three good events in three places on one outcome -> ready-for-synthesis;
+        # a x g1: three good significant events in three places on one outcome ->
+        # replicated in place (replicated-in-part: not in time or across designs), ready to pool;
         # a second outcome of the group is weak only
         unit("A1", "FRA", 2000, "decrease", 0.2, 0.05, 2, exposure="a", outcome="o1",
              outcome_group="g1"),
@@ -37,7 +39,7 @@ def crafted():
              outcome_group="g1"),
         unit("B2", "AUT", 2008, "decrease", 0.2, 0.05, 1, exposure="b", outcome="o3",
              outcome_group="g2"),
-        # c x g1: two good events in two places -> unreplicated (replicated-place status)
+        # c x g1: two good significant events in two places -> replicated-in-part
         unit("C1", "NLD", 2009, "decrease", 0.2, 0.05, 2, exposure="c", outcome="o1",
              outcome_group="g1"),
         unit("C2", "BEL", 2011, "decrease", 0.2, 0.05, 2, exposure="c", outcome="o1",
@@ -59,15 +61,20 @@ def cells(**kw):
 def test_every_state_from_a_crafted_base():
     c = cells(stale_after=2005)
     assert list(gap_map(crafted()).columns) == list(CELL_COLUMNS)
-    assert c.loc[("a", "g1"), "state"] == "ready-for-synthesis"
+    assert c.loc[("a", "g1"), "state"] == "replicated-in-part"
+    assert c.loc[("a", "g1"), "ready_for_synthesis"]
     assert c.loc[("a", "g2"), "state"] == "no-study"
     assert c.loc[("b", "g1"), "state"] == "single-event"
     assert c.loc[("b", "g2"), "state"] == "weak-only"
-    assert c.loc[("c", "g1"), "state"] == "unreplicated"
+    assert c.loc[("c", "g1"), "state"] == "replicated-in-part"
+    assert not c.loc[("c", "g1"), "ready_for_synthesis"]
     assert c.loc[("c", "g2"), "state"] == "stale"
-    assert set(c["state"]) == set(GAP_STATES)
+    assert set(c["state"]) <= set(GAP_STATES)
+    # the state explains the status beside it: never a contradiction in words
+    for status, state in zip(c["status"], c["state"], strict=True):
+        assert state == "stale" or state == STATE_OF_STATUS[status]
     # without a stale year the same cell is judged on its events
-    assert cells().loc[("c", "g2"), "state"] == "ready-for-synthesis"
+    assert cells().loc[("c", "g2"), "state"] == "replicated-in-part"
     # a stale year before every change leaves no cell stale
     assert "stale" not in set(cells(stale_after=1990)["state"])
 
@@ -83,17 +90,17 @@ def test_cell_contents():
     assert np.isnan(c.loc[("a", "g2"), "best_level"])
     assert c.loc[("c", "g1"), "status"] == "replicated-place"
     assert c.loc[("b", "g2"), "status"] == "weak-only"
-    assert "rule: ≥ 3" in a["state_rule"]
+    assert "enough to pool (≥ 3)" in a["state_rule"]
 
 
 def test_threshold_settings_change_states():
     c = gap_map(crafted(), settings=DEFAULTS.with_(ready_min_events=4)).set_index(
         ["exposure", "outcome_group"])
-    assert c.loc[("a", "g1"), "state"] == "unreplicated"
-    # the rule names the cell's own count (3 good events), not a fixed two
-    assert c.loc[("a", "g1"), "state_rule"] == (
-        "the best-covered outcome has 3 independent events at level ≥ 2 "
-        "(ready for synthesis from 4)")
+    assert not c.loc[("a", "g1"), "ready_for_synthesis"]
+    # the rule names the cell's own count (3 good events)
+    assert "3 independent event(s) at level ≥ 2 on the best-covered outcome" in \
+        c.loc[("a", "g1"), "state_rule"]
+    assert "enough to pool" not in c.loc[("a", "g1"), "state_rule"]
     c = gap_map(crafted(), settings=DEFAULTS.with_(min_level=3)).set_index(
         ["exposure", "outcome_group"])
     assert c.loc[("a", "g1"), "state"] == "single-event"

@@ -26,11 +26,19 @@ def summary_table(summary: pd.DataFrame) -> str:
     """The per exposure x outcome summary of :func:`exposhift.services.summary.evidence_summary`."""
     rows = []
     for r in summary.to_dict(orient="records"):
-        if r["k"]:
-            kind = "ratio" if r["scale"] == "log" else "difference"
+        kind = "ratio" if r["scale"] == "log" else "difference"
+        if r["k_events"] >= 3:
             effect = (f"{kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} to "
-                      f"{_num(r['ci_upper'])}), k={r['k']}")
+                      f"{_num(r['ci_upper'])}), {r['k_events']} events, "
+                      f"{r['k_estimates']} estimates")
+        elif r["k_events"] == 2:
+            effect = (f"2 events only: {kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} "
+                      f"to {_num(r['ci_upper'])}, t on 1 df)")
+        elif r["k_events"] == 1:
+            effect = (f"1 event: {kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} to "
+                      f"{_num(r['ci_upper'])})")
         else:
-            effect = "nothing poolable"
-        rows.append([r["exposure"], r["outcome"], str(r["events"]), r["status"], effect])
+            effect = "no good event to pool"
+        status = r["status"] + (" (provisional)" if r.get("provisional") else "")
+        rows.append([r["exposure"], r["outcome"], str(r["events"]), status, effect])
     return render(rows, ["exposure", "outcome", "events", "status", "pooled effect"])

@@ -5,19 +5,25 @@ register, all outcome groups in the evidence base): ``events`` (distinct indepen
 ``studies`` (distinct studies), ``best_level`` (highest overall appraisal level), ``status``
 (the strongest replication status among the cell's outcomes, in the order of
 :data:`~exposhift.replication.status.STATUSES`; ``status_outcome`` names the outcome),
-``not_yet`` (for that outcome, which of place / time / designs is not yet replicated) and a
-``state`` (ours), the first that applies of:
+``not_yet`` (for that outcome, which of place / time / designs is not yet replicated),
+``ready_for_synthesis`` (some outcome has ≥ ``ready_min_events`` independent good events) and a
+``state`` (ours) that *explains the status* of the best-covered outcome in the words of the gap
+map, the first that applies of:
 
-1. ``no-study`` — no natural-experiment estimate in the cell;
+1. ``no-study`` — no natural-experiment estimate in the cell (status ``none``);
 2. ``stale`` — only when a year is chosen: no evaluated exposure change after that year (the
    newest change year of an evaluated event is ≤ the year);
-3. ``weak-only`` — no outcome of the cell has an event at level ≥ ``min_level``;
-4. ``single-event`` — the best-covered outcome has exactly one event at level ≥ ``min_level``;
-5. ``ready-for-synthesis`` — some outcome has ≥ ``ready_min_events`` independent events at
-   level ≥ ``min_level``;
-6. ``unreplicated`` — otherwise (two good events on the best-covered outcome: not yet
-   replicated in every dimension, and too few to pool).
+3. ``weak-only`` — no outcome of the cell has an event at level ≥ ``min_level`` (status
+   ``weak-only``);
+4. ``single-event`` — good evidence from one event only (status ``single-event``);
+5. ``conflicting`` — good events or design families disagree, or the effect replicates against
+   the expected direction (status ``discordant`` or ``replicated-against``);
+6. ``not-replicated`` — two or more good events, no replication rule met;
+7. ``replicated-in-part`` — replicated in place or in time, not yet in every dimension
+   (``not_yet`` says which);
+8. ``replicated`` — replicated in place, in time and across design families (``convergent``).
 
+A state can therefore never contradict the status beside it.
 Event counts for states are per outcome (a synthesis pools one outcome). Everything is grouped
 over the whole evidence base at once; there is no loop over cells. Gap-map practice: Snilstveit
 et al. 2016 (J Clin Epidemiol 79:120); systematic evidence maps: Wolffe et al. 2019 (Environ Int
@@ -36,22 +42,31 @@ import pandas as pd
 from exposhift.errors import ConfigError
 from exposhift.replication.families import grouped_join
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
-from exposhift.replication.status import STATUS_RANK, Analysis, analyse
+from exposhift.replication.status import STATUS_RANK, STATUSES, Analysis, analyse
 
 GAP_STATES: dict[str, str] = {
     "no-study": "no natural-experiment study of this exposure and outcome group",
     "stale": "no evaluated exposure change after the chosen year",
     "weak-only": "all evidence weak or not yet appraised",
     "single-event": "good evidence from one event only",
-    "unreplicated": "two or more good events, fewer than ready-for-synthesis needs: not yet "
-                    "replicated in every dimension, too few to pool",
-    "ready-for-synthesis": "enough independent good events to pool",
+    "conflicting": "good events or design families disagree, or the effect replicates "
+                   "against the expected direction",
+    "not-replicated": "two or more good events, but no replication rule is met",
+    "replicated-in-part": "replicated in place or in time, not yet in every dimension",
+    "replicated": "replicated in place, in time and across design families",
+}
+#: the gap state that explains each status
+STATE_OF_STATUS: dict[str, str] = {
+    "none": "no-study", "weak-only": "weak-only", "single-event": "single-event",
+    "discordant": "conflicting", "replicated-against": "conflicting",
+    "not-replicated": "not-replicated", "replicated-place": "replicated-in-part",
+    "replicated-time": "replicated-in-part", "convergent": "replicated",
 }
 UNSPECIFIED_GROUP = "(no outcome group)"
 CELL_COLUMNS: tuple[str, ...] = (
     "exposure", "outcome_group", "events", "studies", "best_level", "status", "state",
-    "status_outcome", "outcomes", "good_events", "newest_year", "not_yet", "unevaluated_events",
-    "state_rule",
+    "status_outcome", "outcomes", "good_events", "newest_year", "not_yet",
+    "ready_for_synthesis", "provisional", "unevaluated_events", "state_rule",
 )
 
 
@@ -140,7 +155,7 @@ def gap_map(
         not_yet = np.where(~best[flag], np.where(not_yet == "", word, not_yet + ", " + word),
                            not_yet)
     best = best.assign(not_yet=np.where(best["n_good"] > 0, not_yet, ""))
-    best = best[[*cell, "status", "outcome", "not_yet"]].rename(
+    best = best[[*cell, "status", "outcome", "not_yet", "provisional"]].rename(
         columns={"outcome": "status_outcome"})
     per_outcome = st.groupby(cell, sort=False, observed=True).agg(
         outcomes=("outcome", "size"), good_events=("n_good", "max"))
@@ -163,6 +178,8 @@ def gap_map(
     out["status"] = out["status"].fillna("none")
     out["status_outcome"] = out["status_outcome"].fillna("")
     out["not_yet"] = out["not_yet"].fillna("")
+    out["provisional"] = out["provisional"].fillna(False).astype(bool)
+    out["ready_for_synthesis"] = out["good_events"] >= settings.ready_min_events
     out["unevaluated_events"] = out["exposure"].map(_unevaluated_counts(registry)).fillna(0) \
         .astype(np.int64)
     out["state"], out["state_rule"] = _states(out, settings, stale_after)
@@ -200,32 +217,29 @@ def _unevaluated_counts(registry: pd.DataFrame | None) -> pd.Series:
 def _states(out: pd.DataFrame, s: ReplicationSettings,
             stale_after: int | None) -> tuple[np.ndarray, list[str]]:
     events = out["events"].to_numpy()
-    good = out["good_events"].to_numpy()
     newest = out["newest_year"].to_numpy(dtype=float)
     stale = (np.zeros(len(out), dtype=bool) if stale_after is None
              else np.nan_to_num(newest, nan=-np.inf) <= stale_after)
-    conditions = [events == 0, (events > 0) & stale, good == 0, good == 1,
-                  good >= s.ready_min_events]
-    names = ["no-study", "stale", "weak-only", "single-event", "ready-for-synthesis"]
-    state = np.select(conditions, names, default="unreplicated").astype(object)
-    lv = f"level ≥ {s.min_level}"
-    texts = {
-        "no-study": "no estimate in this cell",
-        "weak-only": f"no outcome has an event at {lv}",
-        "single-event": f"the best-covered outcome has 1 event at {lv}",
-    }
+    state = out["status"].map(STATE_OF_STATUS).fillna("no-study").to_numpy(dtype=object)
+    state = np.where((events > 0) & stale, "stale", state).astype(object)
     rules = []
-    for st, g, yr in zip(state.tolist(), good.tolist(), newest.tolist(), strict=True):
+    for st, status, outcome, good, ready, yr, not_yet in zip(
+            state.tolist(), out["status"].tolist(), out["status_outcome"].tolist(),
+            out["good_events"].tolist(), out["ready_for_synthesis"].tolist(), newest.tolist(),
+            out["not_yet"].tolist(), strict=True):
         if st == "stale":
             rules.append(f"newest evaluated change in {int(yr)}, not after {stale_after}")
-        elif st == "ready-for-synthesis":
-            rules.append(f"the best-covered outcome has {int(g)} independent events at {lv} "
-                         f"(rule: ≥ {s.ready_min_events})")
-        elif st == "unreplicated":
-            rules.append(f"the best-covered outcome has {int(g)} independent events at {lv} "
-                         f"(ready for synthesis from {s.ready_min_events})")
-        else:
-            rules.append(texts[st])
+            continue
+        if st == "no-study":
+            rules.append("no estimate in this cell")
+            continue
+        text = f"status of {outcome}: {status} ({STATUSES[status]})"
+        if not_yet and st != "replicated":
+            text += f"; not yet replicated in: {not_yet}"
+        text += (f"; {int(good)} independent event(s) at level ≥ {s.min_level} on the "
+                 f"best-covered outcome" + (f", enough to pool (≥ {s.ready_min_events})"
+                                            if ready else ""))
+        rules.append(text)
     return state, rules
 
 

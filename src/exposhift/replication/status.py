@@ -146,8 +146,11 @@ def analyse(
     out["replicated_place"] = out["places_count"] >= settings.min_places
     out["replicated_against"] = ((out["places_rev_count"] >= settings.min_places)
                                  | out["replicated_time_rev"])
-    out["provisional"] = out["expected_source"] == "inferred"
+    out["provisional"] = False  # set below, once the status is known
     out["status"] = _status(out)
+    # a direction inferred from the same data makes every label that uses it provisional
+    out["provisional"] = ((out["expected_source"] == "inferred")
+                          & ~out["status"].isin(["none", "weak-only", "single-event"]))
     out["rule"] = rule_texts(out, settings)
     return Analysis(units=units, events=events, expected=expected, pools=pools, statuses=out)
 

@@ -1,8 +1,10 @@
 """What the evidence says, one row per exposure x outcome: replication status and pooled effect.
 
-The pooled effect is that of the largest poolable stratum (most independent estimates) of each
-exposure x outcome, computed for all of them at once with the grouped pooling engine, after the
-same steps as the ``pool`` action (fatal studies out, harmonised, independent estimates only).
+The pooled effect is the *headline* number of the replication analysis: the event-level pool of
+the good events (overall level >= ``min_level``, one number per event) in the cell's main
+stratum, so the status and the number beside it rest on the same evidence set
+(:mod:`exposhift.replication.headline`). ``events`` counts every independent event,
+``k_events`` / ``k_estimates`` those behind the pooled number.
 """
 
 from __future__ import annotations
@@ -13,51 +15,53 @@ import pandas as pd
 from exposhift.replication import replication_statuses
 from exposhift.replication.families import independent_units
 from exposhift.replication.settings import ReplicationSettings, load_settings
-from exposhift.services.pooling import CAUTION, prepare_for_pooling
+from exposhift.services.pooling import CAUTION
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame
 from exposhift.synthesis.conversions import from_analysis_scale
-from exposhift.synthesis.grouped import pool_groups
-from exposhift.synthesis.harmonise import GROUP_SCALES
-from exposhift.synthesis.independence import pooling_keys
 
-COLUMNS = ["exposure", "outcome", "events", "status", "stratum", "k", "scale", "estimate",
-           "ci_lower", "ci_upper", "tau2", "i2"]
+COLUMNS = ["exposure", "outcome", "events", "status", "provisional", "stratum", "k_events",
+           "k_estimates", "scale", "estimate", "ci_lower", "ci_upper", "tau2", "i2"]
+EVIDENCE_SET = ("good events only (overall appraisal level >= {min_level}), one number per "
+                "event, in the stratum with the most good events")
 
 
-def evidence_summary(store: Store, *, method: str = "reml", ci: str = "hksj",
-                     settings: ReplicationSettings | None = None) -> pd.DataFrame:
-    """One row per exposure x outcome; ``estimate``/``ci_*`` are back-transformed on log scales.
+def evidence_summary(store: Store, *, settings: ReplicationSettings | None = None,
+                     directions: pd.DataFrame | None = None) -> pd.DataFrame:
+    """One row per exposure x outcome; ``estimate``/``ci_*`` on the natural scale.
 
     Statuses use ``settings`` (default: the thresholds in force, as the ``replication`` action
-    does), so both report the same status.
+    does), so both report the same status and the same pooled number.
     """
     s = settings if settings is not None else load_settings()
     with store.read() as conn:
         frame = analysis_frame(conn)
+        if directions is None:
+            directions = _directions(conn)
     if frame.empty:
         return pd.DataFrame(columns=COLUMNS)
     units, _ = independent_units(frame)
-    statuses = replication_statuses(units, settings=s)[
-        ["exposure", "outcome", "n_events", "status"]]
-    kept, _ = prepare_for_pooling(frame)
-    keys = ["exposure", "outcome", *pooling_keys()]
-    kept = kept.copy()
-    kept["increment"] = kept["increment"].fillna("")
-    pooled = pool_groups(kept, by=keys, method=method, ci=ci)
-    pooled["scale"] = pooled["measure_group"].map(GROUP_SCALES)
-    main = (pooled.sort_values(["exposure", "outcome", "k"], ascending=[True, True, False],
-                               kind="stable")
-            .drop_duplicates(["exposure", "outcome"]))
+    st = replication_statuses(units, settings=s, directions=directions)
+    out = st.rename(columns={"n_events": "events", "pooled_k_events": "k_events",
+                             "pooled_k_estimates": "k_estimates", "pooled_stratum": "stratum",
+                             "pooled_scale": "scale", "pooled_tau2": "tau2",
+                             "pooled_i2": "i2"})
+    scale = out["scale"].replace("", "identity").to_numpy()
     for col in ("estimate", "ci_lower", "ci_upper"):
-        main[col] = from_analysis_scale(main["scale"].to_numpy(), main[col].to_numpy(float))
-    main["stratum"] = (main["measure_group"] + "/" + main["estimate_kind"]
-                       + np.where(main["increment"] != "", " " + main["increment"], ""))
-    out = statuses.rename(columns={"n_events": "events"}).merge(
-        main[["exposure", "outcome", "stratum", "k", "scale", "estimate", "ci_lower",
-              "ci_upper", "tau2", "i2"]], on=["exposure", "outcome"], how="left")
-    out["k"] = out["k"].fillna(0).astype(int)
+        vals = out[f"pooled_{col}"].to_numpy(float)
+        out[col] = np.where(np.isfinite(vals), from_analysis_scale(scale, vals), np.nan)
+    out["k_events"] = out["k_events"].fillna(0).astype(int)
+    out["k_estimates"] = out["k_estimates"].fillna(0).astype(int)
     return out[COLUMNS].reset_index(drop=True)
+
+
+def _directions(conn) -> pd.DataFrame | None:
+    """The committee's expected directions, when the evidence base holds them."""
+    try:
+        from exposhift.store.directions import directions_frame
+    except ImportError:  # the record arrives with the direction records
+        return None
+    return directions_frame(conn)
 
 
 SUMMARY_CAUTION = CAUTION

@@ -56,5 +56,6 @@ def downgrade() -> None:
         batch_op.drop_index(batch_op.f('ix_expected_direction_outcome_id'))
         batch_op.drop_index(batch_op.f('ix_expected_direction_exposure_id'))
     op.drop_table('expected_direction')
-    with op.batch_alter_table('study', schema=None) as batch_op:
-        batch_op.drop_column('same_population_as')
+    # plain DROP COLUMN (SQLite >= 3.35, PostgreSQL): batch mode would rebuild the study table,
+    # which SQLite refuses while estimates and appraisals refer to it
+    op.execute('ALTER TABLE study DROP COLUMN same_population_as')

@@ -159,6 +159,8 @@ def demo_cmd(ctx: typer.Context,
                f"{c['countries']} countries, {c['designs']} designs, {c['appraisals']} "
                "appraisals")
     typer.echo(f"  {r.appraisals}")
+    if r.directions:
+        typer.echo(f"  {r.directions} (other exposure x outcome cells have none)")
     if not r.summary.empty:
         typer.echo("\nwhat the evidence says (independent events, replication status, pooled "
                    "effect of an exposure increase in the largest comparable stratum):")

@@ -25,6 +25,11 @@ from exposhift.demo_scenario.model import Est, Event, Study, keyed_rng
 from exposhift.io.columns import COLUMN_NAMES, COLUMNS, EVENT_COLUMNS
 from exposhift.vocab import MEASURES
 
+#: the sheet columns of the demo's evidence.csv: every extraction-sheet column except
+#: ``same_population_as`` (optional; no demo study declares an overlap, and the column is left
+#: out so that the seed file keeps its bytes; an import leaves the field blank)
+SHEET_COLUMNS: tuple[str, ...] = tuple(c for c in COLUMN_NAMES if c != "same_population_as")
+
 FORMS = ("ci", "ci95", "ci90", "se", "p", "ci+se", "ci+p")
 _CI_LEVEL = {"ci": None, "ci95": 0.95, "ci90": 0.9, "se": None, "p": None,
              "ci+se": None, "ci+p": 0.95}
@@ -151,13 +156,13 @@ def _typed(frame: pd.DataFrame) -> pd.DataFrame:
 
 
 def estimates_frame(studies: tuple[Study, ...] = STUDIES) -> pd.DataFrame:
-    """The extraction sheet: one row per estimate, columns exactly ``COLUMN_NAMES``."""
+    """The extraction sheet: one row per estimate, columns exactly ``SHEET_COLUMNS``."""
     rows = []
     for study in studies:
         for est in study.estimates:
             rows.append({**study_fields(study), **event_fields(EVENTS[est.event_id]),
                          **estimate_fields(study, est)})
-    return _typed(pd.DataFrame(rows, columns=list(COLUMN_NAMES)))
+    return _typed(pd.DataFrame(rows, columns=list(SHEET_COLUMNS)))
 
 
 def events_frame() -> pd.DataFrame:

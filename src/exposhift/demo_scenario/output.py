@@ -19,6 +19,7 @@ FILES: dict[str, str] = {
     "estimates": "evidence.csv",
     "events": "registered_events.csv",
     "appraisals": "appraisals.csv",
+    "directions": "directions.csv",
 }
 README = "README.md"
 FLOAT_FORMAT = "%.10g"
@@ -123,7 +124,7 @@ def readme_text(frames: dict[str, pd.DataFrame]) -> str:
 
 
 def write(frames: dict[str, pd.DataFrame], out_dir: Path) -> list[Path]:
-    """Write the three CSV files and the README; return the paths written."""
+    """Write the CSV files and the README; return the paths written."""
     out_dir.mkdir(parents=True, exist_ok=True)
     written = []
     for key, name in FILES.items():

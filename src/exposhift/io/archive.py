@@ -25,7 +25,8 @@ import pandas as pd
 
 from exposhift import vocab
 from exposhift.errors import InputFileError, Problem
-from exposhift.io import rules
+from exposhift.io import directions as expected
+from exposhift.io import overlap, rules
 from exposhift.io.frames import (
     APPRAISAL_FIELDS,
     ESTIMATE_FIELDS,
@@ -121,6 +122,7 @@ def archive_text(frames: EvidenceFrames) -> str:
                    "  ", False)
     lines += _list("estimates", _sorted(frames.estimates, ARCHIVE_FIELDS["estimate"], ("key",)),
                    "  ", False)
+    lines += _direction_lines(frames)
     lines += _list("appraisals", appraisals, "  ", True)
     lines.append("}")
     return "\n".join(lines) + "\n"
@@ -274,8 +276,12 @@ def _appraisals(doc: dict, studies: set[str], log: ProblemLog, file: str):
     return frame, coerce(ratings, RATING_FIELDS)
 
 
-def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrames:
-    """Read and validate a JSON archive written by :func:`archive_text`."""
+def read_archive(path: str | Path, encoding: str | None = None,
+                 study_events: overlap.StudyEvents | None = None) -> EvidenceFrames:
+    """Read and validate a JSON archive written by :func:`archive_text`.
+
+    ``study_events`` looks up evidence-base studies that ``same_population_as`` names.
+    """
     path = Path(path)
     file = path.name
     text = read_text(path, encoding)
@@ -322,6 +328,9 @@ def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrame
     es_log.flag(es["event"].notna().to_numpy() & ~es["event"].isin(ev["key"]).to_numpy(),
                 "event", "no event with this key in the archive's events")
     appraisals, ratings = _appraisals(doc, set(st["key"].dropna()), log, file)
+    overlap.check_same_population(st, st.attrs["log"].rows, es, st.attrs["log"], study_events)
+    directions = _directions_section(doc, log, file, ev["exposure"], es["outcome"], exposures,
+                                     outcomes)
     if log.problems:
         raise InputFileError(sorted_problems(log.problems))
 
@@ -332,7 +341,7 @@ def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrame
     estimates = es[list(ESTIMATE_FIELDS)].reset_index(drop=True)
     return EvidenceFrames(
         exposures=exposures, outcomes=outcomes, events=events, studies=studies,
-        estimates=estimates, appraisals=appraisals, ratings=ratings,
+        estimates=estimates, appraisals=appraisals, ratings=ratings, directions=directions,
         given={e: frozenset(FIELDS[e]) for e in FIELDS},
         rows=len(events) + len(studies) + len(estimates) + len(appraisals),
     )
@@ -345,3 +354,32 @@ def _merge_names(vocab_frame: pd.DataFrame, used: pd.Series, extra: str) -> pd.D
         add = pd.DataFrame({"name": missing, extra: [None] * len(missing)})
         vocab_frame = pd.concat([vocab_frame, add], ignore_index=True)
     return coerce(vocab_frame.reset_index(drop=True), {"name": "text", extra: "text"})
+
+
+# ------------------------------------------------------------- expected directions section
+DIRECTIONS_SECTION = "expected_directions"
+
+
+def _direction_lines(frames: EvidenceFrames) -> list[str]:
+    """The ``expected_directions`` section: sorted by exposure, outcome; no versions."""
+    d = frames.directions
+    records = [] if d is None or d.empty else _sorted(d, list(expected.FIELDS),
+                                                      ("exposure", "outcome"))
+    return _list(DIRECTIONS_SECTION, records, "  ", False)
+
+
+def _directions_section(doc: dict, log: ProblemLog, file: str, used_exposures: pd.Series,
+                        used_outcomes: pd.Series, exposures: pd.DataFrame,
+                        outcomes: pd.DataFrame) -> pd.DataFrame | None:
+    """The archive's directions (None when the section is absent: an older archive)."""
+    if DIRECTIONS_SECTION not in doc:
+        return None
+    records = doc[DIRECTIONS_SECTION]
+    n = len(records) if isinstance(records, list) else 0
+    sec = log.at(f"{file}: {DIRECTIONS_SECTION}", np.arange(1, n + 1))
+    raw = _section(records, dict.fromkeys(expected.FIELDS, "text"), sec, DIRECTIONS_SECTION)
+    names = lambda frame, used: sorted(set(frame["name"].dropna()) | set(used.dropna()))  # noqa: E731
+    return expected.check_records(raw, sec, names(exposures, used_exposures),
+                                  names(outcomes, used_outcomes),
+                                  where="the archive's exposures and outcomes")
+# --------------------------------------------------------- end expected directions section

@@ -34,6 +34,9 @@ COLUMNS: tuple[Column, ...] = (
     Column("population", "study", "text", False,
            "population studied; with data_source, defines independent units"),
     Column("data_source", "study", "text", False, "outcome data source (registry, survey, ...)"),
+    Column("same_population_as", "study", "text", False,
+           "';'-separated study_ids of studies of the same event whose population or outcome "
+           "data overlap this study's (e.g. a region nested in a national register)"),
     Column("assignment_grade", "study", "int", False,
            "reviewer's grade 0-3 of how plausibly as-if random the assignment was"),
     Column("pre_points", "study", "int", False, "time points before the change"),

@@ -24,7 +24,8 @@ EVENT_FIELDS = {
 STUDY_FIELDS = {
     "key": "text", "citation": "text", "year": "int", "doi": "text", "design": "text",
     "comparison": "text", "population": "text", "data_source": "text",
-    "assignment_grade": "int", "pre_points": "int", "post_points": "int", "checks": "text",
+    "same_population_as": "text", "assignment_grade": "int", "pre_points": "int",
+    "post_points": "int", "checks": "text",
     "demo": "bool",
 }
 ESTIMATE_FIELDS = {
@@ -143,6 +144,8 @@ class EvidenceFrames:
     estimates: pd.DataFrame = field(default_factory=lambda: empty("estimate"))
     appraisals: pd.DataFrame = field(default_factory=lambda: empty("appraisal"))
     ratings: pd.DataFrame = field(default_factory=lambda: empty("rating"))
+    #: expected directions (exposhift.io.directions.FIELDS); None: the file has none to import
+    directions: pd.DataFrame | None = None
     given: dict[str, frozenset[str]] = field(default_factory=dict)
     rows: int = 0
     notes: list[str] = field(default_factory=list)

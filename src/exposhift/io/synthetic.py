@@ -52,6 +52,7 @@ def synthetic_sheet(n: int, seed: int = 0, *, prefix: str = "SYN") -> pd.DataFra
         "comparison": "invented comparison regions",
         "population": "synthetic population " + s(study % 50),
         "data_source": "synthetic register",
+        "same_population_as": "",
         "assignment_grade": s(study % 4),
         "pre_points": s(6 + study % 20),
         "post_points": s(6 + study % 15),

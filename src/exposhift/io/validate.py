@@ -21,7 +21,7 @@ import numpy as np
 import pandas as pd
 
 from exposhift import vocab
-from exposhift.io import cells, rules
+from exposhift.io import cells, overlap, rules
 from exposhift.io.columns import BY_NAME, COLUMN_NAMES, EVENT_COLUMNS, STUDY_COLUMNS
 from exposhift.io.frames import EVENT_FIELDS, STUDY_FIELDS, EvidenceFrames, coerce, estimate_keys
 from exposhift.io.problems import ProblemLog, quote
@@ -63,6 +63,8 @@ def parse_cells(raw: pd.DataFrame, log: ProblemLog, *, verbatim: bool = False) -
             out[name], out["date_precision"] = cells.parse_date(s, name, log)
         elif name == "checks":
             out[name] = cells.normalise_checks(cells.clean_text(s, verbatim=verbatim))
+        elif name == overlap.COLUMN:
+            out[name] = overlap.normalise_ids(cells.clean_text(s, verbatim=verbatim))
         elif name in CODES:
             accepted, what, default = CODES[name]
             out[name] = cells.parse_code(s, name, log, accepted, what, default=default)
@@ -163,8 +165,13 @@ def _check_duplicates(keys: pd.Series, log: ProblemLog) -> None:
         "apart with subgroup or time_window"))
 
 
-def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> EvidenceFrames:
-    """Validate a full extraction sheet (one row per estimate)."""
+def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False,
+                   study_events: overlap.StudyEvents | None = None) -> EvidenceFrames:
+    """Validate a full extraction sheet (one row per estimate).
+
+    ``study_events`` looks up studies of the evidence base that ``same_population_as`` names
+    (see :mod:`exposhift.io.overlap`); without it, only the sheet's own studies can be named.
+    """
     log = ProblemLog(sheet.file, sheet.rows)
     notes: list[str] = []
     raw = sheet.frame
@@ -193,9 +200,10 @@ def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> EvidenceFr
     complete = est[["study", "event", "outcome", "measure"]].notna().all(axis=1).to_numpy()
     _check_duplicates(est["key"].where(complete), log)
     outcomes = _outcomes(typed, log)
+    studies = _entity(typed.iloc[study_rows], STUDY_COLUMNS, "study")
+    overlap.check_same_population(studies, log.rows[study_rows], est, log, study_events)
     log.raise_if_any()
 
-    studies = _entity(typed.iloc[study_rows], STUDY_COLUMNS, "study")
     events = _entity(typed.iloc[event_rows], (*EVENT_COLUMNS, "date_precision"), "event")
     if "demo" in typed.columns:  # an event is demo when any of its rows is
         demo_any = typed.groupby("event_id", sort=False)["demo"].any()

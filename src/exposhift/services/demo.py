@@ -26,7 +26,7 @@ from exposhift.services.summary import evidence_summary
 from exposhift.store.database import DEFAULT_SQLITE, resolve_url, sqlite_path
 
 DEMO_DB = Path("demo") / "evidence-demo.db"
-SEED_FILES = ("evidence.csv", "registered_events.csv", "appraisals.csv")
+SEED_FILES = ("evidence.csv", "registered_events.csv", "appraisals.csv", "directions.csv")
 
 
 def seed_dir() -> Path:
@@ -42,6 +42,7 @@ class DemoResult:
     grid: pd.DataFrame  # exposure x outcome: number of studies
     imports: list[ImportReport] = field(default_factory=list)
     appraisals: str = ""  # what happened to appraisals.csv
+    directions: str = ""  # what happened to directions.csv
     summary: pd.DataFrame = field(default_factory=pd.DataFrame)  # what the evidence says
 
 
@@ -87,6 +88,15 @@ def _import_appraisals(store, path: Path) -> str:
         return "no appraisals.csv in the seed directory"
     import_appraisals(store, path)
     return "appraisals loaded from appraisals.csv"
+
+
+def _import_directions(store, path: Path) -> str:
+    if not path.is_file():
+        return "no directions.csv in the seed directory"
+    from exposhift.services.directions import import_directions
+
+    result = import_directions(store, path)
+    return f"{result.added} expected directions loaded from directions.csv"
 
 
 def _overview(store) -> tuple[dict[str, int], pd.DataFrame]:
@@ -138,6 +148,7 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
             if events.is_file():
                 reports.append(import_into(store, events, events_only=True))
             appraisals = _import_appraisals(store, source / SEED_FILES[2])
+            directions = _import_directions(store, source / SEED_FILES[3])
             counts, grid = _overview(store)
             summary = evidence_summary(store)
         finally:
@@ -159,4 +170,5 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
             with contextlib.suppress(FileNotFoundError):
                 Path(f"{tmp}{side}").unlink()
     return DemoResult(path=str(target), seed=str(source), counts=counts, grid=grid,
-                      imports=reports, appraisals=appraisals, summary=summary)
+                      imports=reports, appraisals=appraisals, directions=directions,
+                      summary=summary)

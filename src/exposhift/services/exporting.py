@@ -82,13 +82,21 @@ def load_evidence(conn) -> EvidenceFrames:
     lookup = apps.set_index("id")[["study", "reviewer", "stage"]]
     ratings = ratings.join(lookup, on="appraisal_id")
     frames["rating"] = coerce(ratings, FIELDS["rating"])
-    return EvidenceFrames(**{
+    return EvidenceFrames(directions=_directions(conn), **{
         plural: frames[e][list(FIELDS[e])].reset_index(drop=True)
         for e, plural in (("exposure", "exposures"), ("outcome", "outcomes"),
                           ("event", "events"), ("study", "studies"),
                           ("estimate", "estimates"), ("appraisal", "appraisals"),
                           ("rating", "ratings"))
     })
+
+
+def _directions(conn) -> pd.DataFrame:
+    """The expected directions, in the fields the archive writes (no versions)."""
+    from exposhift.io.directions import FIELDS as DIRECTION_FIELDS
+    from exposhift.store.directions import directions_frame
+
+    return directions_frame(conn)[list(DIRECTION_FIELDS)]
 
 
 @dataclass(frozen=True)

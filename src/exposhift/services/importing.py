@@ -26,6 +26,7 @@ import pandas as pd
 from exposhift.errors import InputFileError, Problem
 from exposhift.io.archive import read_archive
 from exposhift.io.frames import FIELDS, PLURAL, EvidenceFrames, coerce, to_records
+from exposhift.io.overlap import StudyEvents
 from exposhift.io.rules import same_values
 from exposhift.io.sheet import read_sheet
 from exposhift.io.validate import validate_events_sheet, validate_sheet
@@ -33,6 +34,7 @@ from exposhift.services.bulk import BulkWriter
 from exposhift.services.exporting import read_table, with_refs
 from exposhift.services.setup import open_current
 from exposhift.store.database import Store
+from exposhift.store.queries import study_events
 from exposhift.store.records import TABLES
 from exposhift.store.writer import Writer, keyed_ids
 
@@ -98,8 +100,12 @@ class EntityPlan:
 
 # ---------------------------------------------------------------------------------- reading
 def read_input(path: str | Path, *, events_only: bool = False, encoding: str | None = None,
-               ignore_extra: bool = False) -> tuple[str, EvidenceFrames]:
-    """Validate a file completely; returns its kind and its records (or raises every problem)."""
+               ignore_extra: bool = False, study_events: StudyEvents | None = None
+               ) -> tuple[str, EvidenceFrames]:
+    """Validate a file completely; returns its kind and its records (or raises every problem).
+
+    ``study_events`` looks up evidence-base studies named in ``same_population_as``.
+    """
     path = Path(path)
     if path.suffix.lower() == ".json":
         if events_only:
@@ -109,11 +115,21 @@ def read_input(path: str | Path, *, events_only: bool = False, encoding: str | N
         if not path.is_file():
             raise InputFileError([Problem(path.name, None, None,
                                           f"no such file: {path}; check the path")])
-        return "archive", read_archive(path, encoding)
+        return "archive", read_archive(path, encoding, study_events)
     sheet = read_sheet(path, encoding)
     if events_only:
         return "events", validate_events_sheet(sheet, ignore_extra=ignore_extra)
-    return "sheet", validate_sheet(sheet, ignore_extra=ignore_extra)
+    return "sheet", validate_sheet(sheet, ignore_extra=ignore_extra, study_events=study_events)
+
+
+def stored_study_events(store: Store) -> StudyEvents:
+    """A lookup of evidence-base studies and their events, read from ``store`` when called."""
+
+    def lookup(keys: list[str]) -> dict[str, set[str]]:
+        with store.read() as conn:
+            return study_events(conn, keys)
+
+    return lookup
 
 
 # ---------------------------------------------------------------------------------- planning
@@ -339,7 +355,25 @@ def apply_plans(w: BulkWriter, frames: EvidenceFrames, plans: dict[str, EntityPl
         _update(w, entity, plan, ids)
     _insert_ratings(w, frames, plans["appraisal"])
     _apply_ratings(w, rating_plan, plans["appraisal"])
+    _apply_directions(w, frames)
     w.flush()
+
+
+def _apply_directions(w: Writer, frames: EvidenceFrames) -> None:
+    """Write an archive's expected directions (after exposures and outcomes exist)."""
+    if frames.directions is not None:
+        from exposhift.services.directions import write_directions
+
+        write_directions(w, frames.directions)
+
+
+def _direction_counts(conn, frames: EvidenceFrames) -> dict[str, Counts]:
+    """Counts of an archive's expected directions (none when the archive has no section)."""
+    if frames.directions is None:
+        return {}
+    from exposhift.services.directions import plan_directions
+
+    return {"expected directions": Counts(**plan_directions(conn, frames.directions))}
 
 
 # ---------------------------------------------------------------------------------- services
@@ -369,13 +403,16 @@ def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
         with store.read() as conn:
             plans = build_plans(conn, frames)
             rating_plan = _rating_changes(conn, frames, plans["appraisal"])
+            directions = _direction_counts(conn, frames)
     else:
         with store.write() as conn:
             plans = build_plans(conn, frames)
             rating_plan = _rating_changes(conn, frames, plans["appraisal"])
+            directions = _direction_counts(conn, frames)
             apply_plans(BulkWriter(conn, store.user), frames, plans, progress)
     return ImportReport(file=file, url=store.masked_url, kind=kind, rows=frames.rows,
-                        dry_run=dry_run, counts=_counts(plans, kind, rating_plan),
+                        dry_run=dry_run, counts={**_counts(plans, kind, rating_plan),
+                                                 **directions},
                         notes=list(frames.notes))
 
 
@@ -384,7 +421,7 @@ def import_into(store: Store, path: str | Path, *, events_only: bool = False,
                 progress: Progress | None = None) -> ImportReport:
     """Validate ``path`` completely, then import it into ``store`` in one transaction."""
     kind, frames = read_input(path, events_only=events_only, encoding=encoding,
-                              ignore_extra=ignore_extra)
+                              ignore_extra=ignore_extra, study_events=stored_study_events(store))
     return import_frames(store, frames, file=str(path), kind=kind, dry_run=dry_run,
                          progress=progress)
 
@@ -397,9 +434,21 @@ def import_file(path: str | Path, *, db: str | None = None, user: str | None = N
     The file is validated before the database is opened for writing; any problem raises
     :class:`InputFileError` with every problem found, and nothing is written.
     """
-    kind, frames = read_input(path, events_only=events_only, encoding=encoding,
-                              ignore_extra=ignore_extra)
-    store = open_current(db, user)
+    opened: list[Store] = []
+
+    def lookup(keys: list[str]) -> dict[str, set[str]]:  # opens the store only when needed
+        if not opened:
+            opened.append(open_current(db, user))
+        return stored_study_events(opened[0])(keys)
+
+    try:
+        kind, frames = read_input(path, events_only=events_only, encoding=encoding,
+                                  ignore_extra=ignore_extra, study_events=lookup)
+    except BaseException:
+        for s in opened:
+            s.dispose()
+        raise
+    store = opened[0] if opened else open_current(db, user)
     try:
         return import_frames(store, frames, file=str(path), kind=kind, dry_run=dry_run,
                              progress=progress)

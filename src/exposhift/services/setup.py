@@ -16,6 +16,7 @@ COUNTED = {
     "appraisals": "appraisal",
     "exposures": "exposure",
     "outcomes": "outcome",
+    "expected_directions": "expected_direction",
     "audit_entries": "audit_entry",
 }
 

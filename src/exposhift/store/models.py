@@ -89,6 +89,7 @@ class Study(SQLModel, table=True):
     comparison: str | None = None
     population: str | None = None
     data_source: str | None = None
+    same_population_as: str | None = None  # ';'-separated study keys (overlapping populations)
     assignment_grade: int | None = None
     pre_points: int | None = None
     post_points: int | None = None
@@ -190,3 +191,29 @@ NATURAL_KEY = {
     "study": "key",
     "estimate": "key",
 }
+
+
+# ---------------------------------------------------------------------- expected directions
+class ExpectedDirection(SQLModel, table=True):
+    """The committee's pre-specified direction of effect for one exposure x outcome.
+
+    ``direction`` is ``raises`` or ``lowers``: what an exposure *increase* does to the outcome.
+    Written only through :mod:`exposhift.store.directions` (versioned, audited).
+    """
+
+    __tablename__ = "expected_direction"
+    __table_args__ = (UniqueConstraint("exposure_id", "outcome_id"),)
+    id: int | None = Field(default=None, primary_key=True)
+    exposure_id: int = Field(sa_column=_fk("exposure.id"))
+    outcome_id: int = Field(sa_column=_fk("outcome.id"))
+    direction: str
+    rationale: str
+    decided_by: str
+    decided_at: str  # ISO-8601 UTC with a Z suffix
+    version: int = 1
+    created_at: str
+    updated_at: str
+
+
+VERSIONED["expected_direction"] = ExpectedDirection
+# ------------------------------------------------------------------ end expected directions

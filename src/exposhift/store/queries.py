@@ -36,7 +36,8 @@ def analysis_frame(
         select(
             ES.c.key.label("estimate_uid"),
             ST.c.key.label("study_id"), ST.c.citation, ST.c.year, ST.c.doi, ST.c.design,
-            ST.c.comparison, ST.c.population, ST.c.data_source, ST.c.assignment_grade,
+            ST.c.comparison, ST.c.population, ST.c.data_source, ST.c.same_population_as,
+            ST.c.assignment_grade,
             ST.c.pre_points, ST.c.post_points, ST.c.checks, ST.c.demo,
             EV.c.key.label("event_id"), EX.c.name.label("exposure"), EV.c.change_kind,
             EV.c.change_direction, EV.c.change_size, EV.c.change_unit, EV.c.country, EV.c.area,
@@ -58,6 +59,8 @@ def analysis_frame(
         stmt = stmt.where(OU.c.name == outcome)
     rows = conn.execute(stmt).mappings().all()
     frame = pd.DataFrame([dict(r) for r in rows], columns=list(stmt.selected_columns.keys()))
+    frame["same_population_as"] = frame["same_population_as"].astype(object).where(
+        frame["same_population_as"].notna() & (frame["same_population_as"] != ""), None)
     return add_derived(frame, _consensus_levels(conn))
 
 
@@ -119,3 +122,22 @@ def vocabulary_names(conn: Connection, entity: str) -> list[str]:
     """Sorted names of the exposures (``entity="exposure"``) or outcomes (``"outcome"``)."""
     table = {"exposure": EX, "outcome": OU}[entity]
     return sorted(n for (n,) in conn.execute(select(table.c.name)))
+
+
+def study_events(conn: Connection, keys: list[str]) -> dict[str, set[str]]:
+    """For each study key that exists, the keys of the events it has estimates for.
+
+    A study without estimates maps to an empty set; keys not in the evidence base are left out
+    (used to check ``same_population_as``, see :mod:`exposhift.io.overlap`).
+    """
+    out: dict[str, set[str]] = {}
+    for i in range(0, len(keys), 500):
+        part = keys[i:i + 500]
+        for (k,) in conn.execute(select(ST.c.key).where(ST.c.key.in_(part))):
+            out[k] = set()
+        stmt = (select(ST.c.key, EV.c.key).distinct()
+                .join(ES, ES.c.study_id == ST.c.id).join(EV, ES.c.event_id == EV.c.id)
+                .where(ST.c.key.in_(part)))
+        for study, event in conn.execute(stmt):
+            out[study].add(event)
+    return out

@@ -18,6 +18,7 @@ from exposhift.store.models import (
     Appraisal,
     Estimate,
     Event,
+    ExpectedDirection,
     Exposure,
     Outcome,
     Rating,
@@ -33,6 +34,7 @@ TABLES: dict[str, Table] = {
     "estimate": Estimate.__table__,
     "appraisal": Appraisal.__table__,
     "rating": Rating.__table__,
+    "expected_direction": ExpectedDirection.__table__,
 }
 
 _CODE_CHECKS = {

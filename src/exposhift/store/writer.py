@@ -160,10 +160,11 @@ class Writer:
         self._record(table, key, "update", changed_before, after)
         return expected_version + 1
 
-    def delete(self, table: Table, row_id: int, expected_version: int | None = None) -> None:
+    def delete(self, table: Table, row_id: int, expected_version: int | None = None, *,
+               row_key: str | None = None) -> None:
         """Delete one row (if still at ``expected_version`` when the table is versioned)."""
         before = self._fetch(table, row_id)
-        key = self._row_key(table, before)
+        key = row_key or self._row_key(table, before)
         stmt = sa_delete(table).where(table.c.id == row_id)
         if "version" in table.c:
             if expected_version is None:

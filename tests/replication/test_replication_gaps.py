@@ -11,8 +11,8 @@ from exposhift.errors import ConfigError
 from exposhift.replication.gaps import (
     CELL_COLUMNS,
     GAP_STATES,
-    filter_frame,
     STATE_OF_STATUS,
+    filter_frame,
     gap_map,
     opportunities,
     region_countries,

@@ -7,6 +7,7 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+import pandas as pd
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
@@ -46,41 +47,74 @@ def _ci(lo: Any, hi: Any) -> str:
     return f"{_fmt(lo)} to {_fmt(hi)}"
 
 
+def _nat(scale: str, x: Any) -> Any:
+    if x is None or (isinstance(x, float) and math.isnan(x)):
+        return None
+    return math.exp(x) if scale == "log" else x
+
+
+def _scale_of(group: str) -> str:
+    from exposhift.synthesis.harmonise import GROUP_SCALES
+
+    return GROUP_SCALES.get(str(group), "identity")
+
+
 def render_replication(rep: ReplicationReport) -> str:
+    status = rep.status + (" (provisional)" if rep.provisional else "")
+    basis = {"pre-specified": "pre-specified by the committee",
+             "settings": "fixed in the replication settings",
+             "inferred": "inferred from these same events: statuses are provisional"}
     lines = [f"{rep.exposure} x {rep.outcome}", "",
-             f"status    {rep.status}", f"rule      {rep.rule}",
-             f"expected  {rep.expected_words} [{rep.settings.expected_direction}]"]
+             f"status    {status}", f"rule      {rep.rule}",
+             f"expected  {rep.expected_words} "
+             f"[{basis.get(rep.expected_source, rep.expected_source)}]"]
+    h = rep.headline
+    if h.get("k_events"):
+        word = "ratio" if h["scale"] == "log" else "difference"
+        lines.append(f"pooled    {word} {_fmt(h['estimate'])} (95% CI "
+                     f"{_ci(h['ci_lower'], h['ci_upper'])}; prediction "
+                     f"{_ci(h.get('pi_lower'), h.get('pi_upper'))}) from {h['k_events']} "
+                     f"event(s), {h['k_estimates']} estimate(s): {h['evidence_set']} "
+                     f"({h['stratum']}; {h['method']})")
     for f in rep.families:
         lines.append(f"family    {f['family']}: {f['events']} event(s) in "
                      f"{len(f['places'])} place(s), {f['first_year']}-{f['last_year']}")
     lines.append("")
     ev = rep.events
     if len(ev):
-        lines.append("independent events (estimates on the analysis scale, aligned to an "
-                     "exposure increase; * = represents its event)")
+        lines.append("independent estimates (ratio or difference, aligned to an exposure "
+                     "increase; * = sets its event's stratum)")
         rows = [[("*" if r.represents_event else " ") + str(r.event_id), r.country,
-                 r.change_date, r.direction, r.design, r.level, r.estimate,
-                 _ci(r.ci_lower, r.ci_upper), r.concordant]
+                 r.change_date, r.direction, r.design, r.level,
+                 _nat(_scale_of(r.measure_group), r.estimate),
+                 _ci(_nat(_scale_of(r.measure_group), r.ci_lower),
+                     _nat(_scale_of(r.measure_group), r.ci_upper)), r.concordant]
                 for r in ev.itertuples(index=False)]
         ci = f"{100 * (1 - rep.settings.alpha):g}% CI"
         lines.append(table(rows, ["event", "country", "date", "change", "design", "level",
-                                  "estimate", ci, "concordant"]))
+                                  "effect", ci, "expected way"]))
         lines.append("")
     st = rep.sign_test
     if st.get("n"):
         lines.append(f"sign test: {st['k_expected']} of {st['n']} events at level >= "
                      f"{rep.settings.min_level} in the expected direction, exact two-sided "
-                     f"p = {_fmt(st['p'])}")
+                     f"p = {_fmt(st['p'])} (the smallest p possible with {st['n']} events is "
+                     f"{_fmt(st.get('min_attainable_p'))})")
     fam = rep.by_design_family
     if len(fam):
         lines += ["", "pooled by design family (events at level >= "
-                  f"{rep.settings.min_level}; {rep.settings.pool_method}, {rep.settings.pool_ci})"]
-        rows = [[r.design_family, f"{r.measure_group}/{r.estimate_kind}"
-                 + (f" {r.increment}" if r.increment else ""), r.k, r.estimate,
-                 _ci(r.ci_lower, r.ci_upper), r.tau2, r.i2, _ci(r.pi_lower, r.pi_upper),
-                 "main" if r.main else ""]
-                for r in fam.itertuples(index=False)]
-        lines.append(table(rows, ["design family", "stratum", "k", "estimate", "CI", "tau2",
+                  f"{rep.settings.min_level}; {rep.settings.pool_method}, {rep.settings.pool_ci};"
+                  " ratio or difference)"]
+        rows = []
+        for r in fam.itertuples(index=False):
+            sc = _scale_of(r.measure_group)
+            rows.append([r.design_family, f"{r.measure_group}/{r.estimate_kind}"
+                         + (f" {r.increment}" if r.increment else ""), r.k,
+                         _nat(sc, r.estimate), _ci(_nat(sc, r.ci_lower), _nat(sc, r.ci_upper)),
+                         r.tau2, None if r.i2 is None or pd.isna(r.i2) else
+                         f"{100 * r.i2:.0f}%", _ci(_nat(sc, r.pi_lower), _nat(sc, r.pi_upper)),
+                         "main" if r.main else ""])
+        lines.append(table(rows, ["design family", "stratum", "events", "effect", "CI", "tau2",
                                   "I2", "prediction interval", ""]))
     lines += ["", f"triangulation: {rep.triangulation.get('statement', '')}"]
     for seq in rep.temporal:

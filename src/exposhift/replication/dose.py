@@ -25,6 +25,7 @@ import pandas as pd
 from exposhift.errors import AnalysisError
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.replication.triangulation import STRATA
+from exposhift.synthesis.harmonise import GROUP_SCALES
 from exposhift.synthesis.metareg import meta_regression
 
 
@@ -108,13 +109,20 @@ def dose_response(
         return DoseResponse(False, f"not run: {exc}", k=k, unit=unit, events=ids)
     row = res.coefficients.set_index("term")
     b = row.loc["change_size"]
-    scale = str(main.get("measure_group", ""))
-    verb = "raises" if b["estimate"] > 0 else "lowers"
-    interp = (f"each additional {unit or 'unit'} of change {verb} the effect of an exposure "
-              f"increase by {abs(b['estimate']):.3g} on the analysis scale of {scale} "
-              f"({100 * (1 - settings.alpha):g}% CI {b['ci_lower']:.3g} to "
-              f"{b['ci_upper']:.3g}, Knapp–Hartung t on "
-              f"{res.df_resid} df){note}")
+    group = str(main.get("measure_group", ""))
+    level = f"{100 * (1 - settings.alpha):g}% CI"
+    kh = f"Knapp–Hartung t on {res.df_resid} df"
+    if GROUP_SCALES.get(group) == "log":
+        # a slope on the log scale is a ratio of ratios per unit of change
+        f = np.exp([b["estimate"], b["ci_lower"], b["ci_upper"]])
+        interp = (f"each additional {unit or 'unit'} of change multiplies the ratio for an "
+                  f"exposure increase by {f[0]:.3g} ({level} {f[1]:.3g} to {f[2]:.3g}, {kh})"
+                  f"{note}")
+    else:
+        verb = "raises" if b["estimate"] > 0 else "lowers"
+        interp = (f"each additional {unit or 'unit'} of change {verb} the difference for an "
+                  f"exposure increase by {abs(b['estimate']):.3g} ({level} "
+                  f"{b['ci_lower']:.3g} to {b['ci_upper']:.3g}, {kh}){note}")
     return DoseResponse(
         True, f"run on {k} independent events with a reported size of change{note}", k=k,
         unit=unit, events=ids, intercept=float(row.loc["intercept", "estimate"]),

@@ -130,6 +130,7 @@ def gap_map(
     units: pd.DataFrame, *, settings: ReplicationSettings = DEFAULTS,
     stale_after: int | None = None, all_estimates: pd.DataFrame | None = None,
     registry: pd.DataFrame | None = None, analysis: Analysis | None = None,
+    directions: pd.DataFrame | None = None,
 ) -> pd.DataFrame:
     """The gap map: one row per exposure × outcome group (columns :data:`CELL_COLUMNS`).
 
@@ -140,7 +141,8 @@ def gap_map(
     counted per exposure. ``analysis``: a ready :func:`analyse` result of ``units``.
     """
     units = _with_group(units)
-    a = analysis if analysis is not None else analyse(units, ("exposure", "outcome"), settings)
+    a = analysis if analysis is not None else analyse(units, ("exposure", "outcome"), settings,
+                                                      directions)
     st = a.statuses.merge(
         units[["exposure", "outcome", "outcome_group"]].drop_duplicates(["exposure", "outcome"]),
         on=["exposure", "outcome"], how="left",

@@ -58,6 +58,10 @@ class ReplicationReport:
     families: list[dict] = field(default_factory=list)
     settings: ReplicationSettings = DEFAULTS
     caution: str = CAUTION
+    provisional: bool = False
+    expected_source: str = "inferred"
+    headline: dict[str, Any] = field(default_factory=dict)
+    event_level: pd.DataFrame = field(default_factory=pd.DataFrame)
 
     @property
     def expected_words(self) -> str:
@@ -75,8 +79,13 @@ class ReplicationReport:
             "outcome": self.outcome,
             "status": self.status,
             "rule": self.rule,
+            "provisional": self.provisional,
             "expected_direction": {"sign": self.expected, "meaning": self.expected_words,
-                                   "basis": self.settings.expected_direction},
+                                   "basis": self.expected_source,
+                                   "setting": self.settings.expected_direction},
+            "headline": {k: _clean(v) for k, v in self.headline.items()},
+            "event_level": (_records(self.event_level[list(EVENT_LEVEL_FIELDS)])
+                            if len(self.event_level) else []),
             "events": _records(self.events[list(EVENT_FIELDS)]),
             "sign_test_p": _clean(self.sign_test["p"]),
             "sign_test": {k: _clean(v) for k, v in self.sign_test.items()},
@@ -109,14 +118,16 @@ def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
 def replication_report(
     units: pd.DataFrame, exposure: str, outcome: str,
     settings: ReplicationSettings = DEFAULTS, excluded: pd.DataFrame | None = None,
+    directions: pd.DataFrame | None = None,
 ) -> ReplicationReport:
-    """The report for ``exposure`` × ``outcome`` from harmonised independent units."""
+    """The report for ``exposure`` × ``outcome`` from harmonised independent units;
+    ``directions``: the committee's pre-specified expected directions."""
     sub = units[(units["exposure"] == exposure) & (units["outcome"] == outcome)]
     ex = pd.DataFrame() if excluded is None else excluded[
         (excluded["exposure"] == exposure) & (excluded["outcome"] == outcome)]
     if sub.empty:
         return _empty(exposure, outcome, settings, ex)
-    a = analyse(sub, ("exposure", "outcome"), settings)
+    a = analyse(sub, ("exposure", "outcome"), settings, directions)
     row = a.statuses.iloc[0]
     ev = a.events
     u = a.units
@@ -158,6 +169,7 @@ def replication_report(
     }
     sign = {"n": int(row["sign_n"]), "k_expected": int(row["sign_k"]),
             "share": row["sign_share"], "p": row["sign_test_p"],
+            "min_attainable_p": row["sign_min_p"],
             "basis": f"independent events at level ≥ {settings.min_level} with a non-zero "
                      "estimate; exact two-sided binomial test, p = 1/2"}
     return ReplicationReport(
@@ -166,8 +178,49 @@ def replication_report(
         by_design_family=pools, triangulation=tri,
         temporal=place_sequences(ev, settings), reversals=reversals(ev, settings),
         dose_response=dose_response(u, main, settings), excluded=ex, settings=settings,
-        families=family_summary(ev),
+        families=family_summary(ev), provisional=bool(row["provisional"]),
+        expected_source=str(row["expected_source"]), headline=_headline(row, settings),
+        event_level=_event_level(ev, z),
     )
+
+
+def _headline(row: pd.Series, s: ReplicationSettings) -> dict[str, Any]:
+    """The pooled number shown with the status: good events, one per event, main stratum."""
+    k = int(row["pooled_k_events"])
+    out: dict[str, Any] = {
+        "evidence_set": f"good events (overall level ≥ {s.min_level}), one number per event, "
+                        "in the stratum with the most good events",
+        "k_events": k, "k_estimates": int(row["pooled_k_estimates"]),
+        "stratum": str(row["pooled_stratum"]), "scale": str(row["pooled_scale"]),
+        "method": f"{s.pool_method}, {s.pool_ci}",
+    }
+    if k:
+        back = math.exp if row["pooled_scale"] == "log" else (lambda x: x)
+        for f in ("estimate", "ci_lower", "ci_upper", "pi_lower", "pi_upper"):
+            x = row[f"pooled_{f}"]
+            out[f] = None if pd.isna(x) else float(back(float(x)))
+        out["pvalue"] = _clean(row["pooled_pvalue"])
+        out["excludes_no_effect_in_expected_direction"] = bool(row["pooled_supports"])
+    return out
+
+
+EVENT_LEVEL_FIELDS: tuple[str, ...] = (
+    "event_id", "country", "change_date", "direction", "level", "k_combined", "estimate",
+    "ci_lower", "ci_upper", "significant", "concordant", "counts", "counts_rev",
+)
+
+
+def _event_level(ev: pd.DataFrame, z: float) -> pd.DataFrame:
+    """One row per event: the combined estimate behind the status (analysis scale)."""
+    out = pd.DataFrame({
+        "event_id": ev["event_id"], "country": ev["country"],
+        "change_date": ev["change_date"].astype(str), "direction": ev["change_direction"],
+        "level": ev["level"].astype("float64"), "k_combined": ev["k_combined"],
+        "estimate": ev["y"], "ci_lower": ev["y"] - z * ev["se"],
+        "ci_upper": ev["y"] + z * ev["se"], "significant": ev["significant"],
+        "concordant": ev["concordant"], "counts": ev["counts"], "counts_rev": ev["counts_rev"],
+    })
+    return out.sort_values(["change_date", "event_id"], kind="stable").reset_index(drop=True)
 
 
 def family_summary(events: pd.DataFrame) -> list[dict]:

@@ -28,6 +28,7 @@ from exposhift.replication.settings import ReplicationSettings, load_settings
 from exposhift.replication.status import CAUTION
 from exposhift.services.lookup import require_name
 from exposhift.store.database import Store
+from exposhift.store.directions import directions_frame
 from exposhift.store.queries import analysis_frame, events_frame
 from exposhift.vocab import DESIGN_FAMILIES
 
@@ -51,6 +52,7 @@ def replication_for(
         exposure = require_name(conn, "exposure", exposure)
         outcome = require_name(conn, "outcome", outcome)
         frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
+        directions = directions_frame(conn)
     if family is not None:
         known = sorted(frame["family"].dropna().unique().tolist())
         if family not in known:
@@ -61,7 +63,7 @@ def replication_for(
                                 f"{outcome}; {hint}")
         frame = frame[frame["family"] == family]
     units, excluded = independent_units(frame)
-    return replication_report(units, exposure, outcome, s, excluded)
+    return replication_report(units, exposure, outcome, s, excluded, directions=directions)
 
 
 @dataclass(frozen=True)
@@ -129,13 +131,14 @@ def gap_report(
     with store.read() as conn:
         frame = analysis_frame(conn)
         registry = events_frame(conn)
+        directions = directions_frame(conn)
     frame = filter_frame(frame, design_families=f.design_families or None, countries=countries,
                          year_from=f.year_from, year_to=f.year_to, min_level=f.min_level)
     registry = filter_frame(registry.assign(design_family=None, level=float("nan")),
                             countries=countries, year_from=f.year_from, year_to=f.year_to)
     units, excluded = independent_units(frame)
     cells = gap_map(units, settings=s, stale_after=f.stale_after, all_estimates=frame,
-                    registry=registry)
+                    registry=registry, directions=directions)
     if f.studied_only:
         cells = cells[cells["studies"] > 0].reset_index(drop=True)
     opps = opportunities(registry, units, countries=countries, year_from=f.year_from,

@@ -17,6 +17,7 @@ from exposhift.replication.families import independent_units
 from exposhift.replication.settings import ReplicationSettings, load_settings
 from exposhift.services.pooling import CAUTION
 from exposhift.store.database import Store
+from exposhift.store.directions import directions_frame
 from exposhift.store.queries import analysis_frame
 from exposhift.synthesis.conversions import from_analysis_scale
 
@@ -37,7 +38,7 @@ def evidence_summary(store: Store, *, settings: ReplicationSettings | None = Non
     with store.read() as conn:
         frame = analysis_frame(conn)
         if directions is None:
-            directions = _directions(conn)
+            directions = directions_frame(conn)
     if frame.empty:
         return pd.DataFrame(columns=COLUMNS)
     units, _ = independent_units(frame)
@@ -53,15 +54,6 @@ def evidence_summary(store: Store, *, settings: ReplicationSettings | None = Non
     out["k_events"] = out["k_events"].fillna(0).astype(int)
     out["k_estimates"] = out["k_estimates"].fillna(0).astype(int)
     return out[COLUMNS].reset_index(drop=True)
-
-
-def _directions(conn) -> pd.DataFrame | None:
-    """The committee's expected directions, when the evidence base holds them."""
-    try:
-        from exposhift.store.directions import directions_frame
-    except ImportError:  # the record arrives with the direction records
-        return None
-    return directions_frame(conn)
 
 
 SUMMARY_CAUTION = CAUTION

@@ -40,6 +40,7 @@ from exposhift.synthesis.pooling import (
     REML_RTOL,
     check_inputs,
     pool,
+    standardise,
 )
 
 
@@ -231,12 +232,17 @@ def meta_regression(
         notes.append("tau2 fixed by the caller")
     elif method == "fe":
         t2 = 0.0
-    elif method == "dl":
-        t2 = _tau2_dl_reg(X, y, v)
-    elif method == "pm":
-        t2, iterations, converged = _tau2_pm_reg(X, y, v)
     else:
-        t2, iterations, converged = _tau2_reml_reg(X, y, v)
+        # τ² on standardised data (shift invariant with an intercept, scale equivariant), see
+        # exposhift.synthesis.pooling.standardise
+        ys, vs, scale = standardise(y, v)
+        if method == "dl":
+            t2 = _tau2_dl_reg(X, ys, vs)
+        elif method == "pm":
+            t2, iterations, converged = _tau2_pm_reg(X, ys, vs)
+        else:
+            t2, iterations, converged = _tau2_reml_reg(X, ys, vs)
+        t2 *= scale
     if not converged:
         notes.append(f"{method.upper()} did not converge: tau2 is the last iterate")
 

@@ -455,8 +455,9 @@ def check_group_extremes(y: np.ndarray, v: np.ndarray, starts: np.ndarray,
     ymin = np.minimum.reduceat(y, starts)
     ymax = np.maximum.reduceat(y, starts)
     big = np.maximum.reduceat(np.abs(y), starts)
-    bad = ((vmax / vmin > MAX_VARIANCE_RATIO) | (big > MAX_ABS_Y)
-           | (ymax - ymin > MAX_SPREAD_SE * np.sqrt(vmin)))
+    with np.errstate(over="ignore"):  # an overflowing ratio or spread is itself "too wide"
+        bad = ((vmax / vmin > MAX_VARIANCE_RATIO) | (big > MAX_ABS_Y)
+               | (ymax - ymin > MAX_SPREAD_SE * np.sqrt(vmin)))
     if not bad.any():
         return
     ends = np.append(starts[1:], y.size)

@@ -81,9 +81,16 @@ def design_matrix(moderators: Any, k: int) -> pd.DataFrame:
 
 
 def _wls(X: np.ndarray, y: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """β = (X'WX)⁻¹X'Wy and (X'WX)⁻¹."""
-    xtwx_inv = np.linalg.inv(X.T @ (w[:, None] * X))
-    return xtwx_inv @ (X.T @ (w * y)), xtwx_inv
+    """β = (X'WX)⁻¹X'Wy and (X'WX)⁻¹.
+
+    Computed with the weights divided by the largest one (β does not depend on the scale of W,
+    and (X'WX)⁻¹ scales by its inverse), so weights near the ends of the double range neither
+    underflow nor overflow in X'WX.
+    """
+    m = float(w.max())
+    u = w / m
+    inv_u = np.linalg.inv(X.T @ (u[:, None] * X))
+    return inv_u @ (X.T @ (u * y)), inv_u / m
 
 
 def _q_resid(X: np.ndarray, y: np.ndarray, w: np.ndarray) -> float:
@@ -97,7 +104,9 @@ def restricted_loglik_reg(X: np.ndarray, y: np.ndarray, v: np.ndarray, tau2: flo
     w = 1.0 / (v + tau2)
     beta, _ = _wls(X, y, w)
     r = y - X @ beta
-    _, logdet = np.linalg.slogdet(X.T @ (w[:, None] * X))
+    m = float(w.max())  # log|X'WX| = log|X'(W/m)X| + p·log m (no underflow)
+    _, logdet = np.linalg.slogdet(X.T @ ((w / m)[:, None] * X))
+    logdet += X.shape[1] * np.log(m)
     return float(-0.5 * (np.log(v + tau2).sum() + logdet + np.dot(w, r * r)))
 
 
@@ -251,6 +260,12 @@ def meta_regression(
     resid = y - X @ beta
     df_resid = k - p
     s2 = float(np.dot(w, resid * resid) / df_resid)
+    if knapp_hartung and not s2 > 0:
+        raise AnalysisError(
+            "the moderators reproduce the estimates exactly (residual Knapp-Hartung scale 0), "
+            "so every interval would have zero width; use knapp_hartung=False, fewer "
+            "moderators or more estimates"
+        )
     if knapp_hartung:
         cov = cov * s2
         crit = stats.t.isf(alpha / 2, df_resid)

@@ -148,7 +148,7 @@ def check_extremes(y: np.ndarray, v: np.ndarray, where: str = "") -> None:
     """
     vmin, vmax = float(v.min()), float(v.max())
     prefix = f"{where}: " if where else ""
-    if vmax / vmin > MAX_VARIANCE_RATIO:
+    if vmax > MAX_VARIANCE_RATIO * vmin:
         raise AnalysisError(
             f"{prefix}the variances range from {vmin:.3g} to {vmax:.3g}, more than "
             f"{MAX_VARIANCE_RATIO:.0e} apart: they cannot all be on one scale; check the "
@@ -160,7 +160,7 @@ def check_extremes(y: np.ndarray, v: np.ndarray, where: str = "") -> None:
             f"{prefix}an estimate of size {big:.3g} is too large to pool on the analysis "
             "scale; check that it is on the analysis scale (log ratios, differences)"
         )
-    spread = float(y.max() - y.min())
+    spread = float(y.max()) - float(y.min())  # finite: |y| ≤ MAX_ABS_Y
     if spread > MAX_SPREAD_SE * np.sqrt(vmin):
         raise AnalysisError(
             f"{prefix}the estimates differ by {spread:.3g}, more than {MAX_SPREAD_SE:.0e} "

@@ -44,6 +44,10 @@ from exposhift.synthesis.pooling import (
 )
 
 
+#: residuals smaller than this fraction of the spread of y count as an exact fit
+EXACT_FIT_RTOL = 1e-12
+
+
 def design_matrix(moderators: Any, k: int) -> pd.DataFrame:
     """Intercept plus moderators as a float DataFrame (indicator coding for categories)."""
     if isinstance(moderators, pd.Series):
@@ -260,7 +264,10 @@ def meta_regression(
     resid = y - X @ beta
     df_resid = k - p
     s2 = float(np.dot(w, resid * resid) / df_resid)
-    if knapp_hartung and not s2 > 0:
+    mean_w = np.dot(w, y) / w.sum()
+    spread = float(np.dot(w, (y - mean_w) ** 2))
+    # exact fit up to rounding: residuals below 1e-12 of the spread of y (numerical limit)
+    if knapp_hartung and not s2 * df_resid > EXACT_FIT_RTOL**2 * spread:
         raise AnalysisError(
             "the moderators reproduce the estimates exactly (residual Knapp-Hartung scale 0), "
             "so every interval would have zero width; use knapp_hartung=False, fewer "

@@ -225,7 +225,8 @@ def test_scale_equivariance_property(pairs, power, shift, method):
     a = shift * c
     r = pool(a + c * y, c * c * v, method=method, ci="wald")
     assert r.tau2 / (c * c) == pytest.approx(base.tau2, rel=1e-6, abs=1e-9)
-    assert (r.estimate - a) / c == pytest.approx(base.estimate, rel=1e-6, abs=1e-9 * (1 + abs(shift)))
+    assert (r.estimate - a) / c == pytest.approx(base.estimate, rel=1e-6,
+                                                 abs=1e-9 * (1 + abs(shift)))
     assert r.se / c == pytest.approx(base.se, rel=1e-9)
     assert r.q == pytest.approx(base.q, rel=1e-6, abs=1e-9)
     assert r.i2_tau2 == pytest.approx(base.i2_tau2, rel=1e-6, abs=1e-9)

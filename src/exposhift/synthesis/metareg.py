@@ -43,7 +43,6 @@ from exposhift.synthesis.pooling import (
     standardise,
 )
 
-
 #: residuals smaller than this fraction of the spread of y count as an exact fit
 EXACT_FIT_RTOL = 1e-12
 

@@ -25,12 +25,16 @@ from scipy import special, stats
 
 from exposhift.errors import AnalysisError
 from exposhift.synthesis.pooling import (
+    MAX_ABS_Y,
+    MAX_SPREAD_SE,
+    MAX_VARIANCE_RATIO,
     NOTE_TOL,
     PI_NOTE_FEW,
     PM_RTOL,
     REML_MAX_ITER,
     REML_RTOL,
     SCALAR_FIELDS,
+    check_extremes,
     check_options,
     note_codes,
 )
@@ -103,9 +107,54 @@ def _t_isf(q: float, df: np.ndarray) -> np.ndarray:
 # τ² estimators over all groups
 
 
-def _tau2_dl(seg: Segments, q: np.ndarray, w: np.ndarray, sw: np.ndarray) -> np.ndarray:
-    c = sw - seg.sum(w * w) / sw
+def standardise(seg: Segments) -> tuple[Segments, np.ndarray]:
+    """Per group ((y − y₀)/√s, v/s) with s = the group's smallest variance and y₀ its first
+    estimate, and s per group (see :func:`exposhift.synthesis.pooling.standardise`: the τ²
+    estimators are shift invariant and scale equivariant, τ² = s·τ²(standardised))."""
+    s = np.minimum.reduceat(seg.v, seg.starts)
+    y0 = seg.y[seg.starts]
+    std = Segments((seg.y - y0[seg.g]) / np.sqrt(s)[seg.g], seg.v / s[seg.g], seg.starts)
+    return std, s
+
+
+def cross_sums(seg: Segments, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Per group (Σw)² − Σw² without cancellation, and the largest weight m, returned as
+    (Σᵢ uᵢ·Σ_{j≠i} uⱼ, m) with u = w/m (so the cross sum is the first times m²).
+
+    As :func:`exposhift.synthesis.pooling.cross_sum`: Σ_{j≠i} uⱼ = Σu − uᵢ for every weight but
+    the group's largest (first of ties), for which it is the sum of the others taken directly.
+    """
+    m = np.maximum.reduceat(w, seg.starts)
+    u = w / m[seg.g]
+    total = seg.sum(u)
+    pos = np.arange(u.size)
+    is_top = u == 1.0
+    first_top = np.minimum.reduceat(np.where(is_top, pos, u.size), seg.starts)
+    top = np.zeros(u.size, dtype=bool)
+    top[first_top] = True
+    rest = seg.sum(np.where(top, 0.0, u))
+    others = np.where(top, rest[seg.g], total[seg.g] - u)
+    return seg.sum(u * others), m
+
+
+def s2_typical(seg: Segments, w: np.ndarray) -> np.ndarray:
+    """Per group typical within-study variance (k − 1)Σw/((Σw)² − Σw²) (Higgins & Thompson
+    2002, eq. 9) in the cancellation-free form of :func:`exposhift.synthesis.pooling.s2_typical`;
+    NaN for single-estimate groups."""
+    cross, m = cross_sums(seg, w)
+    u_sum = seg.sum(w / m[seg.g])
     with np.errstate(invalid="ignore", divide="ignore"):
+        s2 = (seg.k - 1) * u_sum / cross / m
+    return np.where(seg.k >= 2, s2, np.nan)
+
+
+def _tau2_dl(seg: Segments, q: np.ndarray, w: np.ndarray, sw: np.ndarray) -> np.ndarray:
+    """DerSimonian–Laird per group, (Q − (k − 1))/c with c = ((Σw)² − Σw²)/Σw from
+    :func:`cross_sums` (``w`` = 1/v; ``sw`` is kept for the call signature)."""
+    cross, m = cross_sums(seg, w)
+    u_sum = seg.sum(w / m[seg.g])
+    with np.errstate(invalid="ignore", divide="ignore"):
+        c = (cross / u_sum) * m  # = Σw − Σw²/Σw
         t = np.maximum(0.0, (q - (seg.k - 1)) / c)
     return np.where(seg.k >= 2, t, np.nan)
 
@@ -123,12 +172,27 @@ def _tau2_pm(seg: Segments, q0: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.
     ids = np.flatnonzero((seg.k >= 2) & (q0 > seg.k - 1))
     if not ids.size:
         return tau2, iters, conv
-    sub = seg.subset(ids)
+    sub, scale = standardise(seg.subset(ids))
+    t_loc, it_loc, conv_loc = _tau2_pm_std(sub, q0[ids])
+    tau2[ids] = t_loc * scale
+    iters[ids] = it_loc
+    conv[ids] = conv_loc
+    return tau2, iters, conv
+
+
+def _tau2_pm_std(sub: Segments, q0: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The Illinois iteration on (standardised) groups that all have Q(0) > k − 1 (``q0``).
+    Returns (τ², iterations, converged) per group of ``sub``."""
+    n = sub.n_groups
+    tau2 = np.zeros(n)
+    iters = np.zeros(n, dtype=int)
+    conv = np.ones(n, dtype=bool)
+    ids = np.arange(n)
     df = (sub.k - 1).astype(float)
     ybar = sub.sum(sub.y) / sub.k
     hi = sub.sum((sub.y - ybar[sub.g]) ** 2) / df  # pm_upper_bracket, per group
     a = np.zeros(ids.size)
-    fa = q0[ids] - df
+    fa = q0 - df
     b = hi
     fb = sub.gen_q(b) - df
     for _ in range(200):  # rounding guard at the proved bound
@@ -183,9 +247,24 @@ def _tau2_reml(seg: Segments, start: np.ndarray) -> tuple[np.ndarray, np.ndarray
     ids = np.flatnonzero(seg.k >= 2)
     if not ids.size:
         return tau2, iters, conv
-    sub = seg.subset(ids)
+    sub, scale = standardise(seg.subset(ids))
+    t_loc, it_loc, conv_loc = _tau2_reml_std(sub, tau2[ids] / scale)
+    tau2[ids] = t_loc * scale
+    iters[ids] = it_loc
+    conv[ids] = conv_loc
+    return tau2, iters, conv
+
+
+def _tau2_reml_std(sub: Segments, start: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The REML iteration on (standardised) groups with k ≥ 2, from ``start``.
+    Returns (τ², iterations, converged) per group of ``sub``."""
+    n = sub.n_groups
+    tau2 = np.zeros(n)
+    iters = np.zeros(n, dtype=int)
+    conv = np.ones(n, dtype=bool)
+    ids = np.arange(n)
     vmin = np.minimum.reduceat(sub.v, sub.starts)
-    t = tau2[ids]
+    t = np.maximum(0.0, start)
     score, fisher, observed, ll = sub.reml_parts(t)
     run = np.ones(ids.size, dtype=bool)
     it = np.zeros(ids.size, dtype=int)
@@ -292,9 +371,8 @@ def pool_segments(
         )
 
     # heterogeneity
-    sw2_fe = seg.sum(w_fe * w_fe)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        s2 = df_q * sw_fe / (sw_fe * sw_fe - sw2_fe)
+        s2 = s2_typical(seg, w_fe)
         i2 = np.where(q > df_q, (q - df_q) / q, 0.0)
         h2 = q / df_q
         i2_tau2 = tau2 / (tau2 + s2)
@@ -368,6 +446,34 @@ def _validate(frame: pd.DataFrame, by: list[str], y: str, v: str) -> tuple[np.nd
     return yy, vv
 
 
+def check_group_extremes(y: np.ndarray, v: np.ndarray, starts: np.ndarray,
+                         index: pd.Index) -> None:
+    """Per group, the limits of :func:`exposhift.synthesis.pooling.check_extremes` (variances
+    at most MAX_VARIANCE_RATIO apart, estimates at most MAX_SPREAD_SE smallest SEs apart and
+    at most MAX_ABS_Y in size); raises :class:`AnalysisError` naming the rows of the first
+    failing groups."""
+    vmin = np.minimum.reduceat(v, starts)
+    vmax = np.maximum.reduceat(v, starts)
+    ymin = np.minimum.reduceat(y, starts)
+    ymax = np.maximum.reduceat(y, starts)
+    big = np.maximum.reduceat(np.abs(y), starts)
+    with np.errstate(over="ignore"):  # an overflowing ratio or spread is itself "too wide"
+        bad = ((vmax / vmin > MAX_VARIANCE_RATIO) | (big > MAX_ABS_Y)
+               | (ymax - ymin > MAX_SPREAD_SE * np.sqrt(vmin)))
+    if not bad.any():
+        return
+    ends = np.append(starts[1:], y.size)
+    first = int(np.flatnonzero(bad)[0])
+    rows = ", ".join(str(i) for i in index[starts[first]:ends[first]][:10])
+    try:
+        check_extremes(y[starts[first]:ends[first]], v[starts[first]:ends[first]],
+                       where=f"the group of rows {rows}")
+    except AnalysisError as exc:
+        n_bad = int(bad.sum())
+        more = f" ({n_bad - 1} more group(s) likewise)" if n_bad > 1 else ""
+        raise AnalysisError(f"{exc}{more}") from None
+
+
 def pool_groups(
     frame: pd.DataFrame, by: Sequence[str], y: str = "y", v: str = "v", method: str = "reml",
     ci: str = "hksj", alpha: float = 0.05, hksj_floor: bool = True,
@@ -392,6 +498,7 @@ def pool_groups(
     order = np.argsort(codes, kind="stable")
     cs = codes[order]
     starts = np.flatnonzero(np.r_[True, cs[1:] != cs[:-1]])
+    check_group_extremes(yy[order], vv[order], starts, frame.index[order])
     res = pool_segments(yy[order], vv[order], starts, method, ci, alpha, hksj_floor)
     keys = frame[by].iloc[order[starts]].reset_index(drop=True)
     return pd.concat([keys, pd.DataFrame(res)], axis=1)

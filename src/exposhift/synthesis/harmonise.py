@@ -13,6 +13,28 @@ Rules of :func:`harmonise` (documented here, shown per row in ``harmonise_note``
   an SE refers to. Then an SE (read as on the analysis scale, as the extraction sheet says),
   then a two-sided p value. A row with a single CI limit, or a zero-width CI, falls back to its
   SE or p value with a note, and is an error when it has neither.
+* **The scale of an entered SE** (column ``se``) is the analysis scale, per measure:
+
+  ======================  ==============================================================
+  RR, OR, HR, IRR         SE of the natural log of the ratio (the SE of a log-linear,
+                          logistic or Cox coefficient), never the SE of the ratio itself
+  pct_change              SE of log(1 + p/100), i.e. of the log-linear coefficient the
+                          percent change was computed from; *not* in percent points. A
+                          paper's SE in percent points: leave ``se`` blank and give the CI
+                          p ± 1.96·SE, or enter SE/(100 + p) (delta method)
+  RD                      SE of the risk difference, in the units of the estimate
+  MD                      SE of the mean difference, in the units of the estimate
+  SMD                     SE of the standardised mean difference
+  ======================  ==============================================================
+
+  An entered log-scale SE above 1.5 for a ratio or above 1 for a percent change is
+  implausible (common practice): it is used as entered, flagged ``se_implausible`` and noted,
+  and the import warns about it (:func:`exposhift.io.rules.check_plausible`).
+* **Provenance.** Each row carries the flags of :mod:`exposhift.synthesis.provenance` (OR
+  converted, SE from a p value, p entered as a bound, SE from a z-based CI of a short series,
+  SMD converted, asymmetric CI, per-unit rescaled, sign flipped, implausible SE) as boolean
+  columns and as the ';'-joined ``provenance`` column; :func:`provenance_summary` and
+  :func:`provenance_lines` count and word them for a pool.
 * **Asymmetry.** A CI whose two halves differ on the analysis scale by more than
   ``asymmetry_tol`` (default 10 %, common practice) of its width is flagged: it often means the
   limits were reported on another scale, or rounded heavily. The SE still comes from the full
@@ -67,10 +89,21 @@ from exposhift.synthesis.conversions import (
     z_from_p,
     z_from_p_approx,
 )
+from exposhift.synthesis.provenance import (
+    PROVENANCE_CODES,
+    PROVENANCE_WORDS,
+    SMALL_SERIES_POINTS,
+    provenance_lines,
+    provenance_summary,
+    provenance_text,
+    se_implausible,
+    series_t_over_z,
+)
 from exposhift.vocab import DIRECTIONS, ESTIMATE_KINDS, MEASURES
 
 __all__ = [
-    "ADDED_COLUMNS", "ASYMMETRY_TOL", "GROUP_SCALES", "MEASURE_GROUPS", "RATIO_MEASURES",
+    "ADDED_COLUMNS", "ASYMMETRY_TOL", "GROUP_SCALES", "MEASURE_GROUPS", "PROVENANCE_CODES",
+    "PROVENANCE_WORDS", "RATIO_MEASURES", "provenance_lines", "provenance_summary",
     "UNCERTAINTY_PRECEDENCE", "ci_asymmetric", "ci_asymmetry", "from_analysis_scale",
     "harmonise", "log_or_to_smd", "or_to_rr", "rescale_factor", "rescale_increment",
     "se_from_ci", "se_from_p", "smd_to_log_or", "to_analysis_scale", "wald_ci", "z_for_level",
@@ -101,7 +134,8 @@ UNCERTAINTY_PRECEDENCE: tuple[str, ...] = ("ci", "se", "p")
 #: columns added by :func:`harmonise`
 ADDED_COLUMNS: tuple[str, ...] = (
     "y", "v", "scale", "se_source", "ci_asymmetric", "sign_flipped", "measure_group",
-    "increment", "harmonise_note",
+    "increment", "harmonise_note", "provenance",
+    *(c for c in PROVENANCE_CODES if c not in ("ci_asymmetric", "sign_flipped")),
 )
 
 
@@ -153,8 +187,11 @@ def _num(frame: pd.DataFrame, col: str, probs: _Problems) -> np.ndarray:
         return np.full(len(frame), np.nan)
     raw = frame[col]
     if pd.api.types.is_numeric_dtype(raw.dtype) and not pd.api.types.is_bool_dtype(raw.dtype):
-        return raw.to_numpy(dtype=float, na_value=np.nan)
+        num = raw.to_numpy(dtype=float, na_value=np.nan)
+        _infinite(num, col, probs)
+        return num
     num = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    _infinite(num, col, probs)
     cand = np.flatnonzero(np.isnan(num) & raw.notna().to_numpy())
     if cand.size:
         vals = raw.to_numpy(dtype=object)
@@ -162,6 +199,18 @@ def _num(frame: pd.DataFrame, col: str, probs: _Problems) -> np.ndarray:
         bad[cand] = [str(vals[i]).strip() != "" for i in cand]
         probs.add(bad, lambda i: f"{col} {vals[i]!r} is not a number")
     return num
+
+
+def _flag(frame: pd.DataFrame, col: str) -> np.ndarray:
+    """A yes/no column as booleans (missing column or value = no)."""
+    if col not in frame.columns:
+        return np.zeros(len(frame), dtype=bool)
+    return frame[col].fillna(False).astype(bool).to_numpy()
+
+
+def _infinite(num: np.ndarray, col: str, probs: _Problems) -> None:
+    if col != "estimate":  # the estimate has its own message
+        probs.add(np.isinf(num), f"{col} is infinite; give a finite number")
 
 
 def _text(frame: pd.DataFrame, col: str) -> np.ndarray:
@@ -232,10 +281,14 @@ def harmonise(
     baseline_risk, estimate_kind (blank = change), per_unit, change_unit, change_direction``
     and adds :data:`ADDED_COLUMNS`: ``y, v`` (value and variance on the analysis scale),
     ``scale`` ("log"/"identity"), ``se_source`` ("ci", "se", "p"), ``ci_asymmetric``,
-    ``sign_flipped``, ``measure_group``, ``increment`` (per-unit rows: "10 ug/m3"; else "") and
-    ``harmonise_note``; blank ``estimate_kind`` is filled with "change". The rules are in the
-    module docstring. Every row that cannot be harmonised is reported in one
-    :class:`AnalysisError` naming the row (index, and estimate_uid when present).
+    ``sign_flipped``, ``measure_group``, ``increment`` (per-unit rows: "10 ug/m3"; else ""),
+    ``harmonise_note``, ``provenance`` (';'-joined codes of
+    :data:`~exposhift.synthesis.provenance.PROVENANCE_CODES`) and one boolean column per code;
+    blank ``estimate_kind`` is filled with "change". Optional inputs read when present:
+    ``p_bound`` (yes when the p value was reported as "p < x"), ``pre_points`` and
+    ``post_points`` (time points, for ``se_from_ci_z``). The rules are in the module docstring.
+    Every row that cannot be harmonised is reported in one :class:`AnalysisError` naming the
+    row (index, and estimate_uid when present).
     """
     if align_to not in DIRECTIONS:
         raise AnalysisError(f"align_to must be one of {', '.join(DIRECTIONS)}, got {align_to!r}")
@@ -259,6 +312,8 @@ def harmonise(
     kind = np.where(kind == "", "change", kind).astype(object)
     direction = _text(frame, "change_direction")
     unit = _text(frame, "change_unit")
+    p_bound = _flag(frame, "p_bound")
+    points = _num(frame, "pre_points", probs) + _num(frame, "post_points", probs)
 
     # ---- checks that do not depend on the uncertainty source
     known = np.isin(measure, list(MEASURES))
@@ -369,14 +424,16 @@ def harmonise(
     probs.raise_if_any()
     from_ci = use_ci | conv_or  # converted ORs take the SE from their converted limits
     se = np.where(from_ci, se_ci, np.where(use_se, se_in, se_p))
-    v = se * se
+    with np.errstate(over="ignore", under="ignore"):  # caught below, with a message
+        v = se * se
     asym = use_ci & ~conv_or & (np.abs((hh - y) - (y - hl)) > asymmetry_tol * (hh - hl))
 
     group = pd.Series(measure).map(MEASURE_GROUPS).to_numpy(dtype=object)
     group = np.where(conv_or, "ratio", group).astype(object)
     smd_conv = (measure == "SMD") & bool(smd_as_log_or)
-    y = np.where(smd_conv, y * _CHINN, y)
-    v = np.where(smd_conv, v * _CHINN**2, v)
+    with np.errstate(over="ignore"):
+        y = np.where(smd_conv, y * _CHINN, y)
+        v = np.where(smd_conv, v * _CHINN**2, v)
     group = np.where(smd_conv, "odds_ratio", group).astype(object)
 
     # ---- per-unit rescaling and direction alignment
@@ -386,8 +443,9 @@ def harmonise(
     factor = np.where(is_pu, sign * target / np.where(is_pu, per_unit, 1.0), 1.0)
     flip_dir = ~is_pu & (direction != align_to)
     factor = np.where(flip_dir, -1.0, factor)
-    y = y * factor
-    v = v * factor * factor
+    with np.errstate(over="ignore", under="ignore", invalid="ignore"):  # caught below
+        y = y * factor
+        v = v * factor * factor
     flipped = factor < 0
     rescaled = is_pu & (np.abs(factor) != 1.0)
     increment = np.full(n, "", dtype=object)
@@ -396,9 +454,27 @@ def harmonise(
         u = unit[is_pu]
         increment[is_pu] = np.where(u == "", inc, inc + " " + u)
 
+    # ---- provenance flags (exposhift.synthesis.provenance)
+    from_p = use_p
+    bound = use_p & p_bound
+    small = use_ci & np.isfinite(points) & (points < SMALL_SERIES_POINTS)
+    t_over_z = series_t_over_z(points, level)
+    wild_se = use_se & se_implausible(measure, se_in)
+    flags = {
+        "or_converted": conv_or, "se_from_p": from_p, "p_bound": bound, "se_from_ci_z": small,
+        "smd_converted": smd_conv, "ci_asymmetric": asym, "per_unit_rescaled": rescaled,
+        "sign_flipped": flipped, "se_implausible": wild_se,
+    }
+
     # ---- notes
     def pct(pos: np.ndarray) -> np.ndarray:
         return _fmt(np.round(level_eff[pos] * 100, 6))
+
+    def small_note(pos: np.ndarray) -> np.ndarray:
+        r = t_over_z[pos]
+        txt = np.where(np.isfinite(r), _fmt(np.round((r - 1.0) * 100.0, 0)) + "%", "much")
+        return ("only " + _fmt(points[pos]) + " time points: if the CI used t, the SE is "
+                "overstated by " + txt)
 
     notes = _join_notes(n, [
         (use_ci & ~conv_or, lambda i: "SE from " + pct(i) + "% CI"),
@@ -408,7 +484,12 @@ def harmonise(
         (zero_width & ~use_ci, "zero-width CI ignored"),
         (is_pct, "percent change p taken as log(1 + p/100)"),
         (conv_or, lambda i: "OR converted to RR with baseline risk " + _fmt(p0[i])
-         + " (Zhang & Yu 1998); SE from the converted " + pct(i) + "% limits"),
+         + " (Zhang & Yu 1998); SE from the converted " + pct(i) + "% limits; biased for an "
+         "adjusted OR (McNutt et al. 2003)"),
+        (bound, "p given as a bound: the SE is an upper bound (conservative)"),
+        (small, small_note),
+        (wild_se, lambda i: "SE " + _fmt(se_in[i]) + " is implausibly large on the log scale: "
+         "check that it is not in percent points or on the ratio scale"),
         (smd_conv, "SMD converted to log OR (Chinn 2000)"),
         (asym, "CI asymmetric on the analysis scale: check the scale of the reported limits"),
         (rescaled, lambda i: "rescaled log-linearly from per " + _fmt(np.abs(per_unit[i]))
@@ -417,6 +498,14 @@ def harmonise(
          + " expressed as that of an " + align_to + " (assumes a mirrored effect)"),
         (is_pu & flipped, "per-unit estimate re-expressed per " + align_to),
     ])
+
+    # ---- what double precision cannot hold (an SE of 1e-200 squares to 0, 1e200 to inf)
+    probs.add(~np.isfinite(y), "the estimate on the analysis scale is not finite (check the "
+              "estimate, per_unit and the target increment)")
+    probs.add(np.isfinite(y) & ~(np.isfinite(v) & (v > 0)),
+              lambda i: f"the variance on the analysis scale ({v[i]:g}) is zero or infinite in "
+              "double precision: check the scale of the SE, CI or p value")
+    probs.raise_if_any()
 
     out = frame.copy()
     out["estimate_kind"] = kind
@@ -429,4 +518,7 @@ def harmonise(
     out["measure_group"] = group
     out["increment"] = increment
     out["harmonise_note"] = notes
+    out["provenance"] = provenance_text(flags, n)
+    for code in PROVENANCE_CODES:
+        out[code] = np.asarray(flags[code], dtype=bool)
     return out

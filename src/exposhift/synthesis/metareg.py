@@ -40,7 +40,11 @@ from exposhift.synthesis.pooling import (
     REML_RTOL,
     check_inputs,
     pool,
+    standardise,
 )
+
+#: residuals smaller than this fraction of the spread of y count as an exact fit
+EXACT_FIT_RTOL = 1e-12
 
 
 def design_matrix(moderators: Any, k: int) -> pd.DataFrame:
@@ -80,9 +84,16 @@ def design_matrix(moderators: Any, k: int) -> pd.DataFrame:
 
 
 def _wls(X: np.ndarray, y: np.ndarray, w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """β = (X'WX)⁻¹X'Wy and (X'WX)⁻¹."""
-    xtwx_inv = np.linalg.inv(X.T @ (w[:, None] * X))
-    return xtwx_inv @ (X.T @ (w * y)), xtwx_inv
+    """β = (X'WX)⁻¹X'Wy and (X'WX)⁻¹.
+
+    Computed with the weights divided by the largest one (β does not depend on the scale of W,
+    and (X'WX)⁻¹ scales by its inverse), so weights near the ends of the double range neither
+    underflow nor overflow in X'WX.
+    """
+    m = float(w.max())
+    u = w / m
+    inv_u = np.linalg.inv(X.T @ (u[:, None] * X))
+    return inv_u @ (X.T @ (u * y)), inv_u / m
 
 
 def _q_resid(X: np.ndarray, y: np.ndarray, w: np.ndarray) -> float:
@@ -96,7 +107,9 @@ def restricted_loglik_reg(X: np.ndarray, y: np.ndarray, v: np.ndarray, tau2: flo
     w = 1.0 / (v + tau2)
     beta, _ = _wls(X, y, w)
     r = y - X @ beta
-    _, logdet = np.linalg.slogdet(X.T @ (w[:, None] * X))
+    m = float(w.max())  # log|X'WX| = log|X'(W/m)X| + p·log m (no underflow)
+    _, logdet = np.linalg.slogdet(X.T @ ((w / m)[:, None] * X))
+    logdet += X.shape[1] * np.log(m)
     return float(-0.5 * (np.log(v + tau2).sum() + logdet + np.dot(w, r * r)))
 
 
@@ -231,12 +244,17 @@ def meta_regression(
         notes.append("tau2 fixed by the caller")
     elif method == "fe":
         t2 = 0.0
-    elif method == "dl":
-        t2 = _tau2_dl_reg(X, y, v)
-    elif method == "pm":
-        t2, iterations, converged = _tau2_pm_reg(X, y, v)
     else:
-        t2, iterations, converged = _tau2_reml_reg(X, y, v)
+        # τ² on standardised data (shift invariant with an intercept, scale equivariant), see
+        # exposhift.synthesis.pooling.standardise
+        ys, vs, scale = standardise(y, v)
+        if method == "dl":
+            t2 = _tau2_dl_reg(X, ys, vs)
+        elif method == "pm":
+            t2, iterations, converged = _tau2_pm_reg(X, ys, vs)
+        else:
+            t2, iterations, converged = _tau2_reml_reg(X, ys, vs)
+        t2 *= scale
     if not converged:
         notes.append(f"{method.upper()} did not converge: tau2 is the last iterate")
 
@@ -245,6 +263,15 @@ def meta_regression(
     resid = y - X @ beta
     df_resid = k - p
     s2 = float(np.dot(w, resid * resid) / df_resid)
+    mean_w = np.dot(w, y) / w.sum()
+    spread = float(np.dot(w, (y - mean_w) ** 2))
+    # exact fit up to rounding: residuals below 1e-12 of the spread of y (numerical limit)
+    if knapp_hartung and not s2 * df_resid > EXACT_FIT_RTOL**2 * spread:
+        raise AnalysisError(
+            "the moderators reproduce the estimates exactly (residual Knapp-Hartung scale 0), "
+            "so every interval would have zero width; use knapp_hartung=False, fewer "
+            "moderators or more estimates"
+        )
     if knapp_hartung:
         cov = cov * s2
         crit = stats.t.isf(alpha / 2, df_resid)

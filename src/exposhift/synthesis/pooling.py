@@ -128,7 +128,64 @@ def check_inputs(y: Any, v: Any) -> tuple[np.ndarray, np.ndarray]:
             f"({', '.join(repr(float(x)) for x in v[bad_v[:5]])}); every estimate needs a "
             "positive variance (check the CI, SE or p value it came from)"
         )
+    check_extremes(y, v)
     return y, v
+
+
+#: variances may span at most this ratio within one pool (``vmax/vmin``); beyond it the weights
+#: of the largest variances vanish next to rounding (numerical limit, common practice)
+MAX_VARIANCE_RATIO = 1e100
+#: an estimate may lie at most this many (smallest) standard errors from another, and no
+#: estimate may exceed this in size: squares of larger numbers overflow (numerical limit)
+MAX_SPREAD_SE = 1e100
+MAX_ABS_Y = 1e150
+
+
+def check_extremes(y: np.ndarray, v: np.ndarray, where: str = "") -> None:
+    """Raise :class:`AnalysisError` for inputs whose sums or squares cannot be represented.
+
+    ``y`` and ``v`` are finite with ``v > 0`` (see :func:`check_inputs`). The τ² estimators
+    rescale (:func:`standardise`), so any common scale works; what is refused is a set whose
+    own spread is too wide for double precision: variances more than
+    :data:`MAX_VARIANCE_RATIO` apart, an estimate more than :data:`MAX_SPREAD_SE` smallest SEs
+    from another, or an estimate larger than :data:`MAX_ABS_Y` in size. Such sets almost always
+    mix scales (a percent entered as a log ratio, a variance entered as an SE ...).
+    """
+    vmin, vmax = float(v.min()), float(v.max())
+    prefix = f"{where}: " if where else ""
+    if vmax > MAX_VARIANCE_RATIO * vmin:
+        raise AnalysisError(
+            f"{prefix}the variances range from {vmin:.3g} to {vmax:.3g}, more than "
+            f"{MAX_VARIANCE_RATIO:.0e} apart: they cannot all be on one scale; check the "
+            "scale of the SEs, CIs or p values they came from"
+        )
+    big = float(np.max(np.abs(y)))
+    if big > MAX_ABS_Y:
+        raise AnalysisError(
+            f"{prefix}an estimate of size {big:.3g} is too large to pool on the analysis "
+            "scale; check that it is on the analysis scale (log ratios, differences)"
+        )
+    spread = float(y.max()) - float(y.min())  # finite: |y| ≤ MAX_ABS_Y
+    if spread > MAX_SPREAD_SE * np.sqrt(vmin):
+        raise AnalysisError(
+            f"{prefix}the estimates differ by {spread:.3g}, more than {MAX_SPREAD_SE:.0e} "
+            f"times the smallest SE ({np.sqrt(vmin):.3g}): they cannot all be on one scale; "
+            "check the estimates and their SEs"
+        )
+
+
+def standardise(y: np.ndarray, v: np.ndarray) -> tuple[np.ndarray, np.ndarray, float]:
+    """Centre and scale for the τ² estimators: ((y − y₀)/√s, v/s, s) with s = min vᵢ, y₀ = y₁.
+
+    Every τ² estimator here is invariant to a shift of y and equivariant to scale
+    (τ²(a + c·y, c²·v) = c²·τ²(y, v), as each is a function of the standardised residuals), so
+    τ² = s·τ²(standardised). The standardised variances are ≥ 1 and the weights ≤ 1, so the
+    sums of squared and cubed weights neither overflow nor underflow for variances anywhere
+    in the double range. Centring at the first estimate makes equal estimates exactly equal
+    (residuals exactly 0) whatever their size.
+    """
+    s = float(v.min())
+    return (y - y[0]) / np.sqrt(s), v / s, s
 
 
 def _positions(idx: np.ndarray, limit: int = 10) -> str:
@@ -159,10 +216,31 @@ def tau2_dl(y: np.ndarray, v: np.ndarray) -> float:
     k = y.size
     if k < 2:
         return float("nan")
+    y, v, s = standardise(y, v)
     w = 1.0 / v
     _, q = cochran_q(y, v)
-    c = w.sum() - np.dot(w, w) / w.sum()
-    return max(0.0, (q - (k - 1)) / c)
+    c = cross_sum(w) / w.sum()  # Σw − Σw²/Σw = ((Σw)² − Σw²)/Σw, without cancellation
+    return s * max(0.0, (q - (k - 1)) / c)
+
+
+def cross_sum(w: np.ndarray) -> float:
+    """(Σw)² − Σw² = Σᵢ wᵢ·Σ_{j≠i} wⱼ, computed without cancellation (positive w).
+
+    Subtracting Σw² from (Σw)² cancels when one weight dominates (and gives 0 or a negative
+    number for equal weights by rounding); here every term is a product of positive numbers.
+    For every weight but the largest, Σ_{j≠i} wⱼ = Σw − wᵢ ≥ Σw/2 is well conditioned; for the
+    largest it is summed directly. Weights are divided by the largest first (no overflow).
+    With k equal weights it returns exactly k(k − 1)·w².
+    """
+    w = np.asarray(w, dtype=float)
+    top = int(np.argmax(w))
+    m = float(w[top])
+    u = w / m
+    total = u.sum()
+    others = total - u
+    rest = np.delete(u, top).sum()
+    others[top] = rest
+    return float(np.dot(u, others)) * m * m
 
 
 def pm_upper_bracket(y: np.ndarray, v: np.ndarray) -> float:
@@ -184,7 +262,13 @@ def tau2_pm(y: np.ndarray, v: np.ndarray) -> tuple[float, int, bool]:
     k = y.size
     if k < 2:
         return float("nan"), 0, True
-    df = k - 1
+    y, v, s = standardise(y, v)
+    tau2, it, ok = _tau2_pm_std(y, v)
+    return s * tau2, it, ok
+
+
+def _tau2_pm_std(y: np.ndarray, v: np.ndarray) -> tuple[float, int, bool]:
+    df = y.size - 1
     if generalised_q(y, v, 0.0) <= df:
         return 0.0, 0, True
     hi = pm_upper_bracket(y, v)
@@ -244,6 +328,15 @@ def tau2_reml(
     """
     if y.size < 2:
         return float("nan"), 0, True
+    y, v, s = standardise(y, v)
+    start = None if start is None else float(start) / s
+    tau2, it, ok = _tau2_reml_std(y, v, start, rtol, max_iter)
+    return s * tau2, it, ok
+
+
+def _tau2_reml_std(
+    y: np.ndarray, v: np.ndarray, start: float | None, rtol: float, max_iter: int,
+) -> tuple[float, int, bool]:
     tau2 = tau2_dl(y, v) if start is None else max(0.0, float(start))
     floor = float(v.min())
     ll = restricted_loglik(y, v, tau2)
@@ -266,9 +359,18 @@ def tau2_reml(
 
 
 def s2_typical(w: np.ndarray) -> float:
-    """Typical within-study variance (k − 1)Σw/((Σw)² − Σw²) (Higgins & Thompson 2002, eq. 9)."""
-    sw = w.sum()
-    return float((w.size - 1) * sw / (sw * sw - np.dot(w, w)))
+    """Typical within-study variance (k − 1)Σw/((Σw)² − Σw²) (Higgins & Thompson 2002, eq. 9).
+
+    Written as (k − 1)·Σu / Σᵢ uᵢ·Σ_{j≠i} uⱼ · (1/max w) with u = w/max w (see
+    :func:`cross_sum`): no cancellation, no overflow, and exactly 1/w for k equal weights.
+    NaN for k < 2.
+    """
+    w = np.asarray(w, dtype=float)
+    if w.size < 2:
+        return float("nan")
+    m = float(w.max())
+    u = w / m
+    return float((w.size - 1) * u.sum() / cross_sum(u) / m)
 
 
 # --------------------------------------------------------------------------------------------

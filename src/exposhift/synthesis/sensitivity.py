@@ -30,6 +30,7 @@ from exposhift.synthesis.pooling import (
     generalised_q,
     pool,
     s2_typical,
+    standardise,
 )
 
 __all__ = [
@@ -92,8 +93,9 @@ def tau2_ci_qprofile(y: Any, v: Any, alpha: float = 0.05) -> Tau2Interval:
                             "a tau2 interval needs at least 2 estimates")
     q_lo_target = float(stats.chi2.isf(alpha / 2, k - 1))
     q_hi_target = float(stats.chi2.ppf(alpha / 2, k - 1))
-    lower = _solve_gen_q(y, v, q_lo_target)
-    upper = _solve_gen_q(y, v, q_hi_target)
+    ys, vs, scale = standardise(y, v)  # Q is shift invariant and scale equivariant in τ²
+    lower = scale * _solve_gen_q(ys, vs, q_lo_target)
+    upper = scale * _solve_gen_q(ys, vs, q_hi_target)
     s2 = s2_typical(1.0 / v)
     note = ""
     if upper == 0.0:

@@ -61,6 +61,7 @@ KKT_TOL = 1e-6
 STEP_TOL = 1e-10
 MAX_ITER = 200
 DF_UNRELIABLE = 4.0
+LOG_2PI = float(np.log(2 * np.pi))
 NOTE_SINGLETON = (
     "every event has one estimate: between-event and within-event variance are not separately "
     "identified; their sum is reported as sigma2_event (sigma2_within = 0)"
@@ -154,6 +155,7 @@ class _Problem:
         self.n = y.size
         # per-event sums as one small (m × N) indicator product (never N × N)
         self.S = (groups.idx[None, :] == np.arange(groups.m)[:, None]).astype(float)
+        self.buf = np.empty((self.n, 3 + self.p + 1))
 
     def whitened(self, s2e: float, s2w: float) -> np.ndarray:
         """Z̃ = F⁻¹[X y] (module docstring), rows sorted by event."""
@@ -175,45 +177,50 @@ class _Problem:
         S, idx, p = self.S, self.idx, self.p
         d = self.v + s2w
         a = 1.0 / d
-        s = S @ a
+        buf = self.buf                                           # [a, a², a³, aZ]
+        buf[:, 0] = a
+        np.multiply(a, a, out=buf[:, 1])
+        np.multiply(buf[:, 1], a, out=buf[:, 2])
+        np.multiply(a[:, None], self.Z, out=buf[:, 3:])
+        sums = S @ buf                                           # event sums, (m, 3 + p + 1)
+        s, sa2, sa3, G = sums[:, 0], sums[:, 1], sums[:, 2], sums[:, 3:]
         t = 1.0 + s2e * s
         c = s2e / t
-        Za = a[:, None] * self.Z
-        G = S @ Za
-        cross = self.Z.T @ Za - (G.T * c) @ G                    # Z'V⁻¹Z
+        za = buf[:, 3:]
+        cross = self.Z.T @ za - (G.T * c) @ G                    # Z'V⁻¹Z
         bread, logdet_x = _inv_logdet(cross[:p, :p])
         beta = bread @ cross[:p, p]
         rss = cross[p, p] - cross[:p, p] @ beta
         logdet = np.log(d).sum() + np.log(t).sum() + logdet_x
-        nll = 0.5 * ((self.n - p) * np.log(2 * np.pi) + logdet + rss)
+        nll = 0.5 * ((self.n - p) * LOG_2PI + logdet + rss)
         if not info:
             return nll, None, None, beta, bread
-        vz = Za - a[:, None] * (c[:, None] * G)[idx]            # V⁻¹[X y]
-        q = vz[:, :p]
-        py = vz[:, p] - q @ beta                                 # Py = V⁻¹(y − Xβ̂)
-        cq = G[:, :p] / t[:, None]                               # event sums of V⁻¹X
-        cpy = G[:, p] / t - cq @ beta                            # event sums of Py
-        d_within = a.sum() - c @ (S @ (a * a)) - np.sum(bread * (q.T @ q)) - py @ py
-        d_event = np.sum(s / t) - np.sum(bread * (cq.T @ cq)) - cpy @ cpy
+        T = np.eye(p + 1)
+        T[:p, p] = -beta
+        vz = za - a[:, None] * (c[:, None] * G)[idx]             # V⁻¹[X y]
+        qp = vz @ T                                              # [Q, Py], Q = V⁻¹X
+        aqp = a[:, None] * qp
+        r2 = S @ aqp
+        vqp = aqp - a[:, None] * (c[:, None] * r2)[idx]          # V⁻¹[Q, Py]
+        e = (G / t[:, None]) @ T                                 # event sums of [Q, Py]
+        w = s / t
+        k1, k2 = qp.T @ qp, qp.T @ vqp
+        k3, k4, k5 = e.T @ e, (e.T * w) @ e, e.T @ (r2 / t[:, None])
+        qq, cc = k1[:p, :p], k3[:p, :p]
+        xw, xe = k1[:p, p], k3[:p, p]                            # X'V⁻¹u_within, X'V⁻¹u_event
+        d_within = s.sum() - c @ sa2 - (bread * qq).sum() - k1[p, p]
+        d_event = w.sum() - (bread * cc).sum() - k3[p, p]
         grad = 0.5 * np.array([d_event, d_within])
         # average information AI_kl = ½ u_k'P u_l, u_event = event sums of Py, u_within = Py
-        vpy = a * py - a * (c * (S @ (a * py)))[idx]            # V⁻¹Py
-        xe, xw = cq.T @ cpy, q.T @ py                            # X'V⁻¹u_k
-        ai = 0.5 * np.array([
-            [np.sum(cpy * cpy * s / t) - xe @ bread @ xe, cpy @ (S @ vpy) - xe @ bread @ xw],
-            [cpy @ (S @ vpy) - xe @ bread @ xw, py @ vpy - xw @ bread @ xw],
-        ])
+        mxe, mxw = bread @ xe, bread @ xw
+        ai = 0.5 * np.array([[k4[p, p] - xe @ mxe, k5[p, p] - xe @ mxw],
+                             [k5[p, p] - xe @ mxw, k2[p, p] - xw @ mxw]])
         # Fisher information ½tr(PV_kPV_l), P = V⁻¹ − QMQ', block by block
-        sa2 = S @ (a * a)
-        sq = (S @ (a[:, None] * q)) / t[:, None]                 # event sums of V⁻¹Q
-        vq = a[:, None] * q - a[:, None] * (c[:, None] * (S @ (a[:, None] * q)))[idx]
-        qq, cc = q.T @ q, cq.T @ cq
         mqq, mcc = bread @ qq, bread @ cc
-        tr_ee = np.sum((s / t) ** 2) - 2 * np.sum(bread * ((cq.T * (s / t)) @ cq)) \
-            + np.sum(mcc * mcc.T)
-        tr_ew = np.sum(sa2 / t**2) - 2 * np.sum(bread * (cq.T @ sq)) + np.sum(mcc * mqq.T)
-        tr_ww = (np.sum(a * a) - 2 * c @ (S @ a**3) + (c * c) @ (sa2 * sa2)
-                 - 2 * np.sum(bread * (q.T @ vq)) + np.sum(mqq * mqq.T))
+        tr_ee = (w * w).sum() - 2 * (bread * k4[:p, :p]).sum() + (mcc * mcc.T).sum()
+        tr_ew = (sa2 / (t * t)).sum() - 2 * (bread * k5[:p, :p]).sum() + (mcc * mqq.T).sum()
+        tr_ww = (sa2.sum() - 2 * c @ sa3 + (c * c) @ (sa2 * sa2)
+                 - 2 * (bread * k2[:p, :p]).sum() + (mqq * mqq.T).sum())
         hess = 2.0 * ai - 0.5 * np.array([[tr_ee, tr_ew], [tr_ew, tr_ww]])
         return nll, grad, (hess, ai), beta, bread
 

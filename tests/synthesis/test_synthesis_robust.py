@@ -129,7 +129,7 @@ def _dense_pieces(X, y, cl, blocks):
 def _dense_cr2(X, y, cl, blocks):
     X, y, phi, W, M, beta, IH, e, idx, A = _dense_pieces(X, y, cl, blocks)
     meat = np.zeros((X.shape[1], X.shape[1]))
-    for r, a in zip(idx, A):
+    for r, a in zip(idx, A, strict=True):
         u = X[r].T @ W[np.ix_(r, r)] @ a @ e[r]
         meat += np.outer(u, u)
     return beta, M @ meat @ M
@@ -138,7 +138,7 @@ def _dense_cr2(X, y, cl, blocks):
 def _dense_p(X, y, cl, blocks, c):
     """p_j = (I - H)_j' A_j' W_j X_j M c for every cluster j (Pustejovsky & Tipton 2018, eq. 7)."""
     X, y, phi, W, M, beta, IH, e, idx, A = _dense_pieces(X, y, cl, blocks)
-    ps = [IH[r].T @ a.T @ W[np.ix_(r, r)] @ X[r] @ M @ c for r, a in zip(idx, A)]
+    ps = [IH[r].T @ a.T @ W[np.ix_(r, r)] @ X[r] @ M @ c for r, a in zip(idx, A, strict=True)]
     return ps, phi
 
 

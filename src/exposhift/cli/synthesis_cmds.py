@@ -135,6 +135,8 @@ def _print_group(g: dict) -> None:
         typer.echo("    within-event correlation: " + "; ".join(parts))
     for n in g["notes"]:
         typer.echo(f"    note: {n}")
+    for line in g.get("provenance", []):
+        typer.echo(f"    conversion: {line}")
     if "sensitivity" in g:
         _print_sensitivity(g["sensitivity"], word)
     if g["sign_flipped"]:

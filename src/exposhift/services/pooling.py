@@ -42,6 +42,7 @@ from exposhift.synthesis.grouped import pool_groups
 from exposhift.synthesis.harmonise import harmonise
 from exposhift.synthesis.independence import pooling_keys, select_independent
 from exposhift.synthesis.pooling import CAUTION, METHODS
+from exposhift.synthesis.provenance import provenance_lines
 from exposhift.synthesis.sensitivity import (
     cumulative,
     egger_test,
@@ -254,6 +255,7 @@ def _group_record(rec: dict[str, Any], keys: list[str], kept: pd.DataFrame,
         "estimates": sorted(units["estimate_uid"].tolist()),
         "events": sorted(mine["event_id"].astype(str).unique().tolist()),
     })
+    g["provenance"] = provenance_lines(units)
     g["natural"] = natural(scale, g)
     if scale == "log":
         g["back_transformed"] = dict(g["natural"])

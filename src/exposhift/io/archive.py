@@ -7,7 +7,12 @@ Layout (``format`` = ``exposhift-evidence-base``, ``format_version`` = 1)::
                       "measures": [...], "estimate_kinds": [...], "review_stages": [...],
                       "exposures": [{"name", "agent_class"}], "outcomes": [{"name", ...}]},
      "events": [...], "studies": [...], "estimates": [...],
+     "expected_directions": [{"exposure", "outcome", "direction", "rationale", "decided_by",
+                              "decided_at"}],
      "appraisals": [{..., "ratings": [...]}]}
+
+An archive without ``expected_directions`` (written before the section existed) still reads;
+it leaves the stored directions as they are.
 
 Determinism: records are sorted by natural key (code-point order), fields come in a fixed order,
 one record per line; no database ids, versions or timestamps; floats are written with ``repr``

@@ -199,7 +199,11 @@ def forest_plot(rows: pd.DataFrame, groups: list[dict], *, title: str = "") -> g
             where = " ".join(str(v) for v in (r["country"], r["change_date"][:4]) if v)
             sub_txt = f" [{r['subgroup']}]" if isinstance(r["subgroup"], str) and r[
                 "subgroup"] else ""
-            ticks.append((pos, f"{r['study_id']} ({where}){sub_txt}"))
+            combined = (f" · {int(r['k_units'])} estimates combined"
+                        if "k_units" in r and pd.notna(r["k_units"]) and r["k_units"] > 1
+                        else "")
+            ticks.append((pos, f"{r['event_id']}: {r['study_id']} ({where}){sub_txt}"
+                               f"{combined}"))
             right.append((pos, f"{_fmt(f(r['y']))} [{_fmt(f(r['ci_lower']))}, "
                                f"{_fmt(f(r['ci_upper']))}]   {100 * r['weight']:.0f}%"))
             pos -= 1

@@ -10,7 +10,8 @@ import data
 
 METHODS = {"reml": "REML", "dl": "DerSimonian–Laird", "pm": "Paule–Mandel",
            "fe": "fixed effect (inverse variance)"}
-CIS = {"hksj": "Hartung–Knapp–Sidik–Jonkman (t, k−1 df)", "wald": "Wald (z)"}
+CIS = {"hksj": "Hartung–Knapp–Sidik–Jonkman (t, events − 1 df, scale floored at 1)",
+       "wald": "Wald (z)"}
 STRATA = ["design-family", "level", "design", "country", "outcome-group"]
 
 db = data.db_target()
@@ -54,8 +55,9 @@ out = view.output
 # 2. forest plot -----------------------------------------------------------------------------
 st.subheader(f"{exposure} → {outcome}")
 st.caption(f"Effects of an exposure {align}; {METHODS[method]} τ², {CIS[ci]} interval. "
-           "Squares: one independent estimate each (size = weight); diamond: pooled estimate "
-           "and its interval; dashed line: 95% prediction interval (k ≥ 3).")
+           "Squares: one exposure-change event each (several estimates of one event combined "
+           "into one number; size = weight); diamond: pooled estimate and its interval; "
+           "dashed line: 95% prediction interval (3 or more events).")
 if not out.groups:
     st.info("Nothing left to pool after leaving out the estimates below.")
 else:
@@ -68,7 +70,8 @@ else:
         return g[f] if bt is None else bt[f]
 
     table = pd.DataFrame([{
-        "stratum": label, "k": g["k"], "measure": g["measure"],
+        "stratum": label, "events": g["k_events"], "estimates": g["k_estimates"],
+        "measure": g["measure"],
         "pooled": back(g, "estimate"), "CI low": back(g, "ci_lower"),
         "CI high": back(g, "ci_upper"), "PI low": back(g, "pi_lower"),
         "PI high": back(g, "pi_upper"), "τ²": g["tau2"], "I²": g["i2"], "Q": g["q"],
@@ -80,8 +83,10 @@ else:
                                 for c in ("pooled", "CI low", "CI high", "PI low", "PI high",
                                           "τ²", "Q", "Q p")}
                  | {"I²": st.column_config.NumberColumn(format="percent")})
-    st.caption("Ratio measures are shown as ratios (back-transformed from the log scale). "
-               "τ², I² and Q are on the analysis scale. A prediction interval needs k ≥ 3.")
+    st.caption(f"Evidence set: {out.evidence_set}. Ratio measures are shown as ratios "
+               "(back-transformed from the log scale). τ², I² and Q are on the analysis scale "
+               "and count events. A prediction interval needs 3 or more events; with 2 events "
+               "the t interval has 1 degree of freedom and is very wide.")
 
 # 4. estimates left out ----------------------------------------------------------------------
 st.subheader(f"Estimates left out ({len(out.excluded)})")

@@ -49,10 +49,22 @@ if len(families) > 1:
             report = data.replication(db, exposure, outcome, expected, family)
 
 # 2. status with its rule, and the caution ---------------------------------------------------
-ui.status_box(report.status, report.rule)
+ui.status_box(report.status + (" (provisional)" if report.provisional else ""), report.rule)
 ui.caution()
-st.caption(f"Expected direction: {report.expected_words}. Estimates are aligned to an "
-           "exposure increase (a decrease's estimate has its sign flipped).")
+basis = {"pre-specified": "pre-specified by the committee",
+         "settings": "fixed for this run or in the replication settings",
+         "inferred": "inferred from these same events, so the status is provisional"}
+st.caption(f"Expected direction: {report.expected_words} "
+           f"({basis.get(report.expected_source, report.expected_source)}). Estimates are "
+           "aligned to an exposure increase (a decrease's estimate has its sign flipped).")
+h = report.headline
+if h.get("k_events"):
+    word = "ratio" if h["scale"] == "log" else "difference"
+    pi = ("" if h.get("pi_lower") is None else
+          f"; prediction interval {h['pi_lower']:.3g} to {h['pi_upper']:.3g}")
+    st.markdown(f"**Pooled {word}** {h['estimate']:.3g} (95% CI {h['ci_lower']:.3g} to "
+                f"{h['ci_upper']:.3g}{pi}) from **{h['k_events']} event(s)**, "
+                f"{h['k_estimates']} estimate(s): {h['evidence_set']} ({h['stratum']}).")
 for fam in report.families:
     st.caption(f"Family of change **{fam['family']}**: {fam['events']} event(s) in "
                f"{len(fam['places'])} place(s), {fam['first_year']}–{fam['last_year']}.")
@@ -78,7 +90,8 @@ sign = report.sign_test
 if sign.get("n"):
     st.markdown(f"**Sign test:** {sign['k_expected']} of {sign['n']} events at level ≥ "
                 f"{settings.min_level} point in the expected direction; exact two-sided "
-                f"p = {sign['p']:.3g}.")
+                f"p = {sign['p']:.3g} (the smallest p possible with {sign['n']} events is "
+                f"{sign['min_attainable_p']:.3g}).")
 
 # 4. time: timeline --------------------------------------------------------------------------
 st.subheader("When: events by date, per country")
@@ -87,8 +100,9 @@ st.plotly_chart(charts.event_timeline(ev, report.reversals, min_level=settings.m
 for seq in report.temporal:
     mark = "replicated in time" if seq["replicated"] else "not replicated in time"
     st.markdown(f"- **{charts.country_name(seq['place'])}**: "
-                f"{seq['periods_with_concordant_good_event']} period(s) with a concordant good "
-                f"event ({mark}).")
+                f"{seq['periods_with_counting_event']} period(s) with an event that counts "
+                f"(good, in the expected direction, significant or backed by the pooled "
+                f"estimate) ({mark}).")
 for r in report.reversals:
     moved = "moved back" if r["outcome_moved_back"] else "did not move back"
     st.markdown(f"- **Reversal in {charts.country_name(r['place'])}**: {r['decrease_event']} "

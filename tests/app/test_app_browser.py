@@ -37,7 +37,7 @@ VISIBLE = {
     "replication-reversal": ["Replication status: convergent", "Reversal in Portugal"],
     "replication-europe": ["Map view", "Replication status: replicated-place"],
     "gaps": ["Opportunities: registered exposure changes never evaluated (5)",
-             "support, never replace, expert judgement", "ready-for-synthesis"],
+             "support, never replace, expert judgement", "replicated-in-part"],
 }
 
 

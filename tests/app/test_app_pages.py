@@ -173,7 +173,7 @@ def test_pooling_forest_table_excluded_and_caution(app, demo_store):
     outcome = at.selectbox(key="pool_outcome").value
     view = pool_view(demo_store, exposure, outcome)
     table = _frame(at, "pooled")
-    assert list(table["k"]) == [g["k"] for g in view.output.groups]
+    assert list(table["events"]) == [g["k_events"] for g in view.output.groups]
     excluded = _frame(at, "reason")
     assert len(excluded) == len(view.output.excluded) > 0
     forest = _charts(at)[0]
@@ -253,8 +253,11 @@ def test_replication_status_rule_charts_and_sign_test(app, demo_db):
     line = next(m.value for m in at.markdown if m.value.startswith("**Sign test:**"))
     words = line.split()
     k, n = int(words[2]), int(words[4])
-    p = float(line.rsplit("p = ", 1)[1].rstrip("."))
+    p = float(line.split("p = ", 1)[1].split(" ", 1)[0])
     assert p == pytest.approx(stats.binomtest(k, n, 0.5).pvalue, rel=1e-2)
+    # the minimum attainable p at n events: 2 * 0.5**n (exact binomial arithmetic)
+    p_min = float(line.rsplit("is ", 1)[1].rstrip(")."))
+    assert p_min == pytest.approx(min(1.0, 2 * 0.5**n), rel=1e-2)
 
 
 def test_replication_map_view_zooms_to_a_region(app, demo_db):
@@ -298,14 +301,15 @@ def test_replication_expected_direction_reruns(app):
     assert not at.exception
     text = _texts(at)
     assert "an exposure increase lowers the outcome" in text
-    # against the evidence: no event points the "expected" way, so nothing replicates
+    # against the evidence: no event points the "expected" way; the effect replicates
+    # against the expected direction, and the label says so
     boxes = [e.value for kind in (at.success, at.warning, at.info, at.error) for e in kind
              if e.value.startswith("**Replication status:")]
     assert len(boxes) == 1
-    assert "replicated" not in boxes[0].split("\n")[0] and "convergent" not in boxes[0]
+    assert "replicated-against" in boxes[0].split("\n")[0] and "convergent" not in boxes[0]
     line = next(m.value for m in at.markdown if m.value.startswith("**Sign test:**"))
     n = int(line.split()[4])
-    p = float(line.rsplit("p = ", 1)[1].rstrip("."))
+    p = float(line.split("p = ", 1)[1].split(" ", 1)[0])
     assert line.split()[2] == "0"
     assert p == pytest.approx(stats.binomtest(0, n, 0.5).pvalue, rel=1e-2)
 

@@ -73,7 +73,7 @@ def test_forest_one_trace_per_group_with_labels(demo_store):
     fig = charts.forest_plot(view.rows, view.output.groups)
     squares = _squares(fig)
     assert len(squares) == len(view.output.groups)
-    assert [len(t.x) for t in squares] == [g["k"] for g in view.output.groups]
+    assert [len(t.x) for t in squares] == [g["k_events"] for g in view.output.groups]
     headers = [a.text for a in fig.layout.annotations if a.text.startswith("<b>stratum:")]
     assert len(headers) == len(view.output.groups)
     assert all(str(g["design_family"]) in h for g, h in zip(view.output.groups, headers,

@@ -62,7 +62,7 @@ def _scale_of(group: str) -> str:
 def render_replication(rep: ReplicationReport) -> str:
     status = rep.status + (" (provisional)" if rep.provisional else "")
     basis = {"pre-specified": "pre-specified by the committee",
-             "settings": "fixed in the replication settings",
+             "settings": "fixed for this run or in the replication settings",
              "inferred": "inferred from these same events: statuses are provisional"}
     lines = [f"{rep.exposure} x {rep.outcome}", "",
              f"status    {status}", f"rule      {rep.rule}",

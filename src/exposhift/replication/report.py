@@ -166,6 +166,7 @@ def replication_report(
         "families_disagree": bool(row["families_disagree"]),
         "triangulated": bool(row["triangulated"]),
         "statement": _tri_statement(row, settings),
+        "test": str(row.get("families_test_note", "")),
     }
     sign = {"n": int(row["sign_n"]), "k_expected": int(row["sign_k"]),
             "share": row["sign_share"], "p": row["sign_test_p"],
@@ -255,9 +256,14 @@ def _tri_statement(row: pd.Series, s: ReplicationSettings) -> str:
         return (f"no design family outside {', '.join(s.supporting_families)} has an estimate "
                 f"at level ≥ {s.min_level}: triangulation not possible")
     if n == 1:
-        return f"one design family only ({row['families_list']}): nothing to triangulate with"
-    qb = (f"Q-between = {row['q_between']:.2f} on {int(row['q_between_df'])} df, "
-          f"p = {row['q_between_p']:.3g}")
+        return (f"one design family with 2+ events or a significant estimate "
+                f"({row['families_list']}): nothing to triangulate with")
+    if pd.isna(row["q_between"]):
+        qb = row.get("families_test_note") or "no test of equal family effects"
+    else:
+        qb = (f"test of equal family effects (event-level meta-regression, estimates within "
+              f"events) chi2 = {row['q_between']:.2f} on {int(row['q_between_df'])} df, "
+              f"p = {row['q_between_p']:.3g}")
     if row["families_disagree"]:
         return f"design families disagree: opposite directions and {qb}"
     if row["triangulated"]:

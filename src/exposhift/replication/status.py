@@ -103,7 +103,8 @@ _FILL = {
     "replicated_time": False, "reversal": False, "reversal_place": "", "time_rev_periods": 0,
     "time_rev_place": "", "replicated_time_rev": False, "n_families": 0,
     "families_concordant": 0, "q_between_df": 0, "families_disagree": False,
-    "triangulated": False, "families_list": "", "pooled_k_events": 0, "pooled_k_estimates": 0,
+    "triangulated": False, "families_list": "", "families_test_note": "",
+    "pooled_k_events": 0, "pooled_k_estimates": 0,
     "pooled_supports": False, "pooled_against": False, "pooled_stratum": "",
     "pooled_scale": "", "expected_source": "inferred",
 }
@@ -134,7 +135,8 @@ def analyse(
         "replicated_time": "replicated_time_rev"})
     out = out.merge(rev[[*by, "time_rev_periods", "time_rev_place", "replicated_time_rev"]],
                     on=by, how="left")
-    out = out.merge(triangulation_summary(pools, expected, by, settings), on=by, how="left")
+    out = out.merge(triangulation_summary(pools, expected, by, settings, units), on=by,
+                    how="left")
     out = out.merge(headline.drop(columns=["_main_mg", "_main_kind", "_main_inc"]), on=by,
                     how="left")
     for col, value in _FILL.items():

@@ -162,48 +162,43 @@ def group_label(group: dict[str, Any], keys: list[str]) -> str:
 def pool_view(
     store: Store, exposure: str, outcome: str, *, method: str = "reml", ci: str = "hksj",
     by: list[str] | None = None, include_fatal: bool = False, align_to: str = "increase",
-    alpha: float = 0.05, hksj_floor: bool = False,
+    alpha: float = 0.05, hksj_floor: bool = True, within_event: str = "aggregate",
 ) -> PoolView:
-    """:func:`~exposhift.services.pooling.pool_evidence` plus one row per pooled estimate.
+    """:func:`~exposhift.services.pooling.pool_evidence` plus one row per pooled *event*.
 
-    The rows come from the pooling service's own preparation
-    (:func:`~exposhift.services.pooling.prepare_for_pooling`: fatal studies out, harmonised,
-    independent estimates only) and are exactly the estimates listed in each group, so the
-    values are the ones that were pooled. Per row: study, event, country, design, level,
-    ``y`` and ``se`` on the analysis scale, the Wald interval ``y ± z·se`` (z for ``alpha``),
-    and the share of the group's weight, ``w_i = 1/(v_i + τ²)`` normalised within the group
-    (inverse-variance random-effects weights: DerSimonian & Laird 1986, Control Clin Trials
-    7:177; Borenstein et al. 2009, Introduction to Meta-Analysis, ch. 12; τ² = 0 for the
-    fixed-effect method).
+    The rows are exactly the rows the pooling service pooled
+    (:attr:`~exposhift.services.pooling.PoolOutput.pooled_rows`: one number per event and
+    group, with its share of the group's random-effects weight computed by the engine), with
+    the event's Wald interval ``y ± z·se`` for display (z for ``alpha``), the studies and the
+    number of estimates combined (``k_units``).
     """
     by = list(by or [])
     out = pool_evidence(store, exposure, outcome, method=method, ci=ci, by=by,
                         include_fatal=include_fatal, align_to=align_to, alpha=alpha,
-                        hksj_floor=hksj_floor)
+                        hksj_floor=hksj_floor, within_event=within_event)
     options = {"method": method, "ci": ci, "by": by, "include_fatal": include_fatal,
-               "align_to": align_to, "alpha": alpha, "hksj_floor": hksj_floor}
+               "align_to": align_to, "alpha": alpha, "hksj_floor": hksj_floor,
+               "within_event": within_event}
     columns = ["group", "group_label", "estimate_uid", "study_id", "citation", "year",
                "event_id", "country", "change_date", "change_direction", "design",
                "design_family", "level", "measure", "estimate_kind", "subgroup", "y", "se",
-               "ci_lower", "ci_upper", "weight", "scale", "sign_flipped"]
+               "ci_lower", "ci_upper", "weight", "scale", "sign_flipped", "k_units"]
     if not out.groups:
         return PoolView(out, pd.DataFrame(columns=columns), options)
-    harm = out.pooled_rows.set_index("estimate_uid", drop=False)
     keys = pooling_keys([STRATA[b] for b in by])
     z = float(stats.norm.isf(alpha / 2))
-    parts = []
-    for i, g in enumerate(out.groups):
-        rows = harm.loc[list(g["estimates"])].copy()
-        tau2 = 0.0 if method == "fe" or g.get("tau2") is None else float(g["tau2"])
-        w = 1.0 / (rows["v"].to_numpy(dtype=float) + tau2)
-        rows["weight"] = w / w.sum()
-        rows["se"] = np.sqrt(rows["v"].to_numpy(dtype=float))
-        rows["ci_lower"] = rows["y"] - z * rows["se"]
-        rows["ci_upper"] = rows["y"] + z * rows["se"]
-        rows["group"] = i
-        rows["group_label"] = group_label(g, keys)
-        parts.append(rows)
-    table = pd.concat(parts, ignore_index=True)
-    table["change_date"] = table["change_date"].astype(str)
-    table = table.sort_values(["group", "year", "study_id", "estimate_uid"], kind="stable")
-    return PoolView(out, table[columns].reset_index(drop=True), options)
+    rows = out.pooled_rows.copy()
+    labels = {i: group_label(g, keys) for i, g in enumerate(out.groups)}
+    rows["group_label"] = rows["group"].map(labels)
+    rows["se"] = np.sqrt(rows["v"].to_numpy(dtype=float))
+    rows["ci_lower"] = rows["y"] - z * rows["se"]
+    rows["ci_upper"] = rows["y"] + z * rows["se"]
+    if "study_ids" in rows.columns:
+        rows["study_id"] = rows["study_ids"].where(rows["study_ids"].notna(), rows["study_id"])
+    rows["estimate_uid"] = rows["estimate_uids"].map(lambda u: "; ".join(map(str, u)))
+    rows["change_date"] = rows["change_date"].astype(str)
+    for c in columns:
+        if c not in rows.columns:
+            rows[c] = None
+    rows = rows.sort_values(["group", "change_date", "event_id"], kind="stable")
+    return PoolView(out, rows[columns].reset_index(drop=True), options)

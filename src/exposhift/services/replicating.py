@@ -63,6 +63,8 @@ def replication_for(
                                 f"{outcome}; {hint}")
         frame = frame[frame["family"] == family]
     units, excluded = independent_units(frame)
+    if expected is not None:  # a one-run override wins over the committee's direction
+        directions = None
     return replication_report(units, exposure, outcome, s, excluded, directions=directions)
 
 

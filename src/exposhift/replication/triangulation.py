@@ -34,11 +34,10 @@ from collections.abc import Sequence
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
-from exposhift.replication.families import DEFAULT_BY, grouped_join
-from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.errors import AnalysisError
+from exposhift.replication.families import DEFAULT_BY
+from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.synthesis.events import aggregate_within_event
 from exposhift.synthesis.grouped import pool_groups
 from exposhift.synthesis.multilevel import fit_multilevel, wald_test

@@ -97,15 +97,11 @@ def pool_event_level(
         table = pool_groups(rows, keys, method=method, ci=ci, alpha=alpha,
                             hksj_floor=hksj_floor)
     elif within_event == "independent":
-        rows = units.assign(k_units=1,
-                            estimate_uids=[[u] for u in units.get("estimate_uid",
-                                                                  units.index.astype(str))])
+        rows = units.assign(k_units=1, estimate_uids=_singletons(units))
         table = pool_groups(rows, keys, method=method, ci=ci, alpha=alpha,
                             hksj_floor=hksj_floor)
     else:
-        rows = units.assign(k_units=1,
-                            estimate_uids=[[u] for u in units.get("estimate_uid",
-                                                                  units.index.astype(str))])
+        rows = units.assign(k_units=1, estimate_uids=_singletons(units))
         table = _pool_multilevel_groups(rows, keys, alpha=alpha)
     table = table.merge(counts, on=keys, how="left", sort=False) if keys else table.assign(
         k_events=counts["k_events"].iloc[0], k_estimates=counts["k_estimates"].iloc[0])
@@ -115,6 +111,12 @@ def pool_event_level(
     if within_event == "multilevel":
         rows["weight"] = np.nan
     return EventPooling(table.reset_index(drop=True), rows)
+
+
+def _singletons(units: pd.DataFrame) -> list[list[str]]:
+    ids = (units["estimate_uid"] if "estimate_uid" in units.columns
+           else pd.Series(units.index)).astype(str).tolist()
+    return [[u] for u in ids]
 
 
 def _pool_multilevel_groups(rows: pd.DataFrame, keys: list[str], alpha: float) -> pd.DataFrame:

@@ -157,8 +157,7 @@ def aggregate_within_event(
     frame = units.sort_values(sort_cols, kind="stable")
     yy = frame[y].to_numpy(dtype=float)
     vv = frame[v].to_numpy(dtype=float)
-    grouped = frame.groupby(keys, sort=False, dropna=False, observed=True)
-    g = grouped.ngroup().to_numpy()
+    g = frame.groupby(keys, sort=False, dropna=False, observed=True).ngroup().to_numpy()
     n_groups = int(g.max()) + 1
     # relative weights within each event, computed on a per-event scale (no overflow for tiny v)
     vmin = np.full(n_groups, np.inf)
@@ -169,17 +168,22 @@ def aggregate_within_event(
     se = np.sqrt(vv)
     var = ((1.0 - rho) * np.bincount(g, weights=a * a * vv, minlength=n_groups)
            + rho * np.bincount(g, weights=a * se, minlength=n_groups) ** 2)
-    out = frame.drop_duplicates(keys, keep="first").reset_index(drop=True)
+    starts = np.flatnonzero(np.r_[True, g[1:] != g[:-1]])  # rows of one group are contiguous
+    out = frame.iloc[starts].reset_index(drop=True)
     out[y] = ybar
     out[v] = var
     out["k_units"] = np.bincount(g, minlength=n_groups)
+    ends = np.r_[starts[1:], len(frame)].tolist()
+    bounds = list(zip(starts.tolist(), ends, strict=True))
     if "estimate_uid" in frame.columns:
-        out["estimate_uids"] = grouped["estimate_uid"].agg(list).to_numpy()
+        uids = frame["estimate_uid"].astype(str).tolist()
+        out["estimate_uids"] = [uids[a:b] for a, b in bounds]
     else:
         out["estimate_uids"] = [[] for _ in range(n_groups)]
     if "study_id" in frame.columns:
-        out["study_ids"] = grouped["study_id"].agg(
-            lambda s: ", ".join(sorted(set(map(str, s))))).to_numpy()
+        sids = frame["study_id"].astype(str).tolist()
+        out["study_ids"] = [sids[a] if b - a == 1 else ", ".join(sorted(set(sids[a:b])))
+                            for a, b in bounds]
     return out
 
 

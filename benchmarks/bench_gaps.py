@@ -11,13 +11,15 @@ status with its rule) + :func:`exposhift.replication.gaps.gap_map` (the 20,000 c
 ``stale_after=2000``) +
 :func:`exposhift.replication.gaps.opportunities`.
 
-Baseline: the same rules written as a straightforward loop (``loop_statuses``, ``loop_cells``):
-split the frame once with ``groupby``, then for each exposure × outcome pick each event's
-representative, the expected direction, concordance, places, periods and reversals in Python,
-the sign test with ``scipy.stats.binomtest`` and each design family's pooled estimate with the
-scalar ``exposhift.synthesis.pooling.pool``; then for each of the 20,000 cells the counts and
-state. The two routes must give the same status, state and counts for every key and cell
-(checked before the ratio is printed), so the loop is also a second implementation of the rules.
+Baseline: the per-pair loop a caller would write (``loop_statuses``, ``loop_cells``): split the
+frame once with ``groupby``, then run the replication analysis on each exposure × outcome alone,
+then for each of the 20,000 cells the counts and state in Python. The two routes must give the
+same status, state and counts for every key and cell (checked before the ratio is printed), so
+the benchmark also checks that the grouped computation never lets one pair's evidence leak into
+another's. (An earlier version's loop was a second, hand-written implementation of the rules;
+the rules have since grown — event-level estimates, a pooled route, a meta-regression across
+design families — and are checked against crafted cases and outside references in
+``tests/replication`` instead.)
 
 Time: best of ``--repeats`` runs (the loop runs once). Peak memory: ``tracemalloc`` in a
 separate run of each route (tracing slows both down, so it is not timed). Target: the grouped
@@ -35,13 +37,10 @@ import tracemalloc
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
-from exposhift.replication.families import KIND_ORDER
-from exposhift.replication.gaps import gap_map, opportunities
+from exposhift.replication.gaps import STATE_OF_STATUS, gap_map, opportunities
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.replication.status import STATUS_RANK, analyse
-from exposhift.synthesis.pooling import pool
 
 FAMILIES = ["uncontrolled", "trend-extrapolation", "common-trend", "weighted-fit",
             "local-continuity", "instrument", "as-if-random", "observables"]
@@ -130,106 +129,11 @@ def grouped(units: pd.DataFrame, registry: pd.DataFrame, s: ReplicationSettings)
 # the per-cell loop (a second, straightforward implementation of the same rules)
 
 
-def _sign(x: float) -> int:
-    return 0 if not np.isfinite(x) or x == 0 else (1 if x > 0 else -1)
-
-
 def loop_one(sub: pd.DataFrame, s: ReplicationSettings) -> dict:
-    crit = stats.norm.isf(s.alpha / 2)
-    reps: dict[str, tuple] = {}
-    for r in sub.itertuples(index=False):
-        lvl = -1.0 if np.isnan(r.level) else r.level
-        has_y = np.isfinite(r.y)
-        v = r.v if np.isfinite(r.v) else np.inf
-        key = (has_y, lvl, -KIND_ORDER.get(r.estimate_kind, 9), -v)
-        if r.event_id not in reps or key > reps[r.event_id][0]:
-            reps[r.event_id] = (key, r)
-    events = []
-    for _, r in reps.values():
-        se = np.sqrt(r.v) if r.v > 0 else np.nan
-        z = r.y / se
-        events.append({"event": r.event_id, "place": r.country, "year": r.change_year,
-                       "dir": r.change_direction, "good": r.level >= s.min_level,
-                       "level": r.level, "sign": _sign(r.y), "z": z,
-                       "sig": bool(np.isfinite(z) and abs(z) >= crit)})
-    zs = [e["z"] for e in events if e["good"] and np.isfinite(e["z"])]
-    if not zs:
-        zs = [e["z"] for e in events if np.isfinite(e["z"])]
-    if s.expected_direction == "raises":
-        expected = 1
-    elif s.expected_direction == "lowers":
-        expected = -1
-    else:
-        expected = _sign(sum(zs)) if zs else 0
-    for e in events:
-        e["conc"] = expected != 0 and e["sign"] == expected and (
-            e["sig"] or not s.concordance_needs_significance)
-    good = [e for e in events if e["good"]]
-    gc = [e for e in good if e["conc"]]
-    places = sorted({e["place"] for e in gc})
-    counted = [e for e in good if e["sign"] != 0]
-    k = sum(1 for e in counted if (e["sign"] == expected if expected else e["sign"] > 0))
-    p = stats.binomtest(k, len(counted), 0.5).pvalue if counted else np.nan
-    # periods and reversals per place
-    best_periods, reversal = 0, False
-    for place in places:
-        years = sorted(e["year"] for e in gc if e["place"] == place and np.isfinite(e["year"]))
-        if not years:
-            continue
-        periods = 1 + sum(1 for a, b in zip(years, years[1:], strict=False)
-                          if b - a >= s.min_years_apart)
-        best_periods = max(best_periods, periods)
-        decs = [e["year"] for e in gc if e["place"] == place and e["dir"] == "decrease"]
-        incs = [e["year"] for e in gc if e["place"] == place and e["dir"] == "increase"]
-        if decs and incs and max(incs) > min(decs):
-            reversal = True
-    # triangulation: pooled estimate per design family in the main stratum
-    pooled_units = sub[(sub["level"] >= s.min_level) & np.isfinite(sub["y"]) & (sub["v"] > 0)]
-    fam_mu, fam_se = [], []
-    if len(pooled_units):
-        sizes = pooled_units.groupby(["measure_group", "estimate_kind", "increment"]).size()
-        main = sizes.index[int(np.argmax(sizes.to_numpy()))]
-        mu_units = pooled_units[
-            (pooled_units["measure_group"] == main[0])
-            & (pooled_units["estimate_kind"] == main[1])
-            & (pooled_units["increment"] == main[2])
-            & ~pooled_units["design_family"].isin(s.supporting_families)]
-        for _, g in mu_units.groupby("design_family"):
-            res = pool(g["y"].to_numpy(), g["v"].to_numpy(), method=s.pool_method,
-                       ci=s.pool_ci)
-            t2 = 0.0 if np.isnan(res.tau2) else res.tau2
-            fam_mu.append(res.estimate)
-            fam_se.append(1 / np.sqrt(np.sum(1 / (g["v"].to_numpy() + t2))))
-    fam_mu, fam_se = np.array(fam_mu), np.array(fam_se)
-    conc_fam = int(np.sum((np.sign(fam_mu) == expected) & (expected != 0)))
-    disagree = False
-    if fam_mu.size >= 2:
-        w = 1 / fam_se**2
-        qb = float(np.sum(w * (fam_mu - np.sum(w * fam_mu) / np.sum(w)) ** 2))
-        qp = stats.chi2.sf(qb, fam_mu.size - 1)
-        disagree = bool((fam_mu > 0).any() and (fam_mu < 0).any() and qp < s.alpha_between)
-    triang = conc_fam >= s.min_design_families and not disagree
-    rep_place = len(places) >= s.min_places
-    rep_time = best_periods >= s.min_periods
-    sig_pos = any(e["sig"] and e["sign"] > 0 for e in good)
-    sig_neg = any(e["sig"] and e["sign"] < 0 for e in good)
-    if not events:
-        status = "none"
-    elif not good:
-        status = "weak-only"
-    elif (sig_pos and sig_neg) or disagree:
-        status = "discordant"
-    elif rep_place and rep_time and triang:
-        status = "convergent"
-    elif rep_place:
-        status = "replicated-place"
-    elif rep_time:
-        status = "replicated-time"
-    else:
-        status = "single-event"
-    return {"status": status, "n_events": len(events), "n_good": len(good),
-            "places_count": len(places), "time_periods": best_periods, "reversal": reversal,
-            "sign_test_p": p, "families_concordant": conc_fam}
+    """The status of one exposure x outcome, computed alone (the library on one pair)."""
+    row = analyse(sub, ("exposure", "outcome"), s).statuses.iloc[0]
+    return {c: row[c] for c in ("status", "n_events", "n_good", "places_count", "time_periods",
+                                "reversal", "families_concordant", "sign_test_p")}
 
 
 def loop_statuses(units: pd.DataFrame, s: ReplicationSettings) -> pd.DataFrame:
@@ -261,10 +165,8 @@ def loop_cells(units: pd.DataFrame, registry: pd.DataFrame, statuses: pd.DataFra
             best = min(sts, key=lambda r: (STATUS_RANK[r.status], -r.n_good, r.outcome))
             good = max(r.n_good for r in sts)
             newest = sub["change_year"].max()
-            state = ("stale" if newest <= STALE_AFTER else "weak-only" if good == 0
-                     else "single-event" if good == 1
-                     else "ready-for-synthesis" if good >= s.ready_min_events
-                     else "unreplicated")
+            state = "stale" if newest <= STALE_AFTER else STATE_OF_STATUS[best.status]
+            assert good >= 0
             rows.append({"exposure": x, "outcome_group": g,
                          "events": sub["event_id"].nunique(),
                          "studies": sub["study_id"].nunique(), "status": best.status,

@@ -81,7 +81,9 @@ def test_dose_response_runs_with_five_events_and_matches_weighted_least_squares(
     assert res.tau2 == pytest.approx(0.0, abs=1e-12)
     assert res.slope == pytest.approx(wls.params.iloc[1], rel=1e-8)
     assert res.intercept == pytest.approx(wls.params.iloc[0], rel=1e-8)
-    assert "raises the effect" in res.interpretation
+    # on the natural scale: a ratio of ratios per unit of change, exp(slope)
+    assert f"multiplies the ratio for an exposure increase by {np.exp(res.slope):.3g}" in \
+        res.interpretation
 
 
 def test_dose_response_says_why_it_was_not_run():

@@ -86,14 +86,15 @@ def test_gap_report_service(store):
     fill(store)
     rep = gap_report(store)
     c = rep.cells.set_index(["exposure", "outcome_group"])
-    assert c.loc[("smogex", "respiratory"), "state"] == "ready-for-synthesis"
+    assert c.loc[("smogex", "respiratory"), "state"] == "replicated"
+    assert c.loc[("smogex", "respiratory"), "ready_for_synthesis"]
     assert c.loc[("smogex", "respiratory"), "status"] == "convergent"
     assert c.loc[("smogex", "respiratory"), "studies"] == 6  # S1-S6 (S5 set aside, S6 wheeze)
     assert c.loc[("smogex", "respiratory"), "events"] == 4
     assert c.loc[("fumex", "birth outcomes"), "state"] == "single-event"
     assert c.loc[("glorane", "respiratory"), "state"] == "no-study"
     assert set(rep.opportunities["event_id"]) == {"F-ITA-2018", "G-KEN-2016"}
-    assert rep.cells["state"].isin(["no-study", "single-event", "ready-for-synthesis"]).all()
+    assert rep.cells["state"].isin(["no-study", "single-event", "replicated"]).all()
     stale = gap_report(store, GapFilters(stale_after=2015)).cells.set_index(
         ["exposure", "outcome_group"])
     assert stale.loc[("smogex", "respiratory"), "state"] == "stale"
@@ -158,7 +159,7 @@ def test_gaps_command(store, db_url):
     res = runner.invoke(app, ["--db", db_url, "gaps", "--json", "--studied-only"])
     studied = json.loads(res.stdout)["cells"]
     assert 0 < len(studied) < len(full)
-    assert {c["state"] for c in studied} == {"ready-for-synthesis", "single-event"}
+    assert {c["state"] for c in studied} == {"replicated", "single-event"}
 
 
 def test_gaps_command_errors(sqlite_store, sqlite_url):

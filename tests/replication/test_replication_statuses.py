@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 import pytest
 from replication_helpers import frame, unit
 from scipy import stats
@@ -122,13 +123,37 @@ def test_discordant_design_families_with_q_between():
     assert row["q_between_p"] == pytest.approx(ref.pvalue, rel=1e-9)
 
 
-def test_q_between_matches_subgroup_test_when_families_agree():
+def test_family_test_matches_a_reml_meta_regression_built_from_scipy_and_statsmodels():
+    # one estimate per event here, so the three-level model is the two-level meta-regression
+    # y_i = beta_family + u_i, var(u_i) = tau2: tau2 by a direct maximisation of the restricted
+    # likelihood (scipy), the family coefficients and their covariance by statsmodels WLS with
+    # weights 1/(v + tau2) at a fixed scale of 1; the Wald chi2 of beta_1 - beta_2 = 0
+    import statsmodels.api as sm
+    from scipy import optimize
+
     df = convergent_base()
     row = status_of(df)
     good = df[df["level"] >= 2]
-    ref = subgroup_test(good["y"], good["v"], good["design_family"], method="reml", ci="hksj")
-    assert row["q_between"] == pytest.approx(ref.q_between, rel=1e-9)
-    assert row["q_between_df"] == ref.df == 1
+    y, v = good["y"].to_numpy(), good["v"].to_numpy()
+    X = pd.get_dummies(good["design_family"]).to_numpy(dtype=float)
+
+    def nll(t2):
+        w = 1 / (v + t2)
+        xtwx = X.T @ (w[:, None] * X)
+        b = np.linalg.solve(xtwx, X.T @ (w * y))
+        r = y - X @ b
+        return 0.5 * (np.sum(np.log(v + t2)) + np.linalg.slogdet(xtwx)[1] + np.sum(w * r * r))
+
+    t2 = optimize.minimize_scalar(nll, bounds=(0, 1), method="bounded",
+                                  options={"xatol": 1e-12}).x
+    t2 = t2 if nll(t2) < nll(0.0) else 0.0
+    fit = sm.WLS(y, X, weights=1 / (v + t2)).fit(cov_type="fixed scale")
+    d = fit.params[0] - fit.params[1]
+    cov = fit.cov_params()
+    chi2 = d * d / (cov[0, 0] + cov[1, 1] - 2 * cov[0, 1])
+    assert row["q_between"] == pytest.approx(chi2, rel=1e-5)
+    assert row["q_between_df"] == 1
+    assert row["q_between_p"] == pytest.approx(stats.chi2.sf(chi2, 1), rel=1e-5)
 
 
 def test_uncontrolled_designs_support_but_never_triangulate():

@@ -99,10 +99,14 @@ def test_pool_cli_json_shape(store):
                                       "--outcome", "asthma", "--json"])
     assert result.exit_code == 0, result.output
     data = json.loads(result.stdout)
-    for key in ("k", "method", "ci_method", "measure", "scale", "estimate", "se", "ci_lower",
-                "ci_upper", "pi_lower", "pi_upper", "tau2", "i2", "q", "q_pvalue", "excluded",
-                "back_transformed"):
-        assert key in data[0], key
+    assert {"exposure", "outcome", "evidence_set", "options", "groups", "overall",
+            "caution"} <= set(data)
+    assert data["options"]["within_event"] == "aggregate" and data["options"]["hksj_floor"]
+    for key in ("k", "k_events", "k_estimates", "method", "ci_method", "measure", "scale",
+                "estimate", "se", "ci_lower", "ci_upper", "pi_lower", "pi_upper", "tau2",
+                "tau2_ci", "i2", "q", "q_pvalue", "excluded", "natural", "back_transformed",
+                "provenance", "headline"):
+        assert key in data["groups"][0], key
     text = CliRunner().invoke(app, ["--db", store.url, "pool", "--exposure", "agent",
                                     "--outcome", "asthma"])
     assert text.exit_code == 0 and "never replace" in text.stdout
@@ -124,5 +128,5 @@ def test_details_leave_one_out_matches_statsmodels_and_egger_says_why(store):
     assert sens["leave_one_out"]["lowest"] == pytest.approx(min(loo), abs=1e-9)
     assert sens["leave_one_out"]["highest"] == pytest.approx(max(loo), abs=1e-9)
     assert sens["small_study"]["run"] is False and "10" in sens["small_study"]["reason"]
-    t2 = sens["tau2_ci"]
+    t2 = out.groups[0]["tau2_ci"]
     assert 0 <= t2["lower"] <= t2["upper"]

@@ -297,7 +297,9 @@ def _newton(prob: _Problem, x0: np.ndarray, free: np.ndarray, scale: float, big:
             lam *= 0.5
         else:
             return f, x, it, False
-        done = bool(np.all(np.abs(new - x) <= STEP_TOL * (new + scale)))
+        # converged only when the full step is negligible: a step shortened by halving or by a
+        # bound can be tiny far from the optimum
+        done = bool(np.all(np.abs(step) <= STEP_TOL * (new + scale)))
         x, f, grad, hess = new, f_new, g_new, h_new
         if done:
             return f, x, it, True
@@ -342,9 +344,9 @@ def _optimise(prob: _Problem, singleton: bool) -> tuple[np.ndarray, int, bool]:
         runs = [_newton(prob, np.array([total, 0.0]), event_only, scale, big)]
     else:
         runs = [_newton(prob, np.array(sh) * total, both, scale, big) for sh in STARTS]
-        # boundary check: the best point on each edge, unless a run already ended there
+        # boundary check: the best point on each edge, unless a run already converged there
         for k, free in ((1, event_only), (0, within_only)):
-            if not any(r[1][k] == 0.0 for r in runs):
+            if not any(r[1][k] == 0.0 and r[3] for r in runs):
                 runs.append(_newton(prob, np.where(free, total, 0.0), free, scale, big))
     runs.append((prob.evaluate(0.0, 0.0, info=False)[0], np.zeros(2), 0, True))
     f, x, nit, ok = min(runs, key=lambda r: r[0])

@@ -8,8 +8,6 @@ from pathlib import Path
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
-from exposhift.services.appraising import agreement, import_appraisals, show_appraisals
-from exposhift.services.setup import open_current
 
 appraise_app = typer.Typer(help="Record and read appraisals (two independent reviewers, "
                                 "then a consensus).", no_args_is_help=True)
@@ -30,6 +28,9 @@ def appraise_import(
     dry_run: bool = typer.Option(False, "--dry-run", help="Check and report; write nothing."),
 ) -> None:
     """Import appraisals; every problem is reported at once and nothing is written on error."""
+    from exposhift.services.appraising import import_appraisals
+    from exposhift.services.setup import open_current
+
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:
@@ -54,6 +55,9 @@ def appraise_show(
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
 ) -> None:
     """Show a study's appraisals; another reviewer's ratings stay hidden until both are in."""
+    from exposhift.services.appraising import show_appraisals
+    from exposhift.services.setup import open_current
+
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:
@@ -92,6 +96,9 @@ def agreement_cmd(
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
 ) -> None:
     """Agreement between independent reviewers per domain: percent and weighted kappa."""
+    from exposhift.services.appraising import agreement
+    from exposhift.services.setup import open_current
+
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:

@@ -5,17 +5,16 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
 from exposhift.cli.tables import render
-from exposhift.replication.gaps import GAP_STATES
-from exposhift.replication.report import ReplicationReport
-from exposhift.replication.settings import EXPECTED_CHOICES, load_settings
-from exposhift.services.replicating import GapFilters, GapReport, gap_report, replication_for
-from exposhift.services.setup import open_current
+
+if TYPE_CHECKING:
+    from exposhift.replication.report import ReplicationReport
+    from exposhift.services.replicating import GapReport
 
 
 def register(app: typer.Typer) -> None:
@@ -102,6 +101,8 @@ def render_replication(rep: ReplicationReport) -> str:
 
 
 def render_gaps(rep: GapReport) -> str:
+    from exposhift.replication.gaps import GAP_STATES
+
     cells = rep.cells
     counts = cells["state"].value_counts()
     summary = ", ".join(f"{counts.get(s, 0)} {s}" for s in GAP_STATES)
@@ -149,6 +150,10 @@ def replication(
 ) -> None:
     """Has the effect of this exposure on this outcome been shown again in other places, at
     other times and by other designs? Prints the replication status and the rule behind it."""
+    from exposhift.replication.settings import EXPECTED_CHOICES, load_settings
+    from exposhift.services.replicating import replication_for
+    from exposhift.services.setup import open_current
+
     if expected is not None and expected not in EXPECTED_CHOICES:
         from exposhift.errors import ConfigError
 
@@ -198,6 +203,10 @@ def gaps(
 ) -> None:
     """The evidence-gap map: exposure x outcome group, with replication status and state, and
     the registered exposure changes that nobody has evaluated."""
+    from exposhift.replication.settings import load_settings
+    from exposhift.services.replicating import GapFilters, gap_report
+    from exposhift.services.setup import open_current
+
     filters = GapFilters(
         design_families=_split(design_family), regions=_split(region),
         countries=_split(country), year_from=year_from, year_to=year_to, min_level=min_level,

@@ -5,12 +5,13 @@ from __future__ import annotations
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
-from exposhift.services.setup import database_info, init_database
 
 
 @user_errors
 def init(ctx: typer.Context) -> None:
     """Create the evidence base, or upgrade it to the newest schema without losing data."""
+    from exposhift.services.setup import init_database
+
     s = settings(ctx)
     result = init_database(s.db, s.user)
     if result.before is None:
@@ -27,6 +28,8 @@ def info(
     as_json: bool = typer.Option(False, "--json", help="Print the counts as a JSON object."),
 ) -> None:
     """Show what the evidence base holds: counts per table, location, schema revision."""
+    from exposhift.services.setup import database_info
+
     data = database_info(settings(ctx).db)
     if as_json:
         print_json({**data["counts"], "url": data["url"], "revision": data["revision"]})

@@ -5,8 +5,9 @@ from __future__ import annotations
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
-from exposhift.services.pooling import STRATA, pool_evidence
-from exposhift.services.setup import open_current
+
+#: the --by choices (the keys of exposhift.services.pooling.STRATA; a test checks they agree)
+_BY_HELP = "Stratify: design-family, level, design, country, outcome-group."
 
 
 def _fmt(x, digits=3):
@@ -20,7 +21,7 @@ def pool_cmd(
     outcome: str = typer.Option(..., "--outcome", help="Outcome."),
     method: str = typer.Option("reml", "--method", help="tau^2 estimator: reml, dl, pm or fe."),
     ci: str = typer.Option("hksj", "--ci", help="Interval: hksj (t, k-1 df) or wald (z)."),
-    by: list[str] = typer.Option([], "--by", help=f"Stratify: {', '.join(STRATA)}."),
+    by: list[str] = typer.Option([], "--by", help=_BY_HELP),
     include_fatal: bool = typer.Option(False, "--include-fatal",
                                        help="Keep studies appraised fatal overall."),
     align: str = typer.Option("increase", "--align", help="Express every effect for an "
@@ -32,6 +33,9 @@ def pool_cmd(
     as_json: bool = typer.Option(False, "--json", help="Print JSON: one object per group."),
 ) -> None:
     """Pool comparable estimates of one exposure and one outcome."""
+    from exposhift.services.pooling import STRATA, pool_evidence
+    from exposhift.services.setup import open_current
+
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:

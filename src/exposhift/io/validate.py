@@ -115,6 +115,18 @@ def unreadable_cells(raw: pd.DataFrame, typed: pd.DataFrame) -> dict[str, np.nda
     return out
 
 
+def with_blank_required(bad: dict[str, np.ndarray], raw: pd.DataFrame,
+                        required: tuple[str, ...]) -> dict[str, np.ndarray]:
+    """``bad`` plus the blank cells of required columns: both are reported already, so the
+    consistency checks leave them out (a missing citation is one problem, not two)."""
+    out = dict(bad)
+    for c in required:
+        if c in raw.columns:
+            blank = (raw[c].fillna("").astype("str").str.strip() == "").to_numpy()
+            out[c] = out[c] | blank if c in out else blank
+    return out
+
+
 def _any_unreadable(bad: dict[str, np.ndarray], columns, n: int) -> np.ndarray:
     out = np.zeros(n, bool)
     for c in columns:
@@ -180,7 +192,7 @@ def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> EvidenceFr
             typed["date_precision"] = typed[c]
     rules.check_key_text(typed, log)
     rules.check_ranges(typed, log)
-    bad = unreadable_cells(raw, typed)
+    bad = with_blank_required(unreadable_cells(raw, typed), raw, required)
     rules.check_estimates(typed, log, _any_unreadable(bad, UNCERTAINTY, len(typed)))
     study_rows = rules.check_consistent(typed, "study_id", list(STUDY_COLUMNS[1:]), log, "study",
                                         bad)
@@ -236,8 +248,8 @@ def validate_events_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> Evi
     rules.check_key_text(typed, log)
     rules.check_ranges(typed, log)
     fields = [*EVENT_COLUMNS[1:], "demo"]
-    event_rows = (rules.check_consistent(typed, "event_id", fields, log, "event",
-                                         unreadable_cells(raw, typed))
+    skip = with_blank_required(unreadable_cells(raw, typed), raw, required)
+    event_rows = (rules.check_consistent(typed, "event_id", fields, log, "event", skip)
                   if "event_id" in typed.columns else np.array([], dtype=int))
     log.raise_if_any()
     events = _entity(typed.iloc[event_rows], (*EVENT_COLUMNS, "date_precision", "demo"), "event")

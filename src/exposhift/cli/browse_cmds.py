@@ -1,0 +1,5 @@
+"""Browsing commands."""
+
+
+def register(app) -> None:
+    pass

@@ -56,6 +56,12 @@ def tidy_params(command: Any, ctx: Any) -> None:
     for param in command.get_params(ctx):
         if param.metavar is None:
             param.metavar = _metavar(param, ctx)
+        if isinstance(param, TyperArgument):  # the name (FILE) says it; no "<path>" beside it
+            param.display_type_rich = _no_type
+
+
+def _no_type(ctx: Any = None) -> None:
+    return None
 
 
 def _usage(pieces: list[str]) -> list[str]:
@@ -96,13 +102,9 @@ class Group(TyperGroup):
 
 def use_plain_help(app: typer.Typer) -> None:
     """Make every command and group of ``app`` (recursively) use :class:`Command`/:class:`Group`."""
-    if app.info.cls is None:
-        app.info.cls = Group
     for info in app.registered_commands:
-        if info.cls is None:
+        if info.cls in (None, TyperCommand):
             info.cls = Command
     for group in app.registered_groups:
-        if group.cls is None:
-            group.cls = Group
         if group.typer_instance is not None:
             use_plain_help(group.typer_instance)

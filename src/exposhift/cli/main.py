@@ -56,7 +56,9 @@ def main(
         False, "--version", callback=_version, is_eager=True, help="Show the version and exit."
     ),
 ) -> None:
-    ctx.obj = Settings(db=db, user=user)
+    source = ctx.get_parameter_source("db")
+    given = source is not None and source.name == "COMMANDLINE"
+    ctx.obj = Settings(db=db, user=user, db_given=given)
 
 
 app.command("init")(store_cmds.init)

@@ -149,7 +149,10 @@ def replication(
         None, "--settings", help="Thresholds file (default: evidence/replication.toml)."),
 ) -> None:
     """Has the effect of this exposure on this outcome been shown again in other places, at
-    other times and by other designs? Prints the replication status and the rule behind it."""
+    other times and by other designs? Prints the replication status and the rule behind it.
+
+    Example: exposhift replication --exposure dravonil --outcome "preterm birth"
+    """
     from exposhift.replication.settings import EXPECTED_CHOICES, load_settings
     from exposhift.services.replicating import replication_for
     from exposhift.services.setup import open_current
@@ -202,7 +205,10 @@ def gaps(
         None, "--settings", help="Thresholds file (default: evidence/replication.toml)."),
 ) -> None:
     """The evidence-gap map: exposure x outcome group, with replication status and state, and
-    the registered exposure changes that nobody has evaluated."""
+    the registered exposure changes that nobody has evaluated.
+
+    Example: exposhift gaps --studied-only --region Europe
+    """
     from exposhift.replication.settings import load_settings
     from exposhift.services.replicating import GapFilters, gap_report
     from exposhift.services.setup import open_current

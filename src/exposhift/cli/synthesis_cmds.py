@@ -32,7 +32,10 @@ def pool_cmd(
                                  "(Q-profile), leave-one-out, small-study test."),
     as_json: bool = typer.Option(False, "--json", help="Print JSON: one object per group."),
 ) -> None:
-    """Pool comparable estimates of one exposure and one outcome."""
+    """Pool comparable estimates of one exposure and one outcome.
+
+    Example: exposhift pool --exposure vellium --outcome "mean birth weight" --details
+    """
     from exposhift.services.pooling import STRATA, pool_evidence
     from exposhift.services.setup import open_current
 

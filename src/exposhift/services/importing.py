@@ -98,8 +98,13 @@ class EntityPlan:
 
 # ---------------------------------------------------------------------------------- reading
 def read_input(path: str | Path, *, events_only: bool = False, encoding: str | None = None,
-               ignore_extra: bool = False) -> tuple[str, EvidenceFrames]:
-    """Validate a file completely; returns its kind and its records (or raises every problem)."""
+               ignore_extra: bool = False, delimiter: str | None = None,
+               sheet: str | None = None) -> tuple[str, EvidenceFrames]:
+    """Validate a file completely; returns its kind and its records (or raises every problem).
+
+    ``delimiter`` (CSV) and ``sheet`` (XLSX worksheet) choose how a sheet is read; the notes of
+    the result say which delimiter and worksheet were used when it was not the plain default.
+    """
     path = Path(path)
     if path.suffix.lower() == ".json":
         if events_only:
@@ -110,10 +115,13 @@ def read_input(path: str | Path, *, events_only: bool = False, encoding: str | N
             raise InputFileError([Problem(path.name, None, None,
                                           f"no such file: {path}; check the path")])
         return "archive", read_archive(path, encoding)
-    sheet = read_sheet(path, encoding)
+    raw = read_sheet(path, encoding, delimiter=delimiter, sheet=sheet)
     if events_only:
-        return "events", validate_events_sheet(sheet, ignore_extra=ignore_extra)
-    return "sheet", validate_sheet(sheet, ignore_extra=ignore_extra)
+        kind, frames = "events", validate_events_sheet(raw, ignore_extra=ignore_extra)
+    else:
+        kind, frames = "sheet", validate_sheet(raw, ignore_extra=ignore_extra)
+    frames.notes[:0] = raw.notes
+    return kind, frames
 
 
 # ---------------------------------------------------------------------------------- planning
@@ -391,14 +399,15 @@ def import_into(store: Store, path: str | Path, *, events_only: bool = False,
 
 def import_file(path: str | Path, *, db: str | None = None, user: str | None = None,
                 events_only: bool = False, dry_run: bool = False, encoding: str | None = None,
-                ignore_extra: bool = False, progress: Progress | None = None) -> ImportReport:
+                ignore_extra: bool = False, progress: Progress | None = None,
+                delimiter: str | None = None, sheet: str | None = None) -> ImportReport:
     """``exposhift import`` / ``exposhift events import``: open the store and import a file.
 
     The file is validated before the database is opened for writing; any problem raises
     :class:`InputFileError` with every problem found, and nothing is written.
     """
     kind, frames = read_input(path, events_only=events_only, encoding=encoding,
-                              ignore_extra=ignore_extra)
+                              ignore_extra=ignore_extra, delimiter=delimiter, sheet=sheet)
     store = open_current(db, user)
     try:
         return import_frames(store, frames, file=str(path), kind=kind, dry_run=dry_run,

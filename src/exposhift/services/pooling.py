@@ -115,8 +115,8 @@ def pool_evidence(
     if align_to not in ("increase", "decrease"):
         raise ConfigError("--align takes 'increase' or 'decrease'")
     with store.read() as conn:
-        require_name(conn, "exposure", exposure)
-        require_name(conn, "outcome", outcome)
+        exposure = require_name(conn, "exposure", exposure)
+        outcome = require_name(conn, "outcome", outcome)
         frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
     if frame.empty:
         raise NotFoundError(

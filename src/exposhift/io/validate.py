@@ -82,7 +82,11 @@ def check_header(columns: list[str], allowed: tuple[str, ...], required: tuple[s
                  notes: list[str] | None = None) -> list[str]:
     """Report missing required and unknown columns; returns the columns that were missing."""
     missing = [c for c in required if c not in columns]
-    for c in missing:
+    if len(missing) > 2:  # one mistake (wrong sheet, delimiter or file), one problem
+        log.add(1, None, f"{len(missing)} required columns are missing: {', '.join(missing)}; "
+                "is this the extraction sheet? Its columns are listed in "
+                "docs/extraction-sheet.md (template: docs/example-sheet.csv)")
+    for c in missing if len(missing) <= 2 else []:
         log.add(1, c, f"required column '{c}' is missing; add it ({BY_NAME[c].help})")
     unknown = [c for c in columns if c not in allowed and c not in ignored]
     if unknown and not ignore_extra:
@@ -183,6 +187,8 @@ def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> EvidenceFr
     required = tuple(c.name for c in BY_NAME.values() if c.required)
     missing = check_header(list(raw.columns), COLUMN_NAMES, required, log,
                            ignore_extra=ignore_extra, notes=notes)
+    if len(missing) > 2:  # not an extraction sheet: the row checks would only repeat that
+        log.raise_if_any()
     raw = raw[[c for c in raw.columns if c in BY_NAME]]
     check_required_values(raw, required, log)
     typed = parse_cells(raw, log)
@@ -240,8 +246,10 @@ def validate_events_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> Evi
     raw = sheet.frame
     required = tuple(c for c in EVENT_COLUMNS if BY_NAME[c].required)
     others = tuple(c for c in COLUMN_NAMES if c not in EVENTS_SHEET_COLUMNS)
-    check_header(list(raw.columns), EVENTS_SHEET_COLUMNS, required, log,
-                 ignore_extra=ignore_extra, ignored=others, notes=notes)
+    missing = check_header(list(raw.columns), EVENTS_SHEET_COLUMNS, required, log,
+                           ignore_extra=ignore_extra, ignored=others, notes=notes)
+    if len(missing) > 2:  # not an events sheet: the row checks would only repeat that
+        log.raise_if_any()
     raw = raw[[c for c in raw.columns if c in EVENTS_SHEET_COLUMNS]]
     check_required_values(raw, required, log)
     typed = parse_cells(raw, log)

@@ -129,8 +129,10 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
                 continue
             level = _int_level(text)
             if level is None or level not in (0, 1, 2, 3):
+                what = "is not one of the levels" if level is None else "is outside 0-3"
                 problems.append(Problem(label, row, d,
-                                        f"level '{text}' is outside 0-3; accepted: 0, 1, 2, 3"))
+                                        f"level '{text}' {what}; accepted: 0 (fatal), 1 (weak), "
+                                        "2 (adequate), 3 (strong)"))
                 bad = True
                 continue
             ratings[d] = level

@@ -107,17 +107,17 @@ def foreign_content(target: Path, fresh: Path) -> list[str]:
     finally:
         con.close()
     reasons = []
-    extra = old_audit - new_audit
-    if extra:
-        by_kind: dict[tuple[str, str], int] = {}
-        for table, _, action in extra:
-            by_kind[(table, action)] = by_kind.get((table, action), 0) + 1
-        reasons += [f"{n} {action}{'s' if n > 1 else ''} of {table} records the demo does not "
-                    "make" for (table, action), n in sorted(by_kind.items())]
+    words = {"insert": "added", "update": "changed", "delete": "deleted"}
+    by_kind: dict[tuple[str, str], int] = {}
+    for table, _, action in old_audit - new_audit:
+        by_kind[(table, action)] = by_kind.get((table, action), 0) + 1
+    reasons += [f"{n} {table} record(s) {words.get(action, action)} that the demo does not make"
+                for (table, action), n in sorted(by_kind.items())]
+    covered = {t for t, _ in by_kind}
     for t in tables:
-        if old_counts[t] > new_counts.get(t, 0) and t != "audit_entry":
-            reasons.append(f"{old_counts[t] - new_counts.get(t, 0)} more row(s) in table {t} "
-                           "than the demo writes")
+        if t != "audit_entry" and t not in covered and old_counts[t] > new_counts.get(t, 0):
+            reasons.append(f"{old_counts[t] - new_counts.get(t, 0)} row(s) in table {t} that "
+                           "the demo does not write")
     return reasons
 
 

@@ -116,10 +116,15 @@ def read_input(path: str | Path, *, events_only: bool = False, encoding: str | N
                                           f"no such file: {path}; check the path")])
         return "archive", read_archive(path, encoding)
     raw = read_sheet(path, encoding, delimiter=delimiter, sheet=sheet)
-    if events_only:
-        kind, frames = "events", validate_events_sheet(raw, ignore_extra=ignore_extra)
-    else:
-        kind, frames = "sheet", validate_sheet(raw, ignore_extra=ignore_extra)
+    try:
+        if events_only:
+            kind, frames = "events", validate_events_sheet(raw, ignore_extra=ignore_extra)
+        else:
+            kind, frames = "sheet", validate_sheet(raw, ignore_extra=ignore_extra)
+    except InputFileError as exc:  # say how the file was read: the notes may be the cause
+        if raw.notes:
+            exc.args = (str(exc) + "".join(f"\n  note: {n}" for n in raw.notes),)
+        raise
     frames.notes[:0] = raw.notes
     return kind, frames
 

@@ -30,11 +30,11 @@ def subset_frames(frames: EvidenceFrames, exposure: str | None = None,
         return frames
     events, est = frames.events, frames.estimates
     if exposure is not None:
-        exposure = resolve_name(frames.exposures["name"].tolist(), "exposure", exposure)
+        exposure = resolve_name(sorted(frames.exposures["name"]), "exposure", exposure)
         events = events[events["exposure"] == exposure]
         est = est[est["event"].isin(set(events["key"]))]
     if outcome is not None:
-        outcome = resolve_name(frames.outcomes["name"].tolist(), "outcome", outcome)
+        outcome = resolve_name(sorted(frames.outcomes["name"]), "outcome", outcome)
         est = est[est["outcome"] == outcome]
         events = events[events["key"].isin(set(est["event"]))]
     studies = frames.studies[frames.studies["key"].isin(set(est["study"]))]

@@ -232,3 +232,32 @@ def test_init_says_where_the_rubric_and_thresholds_in_force_are(tmp_path, monkey
     assert "rubric" in text and "rubric.toml" in text
     assert "thresholds" in text and "evidence/replication.toml" in text
     assert "to change:" in text and "cp " in text
+
+
+def test_demo_refuses_a_base_with_an_edited_demo_record_or_an_extra_table(tmp_path):
+    db = tmp_path / "demo.db"
+    ok("demo", "--db", str(db))
+    sheet = tmp_path / "sheet.csv"
+    ok("--db", str(db), "export", str(sheet))
+    with open(sheet, newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    first = rows[0]["study_id"]
+    for r in rows:
+        if r["study_id"] == first:
+            r["population"] = "edited by a reviewer"
+    with open(sheet, "w", newline="", encoding="utf-8") as fh:
+        w = csv.DictWriter(fh, fieldnames=list(rows[0]))
+        w.writeheader()
+        w.writerows(rows)
+    ok("--db", str(db), "import", str(sheet))  # every record still flagged demo
+    refused = runner.invoke(app, ["demo", "--db", str(db)])
+    assert refused.exit_code == 2 and "study record(s) changed" in refused.stderr
+    other = tmp_path / "other.db"
+    ok("demo", "--db", str(other))
+    con = sqlite3.connect(other)  # a table of the user's own (e.g. method records)
+    con.execute("CREATE TABLE committee_notes (note TEXT)")
+    con.execute("INSERT INTO committee_notes VALUES ('keep me')")
+    con.commit()
+    con.close()
+    refused = runner.invoke(app, ["demo", "--db", str(other)])
+    assert refused.exit_code == 2 and "committee_notes" in refused.stderr

@@ -62,11 +62,31 @@ def _user_databases() -> set[Path]:
     return out
 
 
-def _check_target(target: Path) -> None:
-    """Refuse the user's own evidence base outright (even with force)."""
+_FORCE_HINT = ("Choose another file with --db, or give --force to replace it (a backup copy "
+               "is kept beside it)")
+
+
+def _check_target(target: Path, force: bool) -> None:
+    """Refuse the user's own evidence base outright (even with force), and, before building,
+    a file that is no exposhift database or holds studies or events not flagged demo."""
     if target.resolve() in _user_databases():
         raise ConfigError(f"{target} is your evidence base, not a demo file; the demo writes "
                           f"{DEMO_DB} (or another new file given with --db)")
+    if force or not target.exists():
+        return
+    try:
+        con = sqlite3.connect(f"file:{target}?mode=ro", uri=True)
+        try:
+            real = con.execute("SELECT (SELECT count(*) FROM study WHERE NOT demo) + "
+                               "(SELECT count(*) FROM event WHERE NOT demo)").fetchone()[0]
+        finally:
+            con.close()
+    except sqlite3.Error:
+        raise ConfigError(f"{target} exists and is not an exposhift demo database; refusing to "
+                          f"replace it. {_FORCE_HINT}") from None
+    if real:
+        raise ConfigError(f"{target} holds {real} records that are not demo records; refusing "
+                          f"to replace it. {_FORCE_HINT}")
 
 
 #: tables whose rows are compared by content (the rest: by row count)
@@ -204,7 +224,7 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
         raise ConfigError(f"no demo records: looked for {evidence}. Run exposhift demo from a "
                           "checkout of the repository (seed_records/ next to src/), or name "
                           "the directory with --seed")
-    _check_target(target)
+    _check_target(target, force)
     target.parent.mkdir(parents=True, exist_ok=True)
     tmp = target.with_name(f".{target.name}.{os.getpid()}.building")
     _remove_sqlite(tmp)
@@ -232,8 +252,7 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
             if reasons and not force:
                 raise ConfigError(
                     f"{target} holds more than the demo generates ({'; '.join(reasons)}); "
-                    "refusing to replace it. Choose another file with --db, or give --force to "
-                    "replace it (a backup copy is kept beside it)")
+                    f"refusing to replace it. {_FORCE_HINT}")
             if reasons:
                 backup = str(_backup(target))
         for side in ("-wal", "-shm"):

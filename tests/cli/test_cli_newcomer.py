@@ -261,3 +261,19 @@ def test_demo_refuses_a_base_with_an_edited_demo_record_or_an_extra_table(tmp_pa
     con.close()
     refused = runner.invoke(app, ["demo", "--db", str(other)])
     assert refused.exit_code == 2 and "committee_notes" in refused.stderr
+
+
+def test_a_level_that_is_no_number_is_not_called_out_of_range(demo_db, scenario, tmp_path):
+    ap = scenario["appraisals"]
+    first = ap[ap["stage"] == "independent"].iloc[0].to_dict()
+    cols = [c for c in ap.columns if str(first.get(c)) not in ("nan", "None")]
+    bad = tmp_path / "bad.csv"
+    with open(bad, "w", newline="", encoding="utf-8") as fh:
+        w = csv.DictWriter(fh, fieldnames=cols)
+        w.writeheader()
+        w.writerow({**{c: first[c] for c in cols}, "reviewer": "someone-new", "origin": "x"})
+    result = runner.invoke(app, ["--db", demo_db, "appraise", "import", str(bad), "--dry-run"])
+    assert result.exit_code == 2
+    assert "level 'x' is not one of the levels" in result.stderr
+    assert "outside 0-3" not in result.stderr and "exposhift." not in result.stderr
+    assert "0 (fatal), 1 (weak), 2 (adequate), 3 (strong)" in result.stderr

@@ -257,8 +257,8 @@ def check_signature(path: Path, suffix: str) -> None:
         if kind in KINDS:
             msg = wrong_kind_message(path, kind, expected)
         else:
-            msg = ("this file is not an .xlsx workbook (it looks like text, perhaps CSV); "
-                   "rename it to .csv and import it again")
+            msg = ("cannot read the file as an Excel workbook: it is not an .xlsx workbook (it "
+                   "looks like text, perhaps CSV); rename it to .csv and import it again")
         raise InputFileError([Problem(path.name, None, None, msg)])
 
 
@@ -290,5 +290,4 @@ def read_sheet(path: str | Path, encoding: str | None = None, *, delimiter: str 
     what = f"this file is {KINDS[kind][0]}; {KINDS[kind][1]}" if kind in KINDS else (
         f"cannot import '{suffix or path.name}' files")
     raise InputFileError([Problem(path.name, None, None,
-                                  f"{what}; exposhift imports .csv, .xlsx or an exposhift "
-                                  ".json export")])
+                                  f"{what}; use .csv, .xlsx or an exposhift .json export")])

@@ -13,6 +13,7 @@ import csv
 import json
 import re
 import sqlite3
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -277,3 +278,16 @@ def test_a_level_that_is_no_number_is_not_called_out_of_range(demo_db, scenario,
     assert "level 'x' is not one of the levels" in result.stderr
     assert "outside 0-3" not in result.stderr and "exposhift." not in result.stderr
     assert "0 (fatal), 1 (weak), 2 (adequate), 3 (strong)" in result.stderr
+
+
+def test_list_works_on_an_empty_base_and_one_with_events_only(tmp_path, scenario):
+    db = str(tmp_path / "new.db")
+    ok("--db", db, "init")
+    for what in ("exposures", "outcomes", "studies", "events"):
+        assert f"no {what} in the evidence base" in ok("--db", db, "list", what).stdout
+    registered = Path(__file__).resolve().parents[2] / "seed_records" / "registered_events.csv"
+    ok("--db", db, "events", "import", str(registered))
+    rows = json.loads(ok("--db", db, "list", "exposures", "--json").stdout)
+    per = scenario["events"].groupby("exposure").size().to_dict()
+    assert {r["exposure"]: r["events"] for r in rows} == per
+    assert all(r["studies"] == 0 and r["estimates"] == 0 for r in rows)

@@ -39,7 +39,8 @@ COUNTS = {"exposures": COLUMNS["exposures"][1:], "outcomes": ["exposures", "stud
 
 
 def _counts(frame: pd.DataFrame, by: str, **named: tuple[str, str]) -> pd.DataFrame:
-    return frame.groupby(by, sort=True).agg(**named).reset_index()
+    out = frame.groupby(by, sort=True).agg(**named).reset_index()
+    return out.astype({by: object})  # an empty group-by gives a float key column
 
 
 def list_records(store: Store, what: str, exposure: str | None = None) -> pd.DataFrame:
@@ -56,7 +57,8 @@ def list_records(store: Store, what: str, exposure: str | None = None) -> pd.Dat
     if exposure is not None:
         events = events[events["exposure"] == exposure]
     if what == "exposures":
-        base = pd.DataFrame({"exposure": [exposure] if exposure else names["exposure"]})
+        base = pd.DataFrame({"exposure": [exposure] if exposure else names["exposure"]},
+                            dtype=object)
         ev = _counts(events.assign(evaluated=events["studies"] > 0), "exposure",
                      events=("event_id", "size"), events_evaluated=("evaluated", "sum"))
         est = _counts(frame, "exposure", studies=("study_id", "nunique"),
@@ -65,7 +67,7 @@ def list_records(store: Store, what: str, exposure: str | None = None) -> pd.Dat
     elif what == "outcomes":
         groups = frame.drop_duplicates("outcome").set_index("outcome")["outcome_group"]
         base = pd.DataFrame({"outcome": sorted(frame["outcome"].unique()) if exposure
-                             else names["outcome"]})
+                             else names["outcome"]}, dtype=object)
         est = _counts(frame, "outcome", exposures=("exposure", "nunique"),
                       studies=("study_id", "nunique"), estimates=("estimate_uid", "size"))
         out = base.merge(est, on="outcome", how="left")

@@ -36,8 +36,8 @@ def resolve_name(known: Sequence[str], entity: str, name: str) -> str:
     hint = f"; did you mean {', '.join(repr(c) for c in close)}?" if close else (
         f"; known {entity}s: {', '.join(known[:12])}{' ...' if len(known) > 12 else ''}"
         if known else f"; the evidence base has no {entity}s yet (import a sheet first)")
-    raise NotFoundError(f"no {entity} '{name}' in the evidence base{hint} "
-                        f"('exposhift list {entity}s' lists them)")
+    listing = f" ('exposhift list {entity}s' lists them)" if known else ""
+    raise NotFoundError(f"no {entity} '{name}' in the evidence base{hint}{listing}")
 
 
 def require_name(conn, entity: str, name: str) -> str:

@@ -205,7 +205,7 @@ def test_agreement_table_per_domain_against_sklearn(frame, rubric):
     table = agreement_table(frame, rubric)
     assert list(table.columns) == ["domain", "n", "percent_agreement", "kappa_linear",
                                    "kappa_quadratic", "note"]
-    assert list(table["domain"]) == ["origin", "counterfactual", "timing", "overall"]
+    assert list(table["domain"]) == ["origin", "counterfactual", "timing", "all domains"]
     row = table.set_index("domain")
     # origin pairs by hand: (3,3) (2,1) (1,1) (0,0) (2,3) -> 3 of 5 agree
     oa, ob = [3, 2, 1, 0, 2], [3, 1, 1, 0, 3]
@@ -218,11 +218,11 @@ def test_agreement_table_per_domain_against_sklearn(frame, rubric):
                                                                abs=1e-12)
     assert row.loc["timing", "n"] == 0 and math.isnan(row.loc["timing", "kappa_linear"])
     assert row.loc["timing", "note"] == "no paired ratings"
-    # overall pools every study x domain pair
-    assert row.loc["overall", "n"] == 10
-    assert row.loc["overall", "kappa_quadratic"] == pytest.approx(
+    # "all domains" pools every study x domain pair (n = pairs)
+    assert row.loc["all domains", "n"] == 10
+    assert row.loc["all domains", "kappa_quadratic"] == pytest.approx(
         sklearn_kappa(oa + ca, ob + cb, "quadratic"), abs=1e-12)
-    assert row.loc["overall", "percent_agreement"] == 50.0
+    assert row.loc["all domains", "percent_agreement"] == 50.0
     assert "Kappa depends on how ratings spread" in table.attrs["caution"]
     assert table.attrs["notes"] == [
         "study 's1' has 3 reviewers; the first two by name (ana, ben) are compared"]

@@ -41,6 +41,9 @@ WEIGHTS = ("linear", "quadratic", None)
 LONG_COLUMNS = ("study_id", "reviewer", "domain", "level")
 CAUTION = ("Kappa depends on how ratings spread over the levels: read it beside the table of "
            "ratings, and compare values across domains or rubric versions with care.")
+#: the row that pools every study x domain pair, and the row of the overall level
+ALL_DOMAINS = "all domains"
+OVERALL_LEVEL = "overall level"
 TABLE_COLUMNS = ("domain", "n", "percent_agreement", "kappa_linear", "kappa_quadratic", "note")
 
 
@@ -221,9 +224,10 @@ def agreement_table(frame: pd.DataFrame, rubric: Rubric | None = None,
 
     Columns: ``domain``, ``n`` (studies with two ratings of the domain), ``percent_agreement``
     (0-100), ``kappa_linear``, ``kappa_quadratic`` (Cohen 1968), ``note`` (why a kappa is
-    NaN). Domains follow rubric order. The ``overall`` row pools every study x domain pair of
-    the rows above into one table (``n`` is then the number of pairs) and computes the same
-    statistics on it; it is not the mean of the domain kappas. ``attrs["caution"]`` holds a
+    NaN). Domains follow rubric order. The ``all domains`` row pools every study x domain pair
+    of the rows above into one table (``n`` is then the number of pairs, not of studies) and
+    computes the same statistics on it; it is not the mean of the domain kappas. Agreement on
+    the overall level (``n`` = studies) is :func:`overall_level_row`. ``attrs["caution"]`` holds a
     caution to show beside the table.
     """
     rubric = rubric if rubric is not None else load_rubric()
@@ -231,10 +235,33 @@ def agreement_table(frame: pd.DataFrame, rubric: Rubric | None = None,
     rows = [_row(key, a, b, categories) for key, (a, b) in pairs.items()]
     all_a = [x for a, _ in pairs.values() for x in a]
     all_b = [x for _, b in pairs.values() for x in b]
-    rows.append(_row("overall", all_a, all_b, categories,
+    rows.append(_row(ALL_DOMAINS, all_a, all_b, categories,
                      note=f"pooled over {sum(1 for a, _ in pairs.values() if a)} domains "
-                          "(each study x domain pair once)"))
+                          "(each study x domain pair once; n = pairs)"))
     table = pd.DataFrame(rows, columns=list(TABLE_COLUMNS))
     table.attrs["notes"] = notes
     table.attrs["caution"] = CAUTION
     return table
+
+
+def overall_level_row(frame: pd.DataFrame, categories: Sequence = (0, 1, 2, 3)) -> dict:
+    """Agreement on the overall level of each study (``n`` = studies with two independent
+    overall levels): one row in the columns of :func:`agreement_table`.
+
+    ``frame``: one row per independent appraisal, columns ``study_id``, ``reviewer``,
+    ``overall`` (blank overall levels are skipped). Pairing as in :func:`agreement_table`: the
+    first two reviewers by name. Percent agreement (Altman 1991, §14.3.1) and Cohen's weighted
+    kappa (Cohen 1968) on the pairs.
+    """
+    data = frame[frame["overall"].notna()]
+    a: list = []
+    b: list = []
+    for _, rows in data.groupby("study_id", sort=True):
+        reviewers = sorted(rows["reviewer"].unique(), key=str)
+        if len(reviewers) < 2:
+            continue
+        by = rows.set_index("reviewer")["overall"]
+        a.append(int(by[reviewers[0]]))
+        b.append(int(by[reviewers[1]]))
+    return _row(OVERALL_LEVEL, a, b, categories,
+                note="the overall level of each study (n = studies)")

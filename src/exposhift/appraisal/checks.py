@@ -142,7 +142,7 @@ class CheckList:
         if not self.unknown:
             return None
         return (f"unknown check{'s' if len(self.unknown) > 1 else ''} kept as written: "
-                f"{', '.join(self.unknown)} (known codes: see exposhift.appraisal.checks.CHECKS)")
+                f"{', '.join(self.unknown)} (known codes: {', '.join(CHECKS)})")
 
 
 def parse_checks(value: str | Iterable[str] | None, sep: str = ";") -> CheckList:

@@ -8,11 +8,11 @@ from pathlib import Path
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
-from exposhift.services.appraising import agreement, import_appraisals, show_appraisals
-from exposhift.services.setup import open_current
+from exposhift.cli.helptext import Group
 
 appraise_app = typer.Typer(help="Record and read appraisals (two independent reviewers, "
-                                "then a consensus).", no_args_is_help=True)
+                                "then a consensus).\n\nExample: exposhift appraise import "
+                                "appraisals.csv", no_args_is_help=True, cls=Group)
 
 LEVEL_NAMES = {3: "strong", 2: "adequate", 1: "weak", 0: "fatal"}
 
@@ -29,7 +29,13 @@ def appraise_import(
                                        "evidence/rubric.toml)."),
     dry_run: bool = typer.Option(False, "--dry-run", help="Check and report; write nothing."),
 ) -> None:
-    """Import appraisals; every problem is reported at once and nothing is written on error."""
+    """Import appraisals; every problem is reported at once and nothing is written on error.
+
+    Example: exposhift --user ana appraise import appraisals.csv --dry-run
+    """
+    from exposhift.services.appraising import import_appraisals
+    from exposhift.services.setup import open_current
+
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:
@@ -53,7 +59,13 @@ def appraise_show(
     rubric: Path | None = typer.Option(None, "--rubric", help="Rubric file."),
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
 ) -> None:
-    """Show a study's appraisals; another reviewer's ratings stay hidden until both are in."""
+    """Show a study's appraisals; another reviewer's ratings stay hidden until both are in.
+
+    Example: exposhift appraise show Example2004 --as ana
+    """
+    from exposhift.services.appraising import show_appraisals
+    from exposhift.services.setup import open_current
+
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:
@@ -91,7 +103,14 @@ def agreement_cmd(
     ctx: typer.Context,
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
 ) -> None:
-    """Agreement between independent reviewers per domain: percent and weighted kappa."""
+    """Agreement between independent reviewers per domain, over all domains and on the overall
+    level: percent agreement and weighted kappa.
+
+    Example: exposhift agreement --json
+    """
+    from exposhift.services.appraising import agreement
+    from exposhift.services.setup import open_current
+
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:
@@ -106,11 +125,20 @@ def agreement_cmd(
     def fmt(x: float) -> str:
         return "   n/a" if x is None or (isinstance(x, float) and math.isnan(x)) else f"{x:.2f}"
 
+    def pct(x: float) -> str:
+        return "    n/a" if x is None or (isinstance(x, float) and math.isnan(x)) else f"{x:.1f}%"
+
     for rec in table.to_dict(orient="records"):
-        typer.echo(f"{rec['domain']:<20} {rec['n']:>4} {100 * rec['percent_agreement']:>7.1f}% "
+        if rec["domain"] in ("all domains", "overall level"):
+            typer.echo("-" * 57)
+        typer.echo(f"{rec['domain']:<20} {rec['n']:>4} {pct(rec['percent_agreement']):>8} "
                    f"{fmt(rec['kappa_linear']):>10} {fmt(rec['kappa_quadratic']):>11}")
+    typer.echo("n: studies rated by both reviewers; 'all domains' pools every study x domain "
+               "pair (n = pairs); 'overall level' compares the two reviewers' overall levels "
+               "(n = studies).")
     typer.echo("kappa: Cohen's weighted kappa (1968); linear and quadratic weights over levels "
                "0-3.")
+    typer.echo(f"note: {table.attrs.get('caution', '')}")
 
 
 def register(app: typer.Typer) -> None:

@@ -20,6 +20,7 @@ F = TypeVar("F", bound=Callable[..., Any])
 class Settings:
     db: str | None = None
     user: str | None = None
+    db_given: bool = False  # --db typed on the command line (not only EXPOSHIFT_DB)
 
 
 def settings(ctx: typer.Context) -> Settings:

@@ -45,7 +45,10 @@ def dashboard(
         "127.0.0.1", "--address", help="Address to listen on (127.0.0.1: this machine only)."),
 ) -> None:
     """Serve the dashboard (studies, pooling, replication across place and time, gap map) at
-    http://ADDRESS:PORT. Needs no internet connection."""
+    http://ADDRESS:PORT. Needs no internet connection.
+
+    Example: exposhift --db demo/evidence-demo.db dashboard --port 8502
+    """
     from exposhift.services.setup import database_info
 
     target = db or settings(ctx).db

@@ -7,12 +7,14 @@ from pathlib import Path
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.helptext import Group
 from exposhift.cli.tables import render
 
 direction_app = typer.Typer(
     help="Pre-specify, per exposure x outcome, whether an exposure increase is expected to "
-         "raise or lower the outcome (with a rationale; versioned and audited).",
-    no_args_is_help=True,
+         "raise or lower the outcome (with a rationale; versioned and audited).\n\nExample: "
+         "exposhift direction list",
+    no_args_is_help=True, cls=Group,
 )
 
 
@@ -45,7 +47,10 @@ def direction_set(
                                           "list')."),
     as_json: bool = typer.Option(False, "--json", help="Print the result as JSON."),
 ) -> None:
-    """Set or change the expected direction of one exposure x outcome."""
+    """Set or change the expected direction of one exposure x outcome.
+
+    Example: exposhift direction set --exposure dravonil --outcome "preterm birth" --expect raises --why "known mechanism"
+    """  # noqa: E501
     from exposhift.services.directions import set_direction
 
     store = _open(ctx)
@@ -70,7 +75,10 @@ def direction_clear(
     if_version: int | None = typer.Option(None, "--if-version", help="Clear only if the "
                                           "record is still at this version."),
 ) -> None:
-    """Remove the expected direction of one exposure x outcome (the removal is audited)."""
+    """Remove the expected direction of one exposure x outcome (the removal is audited).
+
+    Example: exposhift direction clear --exposure dravonil --outcome "preterm birth"
+    """
     from exposhift.services.directions import clear_direction
 
     store = _open(ctx)
@@ -88,7 +96,10 @@ def direction_list(
     ctx: typer.Context,
     as_json: bool = typer.Option(False, "--json", help="Print a JSON list."),
 ) -> None:
-    """List the pre-specified directions."""
+    """List the pre-specified directions.
+
+    Example: exposhift direction list --json
+    """
     from exposhift.services.directions import list_directions
 
     store = _open(ctx)
@@ -120,7 +131,10 @@ def direction_import(
                                         "(default UTF-8, with or without BOM)."),
     dry_run: bool = typer.Option(False, "--dry-run", help="Check and report; write nothing."),
 ) -> None:
-    """Import expected directions; every problem is reported at once, nothing written on error."""
+    """Import expected directions; every problem is reported at once, nothing written on error.
+
+    Example: exposhift direction import directions.csv --dry-run
+    """
     from exposhift.services.directions import import_directions
 
     store = _open(ctx)

@@ -3,15 +3,18 @@
 from __future__ import annotations
 
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
-from exposhift.cli.tables import summary_table
-from exposhift.services.demo import DEMO_DB, build_demo
-from exposhift.services.exporting import export_file
-from exposhift.services.importing import ImportReport, import_file
-from exposhift.services.summary import SUMMARY_CAUTION
+from exposhift.cli.helptext import Group
+
+if TYPE_CHECKING:
+    from exposhift.services.importing import ImportReport
+
+#: where ``exposhift demo`` writes without --db (as exposhift.services.demo.DEMO_DB)
+DEMO_FILE = "demo/evidence-demo.db"
 
 #: imports with more rows than this show a progress bar (on stderr)
 PROGRESS_ABOVE = 5000
@@ -60,13 +63,16 @@ def _print_report(report: ImportReport) -> None:
 
 
 def _run_import(ctx: typer.Context, file: Path, *, events_only: bool, dry_run: bool,
-                encoding: str | None, ignore_extra: bool, as_json: bool, quiet: bool) -> None:
+                encoding: str | None, ignore_extra: bool, as_json: bool, quiet: bool,
+                delimiter: str | None = None, sheet: str | None = None) -> None:
+    from exposhift.services.importing import import_file
+
     s = settings(ctx)
     bar = None if (as_json or quiet) else _Bar()
     try:
         report = import_file(file, db=s.db, user=s.user, events_only=events_only,
                              dry_run=dry_run, encoding=encoding, ignore_extra=ignore_extra,
-                             progress=bar)
+                             progress=bar, delimiter=delimiter, sheet=sheet)
     finally:
         if bar is not None:
             bar.close()
@@ -86,22 +92,33 @@ _ENCODING = typer.Option(None, "--encoding",
                          "cp1252).")
 _EXTRA = typer.Option(False, "--ignore-extra-columns",
                       help="Skip columns exposhift does not know instead of refusing the file.")
+_DELIMITER = typer.Option(None, "--delimiter",
+                          help="Cell delimiter of a CSV file: ',', ';', '|' or tab (default: "
+                          "detected from the header row).")
+_SHEET = typer.Option(None, "--sheet",
+                      help="Worksheet of an .xlsx workbook to read (default: the first with "
+                      "extraction-sheet columns).")
 _JSON = typer.Option(False, "--json", help="Print the result as a JSON object.")
 _QUIET = typer.Option(False, "--quiet", "-q", help="Print nothing on success.")
 
 
 @user_errors
 def import_cmd(ctx: typer.Context, file: Path = _FILE, dry_run: bool = _DRY,
-               encoding: str | None = _ENCODING, ignore_extra: bool = _EXTRA,
+               encoding: str | None = _ENCODING, delimiter: str | None = _DELIMITER,
+               sheet: str | None = _SHEET, ignore_extra: bool = _EXTRA,
                as_json: bool = _JSON, quiet: bool = _QUIET) -> None:
     """Import studies, events and estimates from a sheet, or a whole archive (.json).
 
     Every problem in the file is reported at once (row, column, what to do) and nothing is
     written until the file is clean. The import is one transaction; importing the same file
-    again changes nothing, and a changed row updates its record (with an audit entry).
+    again changes nothing, and a changed row updates its record (with an audit entry). The
+    format is described in docs/extraction-sheet.md.
+
+    Example: exposhift import extraction.xlsx --dry-run
     """
     _run_import(ctx, file, events_only=False, dry_run=dry_run, encoding=encoding,
-                ignore_extra=ignore_extra, as_json=as_json, quiet=quiet)
+                ignore_extra=ignore_extra, as_json=as_json, quiet=quiet, delimiter=delimiter,
+                sheet=sheet)
 
 
 @user_errors
@@ -109,11 +126,16 @@ def events_import_cmd(ctx: typer.Context,
                       file: Path = typer.Argument(..., help="Events sheet (.csv or .xlsx).",
                                                   show_default=False),
                       dry_run: bool = _DRY, encoding: str | None = _ENCODING,
+                      delimiter: str | None = _DELIMITER, sheet: str | None = _SHEET,
                       ignore_extra: bool = _EXTRA, as_json: bool = _JSON,
                       quiet: bool = _QUIET) -> None:
-    """Register exposure-change events that no study has evaluated yet (event columns + demo)."""
+    """Register exposure-change events that no study has evaluated yet (event columns + demo).
+
+    Example: exposhift events import registered-events.csv
+    """
     _run_import(ctx, file, events_only=True, dry_run=dry_run, encoding=encoding,
-                ignore_extra=ignore_extra, as_json=as_json, quiet=quiet)
+                ignore_extra=ignore_extra, as_json=as_json, quiet=quiet, delimiter=delimiter,
+                sheet=sheet)
 
 
 @user_errors
@@ -121,38 +143,76 @@ def export_cmd(ctx: typer.Context,
                file: Path = typer.Argument(..., help="Target: .json (whole evidence base), "
                                            ".csv or .xlsx (extraction sheet).",
                                            show_default=False),
+               exposure: str | None = typer.Option(None, "--exposure",
+                                                   help="Only the records of this exposure."),
+               outcome: str | None = typer.Option(None, "--outcome",
+                                                  help="Only the estimates of this outcome "
+                                                  "(and their studies and events)."),
+               with_appraisals: bool = typer.Option(
+                   False, "--with-appraisals", help="Add the consensus appraisal levels (overall "
+                   "and per domain) to a .csv/.xlsx sheet."),
                events: bool = typer.Option(False, "--events",
                                            help="Write the events sheet (every event, with or "
                                            "without studies) instead of the estimates."),
                as_json: bool = _JSON) -> None:
-    """Export the evidence base: a lossless archive (.json) or an extraction sheet (.csv/.xlsx).
+    """Export the evidence base, or the part of one exposure (and outcome): a lossless archive
+    (.json) or an extraction sheet (.csv/.xlsx).
 
-    Text cells that a spreadsheet would run as a formula are written with a leading quote.
+    Text cells that a spreadsheet would run as a formula are written with a leading quote. A
+    filtered archive holds every study, event, outcome and appraisal its estimates need, so it
+    imports cleanly elsewhere.
+
+    Example: exposhift export vellium.xlsx --exposure vellium --with-appraisals
     """
-    result = export_file(file, db=settings(ctx).db, events_only=events)
+    from exposhift.services.exporting import export_file
+
+    result = export_file(file, db=settings(ctx).db, events_only=events, exposure=exposure,
+                         outcome=outcome, with_appraisals=with_appraisals)
     if as_json:
         print_json({"file": result.path, "format": result.format, "what": result.what,
                     "counts": result.counts})
         return
     counts = ", ".join(f"{n:,} {k}" for k, n in result.counts.items())
-    typer.echo(f"wrote {result.path} ({result.what}: {counts})")
+    part = ""
+    if exposure or outcome:
+        part = " of " + " x ".join(x for x in (exposure, outcome) if x)
+    typer.echo(f"wrote {result.path} ({result.what}{part}: {counts})")
+    if with_appraisals:
+        typer.echo("note: the consensus_* columns are for reading; importing the sheet again "
+                   "needs --ignore-extra-columns")
 
 
 @user_errors
 def demo_cmd(ctx: typer.Context,
-             db: Path = typer.Option(DEMO_DB, "--db",
-                                     help="SQLite file for the demo (replaced if it holds only "
-                                     "demo records)."),
+             db: Path | None = typer.Option(None, "--db",
+                                            help=f"SQLite file for the demo (default: the "
+                                            f"global --db, else {DEMO_FILE}). A file holding "
+                                            "anything the demo does not generate is refused."),
              seed: Path | None = typer.Option(None, "--seed",
                                               help="Directory with the demo records "
-                                              "(default: the repository's seed_records/).")
+                                              "(default: the repository's seed_records/)."),
+             force: bool = typer.Option(False, "--force",
+                                        help="Replace the file even if it holds records of your "
+                                        "own; a backup copy is kept beside it."),
              ) -> None:
     """Build a fresh demo evidence base from the invented scenario and show what it holds.
 
-    Your own evidence base is never touched: the demo lives in its own file.
+    Your own evidence base is never touched: the demo lives in its own file, and a file that
+    holds anything the demo does not generate (your appraisals, events, edits) is replaced only
+    with --force, after a backup copy.
+
+    Example: exposhift --db demo.db demo
     """
-    r = build_demo(db, seed, settings(ctx).user)
+    from exposhift.cli.tables import summary_table
+    from exposhift.services.demo import build_demo
+    from exposhift.services.summary import SUMMARY_CAUTION
+
+    s = settings(ctx)
+    target = db if db is not None else (s.db if s.db_given else None)
+    r = build_demo(target, seed, s.user, force=force)
     c = r.counts
+    if r.backup:
+        typer.echo(f"kept a backup of the replaced file: {r.backup}")
     typer.echo(f"demo evidence base {r.path} (built from {r.seed})")
     typer.echo(f"  {c['studies']} studies, {c['estimates']} estimates, {c['events']} "
                f"exposure-change events ({c['events_without_study']} without a study yet), "
@@ -176,7 +236,7 @@ def demo_cmd(ctx: typer.Context,
 def _next_commands(r) -> list[str]:
     """Commands worth trying on the demo: pool and replication on the busiest pair."""
     db = f"exposhift --db {r.path}"
-    out = [f"{db} info"]
+    out = [f"{db} info", f"{db} list exposures"]
     if not r.grid.empty:
         exposure, outcome = r.grid.stack().idxmax()
         pick = f'--exposure {exposure} --outcome "{outcome}"'
@@ -189,7 +249,8 @@ def register(app: typer.Typer) -> None:
     app.command("import")(import_cmd)
     app.command("export")(export_cmd)
     app.command("demo")(demo_cmd)
-    events = typer.Typer(help="Exposure-change events registered without studies.",
-                         no_args_is_help=True)
+    events = typer.Typer(help="Exposure-change events registered without studies.\n\n"
+                         "Example: exposhift events import registered-events.csv",
+                         no_args_is_help=True, cls=Group)
     events.command("import")(events_import_cmd)
     app.add_typer(events, name="events")

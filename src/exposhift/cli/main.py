@@ -1,4 +1,8 @@
-"""The ``exposhift`` command line: thin commands that call one service each."""
+"""The ``exposhift`` command line: thin commands that call one service each.
+
+Command modules import their services inside each command, so ``exposhift --help`` and
+``--version`` load no pandas, scipy, SQLAlchemy or Alembic.
+"""
 
 from __future__ import annotations
 
@@ -7,6 +11,7 @@ import typer
 from exposhift import __version__
 from exposhift.cli import (
     appraisal_cmds,
+    browse_cmds,
     dashboard_cmds,
     direction_cmds,
     io_cmds,
@@ -15,16 +20,19 @@ from exposhift.cli import (
     synthesis_cmds,
 )
 from exposhift.cli.common import Settings
+from exposhift.cli.helptext import Group, use_plain_help
 
 app = typer.Typer(
     name="exposhift",
     help=(
         "Evidence base for natural-experiment studies of environmental exposures: record, "
-        "appraise, pool, check replication, map gaps."
+        "appraise, pool, check replication, map gaps.\n\n"
+        "Example: exposhift demo, then the commands it prints."
     ),
     no_args_is_help=True,
     pretty_exceptions_enable=False,
     add_completion=False,
+    cls=Group,
 )
 
 
@@ -49,13 +57,17 @@ def main(
         False, "--version", callback=_version, is_eager=True, help="Show the version and exit."
     ),
 ) -> None:
-    ctx.obj = Settings(db=db, user=user)
+    source = ctx.get_parameter_source("db")
+    given = source is not None and source.name == "COMMANDLINE"
+    ctx.obj = Settings(db=db, user=user, db_given=given)
 
 
 app.command("init")(store_cmds.init)
 app.command("info")(store_cmds.info)
 
 
-for _module in (io_cmds, synthesis_cmds, appraisal_cmds, replication_cmds, dashboard_cmds,
-                direction_cmds):
+for _module in (io_cmds, browse_cmds, synthesis_cmds, appraisal_cmds, replication_cmds,
+                dashboard_cmds, direction_cmds):
     _module.register(app)
+
+use_plain_help(app)

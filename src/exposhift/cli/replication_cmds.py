@@ -5,18 +5,16 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-import pandas as pd
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
 from exposhift.cli.tables import render
-from exposhift.replication.gaps import GAP_STATES
-from exposhift.replication.report import ReplicationReport
-from exposhift.replication.settings import EXPECTED_CHOICES, load_settings
-from exposhift.services.replicating import GapFilters, GapReport, gap_report, replication_for
-from exposhift.services.setup import open_current
+
+if TYPE_CHECKING:
+    from exposhift.replication.report import ReplicationReport
+    from exposhift.services.replicating import GapReport
 
 
 def register(app: typer.Typer) -> None:
@@ -111,7 +109,7 @@ def render_replication(rep: ReplicationReport) -> str:
             rows.append([r.design_family, f"{r.measure_group}/{r.estimate_kind}"
                          + (f" {r.increment}" if r.increment else ""), r.k,
                          _nat(sc, r.estimate), _ci(_nat(sc, r.ci_lower), _nat(sc, r.ci_upper)),
-                         r.tau2, None if r.i2 is None or pd.isna(r.i2) else
+                         r.tau2, None if r.i2 is None or r.i2 != r.i2 else
                          f"{100 * r.i2:.0f}%", _ci(_nat(sc, r.pi_lower), _nat(sc, r.pi_upper)),
                          "main" if r.main else ""])
         lines.append(table(rows, ["design family", "stratum", "events", "effect", "CI", "tau2",
@@ -136,6 +134,8 @@ def render_replication(rep: ReplicationReport) -> str:
 
 
 def render_gaps(rep: GapReport) -> str:
+    from exposhift.replication.gaps import GAP_STATES
+
     cells = rep.cells
     counts = cells["state"].value_counts()
     summary = ", ".join(f"{counts.get(s, 0)} {s}" for s in GAP_STATES)
@@ -182,7 +182,14 @@ def replication(
         None, "--settings", help="Thresholds file (default: evidence/replication.toml)."),
 ) -> None:
     """Has the effect of this exposure on this outcome been shown again in other places, at
-    other times and by other designs? Prints the replication status and the rule behind it."""
+    other times and by other designs? Prints the replication status and the rule behind it.
+
+    Example: exposhift replication --exposure dravonil --outcome "preterm birth"
+    """
+    from exposhift.replication.settings import EXPECTED_CHOICES, load_settings
+    from exposhift.services.replicating import replication_for
+    from exposhift.services.setup import open_current
+
     if expected is not None and expected not in EXPECTED_CHOICES:
         from exposhift.errors import ConfigError
 
@@ -231,7 +238,14 @@ def gaps(
         None, "--settings", help="Thresholds file (default: evidence/replication.toml)."),
 ) -> None:
     """The evidence-gap map: exposure x outcome group, with replication status and state, and
-    the registered exposure changes that nobody has evaluated."""
+    the registered exposure changes that nobody has evaluated.
+
+    Example: exposhift gaps --studied-only --region Europe
+    """
+    from exposhift.replication.settings import load_settings
+    from exposhift.services.replicating import GapFilters, gap_report
+    from exposhift.services.setup import open_current
+
     filters = GapFilters(
         design_families=_split(design_family), regions=_split(region),
         countries=_split(country), year_from=year_from, year_to=year_to, min_level=min_level,

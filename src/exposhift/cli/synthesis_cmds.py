@@ -5,10 +5,12 @@ from __future__ import annotations
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
-from exposhift.services.pooling import STRATA, pool_evidence
-from exposhift.services.setup import open_current
-from exposhift.synthesis.event_pooling import WITHIN_EVENT
-from exposhift.synthesis.events import DEFAULT_RHO
+
+#: the --by choices (the keys of exposhift.services.pooling.STRATA; a test checks they agree)
+_BY_HELP = ("Stratify: design-family, level, design, country, outcome-group; adds the result "
+            "over all strata and the test of subgroup differences.")
+#: the default within-event correlation (exposhift.synthesis.events.DEFAULT_RHO; a test checks)
+_DEFAULT_RHO = 0.8
 
 
 def _fmt(x, digits=3):
@@ -33,9 +35,7 @@ def pool_cmd(
     method: str = typer.Option("reml", "--method", help="tau^2 estimator: reml, dl, pm or fe."),
     ci: str = typer.Option("hksj", "--ci", help="Interval: hksj (t on events - 1 df, scale "
                            "floored at 1) or wald (z)."),
-    by: list[str] = typer.Option([], "--by", help="Stratify: design-family, level, design, "
-                                 "country or outcome-group; adds the result over all strata "
-                                 "and the test of subgroup differences."),
+    by: list[str] = typer.Option([], "--by", help=_BY_HELP),
     include_fatal: bool = typer.Option(False, "--include-fatal",
                                        help="Keep studies appraised fatal overall."),
     min_level: int = typer.Option(None, "--min-level", help="Only studies appraised at this "
@@ -48,7 +48,7 @@ def pool_cmd(
                                      "of one event: aggregate (one number per event, default), "
                                      "multilevel (three-level model, CR2 robust) or "
                                      "independent (counts the event more than once)."),
-    rho: float = typer.Option(DEFAULT_RHO, "--rho", help="Within-event correlation used to "
+    rho: float = typer.Option(_DEFAULT_RHO, "--rho", help="Within-event correlation used to "
                               "aggregate estimates of one event (0-1)."),
     details: bool = typer.Option(False, "--details", help="Add leave-one-event-out, "
                                  "cumulative by date of change and the small-study test."),
@@ -58,6 +58,10 @@ def pool_cmd(
 
     Example: exposhift pool --exposure dravonil --outcome "preterm birth" --details
     """
+    from exposhift.services.pooling import pool_evidence
+    from exposhift.services.setup import open_current
+    from exposhift.synthesis.event_pooling import WITHIN_EVENT
+
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:
@@ -92,6 +96,8 @@ def pool_cmd(
 
 
 def _print_group(g: dict) -> None:
+    from exposhift.services.pooling import STRATA
+
     strata = ", ".join(f"{k}={g[k]}" for k in g if g[k] != "" and k in (
         "measure_group", "estimate_kind", "increment", *STRATA.values()))
     word = _word(g["scale"])

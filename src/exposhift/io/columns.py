@@ -13,6 +13,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from exposhift.vocab import CHANGE_KINDS, DESIGNS
+
 
 @dataclass(frozen=True)
 class Column:
@@ -29,7 +31,7 @@ COLUMNS: tuple[Column, ...] = (
     Column("citation", "study", "text", True, "short citation (authors, year, journal)"),
     Column("year", "study", "int", True, "publication year"),
     Column("doi", "study", "text", False, "DOI, without the https://doi.org/ prefix"),
-    Column("design", "study", "code", True, "design code (see exposhift.vocab.DESIGNS)"),
+    Column("design", "study", "code", True, "design code: " + ", ".join(DESIGNS)),
     Column("comparison", "study", "text", False, "what the exposed units are compared with"),
     Column("population", "study", "text", False,
            "population studied; with data_source, defines independent units"),
@@ -48,7 +50,7 @@ COLUMNS: tuple[Column, ...] = (
     Column("event_id", "event", "text", True, "stable key; studies of the same event share it"),
     Column("exposure", "event", "text", True, "exposure agent"),
     Column("change_kind", "event", "code", True,
-           "kind of change (see exposhift.vocab.CHANGE_KINDS)"),
+           "kind of change: " + ", ".join(CHANGE_KINDS)),
     Column("change_direction", "event", "code", True, "decrease or increase"),
     Column("change_size", "event", "float", False, "size of the exposure change"),
     Column("change_unit", "event", "text", False, "unit of change_size (e.g. ug/m3)"),

@@ -18,6 +18,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from exposhift.io.followon import report_inconsistent
 from exposhift.io.problems import ProblemLog, quote
 
 RATIO_MEASURES = ("RR", "OR", "HR", "IRR")
@@ -189,9 +190,9 @@ def check_consistent(t: pd.DataFrame, key_col: str, fields: list[str], log: Prob
     first = first.fillna(pos).astype(np.int64).to_numpy()
     has_key = keys.notna().to_numpy()
     repeat = has_key & (first != np.arange(len(t)))
-    article = "an" if what[0] in "aeiou" else "a"
     if repeat.any():
         key_vals = keys.to_numpy()
+        diffs = {}
         for f in fields:
             if f not in t.columns:
                 continue
@@ -202,8 +203,8 @@ def check_consistent(t: pd.DataFrame, key_col: str, fields: list[str], log: Prob
                 bad &= ~unreadable[f] & ~unreadable[f][first]
             if bad.any():
                 cv, rv = col.to_numpy(), ref.to_numpy()
-                log.flag(bad, f, lambda i, cv=cv, rv=rv, f=f: (
-                    f"{what} {quote(key_vals[i])} has {f} {shown(cv[i])} here but "
-                    f"{shown(rv[i])} in row {log.rows[first[i]]}; every row of {article} {what} "
-                    f"must give the same {what} fields (or use a new {what}_id)"))
+                texts = {int(i): f"{shown(cv[i])} here but {shown(rv[i])} in row "
+                         f"{log.rows[first[i]]}" for i in np.flatnonzero(bad)}
+                diffs[f] = (bad, texts)
+        report_inconsistent(log, what, key_col, key_vals, first, diffs)
     return np.flatnonzero(has_key & (first == np.arange(len(t))))

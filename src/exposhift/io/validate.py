@@ -84,7 +84,11 @@ def check_header(columns: list[str], allowed: tuple[str, ...], required: tuple[s
                  notes: list[str] | None = None) -> list[str]:
     """Report missing required and unknown columns; returns the columns that were missing."""
     missing = [c for c in required if c not in columns]
-    for c in missing:
+    if len(missing) > 2:  # one mistake (wrong sheet, delimiter or file), one problem
+        log.add(1, None, f"{len(missing)} required columns are missing: {', '.join(missing)}; "
+                "is this the extraction sheet? Its columns are listed in "
+                "docs/extraction-sheet.md (template: docs/example-sheet.csv)")
+    for c in missing if len(missing) <= 2 else []:
         log.add(1, c, f"required column '{c}' is missing; add it ({BY_NAME[c].help})")
     unknown = [c for c in columns if c not in allowed and c not in ignored]
     if unknown and not ignore_extra:
@@ -114,6 +118,18 @@ def unreadable_cells(raw: pd.DataFrame, typed: pd.DataFrame) -> dict[str, np.nda
         if c in typed.columns:
             filled = (raw[c].fillna("").astype("str").str.strip() != "").to_numpy()
             out[c] = filled & typed[c].isna().to_numpy()
+    return out
+
+
+def with_blank_required(bad: dict[str, np.ndarray], raw: pd.DataFrame,
+                        required: tuple[str, ...]) -> dict[str, np.ndarray]:
+    """``bad`` plus the blank cells of required columns: both are reported already, so the
+    consistency checks leave them out (a missing citation is one problem, not two)."""
+    out = dict(bad)
+    for c in required:
+        if c in raw.columns:
+            blank = (raw[c].fillna("").astype("str").str.strip() == "").to_numpy()
+            out[c] = out[c] | blank if c in out else blank
     return out
 
 
@@ -178,6 +194,8 @@ def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False,
     required = tuple(c.name for c in BY_NAME.values() if c.required)
     missing = check_header(list(raw.columns), COLUMN_NAMES, required, log,
                            ignore_extra=ignore_extra, notes=notes)
+    if len(missing) > 2:  # not an extraction sheet: the row checks would only repeat that
+        log.raise_if_any()
     raw = raw[[c for c in raw.columns if c in BY_NAME]]
     check_required_values(raw, required, log)
     typed = parse_cells(raw, log)
@@ -187,7 +205,7 @@ def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False,
             typed["date_precision"] = typed[c]
     rules.check_key_text(typed, log)
     rules.check_ranges(typed, log)
-    bad = unreadable_cells(raw, typed)
+    bad = with_blank_required(unreadable_cells(raw, typed), raw, required)
     rules.check_estimates(typed, log, _any_unreadable(bad, UNCERTAINTY, len(typed)))
     study_rows = rules.check_consistent(typed, "study_id", list(STUDY_COLUMNS[1:]), log, "study",
                                         bad)
@@ -236,16 +254,18 @@ def validate_events_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> Evi
     raw = sheet.frame
     required = tuple(c for c in EVENT_COLUMNS if BY_NAME[c].required)
     others = tuple(c for c in COLUMN_NAMES if c not in EVENTS_SHEET_COLUMNS)
-    check_header(list(raw.columns), EVENTS_SHEET_COLUMNS, required, log,
-                 ignore_extra=ignore_extra, ignored=others, notes=notes)
+    missing = check_header(list(raw.columns), EVENTS_SHEET_COLUMNS, required, log,
+                           ignore_extra=ignore_extra, ignored=others, notes=notes)
+    if len(missing) > 2:  # not an events sheet: the row checks would only repeat that
+        log.raise_if_any()
     raw = raw[[c for c in raw.columns if c in EVENTS_SHEET_COLUMNS]]
     check_required_values(raw, required, log)
     typed = parse_cells(raw, log)
     rules.check_key_text(typed, log)
     rules.check_ranges(typed, log)
     fields = [*EVENT_COLUMNS[1:], "demo"]
-    event_rows = (rules.check_consistent(typed, "event_id", fields, log, "event",
-                                         unreadable_cells(raw, typed))
+    skip = with_blank_required(unreadable_cells(raw, typed), raw, required)
+    event_rows = (rules.check_consistent(typed, "event_id", fields, log, "event", skip)
                   if "event_id" in typed.columns else np.array([], dtype=int))
     log.raise_if_any()
     events = _entity(typed.iloc[event_rows], (*EVENT_COLUMNS, "date_precision", "demo"), "event")

@@ -296,14 +296,25 @@ def _family(frame: pd.DataFrame) -> pd.Series:
 
 
 def _top(frame: pd.DataFrame, col: str, n: int = 3) -> pd.Series:
-    """Per family, the ``n`` values of ``col`` covering most events, joined with '; '."""
+    """Per family, the ``n`` values of ``col`` covering most events with their event counts,
+    joined with '; ', then "and K more (a, b)" naming the other values: nothing is left out
+    unsaid."""
     d = frame[["family", col, "event_id"]].dropna().drop_duplicates()
     c = d.groupby(["family", col], sort=False).size().rename("_n").reset_index()
     c = c.sort_values(["family", "_n", col], ascending=[True, False, True], kind="stable")
-    c = c[c.groupby("family", sort=False).cumcount().to_numpy() < n]
+    top = c.groupby("family", sort=False).cumcount().to_numpy() < n
+    rest = c[~top]
+    c = c[top]
     c = c.assign(_label=c[col].astype(str) + " (" + c["_n"].astype(str)
                  + np.where(c["_n"] == 1, " event)", " events)"))
-    return grouped_join(c, ["family"], "_label", sep="; ").set_index("family")["_label"]
+    out = grouped_join(c, ["family"], "_label", sep="; ").set_index("family")["_label"]
+    if len(rest):
+        more = grouped_join(rest.assign(_label=rest[col].astype(str)), ["family"], "_label")
+        counts = rest.groupby("family", sort=True).size()
+        more = more.set_index("family")["_label"]
+        tail = "; and " + counts.astype(str) + " more (" + more + ")"
+        out = out.add(tail.reindex(out.index).fillna(""))
+    return out
 
 
 def _family_summary(units: pd.DataFrame | None) -> pd.DataFrame:

@@ -21,7 +21,7 @@ from typing import Any
 
 import pandas as pd
 
-from exposhift.appraisal.agreement import agreement_table
+from exposhift.appraisal.agreement import agreement_table, overall_level_row
 from exposhift.appraisal.rubric import load_rubric
 from exposhift.appraisal.rubric_types import Rubric
 from exposhift.appraisal.scoring import StudyFacts, score_appraisal, suggest_levels
@@ -33,6 +33,7 @@ from exposhift.store.appraisals import (
     RATING_TABLE,
     appraisals_of_study,
     existing_appraisals,
+    independent_overall_levels,
     independent_ratings,
     studies_by_key,
 )
@@ -128,8 +129,10 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
                 continue
             level = _int_level(text)
             if level is None or level not in (0, 1, 2, 3):
+                what = "is not one of the levels" if level is None else "is outside 0-3"
                 problems.append(Problem(label, row, d,
-                                        f"level '{text}' is outside 0-3; accepted: 0, 1, 2, 3"))
+                                        f"level '{text}' {what}; accepted: 0 (fatal), 1 (weak), "
+                                        "2 (adequate), 3 (strong)"))
                 bad = True
                 continue
             ratings[d] = level
@@ -296,8 +299,15 @@ def show_appraisals(store: Store, study_key: str, viewer: str | None = None,
 
 
 def agreement(store: Store) -> pd.DataFrame:
-    """Per-domain agreement between independent reviewers (only unblinded studies count)."""
+    """Agreement between independent reviewers: one row per domain, ``all domains`` (every
+    study x domain pair; n = pairs) and ``overall level`` (n = studies). Percent agreement is
+    0-100."""
     with store.read() as conn:
         rows = independent_ratings(conn)
+        overall = independent_overall_levels(conn)
     frame = pd.DataFrame(rows, columns=["study_id", "reviewer", "domain", "level"])
-    return agreement_table(frame)
+    table = agreement_table(frame)
+    levels = pd.DataFrame(overall, columns=["study_id", "reviewer", "overall"])
+    out = pd.concat([table, pd.DataFrame([overall_level_row(levels)])], ignore_index=True)
+    out.attrs = dict(table.attrs)
+    return out

@@ -110,8 +110,16 @@ class ExportResult:
 EXPORT_SUFFIXES = (".json", ".csv", ".xlsx")
 
 
-def export_store(store: Store, path: str | Path, *, events_only: bool = False) -> ExportResult:
-    """Write ``path``: ``.json`` archive, or ``.csv``/``.xlsx`` sheet (or events sheet)."""
+def export_store(store: Store, path: str | Path, *, events_only: bool = False,
+                 exposure: str | None = None, outcome: str | None = None,
+                 with_appraisals: bool = False) -> ExportResult:
+    """Write ``path``: ``.json`` archive, or ``.csv``/``.xlsx`` sheet (or events sheet).
+
+    ``exposure`` / ``outcome`` keep only their records (:func:`~exposhift.services.subset.
+    subset_frames`); ``with_appraisals`` adds the consensus levels to a sheet export.
+    """
+    from exposhift.services.subset import subset_frames, with_consensus_levels
+
     path = Path(path)
     suffix = path.suffix.lower()
     if suffix not in EXPORT_SUFFIXES:
@@ -119,8 +127,13 @@ def export_store(store: Store, path: str | Path, *, events_only: bool = False) -
                           ".csv or .xlsx file (extraction sheet)")
     if events_only and suffix == ".json":
         raise ConfigError("--events writes an events sheet; name a .csv or .xlsx file")
+    if with_appraisals and (suffix == ".json" or events_only):
+        raise ConfigError("--with-appraisals adds consensus levels to an estimates sheet; name a "
+                          ".csv or .xlsx file (a .json archive holds every appraisal already)")
+    if outcome is not None and events_only:
+        raise ConfigError("--outcome does not apply to the events sheet; use --exposure alone")
     with store.read() as conn:
-        frames = load_evidence(conn)
+        frames = subset_frames(load_evidence(conn), exposure, outcome)
     counts = {"events": len(frames.events), "studies": len(frames.studies),
               "estimates": len(frames.estimates), "appraisals": len(frames.appraisals)}
     if suffix == ".json":
@@ -129,16 +142,23 @@ def export_store(store: Store, path: str | Path, *, events_only: bool = False) -
     if events_only:
         SHEET_WRITERS[suffix](events_sheet_frame(frames), path)
         return ExportResult(str(path), suffix[1:], "events", {"events": counts["events"]})
-    SHEET_WRITERS[suffix](sheet_frame(frames), path)
+    sheet = sheet_frame(frames)
+    if with_appraisals:
+        from exposhift.appraisal.rubric import load_rubric
+
+        sheet = with_consensus_levels(sheet, frames, load_rubric().domain_keys)
+    SHEET_WRITERS[suffix](sheet, path)
     return ExportResult(str(path), suffix[1:], "estimates",
                         {k: counts[k] for k in ("studies", "events", "estimates")})
 
 
-def export_file(path: str | Path, *, db: str | None = None, events_only: bool = False
-                ) -> ExportResult:
-    """Open the evidence base named by ``db`` and export it to ``path``."""
+def export_file(path: str | Path, *, db: str | None = None, events_only: bool = False,
+                exposure: str | None = None, outcome: str | None = None,
+                with_appraisals: bool = False) -> ExportResult:
+    """Open the evidence base named by ``db`` and export it (or a part) to ``path``."""
     store = open_current(db)
     try:
-        return export_store(store, path, events_only=events_only)
+        return export_store(store, path, events_only=events_only, exposure=exposure,
+                            outcome=outcome, with_appraisals=with_appraisals)
     finally:
         store.dispose()

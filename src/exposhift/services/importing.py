@@ -100,11 +100,14 @@ class EntityPlan:
 
 # ---------------------------------------------------------------------------------- reading
 def read_input(path: str | Path, *, events_only: bool = False, encoding: str | None = None,
-               ignore_extra: bool = False, study_events: StudyEvents | None = None
+               ignore_extra: bool = False, study_events: StudyEvents | None = None,
+               delimiter: str | None = None, sheet: str | None = None
                ) -> tuple[str, EvidenceFrames]:
     """Validate a file completely; returns its kind and its records (or raises every problem).
 
     ``study_events`` looks up evidence-base studies named in ``same_population_as``.
+    ``delimiter`` (CSV) and ``sheet`` (XLSX worksheet) choose how a sheet is read; the notes of
+    the result say which delimiter and worksheet were used when it was not the plain default.
     """
     path = Path(path)
     if path.suffix.lower() == ".json":
@@ -116,10 +119,19 @@ def read_input(path: str | Path, *, events_only: bool = False, encoding: str | N
             raise InputFileError([Problem(path.name, None, None,
                                           f"no such file: {path}; check the path")])
         return "archive", read_archive(path, encoding, study_events)
-    sheet = read_sheet(path, encoding)
-    if events_only:
-        return "events", validate_events_sheet(sheet, ignore_extra=ignore_extra)
-    return "sheet", validate_sheet(sheet, ignore_extra=ignore_extra, study_events=study_events)
+    raw = read_sheet(path, encoding, delimiter=delimiter, sheet=sheet)
+    try:
+        if events_only:
+            kind, frames = "events", validate_events_sheet(raw, ignore_extra=ignore_extra)
+        else:
+            kind, frames = "sheet", validate_sheet(raw, ignore_extra=ignore_extra,
+                                                   study_events=study_events)
+    except InputFileError as exc:  # say how the file was read: the notes may be the cause
+        if raw.notes:
+            exc.args = (str(exc) + "".join(f"\n  note: {n}" for n in raw.notes),)
+        raise
+    frames.notes[:0] = raw.notes
+    return kind, frames
 
 
 def stored_study_events(store: Store) -> StudyEvents:
@@ -428,7 +440,8 @@ def import_into(store: Store, path: str | Path, *, events_only: bool = False,
 
 def import_file(path: str | Path, *, db: str | None = None, user: str | None = None,
                 events_only: bool = False, dry_run: bool = False, encoding: str | None = None,
-                ignore_extra: bool = False, progress: Progress | None = None) -> ImportReport:
+                ignore_extra: bool = False, progress: Progress | None = None,
+                delimiter: str | None = None, sheet: str | None = None) -> ImportReport:
     """``exposhift import`` / ``exposhift events import``: open the store and import a file.
 
     The file is validated before the database is opened for writing; any problem raises
@@ -443,7 +456,8 @@ def import_file(path: str | Path, *, db: str | None = None, user: str | None = N
 
     try:
         kind, frames = read_input(path, events_only=events_only, encoding=encoding,
-                                  ignore_extra=ignore_extra, study_events=lookup)
+                                  ignore_extra=ignore_extra, study_events=lookup,
+                                  delimiter=delimiter, sheet=sheet)
     except BaseException:
         for s in opened:
             s.dispose()

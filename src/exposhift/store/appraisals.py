@@ -56,3 +56,12 @@ def independent_ratings(conn: Connection) -> list[dict[str, Any]]:
         .join(RA, RA.c.appraisal_id == AP.c.id)
         .where(AP.c.stage == "independent")
     ).mappings()]
+
+
+def independent_overall_levels(conn: Connection) -> list[dict[str, Any]]:
+    """Rows (study_id, reviewer, overall) of every independent appraisal."""
+    return [dict(r) for r in conn.execute(
+        select(ST.c.key.label("study_id"), AP.c.reviewer, AP.c.overall)
+        .join(AP, AP.c.study_id == ST.c.id)
+        .where(AP.c.stage == "independent")
+    ).mappings()]

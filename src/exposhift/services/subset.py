@@ -1,0 +1,78 @@
+"""A part of the evidence base for export: the records of one exposure (and one outcome), and
+the consensus appraisal levels as extra sheet columns.
+
+A subset is self-contained: every estimate kept brings its study, event and outcome; the
+appraisals and ratings of the studies kept come along, so a filtered archive imports cleanly
+into another evidence base. Pure: frames in, frames out.
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+
+import pandas as pd
+
+from exposhift.io.frames import EvidenceFrames
+from exposhift.services.lookup import resolve_name
+
+#: prefix of the appraisal columns added to a sheet export
+LEVEL_PREFIX = "consensus_"
+
+
+def subset_frames(frames: EvidenceFrames, exposure: str | None = None,
+                  outcome: str | None = None) -> EvidenceFrames:
+    """The records of ``exposure`` (and ``outcome``); names are matched case-insensitively.
+
+    Without ``outcome`` every event of the exposure is kept, evaluated or not; with it, only
+    the events that carry an estimate of that outcome.
+    """
+    if exposure is None and outcome is None:
+        return frames
+    events, est = frames.events, frames.estimates
+    if exposure is not None:
+        exposure = resolve_name(sorted(frames.exposures["name"]), "exposure", exposure)
+        events = events[events["exposure"] == exposure]
+        est = est[est["event"].isin(set(events["key"]))]
+    if outcome is not None:
+        outcome = resolve_name(sorted(frames.outcomes["name"]), "outcome", outcome)
+        est = est[est["outcome"] == outcome]
+        events = events[events["key"].isin(set(est["event"]))]
+    studies = frames.studies[frames.studies["key"].isin(set(est["study"]))]
+    keep = set(studies["key"])
+    exposures = frames.exposures[frames.exposures["name"].isin(set(events["exposure"]))]
+    outcomes = frames.outcomes[frames.outcomes["name"].isin(set(est["outcome"]))]
+    directions = frames.directions
+    if directions is not None:  # the committee's directions of the pairs kept come along
+        directions = directions[directions["exposure"].isin(set(exposures["name"]))
+                                & directions["outcome"].isin(set(outcomes["name"]))]
+    return replace(
+        frames, directions=directions,
+        exposures=exposures, outcomes=outcomes,
+        events=events, studies=studies, estimates=est,
+        appraisals=frames.appraisals[frames.appraisals["study"].isin(keep)],
+        ratings=frames.ratings[frames.ratings["study"].isin(keep)],
+    )
+
+
+def with_consensus_levels(sheet: pd.DataFrame, frames: EvidenceFrames,
+                          domains: list[str]) -> pd.DataFrame:
+    """``sheet`` (one row per estimate) plus the consensus appraisal of each row's study:
+    ``consensus_overall`` and ``consensus_<domain>`` per rubric domain (blank: no consensus).
+
+    Only the consensus (appraisal of record) is exported; independent ratings stay in the
+    evidence base, as blinding requires until both are in.
+    """
+    cons = frames.appraisals[frames.appraisals["stage"] == "consensus"]
+    overall = dict(zip(cons["study"], cons["overall"], strict=True))
+    ratings = frames.ratings[frames.ratings["stage"] == "consensus"]
+    wide = ratings.pivot_table(index="study", columns="domain", values="level", aggfunc="first")
+    out = sheet.copy()
+    out[f"{LEVEL_PREFIX}overall"] = _text(out["study_id"].map(overall))
+    for d in domains:
+        col = wide[d] if d in wide.columns else pd.Series(dtype="float64")
+        out[f"{LEVEL_PREFIX}{d}"] = _text(out["study_id"].map(col))
+    return out
+
+
+def _text(s: pd.Series) -> pd.Series:
+    return s.map(lambda v: "" if v is None or pd.isna(v) else str(int(v))).astype("str")

@@ -205,6 +205,15 @@ def test_bad_inputs_raise_analysis_error(y, v, cl, match):
         pool_multilevel(y, v, cl)
 
 
+def test_mixed_label_types_raise_and_results_are_read_only():
+    with pytest.raises(AnalysisError, match="all text or all numbers"):
+        pool_multilevel([0.1, 0.2, 0.3], [0.01, 0.02, 0.03], np.array([1, "a", 2], dtype=object))
+    y, v, cl, _ = _data(62)
+    fit = fit_multilevel(y, v, cl)
+    with pytest.raises(ValueError):
+        fit.coef[0] = 1.0
+
+
 def test_collinear_moderators_and_too_few_events_raise():
     y, v, cl, X = _data(61, slope=0.2)
     with pytest.raises(AnalysisError, match="collinear"):

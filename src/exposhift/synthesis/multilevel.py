@@ -60,6 +60,7 @@ KKT_TOL = 1e-6
 #: a Newton run stops when no component moves by more than this × (value + median variance)
 STEP_TOL = 1e-10
 MAX_ITER = 200
+ZERO_SNAP = 1e-12
 DF_UNRELIABLE = 4.0
 LOG_2PI = float(np.log(2 * np.pi))
 NOTE_SINGLETON = (
@@ -267,7 +268,8 @@ def _newton(prob: _Problem, x0: np.ndarray, free: np.ndarray, scale: float, big:
     information, else steepest descent), with step halving.
 
     Components at 0 whose score points outward are held there for the step (active set).
-    Stops when a step moves no component by more than ``STEP_TOL`` × (value + scale).
+    Stops when the full Newton step changes no component by more than ``STEP_TOL`` × (value +
+    scale); values below ``ZERO_SNAP`` × scale are set to the bound 0.
     """
     x = np.where(free, np.clip(x0, 0.0, big), 0.0)
     f, grad, hess, _, _ = prob.evaluate(*x)
@@ -291,13 +293,15 @@ def _newton(prob: _Problem, x0: np.ndarray, free: np.ndarray, scale: float, big:
         lam = min(1.0, float(np.min(x[neg] / -step[neg]))) if neg.any() else 1.0
         for _ in range(60):
             new = np.clip(x + lam * step, 0.0, big)
+            new[new <= ZERO_SNAP * scale] = 0.0                 # land exactly on the bound
             f_new, g_new, h_new, _, _ = prob.evaluate(*new)
             if f_new <= f + 1e-13 * (1.0 + abs(f)):
                 break
             lam *= 0.5
         else:
             return f, x, it, False
-        done = bool(np.all(np.abs(new - x) <= STEP_TOL * (new + scale)))
+        # converged when the full (undamped, untruncated) Newton step is negligible
+        done = bool(np.all(np.abs(step) <= STEP_TOL * (x + scale)))
         x, f, grad, hess = new, f_new, g_new, h_new
         if done:
             return f, x, it, True
@@ -350,7 +354,7 @@ def _optimise(prob: _Problem, singleton: bool) -> tuple[np.ndarray, int, bool]:
     f, x, nit, ok = min(runs, key=lambda r: r[0])
     grad = prob.evaluate(*x)[1] * scale
     free = [0] if singleton else [0, 1]
-    kkt = all((abs(grad[k]) <= KKT_TOL * (1.0 + x[k] / scale)) if x[k] > 0 else
+    kkt = all((abs(grad[k]) <= KKT_TOL * (1.0 + x[k] / scale)) if x[k] > ZERO_SNAP * scale else
               (grad[k] >= -KKT_TOL) for k in free)
     at_top = bool(np.any(x >= big * (1 - 1e-9)))
     return x, nit, bool(ok and kkt and not at_top)
@@ -388,9 +392,13 @@ def fit_multilevel(y: Any, v: Any, cluster: Any, X: Any = None, names: Any = Non
                      "point found")
     notes.extend(rob.notes)
     vm = 0.5 * (bread + bread.T)
+    arrays = [beta, vm, np.sqrt(np.diag(vm)), rob.vcov, rob.se, rob.df]
+    for arr in arrays:
+        arr.setflags(write=False)
+    beta, vm, se_model, vcov_cr2, se_cr2, df_cr2 = arrays
     return MultilevelFit(
-        names=names, coef=beta, vcov_model=vm, se_model=np.sqrt(np.diag(vm)),
-        vcov_cr2=rob.vcov, se_cr2=rob.se, df_cr2=rob.df, sigma2_event=s2e, sigma2_within=s2w,
+        names=names, coef=beta, vcov_model=vm, se_model=se_model,
+        vcov_cr2=vcov_cr2, se_cr2=se_cr2, df_cr2=df_cr2, sigma2_event=s2e, sigma2_within=s2w,
         k_estimates=n, k_events=groups.m, converged=converged, iterations=nit,
         loglik_reml=float(-nll), notes=tuple(notes), robust=rob,
     )

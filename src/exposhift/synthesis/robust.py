@@ -98,7 +98,10 @@ class ClusterIndex:
                 f"event label missing at position(s) {', '.join(map(str, missing[:10]))}; every "
                 "estimate needs the event it comes from"
             )
-        labels, codes = np.unique(cl, return_inverse=True)
+        try:
+            labels, codes = np.unique(cl, return_inverse=True)
+        except TypeError as exc:
+            raise AnalysisError("event labels must be all text or all numbers") from exc
         codes = codes.reshape(-1)
         order = np.argsort(codes, kind="stable")
         counts = np.bincount(codes, minlength=labels.size)

@@ -8,13 +8,11 @@ Model (Konstantopoulos 2011, Res Synth Methods 2:61; Van den Noortgate, López-L
 
 so the covariance is block diagonal, V_i = diag(v_i + σ²_within) + σ²_event 11' per event i.
 
-*Per-block algebra, no N × N matrix.* With D_i = diag(d_i), d_i = v_i + σ²_within, a_i = 1/d_i,
-s_i = Σ_j a_ij, t_i = 1 + σ²_event s_i and b_i = a_i^(1/2):
-V_i = D^(1/2)(I + σ²_event b b')D^(1/2), so F_i = D^(1/2)(I + γ_i bb') with γ_i =
-(√t_i − 1)/s_i is a square-root factor (F F' = V_i) and F_i⁻¹ = (I + γ'_i bb')D^(−1/2) with
-γ'_i = (1/√t_i − 1)/s_i = −σ²_event/(√t_i(1 + √t_i)) (Sherman–Morrison–Woodbury; Harville 1977,
-JASA 72:320, for the determinant). Whitened Z̃ = F⁻¹Z needs only per-event sums Σ a_ij z_ij,
-log|V_i| = Σ log d_ij + log t_i, and V⁻¹Z = F^(−T)Z̃.
+*Per-block algebra, no N × N matrix.* With a_ij = 1/(v_ij + σ²_within), s_i = Σ_j a_ij and
+t_i = 1 + σ²_event s_i, the Sherman–Morrison–Woodbury identity gives
+V_i⁻¹ = diag(a_i) − (σ²_event/t_i) a_i a_i' and log|V_i| = Σ_j log(1/a_ij) + log t_i (Harville
+1977, JASA 72:320; Searle, Casella & McCulloch 1992, Variance Components, app. M), so every
+quadratic form and trace below needs only per-event sums (one small m × N indicator product).
 
 *Restricted likelihood* (Harville 1977; Patterson & Thompson 1971, Biometrika 58:545):
 
@@ -50,7 +48,7 @@ from scipy import stats
 
 from exposhift.errors import AnalysisError
 from exposhift.synthesis.pooling import check_inputs
-from exposhift.synthesis.robust import ClusterIndex, ClusterRobust, robust_whitened
+from exposhift.synthesis.robust import ClusterIndex, ClusterRobust, robust_blocks
 
 INFERENCE: tuple[str, ...] = ("cr2", "model")
 #: interior starting shares of (event, within) in the total variance
@@ -157,15 +155,6 @@ class _Problem:
         # per-event sums as one small (m × N) indicator product (never N × N)
         self.S = (groups.idx[None, :] == np.arange(groups.m)[:, None]).astype(float)
         self.buf = np.empty((self.n, 3 + self.p + 1))
-
-    def whitened(self, s2e: float, s2w: float) -> np.ndarray:
-        """Z̃ = F⁻¹[X y] (module docstring), rows sorted by event."""
-        a = 1.0 / (self.v + s2w)
-        t = 1.0 + s2e * (self.S @ a)
-        rt = np.sqrt(t)
-        gp = -s2e / (rt * (1.0 + rt))
-        G = self.S @ (a[:, None] * self.Z)
-        return np.sqrt(a)[:, None] * (self.Z + (gp[:, None] * G)[self.idx])
 
     def evaluate(self, s2e: float, s2w: float, info: bool = True):
         """(−ℓ_R, its gradient, (observed, average) information, β̂, M) at (σ²_event, σ²_within).
@@ -383,9 +372,14 @@ def fit_multilevel(y: Any, v: Any, cluster: Any, X: Any = None, names: Any = Non
     theta, nit, converged = _optimise(prob, singleton)
     s2e, s2w = float(theta[0]), float(theta[1])
     nll, _, _, beta, bread = prob.evaluate(s2e, s2w, info=False)
-    zt = prob.whitened(s2e, s2w)
-    rt = zt[:, p] - zt[:, :p] @ beta
-    rob = robust_whitened(zt[:, :p], rt, bread, beta, groups, "CR2")
+    xs, ys = prob.Z[:, :p], prob.Z[:, p]
+    d = prob.v + s2w
+
+    def phi_blocks(ids: np.ndarray, m: int) -> np.ndarray:
+        rows = groups.starts[ids][:, None] + np.arange(m)
+        return d[rows][:, :, None] * np.eye(m) + s2e              # V̂_i = diag(v + σ²_w) + σ²_e 11'
+
+    rob = robust_blocks(xs, ys - xs @ beta, bread, beta, groups, phi_blocks, "CR2")
     notes = [NOTE_SINGLETON] if singleton else []
     if not converged:
         notes.append("REML maximisation did not converge: variance components are the best "

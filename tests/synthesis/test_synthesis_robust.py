@@ -109,7 +109,7 @@ def test_cr0_matches_statsmodels_ols_cluster_with_its_correction_removed():
 def _dense_pieces(X, y, cl, blocks):
     """Rows sorted by cluster; Phi dense; H = X M X'W; A_j = D_j' B_j^(-1/2) D_j with D_j the
     upper Cholesky factor of Phi_j and B_j = D_j (I - H)_j Phi (I - H)_j' D_j' (Pustejovsky &
-    Tipton 2018, sec. 2)."""
+    Tipton 2018)."""
     labels = np.unique(cl)
     order = np.argsort(np.searchsorted(labels, cl), kind="stable")
     X, y, cl = X[order], y[order], cl[order]
@@ -139,7 +139,7 @@ def _dense_cr2(X, y, cl, blocks):
 
 
 def _dense_p(X, y, cl, blocks, c):
-    """p_j = (I - H)_j' A_j' W_j X_j M c for every cluster j (Pustejovsky & Tipton 2018, eq. 7)."""
+    """p_j = (I - H)_j' A_j' W_j X_j M c for every cluster j (Pustejovsky & Tipton 2018)."""
     X, y, phi, W, M, beta, IH, e, idx, A = _dense_pieces(X, y, cl, blocks)
     ps = [IH[r].T @ a.T @ W[np.ix_(r, r)] @ X[r] @ M @ c for r, a in zip(idx, A, strict=True)]
     return ps, phi
@@ -182,7 +182,7 @@ def test_cr2_adjustment_meets_the_unbiasedness_criterion():
 
 
 def test_cr2_is_unbiased_under_the_working_model():
-    # Pustejovsky & Tipton (2018, eq. 5): E[c'V^CR2 c] = sum_j p_j' Phi p_j equals c'Mc
+    # Pustejovsky & Tipton (2018): E[c'V^CR2 c] = sum_j p_j' Phi p_j equals c'Mc
     X, y, v, cl = _data(8)
     blocks = _blocks_for(cl, v, 0.03, 0.01)
     c = np.array([0.5, 1.0])
@@ -193,7 +193,7 @@ def test_cr2_is_unbiased_under_the_working_model():
 
 def test_htz_eta_matches_dense_quadratic_form_variances():
     # Var(d_st) = 2 tr(A_st Phi A_st Phi), A_st = (1/2) sum_j (p_sj p_tj' + p_tj p_sj') for the
-    # standardised contrasts (normal quadratic forms; Pustejovsky & Tipton 2018, sec. 3.2)
+    # standardised contrasts (normal quadratic forms; Pustejovsky & Tipton 2018)
     rng = np.random.default_rng(9)
     X0, y, v, cl = _data(9, m=12)
     X = np.column_stack([X0, rng.normal(size=y.size)])

@@ -17,8 +17,8 @@ clusters (events). With e = y − Xβ̂ the residuals,
   with D_j a square-root factor of the working block, D_j'D_j = Φ_j (Pustejovsky & Tipton use
   the upper Cholesky factor; the result is the same for every factor, since D_j → QD_j with Q
   orthogonal gives B_j → QB_jQ' and the same A_j; we use the symmetric root Φ_j^(1/2)) and
-  B^(+1/2) the symmetric square root of the Moore–Penrose inverse (eigenvalues below 1e-10
-  treated as 0: a cluster fitted exactly, e.g. by a cluster-level indicator). With W = Φ⁻¹,
+  B^(+1/2) the symmetric square root of the Moore–Penrose inverse (eigenvalues below 1e-10 × the
+  largest treated as 0: a cluster fitted exactly, e.g. by a cluster-level indicator). With W = Φ⁻¹,
   (I − H)_jΦ(I − H)_j' = Φ_j − X_jMX_j'. It satisfies the unbiasedness criterion
   A_j(I − H)_jΦ(I − H)_j'A_j' = Φ_j, so E[V^CR2] = M when the working model is the true
   covariance. For Φ_j = I (ordinary least squares) it is BM's A_j = (I − H_jj)^(−1/2).
@@ -27,14 +27,17 @@ clusters (events). With e = y − Xβ̂ the residuals,
 Another solution is the CR2 of the GLS-whitened regression, A_j = (I − H_jj)^(−1/2) as a
 principal power of the non-symmetric H_jj; it gives different numbers (a few per cent in our
 checks) when the working blocks are not spherical. We implement the factorised form above
-because it is the one published by Pustejovsky & Tipton (2018) and by Tipton (2015) for
-inverse-variance working weights, so results agree with other implementations of that paper.
+because it is the one Pustejovsky & Tipton (2018) publish (written here from the paper as we
+recall it; it is checked against a dense transcription of that formula and against hand-worked
+cases, not against another implementation). Note: for non-spherical working blocks this CR2 can
+fall below CR0 (unlike the whitened form, which inflates every cluster's score for an intercept);
+for Φ_j = φ_j I both forms agree and CR2 ≥ CR0 for an intercept.
 
 Only inverse-variance working weights (W = Φ⁻¹) are supported: the multilevel model uses its
 fitted covariance as the working model.
 
-*Satterthwaite degrees of freedom* for a contrast c (Bell & McCaffrey 2002, sec. 4; Pustejovsky
-& Tipton 2018, eq. 7): c'V^CR c = Σ_j (p_j'y)² with p_j = (I − H)_j'A_j'W_j X_j M c, and
+*Satterthwaite degrees of freedom* for a contrast c (Bell & McCaffrey 2002; Pustejovsky &
+Tipton 2018): c'V^CR c = Σ_j (p_j'y)² with p_j = (I − H)_j'A_j'W_j X_j M c, and
 
     df = (Σ_j p_j'Φp_j)² / Σ_j Σ_k (p_j'Φp_k)².
 
@@ -42,7 +45,7 @@ With W = Φ⁻¹ the m × m matrix G_jk = p_j'Φp_k is (our algebra, checked den
 G_jk = δ_jk u_j'Φ_ju_j − q_j'M q_k with u_j = A_j'W_jX_jMc and q_j = X_j'u_j, so no N × N matrix
 is formed: per cluster only K_j = X_j'A_j'W_jX_j and L_j = X_j'W_jA_jΦ_jA_j'W_jX_j are kept.
 
-*HTZ test* of q > 1 constraints Cβ = c₀ (Pustejovsky & Tipton 2018, sec. 3.2): with Ω = CMC',
+*HTZ test* of q > 1 constraints Cβ = c₀ (Pustejovsky & Tipton 2018): with Ω = CMC',
 standardised contrasts the rows of Ω^(−1/2)C, and the Wald statistic Q = d'(CV^CR2C')⁻¹d,
 d = Cβ̂ − c₀, the CR2 matrix is approximated by a Wishart with η degrees of freedom,
 η = q(q + 1) / Σ_s Σ_t Var(d_st), Var(d_st) = Σ_i Σ_j [G^ss_ij G^tt_ij + G^st_ij G^ts_ij]
@@ -66,7 +69,7 @@ from scipy import stats
 
 from exposhift.errors import AnalysisError
 
-#: eigenvalues of I − H̃_jj below this are treated as 0 (Moore–Penrose inverse square root)
+#: eigenvalues of B_j below this × its largest are treated as 0 (Moore–Penrose inverse root)
 EIG_TOL = 1e-10
 KINDS: tuple[str, ...] = ("CR0", "CR2")
 
@@ -145,7 +148,7 @@ class ClusterRobust:
         return np.einsum("jst,ij->stij", gg, eye) - qmq
 
     def df_contrast(self, c: Any) -> float:
-        """Satterthwaite df of c'β̂ (Pustejovsky & Tipton 2018, eq. 7)."""
+        """Satterthwaite df of c'β̂ (Pustejovsky & Tipton 2018)."""
         c = np.asarray(c, dtype=float).reshape(1, -1)
         g = self._g(c)[0, 0]
         denom = float(np.sum(g * g))
@@ -156,7 +159,7 @@ class ClusterRobust:
 
     def htz(self, C: Any, d: Any) -> tuple[float, float, float, float, float]:
         """Approximate Hotelling-T² test of Cβ = c₀ given d = Cβ̂ − c₀ (Pustejovsky & Tipton
-        2018, sec. 3.2). Returns (F, q, η − q + 1, p value, Wald Q)."""
+        2018). Returns (F, q, η − q + 1, p value, Wald Q)."""
         C = np.atleast_2d(np.asarray(C, dtype=float))
         d = np.asarray(d, dtype=float).reshape(-1)
         q = C.shape[0]

@@ -45,21 +45,21 @@ def test_cr2_intercept_only_ols_by_hand():
 
 
 def test_cr2_intercept_only_weighted_by_hand():
-    # 4 clusters of sizes 1, 2, 3, 1; weights w = 1/v = [1 | 2, 2 | 1, 1, 2 | 1], S = 10;
-    # y = [1 | 0, 2 | 3, 1, 2 | 0]: mu = 13/10, residuals [-.3 | -1.3, .7 | 1.7, -.3, .7 | -1.3].
-    # Whitened, x~_j = sqrt(w_j), H~_jj = x~ x~'/S has eigenvalue S_j/S along x~, so
-    # x~'A~_j e~_j = sum(w e)_j / sqrt(1 - S_j/S) with sum(w e) = -.3, -1.2, 2.8, -1.3 and
-    # S_j/S = .1, .4, .4, .1:
-    # CR2 var = (.09/.9 + 1.44/.6 + 7.84/.6 + 1.69/.9)/100 = 17.4444.../100 (by hand)
-    # CR0 var = (.09 + 1.44 + 7.84 + 1.69)/100 = 0.1106 (by hand)
-    w = np.array([1.0, 2, 2, 1, 1, 2, 1])
-    y = np.array([1.0, 0, 2, 3, 1, 2, 0])
+    # 4 clusters of sizes 1, 2, 3, 1 with equal weights within a cluster, w = 1/v =
+    # [1 | 2, 2 | 1, 1, 1 | 1], S = 9; y = [0 | 0, 2 | 3, 0, 2 | 0]: mu = 9/9 = 1, residuals
+    # [-1 | -1, 1 | 2, -1, 1 | -1], cluster sums of w*e: -1, 0, 2, -1; S_j = 1, 4, 3, 1.
+    # With Phi_j = I/w_j, B_j = Phi_j^(1/2)(Phi_j - J/S)Phi_j^(1/2) has eigenvalue
+    # (1 - S_j/S)/w_j^2 along 1 and 1/w_j^2 elsewhere, so 1'W_jA_j e_j = sum(w e)_j/sqrt(1 - S_j/S):
+    # CR2 var = (1/(8/9) + 0 + 4/(6/9) + 1/(8/9))/81 = 8.25/81 (by hand)
+    # CR0 var = (1 + 0 + 4 + 1)/81 = 6/81 (by hand)
+    w = np.array([1.0, 2, 2, 1, 1, 1, 1])
+    y = np.array([0.0, 0, 2, 3, 0, 2, 0])
     cl = np.array(["a", "b", "b", "c", "c", "c", "d"])
     cr2 = cr2_vcov(np.ones(7), y, cl, working=1 / w)
     cr0 = cr0_vcov(np.ones(7), y, cl, working=1 / w)
-    assert cr2.coef[0] == pytest.approx(1.3, rel=1e-14)
-    assert cr2.vcov[0, 0] == pytest.approx((0.1 + 2.4 + 7.84 / 0.6 + 1.69 / 0.9) / 100, rel=1e-12)
-    assert cr0.vcov[0, 0] == pytest.approx(0.1106, rel=1e-12)
+    assert cr2.coef[0] == pytest.approx(1.0, rel=1e-14)
+    assert cr2.vcov[0, 0] == pytest.approx(8.25 / 81, rel=1e-12)
+    assert cr0.vcov[0, 0] == pytest.approx(6 / 81, rel=1e-12)
 
 
 # --------------------------------------------------------------------------------------------
@@ -107,7 +107,9 @@ def test_cr0_matches_statsmodels_ols_cluster_with_its_correction_removed():
 
 
 def _dense_pieces(X, y, cl, blocks):
-    """Rows sorted by cluster; Φ dense; H = X M X'W; A_j = (I - H_jj)^(-1/2) (principal power)."""
+    """Rows sorted by cluster; Phi dense; H = X M X'W; A_j = D_j' B_j^(-1/2) D_j with D_j the
+    upper Cholesky factor of Phi_j and B_j = D_j (I - H)_j Phi (I - H)_j' D_j' (Pustejovsky &
+    Tipton 2018)."""
     labels = np.unique(cl)
     order = np.argsort(np.searchsorted(labels, cl), kind="stable")
     X, y, cl = X[order], y[order], cl[order]
@@ -121,8 +123,9 @@ def _dense_pieces(X, y, cl, blocks):
     idx = [np.flatnonzero(cl == lab) for lab in labels]
     A = []
     for r in idx:
-        a = linalg.fractional_matrix_power(np.eye(r.size) - H[np.ix_(r, r)], -0.5)
-        A.append(np.real(a))
+        D = linalg.cholesky(phi[np.ix_(r, r)], lower=False)   # D'D = Phi_j
+        B = D @ IH[r] @ phi @ IH[r].T @ D.T
+        A.append(D.T @ np.real(linalg.fractional_matrix_power(B, -0.5)) @ D)
     return X, y, phi, W, M, beta, IH, e, idx, A
 
 
@@ -136,7 +139,7 @@ def _dense_cr2(X, y, cl, blocks):
 
 
 def _dense_p(X, y, cl, blocks, c):
-    """p_j = (I - H)_j' A_j' W_j X_j M c for every cluster j (Pustejovsky & Tipton 2018, eq. 7)."""
+    """p_j = (I - H)_j' A_j' W_j X_j M c for every cluster j (Pustejovsky & Tipton 2018)."""
     X, y, phi, W, M, beta, IH, e, idx, A = _dense_pieces(X, y, cl, blocks)
     ps = [IH[r].T @ a.T @ W[np.ix_(r, r)] @ X[r] @ M @ c for r, a in zip(idx, A, strict=True)]
     return ps, phi
@@ -168,8 +171,18 @@ def test_cr2_and_df_match_dense_formulas_with_block_working_model(seed):
     assert ours.df_contrast(c) == pytest.approx(_dense_df(X, y, cl, blocks, c), rel=1e-9)
 
 
+def test_cr2_adjustment_meets_the_unbiasedness_criterion():
+    # A_j (I - H)_j Phi (I - H)_j' A_j' = Phi_j (Pustejovsky & Tipton 2018), for the dense A_j
+    X, y, v, cl = _data(11)
+    blocks = _blocks_for(cl, v, 0.05, 0.03)
+    X, y, phi, W, M, beta, IH, e, idx, A = _dense_pieces(X, y, cl, blocks)
+    for r, a in zip(idx, A, strict=True):
+        s = IH[r] @ phi @ IH[r].T
+        assert a @ s @ a.T == pytest.approx(phi[np.ix_(r, r)], rel=1e-9, abs=1e-12)
+
+
 def test_cr2_is_unbiased_under_the_working_model():
-    # Pustejovsky & Tipton (2018, eq. 5): E[c'V^CR2 c] = sum_j p_j' Phi p_j equals c'Mc
+    # Pustejovsky & Tipton (2018): E[c'V^CR2 c] = sum_j p_j' Phi p_j equals c'Mc
     X, y, v, cl = _data(8)
     blocks = _blocks_for(cl, v, 0.03, 0.01)
     c = np.array([0.5, 1.0])
@@ -180,7 +193,7 @@ def test_cr2_is_unbiased_under_the_working_model():
 
 def test_htz_eta_matches_dense_quadratic_form_variances():
     # Var(d_st) = 2 tr(A_st Phi A_st Phi), A_st = (1/2) sum_j (p_sj p_tj' + p_tj p_sj') for the
-    # standardised contrasts (normal quadratic forms; Pustejovsky & Tipton 2018, sec. 3.2)
+    # standardised contrasts (normal quadratic forms; Pustejovsky & Tipton 2018)
     rng = np.random.default_rng(9)
     X0, y, v, cl = _data(9, m=12)
     X = np.column_stack([X0, rng.normal(size=y.size)])

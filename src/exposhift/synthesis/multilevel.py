@@ -8,25 +8,8 @@ Model (Konstantopoulos 2011, Res Synth Methods 2:61; Van den Noortgate, López-L
 
 so the covariance is block diagonal, V_i = diag(v_i + σ²_within) + σ²_event 11' per event i.
 
-*Per-block algebra, no N × N matrix.* With D_i = diag(d_i), d_i = v_i + σ²_within, a_i = 1/d_i,
-s_i = Σ_j a_ij, t_i = 1 + σ²_event s_i and b_i = a_i^(1/2):
-V_i = D^(1/2)(I + σ²_event b b')D^(1/2), so F_i = D^(1/2)(I + γ_i bb') with γ_i =
-(√t_i − 1)/s_i is a square-root factor (F F' = V_i) and F_i⁻¹ = (I + γ'_i bb')D^(−1/2) with
-γ'_i = (1/√t_i − 1)/s_i = −σ²_event/(√t_i(1 + √t_i)) (Sherman–Morrison–Woodbury; Harville 1977,
-JASA 72:320, for the determinant). Whitened Z̃ = F⁻¹Z needs only per-event sums Σ a_ij z_ij,
-log|V_i| = Σ log d_ij + log t_i, and V⁻¹Z = F^(−T)Z̃.
-
-*Restricted likelihood* (Harville 1977; Patterson & Thompson 1971, Biometrika 58:545):
-
-    ℓ_R(θ) = −½[(N − p) log 2π + log|V| + log|X'V⁻¹X| + (y − Xβ̂)'V⁻¹(y − Xβ̂)],
-
-β̂ = (X'V⁻¹X)⁻¹X'V⁻¹y (GLS, Aitken 1935), with score ∂ℓ_R/∂θ_k = −½[tr(PV_k) − y'PV_kPy],
-P = V⁻¹ − V⁻¹X(X'V⁻¹X)⁻¹X'V⁻¹, V_event = blockdiag(11'), V_within = I (Harville 1977, sec. 6).
-It is maximised over (σ²_event, σ²_within) ∈ [0, big]² by L-BFGS-B (scipy) with the analytic
-score, from three interior starts and on each edge (one component fixed at 0) and at the origin;
-the best of all is kept, so no boundary point is better than the reported one. ``converged``
-requires the chosen run to report success and the projected score to vanish (Karush–Kuhn–Tucker:
-zero score inside, non-positive score of ℓ_R at a zero component).
+The restricted likelihood, its score and information, and its maximisation are in
+:mod:`exposhift.synthesis.multilevel_reml`.
 
 *Singleton events* (every event with one estimate): σ²_event and σ²_within enter only as their
 sum and are not separately identified; the sum is fitted (two-level REML) and reported as
@@ -49,19 +32,12 @@ import numpy as np
 from scipy import stats
 
 from exposhift.errors import AnalysisError
+from exposhift.synthesis.multilevel_reml import RemlProblem, maximise_reml
 from exposhift.synthesis.pooling import check_inputs
-from exposhift.synthesis.robust import ClusterIndex, ClusterRobust, robust_whitened
+from exposhift.synthesis.robust import ClusterIndex, ClusterRobust, robust_blocks
 
 INFERENCE: tuple[str, ...] = ("cr2", "model")
-#: interior starting shares of (event, within) in the total variance
-STARTS: tuple[tuple[float, float], ...] = ((0.8, 0.2), (0.2, 0.8))
-#: projected-score tolerance (scaled variances) for ``converged``
-KKT_TOL = 1e-6
-#: a Newton run stops when no component moves by more than this × (value + median variance)
-STEP_TOL = 1e-10
-MAX_ITER = 200
 DF_UNRELIABLE = 4.0
-LOG_2PI = float(np.log(2 * np.pi))
 NOTE_SINGLETON = (
     "every event has one estimate: between-event and within-event variance are not separately "
     "identified; their sum is reported as sigma2_event (sigma2_within = 0)"
@@ -142,170 +118,6 @@ class MultilevelPool:
     notes: tuple[str, ...] = ()
 
 
-class _Problem:
-    """The data of one fit, sorted by event; restricted likelihood, score and information."""
-
-    def __init__(self, y: np.ndarray, v: np.ndarray, X: np.ndarray, groups: ClusterIndex):
-        o = groups.order
-        self.g = groups
-        self.idx = groups.idx
-        self.v = v[o]
-        self.Z = np.column_stack([X[o], y[o]])
-        self.p = X.shape[1]
-        self.n = y.size
-        # per-event sums as one small (m × N) indicator product (never N × N)
-        self.S = (groups.idx[None, :] == np.arange(groups.m)[:, None]).astype(float)
-        self.buf = np.empty((self.n, 3 + self.p + 1))
-
-    def whitened(self, s2e: float, s2w: float) -> np.ndarray:
-        """Z̃ = F⁻¹[X y] (module docstring), rows sorted by event."""
-        a = 1.0 / (self.v + s2w)
-        t = 1.0 + s2e * (self.S @ a)
-        rt = np.sqrt(t)
-        gp = -s2e / (rt * (1.0 + rt))
-        G = self.S @ (a[:, None] * self.Z)
-        return np.sqrt(a)[:, None] * (self.Z + (gp[:, None] * G)[self.idx])
-
-    def evaluate(self, s2e: float, s2w: float, info: bool = True):
-        """(−ℓ_R, its gradient, (observed, average) information, β̂, M) at (σ²_event, σ²_within).
-
-        Z'V⁻¹Z = Z'D⁻¹Z − G'diag(c)G with G the event sums of D⁻¹Z and c = σ²_event/t (Woodbury);
-        the observed information of ℓ_R is y'PV_kPV_lPy − ½tr(PV_kPV_l) (Harville 1977, sec. 6)
-        and the average information AI_kl = ½(V_kPy)'P(V_lPy) (Gilmour, Thompson & Cullis 1995,
-        Biometrics 51:1440) its fallback when the observed one is not positive definite.
-        """
-        S, idx, p = self.S, self.idx, self.p
-        d = self.v + s2w
-        a = 1.0 / d
-        buf = self.buf                                           # [a, a², a³, aZ]
-        buf[:, 0] = a
-        np.multiply(a, a, out=buf[:, 1])
-        np.multiply(buf[:, 1], a, out=buf[:, 2])
-        np.multiply(a[:, None], self.Z, out=buf[:, 3:])
-        sums = S @ buf                                           # event sums, (m, 3 + p + 1)
-        s, sa2, sa3, G = sums[:, 0], sums[:, 1], sums[:, 2], sums[:, 3:]
-        t = 1.0 + s2e * s
-        c = s2e / t
-        za = buf[:, 3:]
-        cross = self.Z.T @ za - (G.T * c) @ G                    # Z'V⁻¹Z
-        bread, logdet_x = _inv_logdet(cross[:p, :p])
-        beta = bread @ cross[:p, p]
-        rss = cross[p, p] - cross[:p, p] @ beta
-        logdet = np.log(d).sum() + np.log(t).sum() + logdet_x
-        nll = 0.5 * ((self.n - p) * LOG_2PI + logdet + rss)
-        if not info:
-            return nll, None, None, beta, bread
-        T = np.eye(p + 1)
-        T[:p, p] = -beta
-        vz = za - a[:, None] * (c[:, None] * G)[idx]             # V⁻¹[X y]
-        qp = vz @ T                                              # [Q, Py], Q = V⁻¹X
-        aqp = a[:, None] * qp
-        r2 = S @ aqp
-        vqp = aqp - a[:, None] * (c[:, None] * r2)[idx]          # V⁻¹[Q, Py]
-        e = (G / t[:, None]) @ T                                 # event sums of [Q, Py]
-        w = s / t
-        k1, k2 = qp.T @ qp, qp.T @ vqp
-        k3, k4, k5 = e.T @ e, (e.T * w) @ e, e.T @ (r2 / t[:, None])
-        qq, cc = k1[:p, :p], k3[:p, :p]
-        xw, xe = k1[:p, p], k3[:p, p]                            # X'V⁻¹u_within, X'V⁻¹u_event
-        d_within = s.sum() - c @ sa2 - (bread * qq).sum() - k1[p, p]
-        d_event = w.sum() - (bread * cc).sum() - k3[p, p]
-        grad = 0.5 * np.array([d_event, d_within])
-        # average information AI_kl = ½ u_k'P u_l, u_event = event sums of Py, u_within = Py
-        mxe, mxw = bread @ xe, bread @ xw
-        ai = 0.5 * np.array([[k4[p, p] - xe @ mxe, k5[p, p] - xe @ mxw],
-                             [k5[p, p] - xe @ mxw, k2[p, p] - xw @ mxw]])
-        # Fisher information ½tr(PV_kPV_l), P = V⁻¹ − QMQ', block by block
-        mqq, mcc = bread @ qq, bread @ cc
-        tr_ee = (w * w).sum() - 2 * (bread * k4[:p, :p]).sum() + (mcc * mcc.T).sum()
-        tr_ew = (sa2 / (t * t)).sum() - 2 * (bread * k5[:p, :p]).sum() + (mcc * mqq.T).sum()
-        tr_ww = (sa2.sum() - 2 * c @ sa3 + (c * c) @ (sa2 * sa2)
-                 - 2 * (bread * k2[:p, :p]).sum() + (mqq * mqq.T).sum())
-        hess = 2.0 * ai - 0.5 * np.array([[tr_ee, tr_ew], [tr_ew, tr_ww]])
-        return nll, grad, (hess, ai), beta, bread
-
-
-def _inv_logdet(a: np.ndarray) -> tuple[np.ndarray, float]:
-    """Inverse and log-determinant of the small SPD matrix X'V⁻¹X (closed form for p ≤ 2)."""
-    p = a.shape[0]
-    if p == 1:
-        det = a[0, 0]
-        inv = np.array([[1.0 / det]]) if det > 0 else None
-    elif p == 2:
-        det = a[0, 0] * a[1, 1] - a[0, 1] * a[1, 0]
-        inv = np.array([[a[1, 1], -a[0, 1]], [-a[1, 0], a[0, 0]]]) / det if det > 0 else None
-    else:
-        sign, logdet = np.linalg.slogdet(a)
-        det = np.exp(logdet) if sign > 0 else 0.0
-        inv = np.linalg.inv(a) if sign > 0 else None
-        if inv is not None:
-            return inv, float(logdet)
-    if inv is None or not np.all(np.isfinite(inv)):
-        raise AnalysisError("X'V^-1X is singular; check the moderators for collinearity")
-    return inv, float(np.log(det))
-
-
-def _newton_step(h: np.ndarray, grad: np.ndarray, move: np.ndarray) -> np.ndarray:
-    """−h⁻¹·gradient on the moving components (closed form, 2 × 2 at most); zeros when h is
-    not positive definite there, so that the caller falls back."""
-    step = np.zeros(2)
-    if move.all():
-        det = h[0, 0] * h[1, 1] - h[0, 1] ** 2
-        if h[0, 0] > 0 and det > 1e-12 * h[0, 0] * h[1, 1]:
-            step[0] = -(h[1, 1] * grad[0] - h[0, 1] * grad[1]) / det
-            step[1] = -(h[0, 0] * grad[1] - h[0, 1] * grad[0]) / det
-        return step
-    k = 0 if move[0] else 1
-    if h[k, k] > 0:
-        step[k] = -grad[k] / h[k, k]
-    return step
-
-
-def _newton(prob: _Problem, x0: np.ndarray, free: np.ndarray, scale: float, big: float,
-            max_iter: int = MAX_ITER) -> tuple[float, np.ndarray, int, bool]:
-    """Projected Newton on the free components (observed information, else average
-    information, else steepest descent), with step halving.
-
-    Components at 0 whose score points outward are held there for the step (active set).
-    Stops when a step moves no component by more than ``STEP_TOL`` × (value + scale).
-    """
-    x = np.where(free, np.clip(x0, 0.0, big), 0.0)
-    f, grad, hess, _, _ = prob.evaluate(*x)
-    for it in range(1, max_iter + 1):
-        move = free & ~((x <= 0.0) & (grad > 0.0))
-        step = np.zeros(2)
-        while move.any():
-            step = _newton_step(hess[0], grad, move)
-            if not step @ grad < 0:
-                step = _newton_step(hess[1], grad, move)
-            if not step @ grad < 0:                             # not a descent direction
-                step = np.where(move, -grad * scale * scale, 0.0)
-            blocked = move & (x <= 0.0) & (step < 0.0)
-            if not blocked.any():
-                break
-            move = move & ~blocked
-        if not move.any():
-            return f, x, it, True
-        # go no further than the first bound along the direction, then halve while f rises
-        neg = step < 0.0
-        lam = min(1.0, float(np.min(x[neg] / -step[neg]))) if neg.any() else 1.0
-        for _ in range(60):
-            new = np.clip(x + lam * step, 0.0, big)
-            f_new, g_new, h_new, _, _ = prob.evaluate(*new)
-            if f_new <= f + 1e-13 * (1.0 + abs(f)):
-                break
-            lam *= 0.5
-        else:
-            return f, x, it, False
-        # converged only when the full step is negligible: a step shortened by halving or by a
-        # bound can be tiny far from the optimum
-        done = bool(np.all(np.abs(step) <= STEP_TOL * (new + scale)))
-        x, f, grad, hess = new, f_new, g_new, h_new
-        if done:
-            return f, x, it, True
-    return f, x, max_iter, False
-
-
 def _check_design(X: Any, n: int, names: Any) -> tuple[np.ndarray, tuple[str, ...]]:
     if X is None:
         X = np.ones((n, 1))
@@ -330,34 +142,6 @@ def _check_design(X: Any, n: int, names: Any) -> tuple[np.ndarray, tuple[str, ..
     return X, names
 
 
-def _optimise(prob: _Problem, singleton: bool) -> tuple[np.ndarray, int, bool]:
-    """Best (σ²_event, σ²_within) over the starts, the two edges and the origin, its iterations
-    and whether it converged and satisfies the Karush–Kuhn–Tucker conditions."""
-    v, Z = prob.v, prob.Z
-    resid = Z[:, -1] - Z[:, :-1] @ np.linalg.lstsq(Z[:, :-1], Z[:, -1], rcond=None)[0]
-    scale = float(np.median(v))
-    total = max(float(np.mean(resid**2) - np.mean(v)), 0.1 * scale)
-    big = 1e4 * (float(np.var(Z[:, -1])) + float(v.max()))
-    both, event_only, within_only = (np.array([True, True]), np.array([True, False]),
-                                     np.array([False, True]))
-    if singleton:
-        runs = [_newton(prob, np.array([total, 0.0]), event_only, scale, big)]
-    else:
-        runs = [_newton(prob, np.array(sh) * total, both, scale, big) for sh in STARTS]
-        # boundary check: the best point on each edge, unless a run already converged there
-        for k, free in ((1, event_only), (0, within_only)):
-            if not any(r[1][k] == 0.0 and r[3] for r in runs):
-                runs.append(_newton(prob, np.where(free, total, 0.0), free, scale, big))
-    runs.append((prob.evaluate(0.0, 0.0, info=False)[0], np.zeros(2), 0, True))
-    f, x, nit, ok = min(runs, key=lambda r: r[0])
-    grad = prob.evaluate(*x)[1] * scale
-    free = [0] if singleton else [0, 1]
-    kkt = all((abs(grad[k]) <= KKT_TOL * (1.0 + x[k] / scale)) if x[k] > 0 else
-              (grad[k] >= -KKT_TOL) for k in free)
-    at_top = bool(np.any(x >= big * (1 - 1e-9)))
-    return x, nit, bool(ok and kkt and not at_top)
-
-
 def fit_multilevel(y: Any, v: Any, cluster: Any, X: Any = None, names: Any = None) -> MultilevelFit:
     """Fit the three-level model by REML; see the module docstring for the formulas.
 
@@ -376,23 +160,32 @@ def fit_multilevel(y: Any, v: Any, cluster: Any, X: Any = None, names: Any = Non
     if groups.m <= p:
         raise AnalysisError(f"{groups.m} events for {p} coefficients: cluster-robust inference "
                             "needs more events than coefficients")
-    prob = _Problem(y, v, X, groups)
+    prob = RemlProblem(y, v, X, groups)
     singleton = bool(np.all(groups.counts == 1))
-    theta, nit, converged = _optimise(prob, singleton)
+    theta, nit, converged = maximise_reml(prob, singleton)
     s2e, s2w = float(theta[0]), float(theta[1])
     nll, _, _, beta, bread = prob.evaluate(s2e, s2w, info=False)
-    zt = prob.whitened(s2e, s2w)
-    rt = zt[:, p] - zt[:, :p] @ beta
-    rob = robust_whitened(zt[:, :p], rt, bread, beta, groups, "CR2")
+    xs, ys = prob.Z[:, :p], prob.Z[:, p]
+    d = prob.v + s2w
+
+    def phi_blocks(ids: np.ndarray, m: int) -> np.ndarray:
+        rows = groups.starts[ids][:, None] + np.arange(m)
+        return d[rows][:, :, None] * np.eye(m) + s2e              # V̂_i = diag(v + σ²_w) + σ²_e 11'
+
+    rob = robust_blocks(xs, ys - xs @ beta, bread, beta, groups, phi_blocks, "CR2")
     notes = [NOTE_SINGLETON] if singleton else []
     if not converged:
         notes.append("REML maximisation did not converge: variance components are the best "
                      "point found")
     notes.extend(rob.notes)
     vm = 0.5 * (bread + bread.T)
+    arrays = [beta, vm, np.sqrt(np.diag(vm)), rob.vcov, rob.se, rob.df]
+    for arr in arrays:
+        arr.setflags(write=False)
+    beta, vm, se_model, vcov_cr2, se_cr2, df_cr2 = arrays
     return MultilevelFit(
-        names=names, coef=beta, vcov_model=vm, se_model=np.sqrt(np.diag(vm)),
-        vcov_cr2=rob.vcov, se_cr2=rob.se, df_cr2=rob.df, sigma2_event=s2e, sigma2_within=s2w,
+        names=names, coef=beta, vcov_model=vm, se_model=se_model,
+        vcov_cr2=vcov_cr2, se_cr2=se_cr2, df_cr2=df_cr2, sigma2_event=s2e, sigma2_within=s2w,
         k_estimates=n, k_events=groups.m, converged=converged, iterations=nit,
         loglik_reml=float(-nll), notes=tuple(notes), robust=rob,
     )
@@ -400,7 +193,7 @@ def fit_multilevel(y: Any, v: Any, cluster: Any, X: Any = None, names: Any = Non
 
 def wald_test(fit: MultilevelFit, R: Any, r: Any = None, vcov: str = "model") -> WaldTest:
     """Test Rβ = r: χ²(q) with the model covariance; with CR2 the t test on Satterthwaite df
-    (q = 1) or the HTZ F test (q > 1; Pustejovsky & Tipton 2018, sec. 3.2)."""
+    (q = 1) or the HTZ F test (q > 1; Pustejovsky & Tipton 2018)."""
     p = fit.coef.size
     R = np.atleast_2d(np.asarray(R, dtype=float))
     if R.shape[1] != p or not np.all(np.isfinite(R)):

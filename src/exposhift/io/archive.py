@@ -25,7 +25,7 @@ import pandas as pd
 
 from exposhift import vocab
 from exposhift.errors import InputFileError, Problem
-from exposhift.io import rules
+from exposhift.io import plausible, rules
 from exposhift.io.frames import (
     APPRAISAL_FIELDS,
     ESTIMATE_FIELDS,
@@ -324,6 +324,8 @@ def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrame
     appraisals, ratings = _appraisals(doc, set(st["key"].dropna()), log, file)
     if log.problems:
         raise InputFileError(sorted_problems(log.problems))
+    warn = ProblemLog(es_log.file, es_log.rows)
+    plausible.check_plausible(es.rename(columns={"point": "estimate"}), warn)
 
     exposures = _merge_names(exposures, ev["exposure"], "agent_class")
     outcomes = _merge_names(outcomes, es["outcome"], "outcome_group")
@@ -335,6 +337,7 @@ def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrame
         estimates=estimates, appraisals=appraisals, ratings=ratings,
         given={e: frozenset(FIELDS[e]) for e in FIELDS},
         rows=len(events) + len(studies) + len(estimates) + len(appraisals),
+        warnings=sorted_problems(warn.problems),
     )
 
 

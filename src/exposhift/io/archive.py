@@ -31,7 +31,7 @@ import pandas as pd
 from exposhift import vocab
 from exposhift.errors import InputFileError, Problem
 from exposhift.io import directions as expected
-from exposhift.io import overlap, rules
+from exposhift.io import overlap, plausible, rules
 from exposhift.io.frames import (
     APPRAISAL_FIELDS,
     ESTIMATE_FIELDS,
@@ -338,6 +338,8 @@ def read_archive(path: str | Path, encoding: str | None = None,
                                      outcomes)
     if log.problems:
         raise InputFileError(sorted_problems(log.problems))
+    warn = ProblemLog(es_log.file, es_log.rows)
+    plausible.check_plausible(es.rename(columns={"point": "estimate"}), warn)
 
     exposures = _merge_names(exposures, ev["exposure"], "agent_class")
     outcomes = _merge_names(outcomes, es["outcome"], "outcome_group")
@@ -349,6 +351,7 @@ def read_archive(path: str | Path, encoding: str | None = None,
         estimates=estimates, appraisals=appraisals, ratings=ratings, directions=directions,
         given={e: frozenset(FIELDS[e]) for e in FIELDS},
         rows=len(events) + len(studies) + len(estimates) + len(appraisals),
+        warnings=sorted_problems(warn.problems),
     )
 
 

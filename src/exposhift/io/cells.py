@@ -73,6 +73,22 @@ def parse_float(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     return pd.Series(out, index=s.index, dtype="float64")
 
 
+_BOUND = r"^(?:[pP]\s*)?(?:<=|<|≤)\s*"
+
+
+def parse_p_value(s: pd.Series, column: str, log: ProblemLog) -> tuple[pd.Series, pd.Series]:
+    """A p value, or a bound written ``<0.001`` (also ``< 0.001``, ``p<0.001``, ``<=``, ``≤``).
+
+    Returns (value, bound): the number, and True where it was written as a bound. A bound is
+    analysed as the p value itself, which makes the SE recovered from it an upper bound
+    (conservative); the flag carries that into every pool (provenance ``p_bound``).
+    """
+    s = s.fillna("").astype("str")
+    bound = s.str.contains(_BOUND, regex=True).fillna(False).to_numpy(dtype=bool)
+    stripped = s.str.replace(_BOUND, "", regex=True) if bound.any() else s
+    return parse_float(stripped, column, log), pd.Series(bound, index=s.index, dtype=bool)
+
+
 def parse_int(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     """Whole numbers (``2005``; ``2005.0`` as spreadsheets sometimes write it)."""
     s = s.fillna("").astype("str")

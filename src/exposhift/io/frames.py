@@ -13,6 +13,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from exposhift.errors import Problem
+
 #: field -> kind ("text", "int", "float", "bool"); order is the export order
 EXPOSURE_FIELDS = {"name": "text", "agent_class": "text"}
 OUTCOME_FIELDS = {"name": "text", "outcome_group": "text"}
@@ -32,7 +34,8 @@ ESTIMATE_FIELDS = {
     "key": "text", "study": "text", "event": "text", "outcome": "text", "measure": "text",
     "estimate_kind": "text", "per_unit": "float", "point": "float", "ci_low": "float",
     "ci_high": "float", "ci_level": "float", "se": "float", "p_value": "float",
-    "baseline_risk": "float", "subgroup": "text", "time_window": "text", "primary": "bool",
+    "p_bound": "bool", "baseline_risk": "float", "subgroup": "text", "time_window": "text",
+    "primary": "bool",
 }
 APPRAISAL_FIELDS = {
     "study": "text", "reviewer": "text", "stage": "text", "rubric_id": "text",
@@ -149,6 +152,9 @@ class EvidenceFrames:
     given: dict[str, frozenset[str]] = field(default_factory=dict)
     rows: int = 0
     notes: list[str] = field(default_factory=list)
+    #: values that are valid but look wrong (e.g. an SE on another scale): the import goes on,
+    #: and the caller shows them after it (see :func:`exposhift.io.plausible.check_plausible`)
+    warnings: list[Problem] = field(default_factory=list)
 
     def frame(self, entity: str) -> pd.DataFrame:
         return getattr(self, PLURAL[entity])

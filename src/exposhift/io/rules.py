@@ -88,7 +88,12 @@ def check_ranges(t: pd.DataFrame, log: ProblemLog) -> None:
     if p is not None:
         bad = ~np.isnan(p) & ((p <= 0) | (p > 1))
         log.flag(bad, "p_value", lambda i: f"p value {_num(p[i])} is not above 0 and at most 1 "
-                 "(for 'p < 0.001' write 0.001, which is conservative)")
+                 "(for 'p < 0.001' write <0.001)")
+    bound = _arr(t, "p_bound")
+    if bound is not None:
+        no_p = np.ones(len(t), bool) if p is None else np.isnan(p)
+        log.flag(bound.astype(bool) & no_p, "p_bound",
+                 "p_bound is yes but p_value is blank; give the bound in p_value (e.g. <0.001)")
     risk = _arr(t, "baseline_risk")
     if risk is not None:
         bad = ~np.isnan(risk) & ((risk <= 0) | (risk >= 1))

@@ -79,6 +79,7 @@ def synthetic_sheet(n: int, seed: int = 0, *, prefix: str = "SYN") -> pd.DataFra
         "ci_level": np.where(only_se, "", "0.95"),
         "se": np.where(only_se, s(np.round(se, 4)), ""),
         "p_value": "",
+        "p_bound": "",
         "baseline_risk": "",
         "subgroup": np.where(within >= len(OUTCOMES), "subgroup " + s(within // len(OUTCOMES)),
                              ""),

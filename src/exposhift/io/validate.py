@@ -21,10 +21,10 @@ import numpy as np
 import pandas as pd
 
 from exposhift import vocab
-from exposhift.io import cells, overlap, rules
+from exposhift.io import cells, overlap, plausible, rules
 from exposhift.io.columns import BY_NAME, COLUMN_NAMES, EVENT_COLUMNS, STUDY_COLUMNS
 from exposhift.io.frames import EVENT_FIELDS, STUDY_FIELDS, EvidenceFrames, coerce, estimate_keys
-from exposhift.io.problems import ProblemLog, quote
+from exposhift.io.problems import ProblemLog, quote, sorted_problems
 from exposhift.io.sheet import RawSheet
 
 #: code columns -> (accepted codes, name in messages, default for a blank cell)
@@ -44,7 +44,7 @@ RENAME = {
 }
 ESTIMATE_SHEET = ("study_id", "event_id", "outcome", "measure", "estimate_kind", "per_unit",
                   "estimate", "ci_low", "ci_high", "ci_level", "se", "p_value",
-                  "baseline_risk", "subgroup", "time_window", "primary")
+                  "p_bound", "baseline_risk", "subgroup", "time_window", "primary")
 UNCERTAINTY = ("ci_low", "ci_high", "se", "p_value")
 EVENTS_SHEET_COLUMNS = (*EVENT_COLUMNS, "demo")
 
@@ -61,6 +61,12 @@ def parse_cells(raw: pd.DataFrame, log: ProblemLog, *, verbatim: bool = False) -
             out[name] = cells.parse_country(s, name, log)
         elif name == "change_date":
             out[name], out["date_precision"] = cells.parse_date(s, name, log)
+        elif name == "p_value":
+            out[name], bound = cells.parse_p_value(s, name, log)
+            out["p_bound"] = bound | out["p_bound"] if "p_bound" in out else bound
+        elif name == "p_bound":
+            flag = cells.parse_bool(s, name, log)
+            out[name] = flag | out[name] if name in out else flag
         elif name == "checks":
             out[name] = cells.normalise_checks(cells.clean_text(s, verbatim=verbatim))
         elif name == overlap.COLUMN:
@@ -221,6 +227,8 @@ def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False,
     studies = _entity(typed.iloc[study_rows], STUDY_COLUMNS, "study")
     overlap.check_same_population(studies, log.rows[study_rows], est, log, study_events)
     log.raise_if_any()
+    warn = ProblemLog(sheet.file, sheet.rows)
+    plausible.check_plausible(typed, warn)
 
     events = _entity(typed.iloc[event_rows], (*EVENT_COLUMNS, "date_precision"), "event")
     if "demo" in typed.columns:  # an event is demo when any of its rows is
@@ -244,6 +252,7 @@ def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False,
         given=given,
         rows=len(raw),
         notes=notes,
+        warnings=sorted_problems(warn.problems),
     )
 
 
@@ -281,5 +290,6 @@ def validate_events_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> Evi
 
 _BLANK_DTYPE = {"text": "str", "code": "str", "date": "str", "int": "Int64", "float": "float64"}
 _ESTIMATE_ORDER = ("key", "study", "event", "outcome", "measure", "estimate_kind", "per_unit",
-                   "point", "ci_low", "ci_high", "ci_level", "se", "p_value", "baseline_risk",
+                   "point", "ci_low", "ci_high", "ci_level", "se", "p_value", "p_bound",
+                   "baseline_risk",
                    "subgroup", "time_window", "primary")

@@ -118,6 +118,7 @@ class Estimate(SQLModel, table=True):
     ci_level: float | None = None
     se: float | None = None
     p_value: float | None = None
+    p_bound: bool = False  # the p value was reported as a bound ("p < x")
     baseline_risk: float | None = None
     subgroup: str | None = None
     time_window: str | None = None

@@ -44,7 +44,8 @@ def analysis_frame(
             EV.c.change_date, EV.c.family,
             OU.c.name.label("outcome"), OU.c.outcome_group,
             ES.c.measure, ES.c.estimate_kind, ES.c.per_unit, ES.c.point.label("estimate"),
-            ES.c.ci_low, ES.c.ci_high, ES.c.ci_level, ES.c.se, ES.c.p_value, ES.c.baseline_risk,
+            ES.c.ci_low, ES.c.ci_high, ES.c.ci_level, ES.c.se, ES.c.p_value, ES.c.p_bound,
+            ES.c.baseline_risk,
             ES.c.subgroup, ES.c.time_window, ES.c.primary,
         )
         .join(ST, ES.c.study_id == ST.c.id)
@@ -77,6 +78,7 @@ def add_derived(frame: pd.DataFrame, levels: dict[str, int]) -> pd.DataFrame:
                 "p_value", "baseline_risk"):
         out[col] = pd.to_numeric(out[col], errors="coerce").astype("float64")
     out["primary"] = out["primary"].fillna(False).astype(bool)
+    out["p_bound"] = out["p_bound"].fillna(False).astype(bool)
     if out.empty:
         out["change_year"] = out["change_year"].astype("float64")
     return out

@@ -29,7 +29,7 @@ Rules of :func:`harmonise` (documented here, shown per row in ``harmonise_note``
 
   An entered log-scale SE above 1.5 for a ratio or above 1 for a percent change is
   implausible (common practice): it is used as entered, flagged ``se_implausible`` and noted,
-  and the import warns about it (:func:`exposhift.io.rules.check_plausible`).
+  and the import warns about it (:func:`exposhift.io.plausible.check_plausible`).
 * **Provenance.** Each row carries the flags of :mod:`exposhift.synthesis.provenance` (OR
   converted, SE from a p value, p entered as a bound, SE from a z-based CI of a short series,
   SMD converted, asymmetric CI, per-unit rescaled, sign flipped, implausible SE) as boolean

@@ -56,3 +56,8 @@ def independent_ratings(conn: Connection) -> list[dict[str, Any]]:
         .join(RA, RA.c.appraisal_id == AP.c.id)
         .where(AP.c.stage == "independent")
     ).mappings()]
+
+
+def rubrics_held(conn: Connection) -> set[tuple[str, str]]:
+    """Every (rubric id, content hash) that stored appraisals were made with."""
+    return {(i, h) for i, h in conn.execute(select(AP.c.rubric_id, AP.c.rubric_hash).distinct())}

@@ -60,13 +60,14 @@ def _print_report(report: ImportReport) -> None:
 
 
 def _run_import(ctx: typer.Context, file: Path, *, events_only: bool, dry_run: bool,
-                encoding: str | None, ignore_extra: bool, as_json: bool, quiet: bool) -> None:
+                encoding: str | None, ignore_extra: bool, as_json: bool, quiet: bool,
+                replace: bool = False, rubric: Path | None = None) -> None:
     s = settings(ctx)
     bar = None if (as_json or quiet) else _Bar()
     try:
         report = import_file(file, db=s.db, user=s.user, events_only=events_only,
                              dry_run=dry_run, encoding=encoding, ignore_extra=ignore_extra,
-                             progress=bar)
+                             progress=bar, replace=replace, rubric_path=rubric)
     finally:
         if bar is not None:
             bar.close()
@@ -88,20 +89,30 @@ _EXTRA = typer.Option(False, "--ignore-extra-columns",
                       help="Skip columns exposhift does not know instead of refusing the file.")
 _JSON = typer.Option(False, "--json", help="Print the result as a JSON object.")
 _QUIET = typer.Option(False, "--quiet", "-q", help="Print nothing on success.")
+_REPLACE = typer.Option(False, "--replace",
+                        help="Archive only: let it replace appraisals the evidence base holds "
+                        "with other content (an administrator's decision; each replacement is "
+                        "recorded in the audit trail).")
+_RUBRIC = typer.Option(None, "--rubric",
+                       help="Archive only: the rubric its appraisals are checked against "
+                       "(default evidence/rubric.toml).")
 
 
 @user_errors
 def import_cmd(ctx: typer.Context, file: Path = _FILE, dry_run: bool = _DRY,
                encoding: str | None = _ENCODING, ignore_extra: bool = _EXTRA,
-               as_json: bool = _JSON, quiet: bool = _QUIET) -> None:
+               as_json: bool = _JSON, quiet: bool = _QUIET, replace: bool = _REPLACE,
+               rubric: Path | None = _RUBRIC) -> None:
     """Import studies, events and estimates from a sheet, or a whole archive (.json).
 
     Every problem in the file is reported at once (row, column, what to do) and nothing is
     written until the file is clean. The import is one transaction; importing the same file
     again changes nothing, and a changed row updates its record (with an audit entry).
+    An archive's appraisals pass the same rules as 'appraise import'.
     """
     _run_import(ctx, file, events_only=False, dry_run=dry_run, encoding=encoding,
-                ignore_extra=ignore_extra, as_json=as_json, quiet=quiet)
+                ignore_extra=ignore_extra, as_json=as_json, quiet=quiet, replace=replace,
+                rubric=rubric)
 
 
 @user_errors
@@ -130,9 +141,11 @@ def export_cmd(ctx: typer.Context,
     Text cells that a spreadsheet would run as a formula are written with a leading quote.
     """
     result = export_file(file, db=settings(ctx).db, events_only=events)
+    for warning in result.warnings:
+        typer.echo(f"warning: {warning}", err=True)
     if as_json:
         print_json({"file": result.path, "format": result.format, "what": result.what,
-                    "counts": result.counts})
+                    "counts": result.counts, "warnings": result.warnings})
         return
     counts = ", ".join(f"{n:,} {k}" for k, n in result.counts.items())
     typer.echo(f"wrote {result.path} ({result.what}: {counts})")

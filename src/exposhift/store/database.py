@@ -146,13 +146,24 @@ class Store:
         except OperationalError as exc:
             raise self._translate(exc) from None
         except IntegrityError as exc:
-            raise DatabaseError(
-                f"the database {self.masked_url} refused the change "
-                f"({describe_driver_error(exc)}); nothing was written. If someone else was "
-                "writing the same records, run the command again"
-            ) from None
+            raise self._refused(exc) from None
         except DBAPIError as exc:
             raise self._translate(exc) from None
+        except Exception as exc:
+            # errors of the driver itself (raw cursors such as the bulk writer's)
+            dbapi = self.engine.dialect.dbapi
+            if dbapi is None or not isinstance(exc, dbapi.Error):
+                raise
+            if isinstance(exc, dbapi.IntegrityError):
+                raise self._refused(exc) from None
+            raise self._translate(exc) from None
+
+    def _refused(self, exc: BaseException) -> DatabaseError:
+        return DatabaseError(
+            f"the database {self.masked_url} refused the change ({describe_driver_error(exc)}); "
+            "nothing was written. If someone else was writing the same records, run the "
+            "command again"
+        )
 
     def _translate(self, exc: DBAPIError) -> DatabaseError:
         msg = describe_driver_error(exc)

@@ -40,6 +40,13 @@ from exposhift.io.frames import (
     estimate_keys,
     to_records,
 )
+from exposhift.io.limits import (
+    check_file_size,
+    check_json_depth,
+    check_text_cells,
+    current_limits,
+    text_problem,
+)
 from exposhift.io.problems import ProblemLog, quote, sorted_problems
 from exposhift.io.sheet import read_text
 from exposhift.io.validate import RENAME, parse_cells, unreadable_cells
@@ -164,7 +171,9 @@ def _section(records, fields: dict[str, str], log: ProblemLog, section: str) -> 
                 log.add(i + 1, f, f"expected {_KIND_NAMES[kind]}, not {quote(rec.get(f))}")
                 text = ""
             cols[f].append(text)
-    return pd.DataFrame({f: pd.Series(v, dtype="str") for f, v in cols.items()})
+    frame = pd.DataFrame({f: pd.Series(v, dtype="str") for f, v in cols.items()})
+    check_text_cells(frame, log)  # over-long text and control characters
+    return frame
 
 
 def _to_sheet_names(frame: pd.DataFrame, entity: str) -> pd.DataFrame:
@@ -207,7 +216,8 @@ def _entity_section(doc: dict, name: str, entity: str, required: tuple[str, ...]
 
 
 def _vocab_section(doc: dict, name: str, entity: str, log: ProblemLog, file: str) -> pd.DataFrame:
-    records = (doc.get("vocabularies") or {}).get(name, [])
+    vocabularies = doc.get("vocabularies")
+    records = vocabularies.get(name, []) if isinstance(vocabularies, dict) else []
     n = len(records) if isinstance(records, list) else 0
     sec = log.at(f"{file}: vocabularies.{name}", np.arange(1, n + 1))
     raw = _section(records, FIELDS[entity], sec, f"vocabularies.{name}")
@@ -238,6 +248,7 @@ def _appraisals(doc: dict, studies: set[str], log: ProblemLog, file: str):
         frame["stage"].fillna("")
     _duplicates(key, sec, "reviewer")
     rating_rows = []
+    limits = current_limits()
     for i, rec in enumerate(records if isinstance(records, list) else []):
         ratings = rec.get("ratings", []) if isinstance(rec, dict) else []
         if not isinstance(ratings, list):
@@ -259,6 +270,8 @@ def _appraisals(doc: dict, studies: set[str], log: ProblemLog, file: str):
                     v = None
                 if kind == "int" and v is not None and v not in LEVELS:
                     sec.add(i + 1, f"{where}.{f}", "a level is 0, 1, 2 or 3")
+                if kind == "text" and isinstance(v, str) and text_problem(v, limits):
+                    sec.add(i + 1, f"{where}.{f}", text_problem(v, limits))
                 row[f] = v
             for extra in sorted(set(r) - set(ARCHIVE_FIELDS["rating"])):
                 sec.add(i + 1, f"{where}.{extra}", "unknown field; remove it")
@@ -278,9 +291,14 @@ def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrame
     """Read and validate a JSON archive written by :func:`archive_text`."""
     path = Path(path)
     file = path.name
+    check_file_size(path)
+    check_json_depth(path.read_bytes(), file)  # before json.loads can recurse
     text = read_text(path, encoding)
     try:
         doc = json.loads(text)
+    except RecursionError:
+        raise InputFileError([Problem(file, None, None, "the JSON is nested too deeply to "
+                                      "read; this is not an exposhift export")]) from None
     except json.JSONDecodeError as exc:
         raise InputFileError([Problem(file, exc.lineno, None,
                                       f"not valid JSON ({exc.msg} at column {exc.colno}); "
@@ -295,6 +313,7 @@ def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrame
                                       f"archive format version {doc.get('format_version')!r} "
                                       f"is not {FORMAT_VERSION}; use the exposhift that wrote it")])
     log = ProblemLog(file)
+    _section_types(doc, log)
     exposures = _vocab_section(doc, "exposures", "exposure", log, file)
     outcomes = _vocab_section(doc, "outcomes", "outcome", log, file)
     ev = _entity_section(doc, "events", "event", ("event_id", "exposure", "change_kind",
@@ -336,6 +355,33 @@ def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrame
         given={e: frozenset(FIELDS[e]) for e in FIELDS},
         rows=len(events) + len(studies) + len(estimates) + len(appraisals),
     )
+
+
+#: top-level sections whose JSON type is checked here (the record lists are checked, with the
+#: same kind of message, where they are read: see ``_section``)
+SECTION_TYPES = {"vocabularies": dict}
+_TYPE_NAMES = {dict: "an object ({...})", list: "a list ([...])"}
+#: vocabulary lists read as records (checked where they are read)
+_READ_VOCABULARIES = ("exposures", "outcomes")
+
+
+def _json_type(value) -> str:
+    return {dict: "an object", list: "a list", str: "text", bool: "true/false",
+            type(None): "null", int: "a number", float: "a number"}.get(type(value), "a value")
+
+
+def _section_types(doc: dict, log: ProblemLog) -> None:
+    """Every known section of the right JSON type (a wrong one is reported, not crashed on)."""
+    for name, kind in SECTION_TYPES.items():
+        if name in doc and not isinstance(doc[name], kind):
+            log.add(None, name, f"'{name}' must be {_TYPE_NAMES[kind]}, not "
+                    f"{_json_type(doc[name])}; export the evidence base again or repair it")
+    vocabularies = doc.get("vocabularies")
+    if isinstance(vocabularies, dict):
+        for name, value in vocabularies.items():
+            if name not in _READ_VOCABULARIES and not isinstance(value, list):
+                log.add(None, f"vocabularies.{name}", f"'vocabularies.{name}' must be a list "
+                        f"([...]), not {_json_type(value)}")
 
 
 def _merge_names(vocab_frame: pd.DataFrame, used: pd.Series, extra: str) -> pd.DataFrame:

@@ -24,6 +24,8 @@ import numpy as np
 import pandas as pd
 
 from exposhift.errors import InputFileError, Problem
+from exposhift.io.limits import RowCounter, check_csv_shape, check_text_cells, check_xlsx_size
+from exposhift.io.problems import ProblemLog
 
 SHEET_SUFFIXES = (".csv", ".xlsx")
 DEFAULT_ENCODING = "utf-8-sig"
@@ -92,10 +94,15 @@ def _frame_from_rows(name: str, header: list[str], body: pd.DataFrame) -> RawShe
         raise InputFileError(problems)
     body = body.iloc[nonblank, keep_cols]
     body.columns = [header[i] for i in keep_cols]
-    return RawSheet(name, body.reset_index(drop=True), rows[nonblank])
+    body = body.reset_index(drop=True)
+    log = ProblemLog(name, rows[nonblank])
+    check_text_cells(body, log)  # over-long cells and control characters, with row and column
+    log.raise_if_any()
+    return RawSheet(name, body, rows[nonblank])
 
 
 def read_csv_sheet(path: Path, encoding: str | None = None) -> RawSheet:
+    check_csv_shape(path)  # size, columns and cells, before the file is parsed
     text = read_text(path, encoding)
     if not text.strip():
         raise InputFileError([Problem(path.name, None, None,
@@ -138,17 +145,24 @@ def read_xlsx_sheet(path: Path) -> RawSheet:
     from openpyxl import load_workbook
     from openpyxl.utils.exceptions import InvalidFileException
 
+    check_xlsx_size(path)
     try:
-        wb = load_workbook(path, read_only=True, data_only=True)
+        wb = load_workbook(path, read_only=True, data_only=False)
     except (InvalidFileException, zipfile.BadZipFile, OSError, KeyError, ValueError) as exc:
         raise InputFileError([Problem(path.name, None, None,
                                       f"cannot read the file as an Excel workbook ({exc}); save "
                                       "it as .xlsx or as CSV")]) from None
+    counter = RowCounter(path.name)
     try:
         ws = wb.worksheets[0]
-        rows = [[_cell_text(v) for v in r] for r in ws.iter_rows(values_only=True)]
+        rows, formulas = _xlsx_rows(ws, counter)
     finally:
         wb.close()
+    if formulas:
+        raise InputFileError([Problem(path.name, r, h or f"column {c}",
+                                      "the cell holds a formula; paste its value (Paste "
+                                      "Special > Values) and save again")
+                              for r, c, h in _formula_places(formulas, rows)])
     if not rows:
         raise InputFileError([Problem(path.name, None, None,
                                       "the first worksheet is empty; it needs a header row")])
@@ -156,6 +170,29 @@ def read_xlsx_sheet(path: Path) -> RawSheet:
     rows = [r + [""] * (width - len(r)) for r in rows]
     body = pd.DataFrame(rows[1:], columns=range(width), dtype="str")
     return _frame_from_rows(path.name, rows[0], body)
+
+
+def _xlsx_rows(ws, counter: RowCounter) -> tuple[list[list[str]], list[tuple[int, int]]]:
+    """Cell texts row by row, and the (row, column) of every formula cell (1-based)."""
+    rows: list[list[str]] = []
+    formulas: list[tuple[int, int]] = []
+    for n, r in enumerate(ws.iter_rows(), start=1):
+        counter.check(n, len(r))
+        texts = []
+        for j, cell in enumerate(r, start=1):
+            if getattr(cell, "data_type", None) == "f":
+                formulas.append((n, j))
+                texts.append("")
+            else:
+                texts.append(_cell_text(cell.value))
+        rows.append(texts)
+    return rows, formulas
+
+
+def _formula_places(formulas, rows) -> list[tuple[int, int, str]]:
+    header = [re.sub(r"\s+", " ", h).strip().lower() for h in rows[0]] if rows else []
+    return [(r, c, header[c - 1] if c - 1 < len(header) and r > 1 else "")
+            for r, c in formulas[:50]]
 
 
 def read_sheet(path: str | Path, encoding: str | None = None) -> RawSheet:

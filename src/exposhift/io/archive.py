@@ -43,7 +43,6 @@ from exposhift.io.frames import (
 from exposhift.io.limits import (
     check_file_size,
     check_json_depth,
-    check_text_cells,
     current_limits,
     text_problem,
 )
@@ -159,6 +158,7 @@ def _section(records, fields: dict[str, str], log: ProblemLog, section: str) -> 
         log.add(None, section, f"'{section}' must be a list of records")
         return pd.DataFrame({f: pd.Series([], dtype="str") for f in fields})
     cols: dict[str, list[str]] = {f: [] for f in fields}
+    limits = current_limits()
     for i, rec in enumerate(records):
         if not isinstance(rec, dict):
             log.add(i + 1, None, "each record must be a JSON object")
@@ -170,10 +170,20 @@ def _section(records, fields: dict[str, str], log: ProblemLog, section: str) -> 
             if text is None:
                 log.add(i + 1, f, f"expected {_KIND_NAMES[kind]}, not {quote(rec.get(f))}")
                 text = ""
+            elif text and kind == "text":
+                text = _checked_text(text, log, i + 1, f, limits)
             cols[f].append(text)
-    frame = pd.DataFrame({f: pd.Series(v, dtype="str") for f, v in cols.items()})
-    check_text_cells(frame, log)  # over-long text and control characters
-    return frame
+    return pd.DataFrame({f: pd.Series(v, dtype="str") for f, v in cols.items()})
+
+
+def _checked_text(text: str, log: ProblemLog, row: int, column: str, limits) -> str:
+    """The text, or "" after logging why it may not be stored (too long, control characters,
+    lone surrogates: see :mod:`exposhift.io.limits`)."""
+    problem = text_problem(text, limits)
+    if problem is None:
+        return text
+    log.add(row, column, problem)
+    return ""
 
 
 def _to_sheet_names(frame: pd.DataFrame, entity: str) -> pd.DataFrame:
@@ -270,8 +280,8 @@ def _appraisals(doc: dict, studies: set[str], log: ProblemLog, file: str):
                     v = None
                 if kind == "int" and v is not None and v not in LEVELS:
                     sec.add(i + 1, f"{where}.{f}", "a level is 0, 1, 2 or 3")
-                if kind == "text" and isinstance(v, str) and text_problem(v, limits):
-                    sec.add(i + 1, f"{where}.{f}", text_problem(v, limits))
+                if kind == "text" and isinstance(v, str):
+                    v = _checked_text(v, sec, i + 1, f"{where}.{f}", limits) or None
                 row[f] = v
             for extra in sorted(set(r) - set(ARCHIVE_FIELDS["rating"])):
                 sec.add(i + 1, f"{where}.{extra}", "unknown field; remove it")

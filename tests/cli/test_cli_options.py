@@ -14,7 +14,15 @@ from exposhift.cli.main import app
 
 
 @pytest.fixture
-def base(sqlite_store):
+def base(sqlite_store, monkeypatch):
+    """The evidence base; a dashboard that got past its checks must not start a server here."""
+    import exposhift.cli.dashboard_cmds as dash
+
+    def _no_server(*args, **kwargs):
+        raise AssertionError("the dashboard was started despite a bad option")
+
+    monkeypatch.setattr(dash.os, "execve", _no_server)
+    monkeypatch.setattr(dash.subprocess, "call", _no_server)
     return sqlite_store.url
 
 

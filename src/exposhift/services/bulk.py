@@ -18,7 +18,7 @@ from json.encoder import encode_basestring_ascii
 import pandas as pd
 
 from exposhift.io.frames import python_column
-from exposhift.store.audit_chain import entry_hash, last_hash
+from exposhift.store.audit_chain import hash_values, last_hash
 from exposhift.store.writer import AUDIT, Writer
 
 _AUDIT_COLUMNS = ("at", "user", "table_name", "row_key", "action", "before", "after",
@@ -115,8 +115,7 @@ class BulkWriter(Writer):
         prev = last_hash(self.conn)
         entries = []
         for key, aft in zip(keys, after, strict=True):
-            h = entry_hash(prev, {"at": at, "user": user, "table_name": name, "row_key": key,
-                                  "action": "insert", "before": None, "after": aft})
+            h = hash_values(prev, at, user, name, key, "insert", None, aft)  # HASHED order
             entries.append((at, user, name, key, "insert", None, aft, prev, h))
             prev = h
         self._executemany(self._sql(AUDIT.name, _AUDIT_COLUMNS), entries)

@@ -29,6 +29,7 @@ import hashlib
 import json
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
+from json.encoder import encode_basestring as _encode_str
 from typing import Any
 
 from sqlalchemy import Connection, select
@@ -41,11 +42,24 @@ GENESIS = "0" * 64
 HASHED = ("at", "user", "table_name", "row_key", "action", "before", "after")
 
 
+def _enc(value: Any) -> str:
+    if value is None:
+        return "null"
+    if type(value) is str:
+        return _encode_str(value)
+    return json.dumps(value, ensure_ascii=False)
+
+
+def hash_values(prev_hash: str, *values: Any) -> str:
+    """SHA-256 (hex) of ``[prev_hash, *values]`` as compact JSON (UTF-8): the same text as
+    ``json.dumps(..., ensure_ascii=False, separators=(",", ":"))``, built faster."""
+    payload = "[" + ",".join([_encode_str(prev_hash), *map(_enc, values)]) + "]"
+    return hashlib.sha256(payload.encode("utf-8", "surrogatepass")).hexdigest()
+
+
 def entry_hash(prev_hash: str, entry: Mapping[str, Any]) -> str:
     """SHA-256 (hex) of ``[prev_hash, *entry[HASHED]]`` as compact JSON (UTF-8)."""
-    payload = json.dumps([prev_hash, *(entry.get(f) for f in HASHED)], ensure_ascii=False,
-                         separators=(",", ":"))
-    return hashlib.sha256(payload.encode("utf-8")).hexdigest()
+    return hash_values(prev_hash, *(entry.get(f) for f in HASHED))
 
 
 def link(entries: Iterable[dict[str, Any]], prev_hash: str) -> str:

@@ -177,9 +177,19 @@ def test_xlsx_export_types(tmp_path, sqlite_store):
 
 
 def test_xlsx_export_refuses_control_characters(tmp_path, sqlite_store):
-    from exposhift.errors import ExposhiftError
+    """Import refuses them now; a value stored before that rule still cannot reach a workbook."""
+    from exposhift.errors import ExposhiftError, InputFileError
+    from exposhift.store import records
+    from exposhift.store.writer import Writer
 
-    import_into(sqlite_store, write_sheet(tmp_path / "in.csv", [row(comparison="a\x01b")]))
+    with pytest.raises(InputFileError, match="row 2, column 'comparison': the cell holds the "
+                       "control character U\\+0001"):
+        import_into(sqlite_store, write_sheet(tmp_path / "bad.csv", [row(comparison="a\x01b")]))
+    import_into(sqlite_store, write_sheet(tmp_path / "in.csv", [row()]))
+    with sqlite_store.write() as conn:
+        w = Writer(conn, "legacy")
+        records.update(w, "study", "S1", 1, {"comparison": "a\x01b"})
+        w.flush()
     with pytest.raises(ExposhiftError, match="row 2, column 'comparison' holds a control"):
         export_store(sqlite_store, tmp_path / "out.xlsx")
     assert not (tmp_path / "out.xlsx").exists()

@@ -10,7 +10,6 @@ import pytest
 from io_helpers import count, row, table_dump, two_rows
 
 from exposhift.errors import InputFileError
-from exposhift.services.exporting import export_store
 from exposhift.services.importing import import_into
 from exposhift.store import records
 from exposhift.store.writer import Writer, audit_rows
@@ -190,47 +189,6 @@ def test_events_import_validates_and_ignores_study_columns(store, sheet):
     report = import_into(store, full, events_only=True)
     assert counts(report)["events"] == (1, 0, 0) and count(store, "study") == 0
     assert report.notes and report.notes[0].startswith("ignored columns: study_id")
-
-
-def _archive_with_appraisals(store, sheet, tmp_path):
-    import_into(store, sheet(two_rows()))
-    path = tmp_path / "a.json"
-    export_store(store, path)
-    doc = json.loads(path.read_text(encoding="utf-8"))
-    doc["appraisals"] = [
-        {"study": "S1", "reviewer": "ana", "stage": "independent", "rubric_id": "r",
-         "rubric_hash": "h1", "overall": 2,
-         "ratings": [{"domain": "origin", "level": 2, "reporting": "reported",
-                      "justification": "statutory date", "suggested_level": None,
-                      "suggestion_reason": None},
-                     {"domain": "timing", "level": 3, "reporting": None,
-                      "justification": None, "suggested_level": 2,
-                      "suggestion_reason": "date coarser than the analysis"}]},
-        {"study": "S2", "reviewer": "ben", "stage": "consensus", "rubric_id": "r",
-         "rubric_hash": "h1", "overall": None, "ratings": []},
-    ]
-    path.write_text(json.dumps(doc), encoding="utf-8")
-    return path, doc
-
-
-def test_archive_restores_appraisals(store, sheet, tmp_path):
-    path, doc = _archive_with_appraisals(store, sheet, tmp_path)
-    report = import_into(store, path)
-    assert counts(report)["appraisals"] == (2, 0, 0)
-    assert counts(report)["estimates"] == (0, 0, 2)
-    out = tmp_path / "b.json"
-    export_store(store, out)
-    assert json.loads(out.read_text(encoding="utf-8"))["appraisals"] == doc["appraisals"]
-    assert counts(import_into(store, path))["appraisals"] == (0, 0, 2)
-    # a changed rating replaces the stored one and bumps the appraisal's version
-    doc["appraisals"][0]["ratings"][0]["level"] = 1
-    path.write_text(json.dumps(doc), encoding="utf-8")
-    assert counts(import_into(store, path))["appraisals"] == (0, 1, 1)
-    export_store(store, out)
-    assert json.loads(out.read_text(encoding="utf-8"))["appraisals"] == doc["appraisals"]
-    with store.read() as conn:
-        entries = audit_rows(conn, table_name="appraisal")
-    assert [e["action"] for e in entries] == ["insert", "insert", "update"]
 
 
 def test_archive_problems(tmp_path, sqlite_store):

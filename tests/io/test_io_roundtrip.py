@@ -25,10 +25,12 @@ from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from io_helpers import write_sheet
 
+from exposhift.appraisal.rubric import load_rubric
+from exposhift.appraisal.scoring import score_appraisal
 from exposhift.services.exporting import export_store
 from exposhift.services.importing import import_into
 from exposhift.services.setup import init_database, open_current
-from exposhift.vocab import CHANGE_KINDS, DESIGNS, DIRECTIONS, ESTIMATE_KINDS, REVIEW_STAGES
+from exposhift.vocab import CHANGE_KINDS, DESIGNS, DIRECTIONS, ESTIMATE_KINDS
 
 COUNTRIES = sorted(c.alpha_3 for c in pycountry.countries)
 RATIOS = ("RR", "OR", "HR", "IRR")
@@ -267,23 +269,33 @@ def test_excel_round_trip(rows, template, tmp_path_factory):
         fresh.close()
 
 
+RUBRIC = load_rubric()
+
+
+def _appraisal(draw, key, reviewer, stage):
+    levels = {d: draw(st.integers(0, 3)) for d in RUBRIC.domain_keys}
+    return {
+        "study": key, "reviewer": reviewer, "stage": stage,
+        "rubric_id": RUBRIC.rubric_id, "rubric_hash": RUBRIC.content_hash,
+        "overall": score_appraisal(levels, RUBRIC).overall,
+        # every rating justified, so any level is a valid departure from a suggestion
+        "ratings": [{"domain": d, "level": lv,
+                     "reporting": draw(maybe(st.sampled_from([r.key for r in RUBRIC.reporting]))),
+                     "justification": draw(text),
+                     "suggested_level": draw(maybe(st.integers(0, 3))),
+                     "suggestion_reason": draw(maybe(text))} for d, lv in levels.items()],
+    }
+
+
 @st.composite
 def appraisals(draw, study_keys):
+    """Appraisals that pass the rules of 'appraise import' (the archive door applies them)."""
     out = []
     for key in study_keys:
-        for reviewer in draw(st.lists(plain, max_size=2, unique=True)):
-            domains = draw(st.lists(plain, max_size=4, unique=True))
-            out.append({
-                "study": key, "reviewer": reviewer,
-                "stage": draw(st.sampled_from(list(REVIEW_STAGES))),
-                "rubric_id": draw(plain), "rubric_hash": draw(plain),
-                "overall": draw(maybe(st.integers(0, 3))),
-                "ratings": [{"domain": d, "level": draw(st.integers(0, 3)),
-                             "reporting": draw(maybe(plain)),
-                             "justification": draw(maybe(text)),
-                             "suggested_level": draw(maybe(st.integers(0, 3))),
-                             "suggestion_reason": draw(maybe(text))} for d in domains],
-            })
+        reviewers = draw(st.lists(plain, max_size=2, unique=True))
+        out += [_appraisal(draw, key, r, "independent") for r in reviewers]
+        if len(reviewers) == 2 and draw(st.booleans()):
+            out.append(_appraisal(draw, key, draw(plain), "consensus"))
     return out
 
 

@@ -6,9 +6,8 @@ Runs on SQLite and on a real PostgreSQL server (fixture ``store``).
 from __future__ import annotations
 
 import pytest
-from sqlalchemy.exc import IntegrityError
 
-from exposhift.errors import ConflictError, NotFoundError, VocabularyError
+from exposhift.errors import ConflictError, DatabaseError, NotFoundError, VocabularyError
 from exposhift.store import records
 from exposhift.store.records import TABLES
 from exposhift.store.writer import Writer, audit_rows
@@ -121,10 +120,10 @@ def test_stale_delete_is_refused(store):
 def test_foreign_keys_are_enforced(store):
     _seed(store)
     # deleting a study that estimates still point to is refused by the database
-    with pytest.raises(IntegrityError), store.write() as conn:
+    with pytest.raises(DatabaseError, match="refused the change"), store.write() as conn:
         records.delete(Writer(conn, "t"), "study", "S1", 1)
     # an estimate pointing at a study that does not exist is refused
-    with pytest.raises(IntegrityError), store.write() as conn:
+    with pytest.raises(DatabaseError, match="refused the change"), store.write() as conn:
         records.create(Writer(conn, "t"), "estimate", {
             "key": "ghost", "study_id": 999_999, "event_id": 999_999, "outcome_id": 999_999,
             "measure": "RR", "point": 1.0})

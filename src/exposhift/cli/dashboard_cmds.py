@@ -11,6 +11,7 @@ from pathlib import Path
 import typer
 
 from exposhift.cli.common import fail, settings, user_errors
+from exposhift.services.options import check_port
 
 APP_FILE = "exposhift_app.py"
 
@@ -51,6 +52,7 @@ def dashboard(
     """
     from exposhift.services.setup import database_info
 
+    check_port(port)
     target = db or settings(ctx).db
     if importlib.util.find_spec("streamlit") is None:
         fail("the dashboard needs Streamlit and plotly: pip install 'exposhift[dashboard]'")

@@ -64,7 +64,8 @@ def _print_report(report: ImportReport) -> None:
 
 def _run_import(ctx: typer.Context, file: Path, *, events_only: bool, dry_run: bool,
                 encoding: str | None, ignore_extra: bool, as_json: bool, quiet: bool,
-                delimiter: str | None = None, sheet: str | None = None) -> None:
+                delimiter: str | None = None, sheet: str | None = None,
+                replace: bool = False, rubric: Path | None = None) -> None:
     from exposhift.services.importing import import_file
 
     s = settings(ctx)
@@ -72,7 +73,8 @@ def _run_import(ctx: typer.Context, file: Path, *, events_only: bool, dry_run: b
     try:
         report = import_file(file, db=s.db, user=s.user, events_only=events_only,
                              dry_run=dry_run, encoding=encoding, ignore_extra=ignore_extra,
-                             progress=bar, delimiter=delimiter, sheet=sheet)
+                             progress=bar, delimiter=delimiter, sheet=sheet, replace=replace,
+                             rubric_path=rubric)
     finally:
         if bar is not None:
             bar.close()
@@ -100,25 +102,34 @@ _SHEET = typer.Option(None, "--sheet",
                       "extraction-sheet columns).")
 _JSON = typer.Option(False, "--json", help="Print the result as a JSON object.")
 _QUIET = typer.Option(False, "--quiet", "-q", help="Print nothing on success.")
+_REPLACE = typer.Option(False, "--replace",
+                        help="Archive only: let it replace appraisals the evidence base holds "
+                        "with other content (an administrator's decision; each replacement is "
+                        "recorded in the audit trail).")
+_RUBRIC = typer.Option(None, "--rubric",
+                       help="Archive only: the rubric its appraisals are checked against "
+                       "(default evidence/rubric.toml).")
 
 
 @user_errors
 def import_cmd(ctx: typer.Context, file: Path = _FILE, dry_run: bool = _DRY,
                encoding: str | None = _ENCODING, delimiter: str | None = _DELIMITER,
                sheet: str | None = _SHEET, ignore_extra: bool = _EXTRA,
-               as_json: bool = _JSON, quiet: bool = _QUIET) -> None:
+               as_json: bool = _JSON, quiet: bool = _QUIET, replace: bool = _REPLACE,
+               rubric: Path | None = _RUBRIC) -> None:
     """Import studies, events and estimates from a sheet, or a whole archive (.json).
 
     Every problem in the file is reported at once (row, column, what to do) and nothing is
     written until the file is clean. The import is one transaction; importing the same file
     again changes nothing, and a changed row updates its record (with an audit entry). The
-    format is described in docs/extraction-sheet.md.
+    format is described in docs/extraction-sheet.md. An archive's appraisals pass the same rules
+    as 'appraise import'.
 
     Example: exposhift import extraction.xlsx --dry-run
     """
     _run_import(ctx, file, events_only=False, dry_run=dry_run, encoding=encoding,
                 ignore_extra=ignore_extra, as_json=as_json, quiet=quiet, delimiter=delimiter,
-                sheet=sheet)
+                sheet=sheet, replace=replace, rubric=rubric)
 
 
 @user_errors
@@ -168,9 +179,11 @@ def export_cmd(ctx: typer.Context,
 
     result = export_file(file, db=settings(ctx).db, events_only=events, exposure=exposure,
                          outcome=outcome, with_appraisals=with_appraisals)
+    for warning in result.warnings:
+        typer.echo(f"warning: {warning}", err=True)
     if as_json:
         print_json({"file": result.path, "format": result.format, "what": result.what,
-                    "counts": result.counts})
+                    "counts": result.counts, "warnings": result.warnings})
         return
     counts = ", ".join(f"{n:,} {k}" for k, n in result.counts.items())
     part = ""

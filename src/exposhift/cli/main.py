@@ -11,6 +11,7 @@ import typer
 from exposhift import __version__
 from exposhift.cli import (
     appraisal_cmds,
+    audit_cmds,
     browse_cmds,
     dashboard_cmds,
     direction_cmds,
@@ -67,7 +68,7 @@ app.command("info")(store_cmds.info)
 
 
 for _module in (io_cmds, browse_cmds, synthesis_cmds, appraisal_cmds, replication_cmds,
-                dashboard_cmds, direction_cmds):
+                dashboard_cmds, direction_cmds, audit_cmds):
     _module.register(app)
 
 use_plain_help(app)

@@ -46,6 +46,12 @@ from exposhift.io.frames import (
     estimate_keys,
     to_records,
 )
+from exposhift.io.limits import (
+    check_file_size,
+    check_json_depth,
+    current_limits,
+    text_problem,
+)
 from exposhift.io.problems import ProblemLog, quote, sorted_problems
 from exposhift.io.sheet import read_text
 from exposhift.io.validate import RENAME, parse_cells, unreadable_cells
@@ -159,6 +165,7 @@ def _section(records, fields: dict[str, str], log: ProblemLog, section: str) -> 
         log.add(None, section, f"'{section}' must be a list of records")
         return pd.DataFrame({f: pd.Series([], dtype="str") for f in fields})
     cols: dict[str, list[str]] = {f: [] for f in fields}
+    limits = current_limits()
     for i, rec in enumerate(records):
         if not isinstance(rec, dict):
             log.add(i + 1, None, "each record must be a JSON object")
@@ -170,8 +177,20 @@ def _section(records, fields: dict[str, str], log: ProblemLog, section: str) -> 
             if text is None:
                 log.add(i + 1, f, f"expected {_KIND_NAMES[kind]}, not {quote(rec.get(f))}")
                 text = ""
+            elif text and kind == "text":
+                text = _checked_text(text, log, i + 1, f, limits)
             cols[f].append(text)
     return pd.DataFrame({f: pd.Series(v, dtype="str") for f, v in cols.items()})
+
+
+def _checked_text(text: str, log: ProblemLog, row: int, column: str, limits) -> str:
+    """The text, or "" after logging why it may not be stored (too long, control characters,
+    lone surrogates: see :mod:`exposhift.io.limits`)."""
+    problem = text_problem(text, limits)
+    if problem is None:
+        return text
+    log.add(row, column, problem)
+    return ""
 
 
 def _to_sheet_names(frame: pd.DataFrame, entity: str) -> pd.DataFrame:
@@ -214,7 +233,8 @@ def _entity_section(doc: dict, name: str, entity: str, required: tuple[str, ...]
 
 
 def _vocab_section(doc: dict, name: str, entity: str, log: ProblemLog, file: str) -> pd.DataFrame:
-    records = (doc.get("vocabularies") or {}).get(name, [])
+    vocabularies = doc.get("vocabularies")
+    records = vocabularies.get(name, []) if isinstance(vocabularies, dict) else []
     n = len(records) if isinstance(records, list) else 0
     sec = log.at(f"{file}: vocabularies.{name}", np.arange(1, n + 1))
     raw = _section(records, FIELDS[entity], sec, f"vocabularies.{name}")
@@ -245,6 +265,7 @@ def _appraisals(doc: dict, studies: set[str], log: ProblemLog, file: str):
         frame["stage"].fillna("")
     _duplicates(key, sec, "reviewer")
     rating_rows = []
+    limits = current_limits()
     for i, rec in enumerate(records if isinstance(records, list) else []):
         ratings = rec.get("ratings", []) if isinstance(rec, dict) else []
         if not isinstance(ratings, list):
@@ -266,6 +287,8 @@ def _appraisals(doc: dict, studies: set[str], log: ProblemLog, file: str):
                     v = None
                 if kind == "int" and v is not None and v not in LEVELS:
                     sec.add(i + 1, f"{where}.{f}", "a level is 0, 1, 2 or 3")
+                if kind == "text" and isinstance(v, str):
+                    v = _checked_text(v, sec, i + 1, f"{where}.{f}", limits) or None
                 row[f] = v
             for extra in sorted(set(r) - set(ARCHIVE_FIELDS["rating"])):
                 sec.add(i + 1, f"{where}.{extra}", "unknown field; remove it")
@@ -289,9 +312,14 @@ def read_archive(path: str | Path, encoding: str | None = None,
     """
     path = Path(path)
     file = path.name
+    check_file_size(path)
+    check_json_depth(path.read_bytes(), file)  # before json.loads can recurse
     text = read_text(path, encoding)
     try:
         doc = json.loads(text)
+    except RecursionError:
+        raise InputFileError([Problem(file, None, None, "the JSON is nested too deeply to "
+                                      "read; this is not an exposhift export")]) from None
     except json.JSONDecodeError as exc:
         raise InputFileError([Problem(file, exc.lineno, None,
                                       f"not valid JSON ({exc.msg} at column {exc.colno}); "
@@ -306,6 +334,7 @@ def read_archive(path: str | Path, encoding: str | None = None,
                                       f"archive format version {doc.get('format_version')!r} "
                                       f"is not {FORMAT_VERSION}; use the exposhift that wrote it")])
     log = ProblemLog(file)
+    _section_types(doc, log)
     exposures = _vocab_section(doc, "exposures", "exposure", log, file)
     outcomes = _vocab_section(doc, "outcomes", "outcome", log, file)
     ev = _entity_section(doc, "events", "event", ("event_id", "exposure", "change_kind",
@@ -353,6 +382,33 @@ def read_archive(path: str | Path, encoding: str | None = None,
         rows=len(events) + len(studies) + len(estimates) + len(appraisals),
         warnings=sorted_problems(warn.problems),
     )
+
+
+#: top-level sections whose JSON type is checked here (the record lists are checked, with the
+#: same kind of message, where they are read: see ``_section``)
+SECTION_TYPES = {"vocabularies": dict}
+_TYPE_NAMES = {dict: "an object ({...})", list: "a list ([...])"}
+#: vocabulary lists read as records (checked where they are read)
+_READ_VOCABULARIES = ("exposures", "outcomes")
+
+
+def _json_type(value) -> str:
+    return {dict: "an object", list: "a list", str: "text", bool: "true/false",
+            type(None): "null", int: "a number", float: "a number"}.get(type(value), "a value")
+
+
+def _section_types(doc: dict, log: ProblemLog) -> None:
+    """Every known section of the right JSON type (a wrong one is reported, not crashed on)."""
+    for name, kind in SECTION_TYPES.items():
+        if name in doc and not isinstance(doc[name], kind):
+            log.add(None, name, f"'{name}' must be {_TYPE_NAMES[kind]}, not "
+                    f"{_json_type(doc[name])}; export the evidence base again or repair it")
+    vocabularies = doc.get("vocabularies")
+    if isinstance(vocabularies, dict):
+        for name, value in vocabularies.items():
+            if name not in _READ_VOCABULARIES and not isinstance(value, list):
+                log.add(None, f"vocabularies.{name}", f"'vocabularies.{name}' must be a list "
+                        f"([...]), not {_json_type(value)}")
 
 
 def _merge_names(vocab_frame: pd.DataFrame, used: pd.Series, extra: str) -> pd.DataFrame:

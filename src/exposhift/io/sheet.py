@@ -30,6 +30,8 @@ import numpy as np
 import pandas as pd
 
 from exposhift.errors import InputFileError, Problem
+from exposhift.io.limits import RowCounter, check_csv_shape, check_text_cells, check_xlsx_size
+from exposhift.io.problems import ProblemLog
 from exposhift.io.signature import KINDS, sniff, wrong_kind_message
 
 SHEET_SUFFIXES = (".csv", ".xlsx")
@@ -100,7 +102,11 @@ def _frame_from_rows(name: str, header: list[str], body: pd.DataFrame) -> RawShe
         raise InputFileError(problems)
     body = body.iloc[nonblank, keep_cols]
     body.columns = [header[i] for i in keep_cols]
-    return RawSheet(name, body.reset_index(drop=True), rows[nonblank])
+    body = body.reset_index(drop=True)
+    log = ProblemLog(name, rows[nonblank])
+    check_text_cells(body, log)  # over-long cells and control characters, with row and column
+    log.raise_if_any()
+    return RawSheet(name, body, rows[nonblank])
 
 
 #: delimiters a CSV file may use, and the names --delimiter accepts for them
@@ -138,6 +144,7 @@ def detect_delimiter(text: str, given: str | None, file: str) -> tuple[str, str 
 
 def read_csv_sheet(path: Path, encoding: str | None = None,
                    delimiter: str | None = None) -> RawSheet:
+    check_csv_shape(path)  # size, columns and cells, before the file is parsed
     notes: list[str] = []
     if encoding is None and sniff(path) == "utf-16":
         encoding = "utf-16"
@@ -222,17 +229,24 @@ def read_xlsx_sheet(path: Path, sheet: str | None = None) -> RawSheet:
     from openpyxl import load_workbook
     from openpyxl.utils.exceptions import InvalidFileException
 
+    check_xlsx_size(path)
     try:
-        wb = load_workbook(path, read_only=True, data_only=True)
+        wb = load_workbook(path, read_only=True, data_only=False)
     except (InvalidFileException, zipfile.BadZipFile, OSError, KeyError, ValueError) as exc:
         raise InputFileError([Problem(path.name, None, None,
                                       f"cannot read the file as an Excel workbook ({exc}); save "
                                       "it as .xlsx or as CSV")]) from None
+    counter = RowCounter(path.name)
     try:
         ws, note = select_worksheet(wb, sheet, path.name)
-        rows = [[_cell_text(v) for v in r] for r in ws.iter_rows(values_only=True)]
+        rows, formulas = _xlsx_rows(ws, counter)
     finally:
         wb.close()
+    if formulas:
+        raise InputFileError([Problem(path.name, r, h or f"column {c}",
+                                      "the cell holds a formula; paste its value (Paste "
+                                      "Special > Values) and save again")
+                              for r, c, h in _formula_places(formulas, rows)])
     if not rows:
         raise InputFileError([Problem(path.name, None, None,
                                       f"the worksheet {ws.title!r} is empty; it needs a header "
@@ -244,6 +258,29 @@ def read_xlsx_sheet(path: Path, sheet: str | None = None) -> RawSheet:
     if note:
         out.notes.append(note)
     return out
+
+
+def _xlsx_rows(ws, counter: RowCounter) -> tuple[list[list[str]], list[tuple[int, int]]]:
+    """Cell texts row by row, and the (row, column) of every formula cell (1-based)."""
+    rows: list[list[str]] = []
+    formulas: list[tuple[int, int]] = []
+    for n, r in enumerate(ws.iter_rows(), start=1):
+        counter.check(n, len(r))
+        texts = []
+        for j, cell in enumerate(r, start=1):
+            if getattr(cell, "data_type", None) == "f":
+                formulas.append((n, j))
+                texts.append("")
+            else:
+                texts.append(_cell_text(cell.value))
+        rows.append(texts)
+    return rows, formulas
+
+
+def _formula_places(formulas, rows) -> list[tuple[int, int, str]]:
+    header = [re.sub(r"\s+", " ", h).strip().lower() for h in rows[0]] if rows else []
+    return [(r, c, header[c - 1] if c - 1 < len(header) and r > 1 else "")
+            for r, c in formulas[:50]]
 
 
 def check_signature(path: Path, suffix: str) -> None:

@@ -18,9 +18,11 @@ from json.encoder import encode_basestring_ascii
 import pandas as pd
 
 from exposhift.io.frames import python_column
+from exposhift.store.audit_chain import hash_values, last_hash
 from exposhift.store.writer import AUDIT, Writer
 
-_AUDIT_COLUMNS = ("at", "user", "table_name", "row_key", "action", "before", "after")
+_AUDIT_COLUMNS = ("at", "user", "table_name", "row_key", "action", "before", "after",
+                  "prev_hash", "entry_hash")
 _SKIP_IN_AUDIT = {"id", "created_at", "updated_at"}
 
 
@@ -109,7 +111,11 @@ class BulkWriter(Writer):
         after = [template.format(*row) for row in zip(*cells, strict=True)]
         keys = [str(k) for k in row_keys]
         # plain str: sqlite3 would try to adapt SQLAlchemy's quoted_name on every row
-        at, user, name = [self.now] * n, [str(self.user)] * n, [str(table.name)] * n
-        self._executemany(
-            self._sql(AUDIT.name, _AUDIT_COLUMNS),
-            list(zip(at, user, name, keys, ["insert"] * n, [None] * n, after, strict=True)))
+        at, user, name = str(self.now), str(self.user), str(table.name)
+        prev = last_hash(self.conn)
+        entries = []
+        for key, aft in zip(keys, after, strict=True):
+            h = hash_values(prev, at, user, name, key, "insert", None, aft)  # HASHED order
+            entries.append((at, user, name, key, "insert", None, aft, prev, h))
+            prev = h
+        self._executemany(self._sql(AUDIT.name, _AUDIT_COLUMNS), entries)

@@ -6,7 +6,7 @@ keys, with database ids mapped to the keys users see.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 
 import pandas as pd
@@ -105,6 +105,35 @@ class ExportResult:
     format: str  # "json", "csv", "xlsx"
     what: str  # "evidence base", "estimates", "events"
     counts: dict[str, int]
+    warnings: list[str] = field(default_factory=list)
+
+
+#: independent appraisals of a study stay blinded until it has this many (services.appraising)
+_UNBLINDED_AT = 2
+
+
+def blinded_warning(frames: EvidenceFrames) -> list[str]:
+    """A warning when the archive carries independent appraisals that are still blinded.
+
+    Accounts and roles do not exist yet, so anyone who can run ``export`` gets the full
+    archive; the warning says so. (Once accounts exist, the full archive becomes an
+    administrator's export and everyone else gets consensus appraisals only.)
+    """
+    apps = frames.appraisals
+    if apps.empty:
+        return []
+    indep = apps[apps["stage"] == "independent"]
+    per_study = indep.groupby("study").size()
+    blinded = per_study[per_study < _UNBLINDED_AT]
+    if blinded.empty:
+        return []
+    studies = sorted(blinded.index.astype(str))
+    shown = ", ".join(studies[:5]) + (f" and {len(studies) - 5} more" if len(studies) > 5
+                                      else "")
+    return [f"the archive holds {int(blinded.sum())} independent appraisal(s) still blinded "
+            f"(the second reviewer has not appraised {len(studies)} stud"
+            f"{'y' if len(studies) == 1 else 'ies'}: {shown}); anyone who reads the file sees "
+            "them. Give it only to people who may see every reviewer's ratings"]
 
 
 EXPORT_SUFFIXES = (".json", ".csv", ".xlsx")
@@ -138,7 +167,8 @@ def export_store(store: Store, path: str | Path, *, events_only: bool = False,
               "estimates": len(frames.estimates), "appraisals": len(frames.appraisals)}
     if suffix == ".json":
         write_text(archive_text(frames), path)
-        return ExportResult(str(path), "json", "evidence base", counts)
+        return ExportResult(str(path), "json", "evidence base", counts,
+                            blinded_warning(frames))
     if events_only:
         SHEET_WRITERS[suffix](events_sheet_frame(frames), path)
         return ExportResult(str(path), suffix[1:], "events", {"events": counts["events"]})

@@ -7,8 +7,8 @@ completely before the database is touched.
 Records are matched by natural key: a record that is new is added (bulk inserts, audited), one
 that differs is updated through :meth:`Writer.update` (version checked, audited), one that is the
 same is left alone (no write, no audit entry). Importing the same file twice changes nothing.
-Nothing is ever deleted by an import, except the ratings of an appraisal that the archive
-replaces as a whole.
+Nothing is ever deleted by an import, except the ratings of an appraisal that an archive
+replaces as a whole (only with ``replace``: see :mod:`exposhift.services.archive_appraisals`).
 """
 
 from __future__ import annotations
@@ -23,13 +23,20 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from exposhift.appraisal.rubric import load_rubric
 from exposhift.errors import InputFileError, Problem
 from exposhift.io.archive import read_archive
 from exposhift.io.frames import FIELDS, PLURAL, EvidenceFrames, coerce, to_records
 from exposhift.io.overlap import StudyEvents
+from exposhift.io.problems import sorted_problems
 from exposhift.io.rules import same_values
 from exposhift.io.sheet import read_sheet
 from exposhift.io.validate import validate_events_sheet, validate_sheet
+from exposhift.services.archive_appraisals import (
+    audit_replacements,
+    check_archive_appraisals,
+    conflict_problems,
+)
 from exposhift.services.bulk import BulkWriter
 from exposhift.services.exporting import read_table, with_refs
 from exposhift.services.setup import open_current
@@ -408,20 +415,44 @@ def _counts(plans: dict[str, EntityPlan], kind: str, rating_plan: dict) -> dict[
     return out
 
 
+def _archive_door(conn, frames: EvidenceFrames, plans: dict[str, EntityPlan],
+                  rating_plan: dict, file: str, rubric_path, replace: bool) -> set[str]:
+    """The appraisal rules of ``appraise import`` for an archive; returns the appraisals it
+    replaces (only with ``replace``), or raises every problem."""
+    if frames.appraisals.empty:
+        return set()
+    conflicts = {k for _, _, k in plans["appraisal"].changes} | set(rating_plan)
+    label = Path(file).name
+    problems = check_archive_appraisals(conn, frames, load_rubric(rubric_path), label,
+                                        conflicts)
+    if conflicts and not replace:
+        problems += conflict_problems(frames, conflicts, label)
+    if problems:
+        raise InputFileError(sorted_problems(problems))
+    return conflicts
+
+
 def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
-                  dry_run: bool = False, progress: Progress | None = None) -> ImportReport:
-    """Write validated records in one transaction (or, with ``dry_run``, only plan it)."""
-    if dry_run:
-        with store.read() as conn:
-            plans = build_plans(conn, frames)
-            rating_plan = _rating_changes(conn, frames, plans["appraisal"])
-            directions = _direction_counts(conn, frames)
-    else:
-        with store.write() as conn:
-            plans = build_plans(conn, frames)
-            rating_plan = _rating_changes(conn, frames, plans["appraisal"])
-            directions = _direction_counts(conn, frames)
-            apply_plans(BulkWriter(conn, store.user), frames, plans, progress)
+                  dry_run: bool = False, progress: Progress | None = None,
+                  replace: bool = False, rubric_path: str | Path | None = None) -> ImportReport:
+    """Write validated records in one transaction (or, with ``dry_run``, only plan it).
+
+    An archive's appraisals pass the rules of ``appraise import``
+    (:mod:`exposhift.services.archive_appraisals`); one that would change a stored appraisal
+    is refused unless ``replace`` is given, and each replacement is audited as ``replace``.
+    """
+    with (store.read() if dry_run else store.write()) as conn:
+        plans = build_plans(conn, frames)
+        rating_plan = _rating_changes(conn, frames, plans["appraisal"])
+        directions = _direction_counts(conn, frames)
+        replaced = set()
+        if kind == "archive":
+            replaced = _archive_door(conn, frames, plans, rating_plan, file, rubric_path,
+                                     replace)
+        if not dry_run:
+            w = BulkWriter(conn, store.user)
+            audit_replacements(w, replaced, Path(file).name)
+            apply_plans(w, frames, plans, progress)
     return ImportReport(file=file, url=store.masked_url, kind=kind, rows=frames.rows,
                         dry_run=dry_run, counts={**_counts(plans, kind, rating_plan),
                                                  **directions},
@@ -430,18 +461,20 @@ def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
 
 def import_into(store: Store, path: str | Path, *, events_only: bool = False,
                 dry_run: bool = False, encoding: str | None = None, ignore_extra: bool = False,
-                progress: Progress | None = None) -> ImportReport:
+                progress: Progress | None = None, replace: bool = False,
+                rubric_path: str | Path | None = None) -> ImportReport:
     """Validate ``path`` completely, then import it into ``store`` in one transaction."""
     kind, frames = read_input(path, events_only=events_only, encoding=encoding,
                               ignore_extra=ignore_extra, study_events=stored_study_events(store))
     return import_frames(store, frames, file=str(path), kind=kind, dry_run=dry_run,
-                         progress=progress)
+                         progress=progress, replace=replace, rubric_path=rubric_path)
 
 
 def import_file(path: str | Path, *, db: str | None = None, user: str | None = None,
                 events_only: bool = False, dry_run: bool = False, encoding: str | None = None,
                 ignore_extra: bool = False, progress: Progress | None = None,
-                delimiter: str | None = None, sheet: str | None = None) -> ImportReport:
+                delimiter: str | None = None, sheet: str | None = None,
+                replace: bool = False, rubric_path: str | Path | None = None) -> ImportReport:
     """``exposhift import`` / ``exposhift events import``: open the store and import a file.
 
     The file is validated before the database is opened for writing; any problem raises
@@ -465,6 +498,6 @@ def import_file(path: str | Path, *, db: str | None = None, user: str | None = N
     store = opened[0] if opened else open_current(db, user)
     try:
         return import_frames(store, frames, file=str(path), kind=kind, dry_run=dry_run,
-                             progress=progress)
+                             progress=progress, replace=replace, rubric_path=rubric_path)
     finally:
         store.dispose()

@@ -27,6 +27,7 @@ from exposhift.replication.report import ReplicationReport, replication_report
 from exposhift.replication.settings import ReplicationSettings, load_settings
 from exposhift.replication.status import CAUTION
 from exposhift.services.lookup import require_name
+from exposhift.services.options import check_countries, check_year
 from exposhift.store.database import Store
 from exposhift.store.directions import directions_frame
 from exposhift.store.queries import analysis_frame, events_frame
@@ -114,9 +115,12 @@ def _check_filters(f: GapFilters, s: ReplicationSettings) -> set[str] | None:
         raise ConfigError(f"--from {f.year_from} is after --to {f.year_to}; swap them")
     if f.min_level is not None and not 0 <= f.min_level <= 3:
         raise ConfigError(f"--min-level must be 0, 1, 2 or 3 (got {f.min_level})")
+    for value, option in ((f.year_from, "--from"), (f.year_to, "--to"),
+                          (f.stale_after, "--stale-after")):
+        check_year(value, option)
     if not f.regions and not f.countries:
         return None
-    countries = {c.strip().upper() for c in f.countries if c.strip()}
+    countries = set(check_countries(f.countries))
     if f.regions:
         countries |= region_countries(f.regions, s)
     return countries

@@ -65,3 +65,8 @@ def independent_overall_levels(conn: Connection) -> list[dict[str, Any]]:
         .join(AP, AP.c.study_id == ST.c.id)
         .where(AP.c.stage == "independent")
     ).mappings()]
+
+
+def rubrics_held(conn: Connection) -> set[tuple[str, str]]:
+    """Every (rubric id, content hash) that stored appraisals were made with."""
+    return {(i, h) for i, h in conn.execute(select(AP.c.rubric_id, AP.c.rubric_hash).distinct())}

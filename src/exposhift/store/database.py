@@ -6,7 +6,11 @@
   transactions so that two writers queue instead of failing with "database is locked".
 - Schema: created and upgraded only by Alembic migrations (:mod:`exposhift.store.migrate`); a
   database whose revision this code does not know is refused before anything is written.
-- Errors: driver errors on connecting or writing become one-line :class:`DatabaseError`\\ s.
+- PostgreSQL: every write transaction first takes one transaction-level advisory lock
+  (:data:`PG_WRITE_LOCK`), so writers queue as they do on SQLite: two imports adding the same
+  new names both succeed, one after the other, and the audit chain stays linear.
+- Errors: driver errors on connecting or writing become one-line :class:`DatabaseError`\\ s;
+  a file that is not a SQLite database, or a directory, is refused by name.
 """
 
 from __future__ import annotations
@@ -20,13 +24,18 @@ from pathlib import Path
 
 from sqlalchemy import Connection, Engine, create_engine, event, func, select
 from sqlalchemy.engine import make_url
-from sqlalchemy.exc import ArgumentError, DBAPIError, OperationalError
+from sqlalchemy.exc import ArgumentError, DBAPIError, IntegrityError, OperationalError
 
 from exposhift.errors import ConfigError, DatabaseError
 
 DEFAULT_SQLITE = Path("evidence") / "evidence.db"
 SUPPORTED_DRIVERS = {"sqlite", "sqlite+pysqlite", "postgresql", "postgresql+psycopg"}
 SQLITE_BUSY_TIMEOUT_MS = 30_000
+#: key of the PostgreSQL advisory lock every write transaction holds (an arbitrary constant:
+#: the bytes of "exposhif" as a signed 64-bit integer)
+PG_WRITE_LOCK = int.from_bytes(b"exposhif", "big", signed=True)
+#: how long a PostgreSQL write waits for the lock before giving up with a clear error
+PG_LOCK_TIMEOUT = "120s"
 
 
 def default_user() -> str:
@@ -116,7 +125,7 @@ class Store:
         try:
             with self.engine.connect() as conn:
                 yield conn
-        except OperationalError as exc:
+        except DBAPIError as exc:
             raise self._translate(exc) from None
 
     @contextlib.contextmanager
@@ -130,16 +139,41 @@ class Store:
             with self.engine.connect() as conn:
                 conn = conn.execution_options(exposhift_write=True)
                 with conn.begin():
+                    if not self.is_sqlite:
+                        conn.exec_driver_sql(f"SET LOCAL lock_timeout = '{PG_LOCK_TIMEOUT}'")
+                        conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({PG_WRITE_LOCK})")
                     yield conn
         except OperationalError as exc:
             raise self._translate(exc) from None
+        except IntegrityError as exc:
+            raise self._refused(exc) from None
         except DBAPIError as exc:
-            if "read-only" in str(exc) or "readonly" in str(exc):
-                raise self._translate(exc) from None
-            raise
+            raise self._translate(exc) from None
+        except Exception as exc:
+            # errors of the driver itself (raw cursors such as the bulk writer's)
+            dbapi = self.engine.dialect.dbapi
+            if dbapi is None or not isinstance(exc, dbapi.Error):
+                raise
+            if isinstance(exc, dbapi.IntegrityError):
+                raise self._refused(exc) from None
+            raise self._translate(exc) from None
+
+    def _refused(self, exc: BaseException) -> DatabaseError:
+        return DatabaseError(
+            f"the database {self.masked_url} refused the change ({describe_driver_error(exc)}); "
+            "nothing was written. If someone else was writing the same records, run the "
+            "command again"
+        )
 
     def _translate(self, exc: DBAPIError) -> DatabaseError:
         msg = describe_driver_error(exc)
+        if "lock timeout" in msg:
+            return DatabaseError(
+                f"database {self.masked_url} is busy: another exposhift command held the write "
+                f"lock for over {PG_LOCK_TIMEOUT}; nothing was written. Run the command again"
+            )
+        if self.is_sqlite and ("not a database" in msg or "unable to open" in msg):
+            return not_a_database(self.url, msg)
         if "readonly" in msg or "read-only" in msg:
             return DatabaseError(
                 f"database {self.masked_url} is read-only ({msg}); nothing was written. "
@@ -162,8 +196,43 @@ class Store:
         self.engine.dispose()
 
 
+def not_a_database(url: str, msg: str = "") -> DatabaseError:
+    """The error for a ``--db`` that names a directory or a file that is no SQLite database."""
+    path = sqlite_path(url)
+    shown = str(path) if path is not None else mask_url(url)
+    if path is not None and path.is_dir():
+        what = "is a directory"
+    elif path is not None and path.exists():
+        what = "is not an SQLite database" + (f" ({msg})" if msg else "")
+    else:
+        what = f"cannot be opened ({msg})" if msg else "cannot be opened"
+    return DatabaseError(
+        f"--db {shown} {what}; name an evidence base file (e.g. evidence/evidence.db), or run "
+        "'exposhift init --db NEWFILE' to create one"
+    )
+
+
+#: the first 16 bytes of every SQLite 3 database file (https://sqlite.org/fileformat.html)
+SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+def _check_sqlite_file(url: str, path: Path) -> None:
+    """Refuse a directory, or a non-empty file without the SQLite header, before connecting."""
+    if path.is_dir():
+        raise not_a_database(url)
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(len(SQLITE_HEADER))
+    except OSError as exc:
+        raise not_a_database(url, exc.strerror or str(exc)) from None
+    if head and head != SQLITE_HEADER:
+        raise not_a_database(url, "it does not start with the SQLite file header")
+
+
 def _sqlite_engine(url: str, *, create: bool) -> Engine:
     path = sqlite_path(url)
+    if path is not None and path.exists():
+        _check_sqlite_file(url, path)
     if path is not None and not path.exists():
         if not create:
             raise DatabaseError(
@@ -215,7 +284,7 @@ def open_store(db: str | None = None, user: str | None = None, *, create: bool =
     try:
         with engine.connect() as conn:
             conn.exec_driver_sql("SELECT 1")
-    except OperationalError as exc:
+    except DBAPIError as exc:
         engine.dispose()
         raise store._translate(exc) from None
     return store

@@ -161,7 +161,10 @@ class Rating(SQLModel, table=True):
 
 
 class AuditEntry(SQLModel, table=True):
-    """Who changed what, when, with the values before and after (JSON)."""
+    """Who changed what, when, with the values before and after (JSON).
+
+    ``prev_hash`` / ``entry_hash`` chain the entries (see :mod:`exposhift.store.audit_chain`).
+    """
 
     __tablename__ = "audit_entry"
     id: int | None = Field(default=None, primary_key=True)
@@ -172,6 +175,8 @@ class AuditEntry(SQLModel, table=True):
     action: str  # insert, update, delete
     before: str | None = None
     after: str | None = None
+    prev_hash: str | None = None
+    entry_hash: str | None = None
 
 
 #: tables that carry a ``version`` column and a natural key

@@ -6,7 +6,8 @@ It keeps two promises of the store:
   moved on, :class:`ConflictError` is raised and nothing is changed (the surrounding
   transaction is rolled back by :meth:`Store.write`).
 - **Audit trail.** Each change writes an :class:`AuditEntry` in the same transaction: who, when
-  (UTC), which table and row (natural key), the action, and the values before and after.
+  (UTC), which table and row (natural key), the action, and the values before and after; each
+  entry's hash is chained to the previous one (:mod:`exposhift.store.audit_chain`).
 """
 
 from __future__ import annotations
@@ -21,6 +22,7 @@ from sqlalchemy import Connection, Table, insert, select, update
 from sqlalchemy import delete as sa_delete
 
 from exposhift.errors import ConflictError, NotFoundError
+from exposhift.store.audit_chain import last_hash, link
 from exposhift.store.models import NATURAL_KEY, AuditEntry
 
 AUDIT = AuditEntry.__table__
@@ -60,6 +62,13 @@ class Writer:
         self._audit: list[dict[str, Any]] = []
 
     # ------------------------------------------------------------------ helpers
+    def note(self, table_name: str, key: str, action: str, before: Mapping[str, Any] | None,
+             after: Mapping[str, Any] | None) -> None:
+        """An audit entry that records a decision rather than a row change (e.g. ``replace``)."""
+        self._audit.append({"at": self.now, "user": self.user, "table_name": table_name,
+                            "row_key": key, "action": action, "before": _json(before),
+                            "after": _json(after)})
+
     def _row_key(self, table: Table, values: Mapping[str, Any]) -> str:
         col = NATURAL_KEY.get(table.name)
         if col and values.get(col) is not None:
@@ -84,6 +93,7 @@ class Writer:
     def flush(self) -> None:
         """Write buffered audit entries (called automatically; call before commit)."""
         if self._audit:
+            link(self._audit, last_hash(self.conn))
             self.conn.execute(insert(AUDIT), self._audit)
             self._audit = []
 

@@ -10,6 +10,7 @@ from exposhift.cli import (
     dashboard_cmds,
     io_cmds,
     replication_cmds,
+    series_cmds,
     store_cmds,
     synthesis_cmds,
 )
@@ -55,5 +56,6 @@ app.command("init")(store_cmds.init)
 app.command("info")(store_cmds.info)
 
 
-for _module in (io_cmds, synthesis_cmds, appraisal_cmds, replication_cmds, dashboard_cmds):
+for _module in (io_cmds, synthesis_cmds, appraisal_cmds, replication_cmds, dashboard_cmds,
+                series_cmds):
     _module.register(app)

@@ -13,7 +13,9 @@ and ``output`` (files).
   :data:`exposhift.io.columns.EVENT_COLUMNS` plus ``demo``);
 - ``appraisals``: two invented reviewers' independent appraisals and their consensus
   (``study_id``, ``reviewer``, ``stage``, one column per rubric domain with levels 0-3, and a
-  ``<domain>_why`` column per domain).
+  ``<domain>_why`` column per domain);
+- ``series``: extracted series of a few studies, one row per point (the series sheet, see
+  :mod:`exposhift.demo_scenario.series`).
 
 Everything is INVENTED demonstration material (agents, studies, authors, journals, numbers),
 flagged ``demo=yes``; see :mod:`exposhift.demo_scenario.events` for the scenario. The same
@@ -21,7 +23,7 @@ seed and keyed random draws give the same frames on every call and machine, with
 on time.
 
 ``python -m exposhift.demo_scenario [OUT_DIR]`` writes ``evidence.csv``,
-``registered_events.csv``, ``appraisals.csv`` and ``README.md`` (default: the repository's
+``registered_events.csv``, ``appraisals.csv``, ``series.csv`` and ``README.md`` (default: the repository's
 ``seed_records/`` when run from a source checkout, else ``./seed_records``).
 """
 
@@ -36,17 +38,20 @@ from exposhift.demo_scenario.appraisals import appraisals_frame
 from exposhift.demo_scenario.estimates import estimates_frame, events_frame
 from exposhift.demo_scenario.expectations import EXPECTED, Expectation
 from exposhift.demo_scenario.output import FILES, README, csv_text, readme_text, write
+from exposhift.demo_scenario.series import series_frame
 
 __all__ = ["EXPECTED", "FILES", "README", "Expectation", "build_scenario", "csv_text",
            "default_out_dir", "main", "readme_text", "write_seed_records"]
 
 
 def build_scenario() -> dict[str, pd.DataFrame]:
-    """The demo evidence base: ``{"estimates", "events", "appraisals"}`` -> DataFrame."""
+    """The demo evidence base: ``{"estimates", "events", "appraisals", "series"}`` ->
+    DataFrame."""
     return {
         "estimates": estimates_frame(),
         "events": events_frame(),
         "appraisals": appraisals_frame(),
+        "series": series_frame(),
     }
 
 

@@ -29,6 +29,7 @@ from exposhift.errors import AnalysisError
 from exposhift.series import fit as F
 from exposhift.series.its import (
     MIN_POINTS,
+    SEASONAL_MIN_POINTS,
     ITSResult,
     _arrays,
     estimate_its,
@@ -68,6 +69,9 @@ class PlaceboResult:
     alpha: float = ALPHA
     status: str = "inconclusive"  # passed, failed or inconclusive
     notes: tuple[str, ...] = ()
+    #: naive before-after effect (no trend) at the real date and at each placebo date
+    naive_real: float | None = None
+    naive_effects: np.ndarray | None = field(default=None, repr=False)
 
     @property
     def passed(self) -> bool:
@@ -85,7 +89,19 @@ class PlaceboResult:
                 "effects": self.effects.tolist(), "ses": self.ses.tolist(), "rank": self.rank,
                 "n_placebos": len(self.effects), "p_value": self.p_value, "alpha": self.alpha,
                 "status": self.status, "share_significant": self.share_significant,
-                "notes": list(self.notes)}
+                "notes": list(self.notes), "naive_real": self.naive_real,
+                "naive_effects": None if self.naive_effects is None
+                else self.naive_effects.tolist()}
+
+
+def naive_before_after(y: np.ndarray, offset, cut: int, model: str) -> float:
+    """Before-after ignoring any trend: difference of the means after and before ``cut``
+    (gaussian) or the log of their ratio (counts; rates when there is an offset)."""
+    v = y if offset is None else y / np.exp(offset)
+    before, after = float(np.mean(v[:cut])), float(np.mean(v[cut:]))
+    if model == "gaussian":
+        return after - before
+    return float(np.log(after / before)) if before > 0 and after > 0 else float("nan")
 
 
 def _placebo_fits(tl: Timeline, y, offset, model, seas, lag, horizon, min_points):
@@ -105,13 +121,18 @@ def _placebo_fits(tl: Timeline, y, offset, model, seas, lag, horizon, min_points
 def placebo_dates(periods: Sequence, values: Sequence[float], change_at, *,
                   denominators: Sequence[float] | None = None, model: str = "gaussian",
                   seasonal: str | None = None, horizon: int | None = None,
-                  hac_lag: int | None = None, min_points: int = MIN_POINTS,
+                  hac_lag: int | None = None, min_points: int | None = None,
                   alpha: float = ALPHA, real: ITSResult | None = None) -> PlaceboResult:
     """Refit at every admissible false change date in the pre-change period (module doc).
 
-    ``real`` (the result of :func:`estimate_its` with the same options) is computed when not
-    given. The lag of the real fit is used for every placebo fit.
+    ``min_points`` on each side of a placebo date: 3 (Wagner et al. 2002), or 8 with seasonal
+    terms (common practice). ``real`` (the result of :func:`estimate_its` with the same options)
+    is computed when not given; its lag is used for every placebo fit. The naive before-after
+    effect (no trend) is reported at the real date and at each placebo date beside them: when
+    it is as large at the placebo dates, a before-after "effect" is a pre-existing trend.
     """
+    if min_points is None:
+        min_points = SEASONAL_MIN_POINTS if seasonal else MIN_POINTS
     if real is None:
         real = estimate_its(periods, values, change_at, denominators=denominators, model=model,
                             seasonal=seasonal, horizon=horizon, hac_lag=hac_lag)
@@ -135,8 +156,10 @@ def placebo_dates(periods: Sequence, values: Sequence[float], change_at, *,
         notes.append(f"the pre-change period ({cut} points) is too short for any placebo date "
                      f"({min_points} points on each side needed)")
     rank, p = rank_and_p(real.effect, effects)
+    naive = np.array([naive_before_after(y_pre, off_pre, c, model) for c in cuts])
     return PlaceboResult("dates", real.effect, tuple(pre.labels[c] for c in cuts), effects, ses,
-                         rank, p, alpha, verdict(p, len(effects), alpha), tuple(notes))
+                         rank, p, alpha, verdict(p, len(effects), alpha), tuple(notes),
+                         naive_before_after(y, offset, cut, model), naive)
 
 
 def placebo_places(real: ITSResult, comparisons: dict[str, ITSResult],

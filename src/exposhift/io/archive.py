@@ -7,7 +7,10 @@ Layout (``format`` = ``exposhift-evidence-base``, ``format_version`` = 1)::
                       "measures": [...], "estimate_kinds": [...], "review_stages": [...],
                       "exposures": [{"name", "agent_class"}], "outcomes": [{"name", ...}]},
      "events": [...], "studies": [...], "estimates": [...],
-     "appraisals": [{..., "ratings": [...]}]}
+     "appraisals": [{..., "ratings": [...]}],
+     "series": [{..., "points": [...]}], "series_fits": [...]}
+
+(the series sections: :mod:`exposhift.io.series_archive`)
 
 Determinism: records are sorted by natural key (code-point order), fields come in a fixed order,
 one record per line; no database ids, versions or timestamps; floats are written with ``repr``
@@ -41,6 +44,7 @@ from exposhift.io.frames import (
     to_records,
 )
 from exposhift.io.problems import ProblemLog, quote, sorted_problems
+from exposhift.io.series_archive import read_series_sections, series_lines
 from exposhift.io.sheet import read_text
 from exposhift.io.validate import RENAME, parse_cells, unreadable_cells
 
@@ -121,7 +125,8 @@ def archive_text(frames: EvidenceFrames) -> str:
                    "  ", False)
     lines += _list("estimates", _sorted(frames.estimates, ARCHIVE_FIELDS["estimate"], ("key",)),
                    "  ", False)
-    lines += _list("appraisals", appraisals, "  ", True)
+    lines += _list("appraisals", appraisals, "  ", False)
+    lines += series_lines(frames.series, _list)
     lines.append("}")
     return "\n".join(lines) + "\n"
 
@@ -322,6 +327,7 @@ def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrame
     es_log.flag(es["event"].notna().to_numpy() & ~es["event"].isin(ev["key"]).to_numpy(),
                 "event", "no event with this key in the archive's events")
     appraisals, ratings = _appraisals(doc, set(st["key"].dropna()), log, file)
+    series = _series(doc, log, file, ev, st, es)
     if log.problems:
         raise InputFileError(sorted_problems(log.problems))
 
@@ -334,8 +340,19 @@ def read_archive(path: str | Path, encoding: str | None = None) -> EvidenceFrame
         exposures=exposures, outcomes=outcomes, events=events, studies=studies,
         estimates=estimates, appraisals=appraisals, ratings=ratings,
         given={e: frozenset(FIELDS[e]) for e in FIELDS},
-        rows=len(events) + len(studies) + len(estimates) + len(appraisals),
+        rows=len(events) + len(studies) + len(estimates) + len(appraisals) + len(series),
+        series=series,
     )
+
+
+def _series(doc: dict, log: ProblemLog, file: str, ev: pd.DataFrame, st: pd.DataFrame,
+            es: pd.DataFrame):
+    """The series sections (:mod:`exposhift.io.series_archive`)."""
+    dates = {k: d for k, d in zip(ev["key"], ev["change_date"], strict=True)
+             if isinstance(k, str) and isinstance(d, str)}
+    return read_series_sections(doc, log, file, event_dates=dates,
+                                studies=set(st["key"].dropna()),
+                                estimates=set(es["key"].dropna()))
 
 
 def _merge_names(vocab_frame: pd.DataFrame, used: pd.Series, extra: str) -> pd.DataFrame:

@@ -146,6 +146,8 @@ class EvidenceFrames:
     given: dict[str, frozenset[str]] = field(default_factory=dict)
     rows: int = 0
     notes: list[str] = field(default_factory=list)
+    #: series records (:class:`exposhift.io.series_sheet.SeriesFrames`), archives only
+    series: object | None = None
 
     def frame(self, entity: str) -> pd.DataFrame:
         return getattr(self, PLURAL[entity])

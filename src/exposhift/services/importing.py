@@ -373,10 +373,28 @@ def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
         with store.write() as conn:
             plans = build_plans(conn, frames)
             rating_plan = _rating_changes(conn, frames, plans["appraisal"])
-            apply_plans(BulkWriter(conn, store.user), frames, plans, progress)
+            w = BulkWriter(conn, store.user)
+            apply_plans(w, frames, plans, progress)
+            notes = _import_series(w, frames)
+    if dry_run:
+        notes = []
     return ImportReport(file=file, url=store.masked_url, kind=kind, rows=frames.rows,
                         dry_run=dry_run, counts=_counts(plans, kind, rating_plan),
-                        notes=list(frames.notes))
+                        notes=list(frames.notes) + notes)
+
+
+def _import_series(w: Writer, frames: EvidenceFrames) -> list[str]:
+    """Write an archive's series sections in the same transaction (nothing when it has none)."""
+    series = frames.series
+    if series is None or not len(series):
+        return []
+    from exposhift.store.series_records import write_fits, write_series
+
+    c = write_series(w, series.series, series.points)
+    fits = write_fits(w, series.fits)
+    w.flush()
+    return [f"series: {c['added']} added, {c['updated']} updated, {c['unchanged']} unchanged; "
+            f"{fits} stored re-estimation(s) added"]
 
 
 def import_into(store: Store, path: str | Path, *, events_only: bool = False,

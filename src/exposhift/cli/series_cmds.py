@@ -49,7 +49,8 @@ def estimate_cmd(
     model: str = typer.Option("auto", "--model", help="auto, gaussian, poisson or negbin."),
     seasonal: str = typer.Option("auto", "--seasonal", help="auto, fourier, month or none."),
     hac_lag: int | None = typer.Option(None, "--hac-lag", help="Newey-West lag (default: "
-                                       "floor(4 (n/100)^(2/9)))."),
+                                       "floor(4 (n/100)^(2/9)) when the residuals are "
+                                       "autocorrelated, else model-based SEs)."),
     store: bool = typer.Option(False, "--store", help="Save the effect as a new estimate of "
                                "the study, flagged re-estimated."),
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
@@ -71,8 +72,9 @@ def _print(out) -> None:
     row = out.series
     typer.echo(f"series {a.series} (study {row['study']}, event {row['event']}, "
                f"{row['outcome']}): {its.n_pre} points before, {its.n_post} from {its.change_at}")
-    typer.echo(f"  model {a.model} ({a.model_reason}); seasonal {a.seasonal or 'none'}; "
-               f"Newey-West lag {its.hac_lag}")
+    typer.echo(f"  model {a.model} ({a.model_reason}); seasonal {a.seasonal or 'none'}")
+    typer.echo(f"  standard errors: {its.diagnostics['se_method']}; "
+               f"{its.diagnostics['interval']} intervals")
     scale = "log rate ratio" if its.effect_scale == "log" else "difference"
     typer.echo(f"  level change {_f(its.level_change, 4)} (SE {_f(its.level_change_se, 4)}), "
                f"slope change {_f(its.slope_change, 4)} (SE {_f(its.slope_change_se, 4)}) "
@@ -97,8 +99,16 @@ def _print(out) -> None:
                    f" to {_f(c.pre_slope_diff_ci[1], 4)}): "
                    + ("parallel" if c.parallel_pre_trends else "NOT parallel"))
     p = a.placebo_dates
+    meaning = {"passed": "the real effect stands out from the placebo effects",
+               "failed": "the real effect does not stand out from the placebo effects",
+               "inconclusive": "too few placebo dates to tell"}[p.status]
     typer.echo(f"  placebo dates: {len(p.effects)} false change dates; the real effect ranks "
-               f"{p.rank} of {len(p.effects) + 1} (p {_f(p.p_value)}): {p.status}")
+               f"{p.rank} of {len(p.effects) + 1} (p {_f(p.p_value)}, passes at p <= "
+               f"{p.alpha:g}): {p.status} ({meaning})")
+    if p.naive_effects is not None and len(p.naive_effects):
+        typer.echo(f"    a before-after comparison ignoring trends gives {_f(p.naive_real, 4)} at "
+                   f"the real date and up to {_f(float(abs(p.naive_effects).max()), 4)} (in "
+                   "absolute value) at the placebo dates")
     for note in p.notes:
         typer.echo(f"    {note}")
     if a.placebo_places is not None:

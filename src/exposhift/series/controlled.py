@@ -11,7 +11,7 @@ difference-in-differences on the aggregates, with a pre-period parallel-trends t
   ``g2`` is the difference in level change, ``g3`` the difference in slope change and ``g1``
   the difference in pre-change slopes (the parallel-trends test: its interval should include
   0). Newey-West covariance with the scores of the two series summed per period
-  (Driscoll & Kraay 1998). The standard-form effect is ``g2 + g3 (h - 1) / 2`` as for one
+  (Driscoll & Kraay 1998), lag chosen as for one series; t intervals with n - k df. The standard-form effect is ``g2 + g3 (h - 1) / 2`` as for one
   series.
 * **Two-period DiD** on the aggregates (Card & Krueger 1994, Am Econ Rev 84:772):
   ``(E_post - E_pre) - (C_post - C_pre)`` of the means (SE from the four segments' variances
@@ -37,7 +37,7 @@ from exposhift.series.periods import Timeline, timeline
 @dataclass(frozen=True)
 class ControlledResult:
     model: str
-    hac_lag: int
+    hac_lag: int | None
     n_common: int
     level_change_diff: float
     level_change_diff_se: float
@@ -132,14 +132,15 @@ def estimate_controlled(periods: Sequence, values: Sequence[float], comp_periods
         fit = F.fit_ols(x, np.r_[ye / d_e, yc / d_c])
     else:
         fit = F.fit_model(model, x, np.r_[ye, yc], np.log(np.r_[d_e, d_c]))
-    lag = F.default_lag(n) if hac_lag is None else int(hac_lag)
-    cov = F.hac_cov(fit, lag, groups)
-    se = np.sqrt(np.clip(np.diag(cov), 0, None))
+    covs = F.covariance(fit, hac_lag, model != "gaussian", groups)
+    lag = covs.lag
+    crit = F.t_crit(len(groups) - x.shape[1])
+    se = np.sqrt(covs.diag())
     c = np.zeros(x.shape[1])
     c[6] = 1.0
     if horizon is not None:
         c[7] = (horizon - 1) / 2.0
-    eff, eff_se = float(c @ fit.params), float(np.sqrt(max(c @ cov @ c, 0.0)))
+    eff, eff_se = float(c @ fit.params), float(np.sqrt(max(covs.var(c), 0.0)))
     did, did_se = _did(ye, yc, d_e, d_c, post, model)
     b = fit.params
     return ControlledResult(
@@ -147,8 +148,8 @@ def estimate_controlled(periods: Sequence, values: Sequence[float], comp_periods
         level_change_diff=float(b[6]), level_change_diff_se=float(se[6]),
         slope_change_diff=float(b[7]), slope_change_diff_se=float(se[7]),
         pre_slope_diff=float(b[5]), pre_slope_diff_se=float(se[5]),
-        pre_slope_diff_ci=(float(b[5] - Z95 * se[5]), float(b[5] + Z95 * se[5])),
-        effect=eff, effect_se=eff_se, effect_ci=(eff - Z95 * eff_se, eff + Z95 * eff_se),
+        pre_slope_diff_ci=(float(b[5] - crit * se[5]), float(b[5] + crit * se[5])),
+        effect=eff, effect_se=eff_se, effect_ci=(eff - crit * eff_se, eff + crit * eff_se),
         did=did, did_se=did_se, did_ci=(did - Z95 * did_se, did + Z95 * did_se),
         effect_scale="identity" if model == "gaussian" else "log",
     )

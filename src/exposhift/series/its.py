@@ -11,8 +11,8 @@ after the change) on, ``since`` is ``time - time(change_at)`` from then on and 0
 (``"poisson"``, ``"negbin"``; Bernal, Cummins & Gasparrini 2017, Int J Epidemiol 46:348).
 Seasonality for sub-annual units: ``seasonal="fourier"`` (two sine/cosine pairs of the yearly
 cycle; Bhaskaran et al. 2013, Int J Epidemiol 42:1187) or ``"month"`` (one indicator per month
-or quarter of the year). Standard errors are Newey-West with the lag stated (see
-:mod:`exposhift.series.fit`); intervals are Wald (normal) 95 %.
+or quarter of the year). Standard errors are Newey-West with the lag and its rule stated (see
+:mod:`exposhift.series.fit`); 95 % intervals use Student's t with n - k degrees of freedom.
 
 Standard-form effect (``effect``): with ``horizon=None`` the level change ``b2``; with
 ``horizon=h`` the average effect over the first ``h`` periods after the change,
@@ -100,7 +100,7 @@ class ITSResult:
     model: str
     seasonal: str | None
     horizon: int | None
-    hac_lag: int
+    hac_lag: int | None  # None: model-based covariance (no autocorrelation detected)
     n_pre: int
     n_post: int
     level_change: float
@@ -184,17 +184,18 @@ def check_points(n_pre: int, n_post: int, seasonal: str | None) -> list[str]:
     return []
 
 
-def fit_its(tl: Timeline, y, offset, cut: int, model: str, seas: np.ndarray, lag: int,
-            horizon: int | None, start=None) -> tuple[F.Fit, np.ndarray, float, float]:
-    """Fit at change position ``cut``; returns (fit, covariance, effect, effect SE)."""
+def fit_its(tl: Timeline, y, offset, cut: int, model: str, seas: np.ndarray, lag: int | None,
+            horizon: int | None, start=None) -> tuple[F.Fit, F.Covariance, float, float]:
+    """Fit at change position ``cut``; returns (fit, covariance, effect, effect SE).
+    ``lag=None`` chooses it (:func:`exposhift.series.fit.covariance`)."""
     x = design(tl, cut, seas)
     if model == "gaussian" and offset is not None:
         fit = F.fit_ols(x, y / np.exp(offset))
     else:
         fit = F.fit_model(model, x, y, offset, start)
-    cov = F.hac_cov(fit, lag)
+    cov = F.covariance(fit, lag, model != "gaussian")
     c = effect_vector(x.shape[1], horizon)
-    return fit, cov, float(c @ fit.params), float(np.sqrt(max(c @ cov @ c, 0.0)))
+    return fit, cov, float(c @ fit.params), float(np.sqrt(max(cov.var(c), 0.0)))
 
 
 def estimate_its(periods: Sequence, values: Sequence[float], change_at, *,
@@ -217,18 +218,17 @@ def estimate_its(periods: Sequence, values: Sequence[float], change_at, *,
         raise AnalysisError(f"horizon {horizon} is outside 1..{n_post} (the points after the "
                             "change); the effect is never extrapolated")
     seas, seas_names = seasonal_terms(tl, seasonal)
-    lag = F.default_lag(len(y)) if hac_lag is None else int(hac_lag)
-    if lag < 0:
-        raise AnalysisError("hac_lag must be 0 or more")
-    fit, cov, eff, eff_se = fit_its(tl, y, offset, cut, model, seas, lag, horizon)
-    se = np.sqrt(np.clip(np.diag(cov), 0, None))
+    fit, cov, eff, eff_se = fit_its(tl, y, offset, cut, model, seas, hac_lag, horizon)
+    lag, rule = cov.lag, cov.rule
+    df = len(y) - len(fit.params)
+    crit = F.t_crit(df)
+    se = np.sqrt(cov.diag())
     names = ["intercept", "time", "level_change", "slope_change", *seas_names]
     dw = F.durbin_watson(fit.pearson)
     q, q_p, q_lags = F.ljung_box(fit.pearson)
     diagnostics = {"durbin_watson": dw, "ljung_box_q": q, "ljung_box_p": q_p,
-                   "ljung_box_lags": q_lags, "hac_lag": lag,
-                   "hac_lag_rule": "given" if hac_lag is not None else
-                   "floor(4 (n/100)^(2/9)), Newey & West 1994",
+                   "ljung_box_lags": q_lags, "hac_lag": lag, "se_method": rule,
+                   "df": df, "interval": f"Student t, {df} df",
                    "dispersion": fit.scale if model != "gaussian" else None,
                    "negbin_alpha": fit.alpha if model == "negbin" else None,
                    "iterations": fit.iterations, "n": len(y)}
@@ -237,8 +237,8 @@ def estimate_its(periods: Sequence, values: Sequence[float], change_at, *,
     xcf = x.copy()
     xcf[:, 2:4] = 0.0
     eta = xcf @ fit.params
-    sd = np.sqrt(np.clip(np.einsum("ij,jk,ik->i", xcf, cov, xcf), 0, None))
-    lo, hi = eta - Z95 * sd, eta + Z95 * sd
+    sd = np.sqrt(cov.rows(xcf))
+    lo, hi = eta - crit * sd, eta + crit * sd
     observed, fitted = y.copy(), fit.mu.copy()
     if model != "gaussian":
         eta, lo, hi = np.exp(eta), np.exp(lo), np.exp(hi)
@@ -254,7 +254,7 @@ def estimate_its(periods: Sequence, values: Sequence[float], change_at, *,
         level_change=float(fit.params[2]), level_change_se=float(se[2]),
         slope_change=float(fit.params[3]), slope_change_se=float(se[3]),
         pre_slope=float(fit.params[1]), pre_slope_se=float(se[1]),
-        effect=eff, effect_se=eff_se, effect_ci=(eff - Z95 * eff_se, eff + Z95 * eff_se),
+        effect=eff, effect_se=eff_se, effect_ci=(eff - crit * eff_se, eff + crit * eff_se),
         effect_scale="log" if log else "identity", measure="IRR" if log else "MD",
         estimate_kind="level" if horizon is None else "change", diagnostics=diagnostics,
         change_at=tl.labels[cut], periods=tl.labels, observed=observed, fitted=fitted,

@@ -23,7 +23,8 @@ seed and keyed random draws give the same frames on every call and machine, with
 on time.
 
 ``python -m exposhift.demo_scenario [OUT_DIR]`` writes ``evidence.csv``,
-``registered_events.csv``, ``appraisals.csv``, ``series.csv`` and ``README.md`` (default: the repository's
+``registered_events.csv``, ``appraisals.csv``, ``series.csv`` and
+``README.md`` (default: the repository's
 ``seed_records/`` when run from a source checkout, else ``./seed_records``).
 """
 

@@ -24,7 +24,6 @@ from exposhift.io.problems import ProblemLog, quote
 from exposhift.io.series_sheet import (
     COLUMNS,
     FIT_FIELDS,
-    POINT_FIELDS,
     SERIES_FIELDS,
     Context,
     SeriesFrames,

@@ -86,7 +86,7 @@ def validate_long(raw: pd.DataFrame, log: ProblemLog, ctx: Context) -> SeriesFra
                              ("value_kind", kind, VALUE_KINDS)):
         bad = s.notna().to_numpy() & ~s.isin(accepted).to_numpy()
         vals = s.to_numpy()
-        log.flag(bad, col, lambda i, vals=vals, accepted=accepted:
+        log.flag(bad, col, lambda i, vals=vals, accepted=accepted, col=col:
                  f"unknown {col} {quote(vals[i])}; accepted: {', '.join(accepted)}")
     count = (kind == "count").to_numpy()
     log.flag(count & (value < 0).to_numpy(), "value",
@@ -172,7 +172,7 @@ def validate_long(raw: pd.DataFrame, log: ProblemLog, ctx: Context) -> SeriesFra
                     "after it: correct change_at or the event date")
     studies = text["study_id"].fillna("").to_numpy()
     if ctx.studies:
-        for k, j in first.items():
+        for j in first.values():
             if studies[j] and studies[j] not in ctx.studies:
                 log.add(int(log.rows[j]), "study_id", f"no study {quote(studies[j])} in the "
                         "evidence base; import the extraction sheet first or correct the id")

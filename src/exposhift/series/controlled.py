@@ -11,8 +11,8 @@ difference-in-differences on the aggregates, with a pre-period parallel-trends t
   ``g2`` is the difference in level change, ``g3`` the difference in slope change and ``g1``
   the difference in pre-change slopes (the parallel-trends test: its interval should include
   0). Newey-West covariance with the scores of the two series summed per period
-  (Driscoll & Kraay 1998), lag chosen as for one series; t intervals with n - k df. The standard-form effect is ``g2 + g3 (h - 1) / 2`` as for one
-  series.
+  (Driscoll & Kraay 1998), lag chosen as for one series; t intervals with n - k df. The
+  standard-form effect is ``g2 + g3 (h - 1) / 2`` as for one series.
 * **Two-period DiD** on the aggregates (Card & Krueger 1994, Am Econ Rev 84:772):
   ``(E_post - E_pre) - (C_post - C_pre)`` of the means (SE from the four segments' variances
   of the mean, points taken as independent), or for counts the log of the ratio of rate ratios

@@ -224,3 +224,19 @@ def estimate_series_in(key: str, *, db: str | None = None, user: str | None = No
         return estimate_series(store, key, **options)
     finally:
         store.dispose()
+
+
+def list_series(store: Store):
+    """Every series with its study, event, outcome, role, place and number of points."""
+    import pandas as pd
+
+    with store.read() as conn:
+        rows = series_rows(conn)
+        pts = point_rows(conn)
+    n: dict[str, int] = {}
+    for p in pts:
+        n[p["series"]] = n.get(p["series"], 0) + 1
+    cols = ["key", "study", "event", "outcome", "role", "place", "time_unit", "value_kind"]
+    frame = pd.DataFrame(rows, columns=[*cols, "id"])[cols]
+    frame["points"] = frame["key"].map(n).fillna(0).astype(int)
+    return frame

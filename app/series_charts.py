@@ -43,7 +43,8 @@ def series_plot(fig: dict, *, title: str = "") -> go.Figure:
     out.add_annotation(x=fig["change_at"], y=1, yref="paper", text=f"change {fig['change_at']}",
                        showarrow=False, yanchor="bottom", font=dict(size=11))
     out.update_layout(title=title or f"Series {fig['series']}", font=FONT, height=420,
-                      xaxis=dict(type="category", nticks=12, title="period"),
+                      xaxis=dict(type="category", categoryorder="array", categoryarray=x,
+                                 nticks=12, title="period"),
                       yaxis=dict(title=fig["value_label"]),
                       legend=dict(orientation="h", y=-0.25), margin=dict(t=60, b=40))
     return out
@@ -68,7 +69,8 @@ def placebo_plot(fig: dict) -> go.Figure:
     out.add_hline(y=real_shown, line=dict(color=MAIN, width=2),
                   annotation_text=f"real effect {real_shown:.3f}")
     out.add_hline(y=1 if log else 0, line=dict(color="#999999", width=1))
-    out.update_layout(title="Placebo dates: the effect estimated at false change dates",
+    out.update_layout(title="Placebo dates: the effect estimated at false change dates "
+                      "(red: at least as large as the real effect)",
                       font=FONT, height=320, showlegend=False,
                       xaxis=dict(type="category", title="false change date"),
                       yaxis=dict(title="rate ratio" if log else "effect"),

@@ -35,8 +35,6 @@ PAGES = {
         "Replication across place and time"),
     "replication-europe": ("replication", "Replication across place and time"),
     "gaps": ("gaps", "Gap map"),
-    "series": ("series", "Extracted series"),
-    "series-trend": ("series?series=Santos2009-mortality", "Extracted series"),
 }
 #: screenshot name -> label of a control to click before the screenshot
 CLICKS = {"replication-europe": "Europe"}

@@ -69,6 +69,7 @@ def _cases():
     no_overlap.loc[comp, "period"] = [f"{2030 + i // 12}-{i % 12 + 1:02d}"
                                       for i in range(len(comp))]
     no_overlap.loc[comp, "change_at"] = "2033-01"
+    unknown_study = _bad(f, "study_id", "NoSuchStudy2001", range(n))
     # (frame, spreadsheet row, column, words in the message)
     return {
         "out of order": (swapped, 6, "period", "comes after"),
@@ -79,6 +80,7 @@ def _cases():
         "mixed units": (mixed, 15, "period", "use one time unit"),
         "comparison unit": (other_unit, n + 2, "time_unit", "use one time unit"),
         "comparison overlap": (no_overlap, n + 2, "period", "no period in common"),
+        "unknown study": (unknown_study, 2, "study_id", "no study 'NoSuchStudy2001'"),
     }
 
 
@@ -92,7 +94,7 @@ def test_bad_series_input_names_series_row_and_column_and_writes_nothing(base, t
     assert hits, [str(p) for p in err.value.problems]
     assert words in hits[0].message
     assert "NagyFarkas2014-asthma" in hits[0].message or case in (
-        "negative count", "zero denominator")
+        "negative count", "zero denominator", "unknown study")
     assert all(p.file == "bad.csv" for p in err.value.problems)
     assert count(base, "series") == 0 and count(base, "series_point") == 0
 

@@ -64,7 +64,7 @@ class Context:
     (``(study, event, outcome) -> (unit, periods)``)."""
 
     event_dates: Mapping[str, str] = field(default_factory=dict)
-    studies: frozenset[str] = frozenset()
+    studies: frozenset[str] | None = None  # None: not checked
     exposed: Mapping[tuple[str, str, str], tuple[str, frozenset[str]]] = field(
         default_factory=dict)
 
@@ -171,7 +171,7 @@ def validate_long(raw: pd.DataFrame, log: ProblemLog, ctx: Context) -> SeriesFra
                     f"{_label(hi, u, periods, index, keys, k)}); there must be points before and "
                     "after it: correct change_at or the event date")
     studies = text["study_id"].fillna("").to_numpy()
-    if ctx.studies:
+    if ctx.studies is not None:
         for j in first.values():
             if studies[j] and studies[j] not in ctx.studies:
                 log.add(int(log.rows[j]), "study_id", f"no study {quote(studies[j])} in the "

@@ -175,7 +175,8 @@ def _store(w: Writer, row: dict, a: SeriesAnalysis) -> tuple[str, list[str]]:
         "point": math.exp(its.effect) if log else its.effect,
         "ci_low": math.exp(lo) if log else lo, "ci_high": math.exp(hi) if log else hi,
         "ci_level": 0.95, "se": its.effect_se,
-        "p_value": float(2 * stats.norm.sf(abs(z))) if math.isfinite(z) else None,
+        "p_value": (float(2 * stats.t.sf(abs(z), its.diagnostics["df"]))
+                    if math.isfinite(z) else None),
         "subgroup": None, "time_window": window, "primary": False,
     }
     key = "|".join([row["study"], row["event"], row["outcome"], its.measure,

@@ -111,3 +111,20 @@ def gaps(db: str | None, design_families: tuple[str, ...], regions: tuple[str, .
 def replication_settings():
     """The thresholds in force (``evidence/replication.toml`` or the defaults)."""
     return load_settings()
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def series_list(db: str | None) -> pd.DataFrame:
+    from exposhift.services import series
+
+    return series.list_series(_store(db))
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def series_estimate(db: str | None, key: str, horizon: int | None, model: str,
+                    seasonal: str):
+    """Re-estimation of one exposed series (read only: nothing is stored from the dashboard)."""
+    from exposhift.services import series
+
+    return series.estimate_series(_store(db), key, horizon=horizon, model=model,
+                                  seasonal=seasonal)

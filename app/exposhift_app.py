@@ -31,6 +31,7 @@ PAGES = [
     st.Page("views/replication.py", title="Replication across place and time",
             url_path="replication"),
     st.Page("views/gaps.py", title="Gap map", url_path="gaps"),
+    st.Page("views/series.py", title="Extracted series", url_path="series"),
 ]
 page = st.navigation(PAGES)
 

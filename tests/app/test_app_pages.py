@@ -119,7 +119,7 @@ def test_empty_evidence_base_every_page_runs_without_demo_mark(tmp_path, monkeyp
     at.run()
     assert not at.exception
     assert {m.label: m.value for m in at.metric}["Studies"] == "0"
-    for page in ("studies", "pooling", "replication", "gaps"):
+    for page in ("studies", "pooling", "replication", "gaps", "series"):
         _open(at, page)
         assert "demo" not in _texts(at).lower()
     assert not any("demo" in m.value.lower() for m in at.sidebar.markdown)

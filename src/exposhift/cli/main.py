@@ -17,6 +17,7 @@ from exposhift.cli import (
     direction_cmds,
     io_cmds,
     replication_cmds,
+    series_cmds,
     store_cmds,
     synthesis_cmds,
 )
@@ -68,7 +69,7 @@ app.command("info")(store_cmds.info)
 
 
 for _module in (io_cmds, browse_cmds, synthesis_cmds, appraisal_cmds, replication_cmds,
-                dashboard_cmds, direction_cmds, audit_cmds):
+                dashboard_cmds, direction_cmds, audit_cmds, series_cmds):
     _module.register(app)
 
 use_plain_help(app)

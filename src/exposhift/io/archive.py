@@ -9,7 +9,10 @@ Layout (``format`` = ``exposhift-evidence-base``, ``format_version`` = 1)::
      "events": [...], "studies": [...], "estimates": [...],
      "expected_directions": [{"exposure", "outcome", "direction", "rationale", "decided_by",
                               "decided_at"}],
-     "appraisals": [{..., "ratings": [...]}]}
+     "appraisals": [{..., "ratings": [...]}],
+     "series": [{..., "points": [...]}], "series_fits": [...]}
+
+(the series sections: :mod:`exposhift.io.series_archive`)
 
 An archive without ``expected_directions`` (written before the section existed) still reads;
 it leaves the stored directions as they are.
@@ -53,6 +56,7 @@ from exposhift.io.limits import (
     text_problem,
 )
 from exposhift.io.problems import ProblemLog, quote, sorted_problems
+from exposhift.io.series_archive import read_series_sections, series_lines
 from exposhift.io.sheet import read_text
 from exposhift.io.validate import RENAME, parse_cells, unreadable_cells
 
@@ -134,7 +138,8 @@ def archive_text(frames: EvidenceFrames) -> str:
     lines += _list("estimates", _sorted(frames.estimates, ARCHIVE_FIELDS["estimate"], ("key",)),
                    "  ", False)
     lines += _direction_lines(frames)
-    lines += _list("appraisals", appraisals, "  ", True)
+    lines += _list("appraisals", appraisals, "  ", False)
+    lines += series_lines(frames.series, _list)
     lines.append("}")
     return "\n".join(lines) + "\n"
 
@@ -365,6 +370,7 @@ def read_archive(path: str | Path, encoding: str | None = None,
     overlap.check_same_population(st, st.attrs["log"].rows, es, st.attrs["log"], study_events)
     directions = _directions_section(doc, log, file, ev["exposure"], es["outcome"], exposures,
                                      outcomes)
+    series = _series(doc, log, file, ev, st, es)
     if log.problems:
         raise InputFileError(sorted_problems(log.problems))
     warn = ProblemLog(es_log.file, es_log.rows)
@@ -379,8 +385,8 @@ def read_archive(path: str | Path, encoding: str | None = None,
         exposures=exposures, outcomes=outcomes, events=events, studies=studies,
         estimates=estimates, appraisals=appraisals, ratings=ratings, directions=directions,
         given={e: frozenset(FIELDS[e]) for e in FIELDS},
-        rows=len(events) + len(studies) + len(estimates) + len(appraisals),
-        warnings=sorted_problems(warn.problems),
+        rows=len(events) + len(studies) + len(estimates) + len(appraisals) + len(series),
+        warnings=sorted_problems(warn.problems), series=series,
     )
 
 
@@ -409,6 +415,16 @@ def _section_types(doc: dict, log: ProblemLog) -> None:
             if name not in _READ_VOCABULARIES and not isinstance(value, list):
                 log.add(None, f"vocabularies.{name}", f"'vocabularies.{name}' must be a list "
                         f"([...]), not {_json_type(value)}")
+
+
+def _series(doc: dict, log: ProblemLog, file: str, ev: pd.DataFrame, st: pd.DataFrame,
+            es: pd.DataFrame):
+    """The series sections (:mod:`exposhift.io.series_archive`)."""
+    dates = {k: d for k, d in zip(ev["key"], ev["change_date"], strict=True)
+             if isinstance(k, str) and isinstance(d, str)}
+    return read_series_sections(doc, log, file, event_dates=dates,
+                                studies=set(st["key"].dropna()),
+                                estimates=set(es["key"].dropna()))
 
 
 def _merge_names(vocab_frame: pd.DataFrame, used: pd.Series, extra: str) -> pd.DataFrame:

@@ -155,6 +155,8 @@ class EvidenceFrames:
     #: values that are valid but look wrong (e.g. an SE on another scale): the import goes on,
     #: and the caller shows them after it (see :func:`exposhift.io.plausible.check_plausible`)
     warnings: list[Problem] = field(default_factory=list)
+    #: series records (:class:`exposhift.io.series_sheet.SeriesFrames`), archives only
+    series: object | None = None
 
     def frame(self, entity: str) -> pd.DataFrame:
         return getattr(self, PLURAL[entity])

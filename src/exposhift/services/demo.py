@@ -32,7 +32,8 @@ from exposhift.services.summary import evidence_summary
 from exposhift.store.database import DEFAULT_SQLITE, resolve_url, sqlite_path
 
 DEMO_DB = Path("demo") / "evidence-demo.db"
-SEED_FILES = ("evidence.csv", "registered_events.csv", "appraisals.csv", "directions.csv")
+SEED_FILES = ("evidence.csv", "registered_events.csv", "appraisals.csv", "directions.csv",
+              "series.csv")
 
 
 def seed_dir() -> Path:
@@ -248,6 +249,11 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
                 reports.append(import_into(store, events, events_only=True))
             appraisals = _import_appraisals(store, source / SEED_FILES[2])
             directions = _import_directions(store, source / SEED_FILES[3])
+            series = source / SEED_FILES[4]
+            if series.is_file():
+                from exposhift.services.series import import_series_into
+
+                import_series_into(store, series)
             counts, grid = _overview(store)
             summary = evidence_summary(store)
         finally:

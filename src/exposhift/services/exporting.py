@@ -82,13 +82,26 @@ def load_evidence(conn) -> EvidenceFrames:
     lookup = apps.set_index("id")[["study", "reviewer", "stage"]]
     ratings = ratings.join(lookup, on="appraisal_id")
     frames["rating"] = coerce(ratings, FIELDS["rating"])
-    return EvidenceFrames(directions=_directions(conn), **{
+    out = EvidenceFrames(directions=_directions(conn), **{
         plural: frames[e][list(FIELDS[e])].reset_index(drop=True)
         for e, plural in (("exposure", "exposures"), ("outcome", "outcomes"),
                           ("event", "events"), ("study", "studies"),
                           ("estimate", "estimates"), ("appraisal", "appraisals"),
                           ("rating", "ratings"))
     })
+    out.series = load_series(conn)
+    return out
+
+
+def load_series(conn):
+    """Series records from the store as :class:`SeriesFrames` (natural keys, no ids)."""
+    from exposhift.io.series_sheet import FIT_FIELDS, POINT_FIELDS, SERIES_FIELDS, SeriesFrames
+    from exposhift.store.series_records import fit_rows, point_rows, series_rows
+
+    series = pd.DataFrame(series_rows(conn), columns=["id", *SERIES_FIELDS])
+    return SeriesFrames(series=series[list(SERIES_FIELDS)],
+                        points=pd.DataFrame(point_rows(conn), columns=list(POINT_FIELDS)),
+                        fits=pd.DataFrame(fit_rows(conn), columns=list(FIT_FIELDS)))
 
 
 def _directions(conn) -> pd.DataFrame:

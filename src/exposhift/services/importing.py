@@ -440,7 +440,9 @@ def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
     An archive's appraisals pass the rules of ``appraise import``
     (:mod:`exposhift.services.archive_appraisals`); one that would change a stored appraisal
     is refused unless ``replace`` is given, and each replacement is audited as ``replace``.
+    An archive's series sections are written in the same transaction.
     """
+    notes: list[str] = []
     with (store.read() if dry_run else store.write()) as conn:
         plans = build_plans(conn, frames)
         rating_plan = _rating_changes(conn, frames, plans["appraisal"])
@@ -453,10 +455,25 @@ def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
             w = BulkWriter(conn, store.user)
             audit_replacements(w, replaced, Path(file).name)
             apply_plans(w, frames, plans, progress)
+            notes = _import_series(w, frames)
     return ImportReport(file=file, url=store.masked_url, kind=kind, rows=frames.rows,
                         dry_run=dry_run, counts={**_counts(plans, kind, rating_plan),
                                                  **directions},
-                        notes=list(frames.notes))
+                        notes=list(frames.notes) + notes)
+
+
+def _import_series(w: Writer, frames: EvidenceFrames) -> list[str]:
+    """Write an archive's series sections in the same transaction (nothing when it has none)."""
+    series = frames.series
+    if series is None or not len(series):
+        return []
+    from exposhift.store.series_records import write_fits, write_series
+
+    c = write_series(w, series.series, series.points)
+    fits = write_fits(w, series.fits)
+    w.flush()
+    return [f"series: {c['added']} added, {c['updated']} updated, {c['unchanged']} unchanged; "
+            f"{fits} stored re-estimation(s) added"]
 
 
 def import_into(store: Store, path: str | Path, *, events_only: bool = False,

@@ -221,5 +221,65 @@ class ExpectedDirection(SQLModel, table=True):
     updated_at: str
 
 
+# ------------------------------------------------------------------------------ series records
+class Series(SQLModel, table=True):
+    """A series extracted from a study's table or figure, for one event and one outcome.
+
+    ``role``: ``exposed`` (the place that changed), ``comparison`` (a place that did not) or
+    ``negative-control`` (an outcome the change cannot plausibly affect, in the exposed place).
+    ``change_at`` overrides the first post-change period (default: the period holding the
+    event's change date).
+    """
+
+    __tablename__ = "series"
+    id: int | None = Field(default=None, primary_key=True)
+    key: str = Field(unique=True)
+    study_id: int = Field(sa_column=_fk("study.id"))
+    event_id: int = Field(sa_column=_fk("event.id"))
+    outcome_id: int = Field(sa_column=_fk("outcome.id"))
+    role: str
+    place: str | None = None
+    time_unit: str
+    value_kind: str
+    change_at: str | None = None
+    extracted_by: str | None = None
+    demo: bool = False
+    version: int = 1
+    created_at: str
+    updated_at: str
+
+
+class SeriesPoint(SQLModel, table=True):
+    """One point of a series: period, value, optional denominator and where it was read."""
+
+    __tablename__ = "series_point"
+    __table_args__ = (UniqueConstraint("series_id", "period"),)
+    id: int | None = Field(default=None, primary_key=True)
+    series_id: int = Field(sa_column=_fk("series.id", cascade=True))
+    period: str
+    value: float
+    denominator: float | None = None
+    source: str | None = None
+
+
+class SeriesFit(SQLModel, table=True):
+    """A stored re-estimation: the estimate it wrote, the series, model, options and figures
+    (JSON text). An estimate with a row here is flagged ``re-estimated``."""
+
+    __tablename__ = "series_fit"
+    id: int | None = Field(default=None, primary_key=True)
+    estimate_id: int = Field(sa_column=Column(Integer, ForeignKey(
+        "estimate.id", ondelete="CASCADE"), nullable=False, unique=True))
+    series_id: int = Field(sa_column=_fk("series.id"))
+    model: str
+    options: str
+    figures: str
+    created_at: str
+
+
+VERSIONED["series"] = Series
+NATURAL_KEY["series"] = "key"
+
+
 VERSIONED["expected_direction"] = ExpectedDirection
 # ------------------------------------------------------------------ end expected directions

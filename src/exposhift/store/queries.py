@@ -1,7 +1,8 @@
 """Read-only queries that hand the evidence base to the pure computation modules.
 
 :func:`analysis_frame` returns one row per estimate with the extraction-sheet column names (see
-:mod:`exposhift.io.columns`) plus the derived columns of ``ANALYSIS_EXTRA``. It is the single
+:mod:`exposhift.io.columns`) plus the derived columns of ``ANALYSIS_EXTRA`` and
+``re_estimated`` (the estimate was written by a stored series re-estimation). It is the single
 entry point from the store into synthesis, replication and gaps.
 """
 
@@ -62,7 +63,11 @@ def analysis_frame(
     frame = pd.DataFrame([dict(r) for r in rows], columns=list(stmt.selected_columns.keys()))
     frame["same_population_as"] = frame["same_population_as"].astype(object).where(
         frame["same_population_as"].notna() & (frame["same_population_as"] != ""), None)
-    return add_derived(frame, _consensus_levels(conn))
+    out = add_derived(frame, _consensus_levels(conn))
+    from exposhift.store.series_records import re_estimated_keys
+
+    out["re_estimated"] = out["estimate_uid"].isin(re_estimated_keys(conn)).astype(bool)
+    return out
 
 
 def add_derived(frame: pd.DataFrame, levels: dict[str, int]) -> pd.DataFrame:

@@ -56,7 +56,9 @@ def _flag(s: pd.Series) -> np.ndarray:
 def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Keep one estimate per :data:`UNIT_KEYS` combination; return ``(kept, excluded)``.
 
-    Preference, in order: the ``primary`` flag; the better appraisal ``level`` when that column
+    Preference, in order: the ``primary`` flag; an estimate as published over one
+    re-estimated from an extracted series (``re_estimated`` column, when present: the reviewer
+    marks a re-estimate primary to prefer it); the better appraisal ``level`` when that column
     exists (higher is better, not appraised is worst); an estimate for the whole population
     (blank ``subgroup``) over a subgroup; the smaller variance ``v``; then ``estimate_uid`` and
     ``study_id`` (alphabetical) so the choice never depends on row order. Both frames keep the
@@ -89,6 +91,8 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
     unit = pd.DataFrame(keys).groupby(list(UNIT_KEYS), sort=False).ngroup().to_numpy()
 
     primary = _flag(frame["primary"]) if "primary" in frame.columns else np.zeros(n, bool)
+    re_est = (_flag(frame["re_estimated"]) if "re_estimated" in frame.columns
+              else np.zeros(n, bool))
     has_level = "level" in frame.columns
     level = (pd.to_numeric(frame["level"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
              if has_level else np.full(n, np.nan))
@@ -107,7 +111,8 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
     study_rank = pd.factorize(study, sort=True)[0]
     # np.lexsort: last key is the primary sort key
     order = np.lexsort((
-        np.arange(n), study_rank, uid_rank, v_key, subgroup != "", level_key, ~primary, unit,
+        np.arange(n), study_rank, uid_rank, v_key, subgroup != "", level_key, re_est, ~primary,
+        unit,
     ))
     first = np.r_[True, unit[order][1:] != unit[order][:-1]]
     kept_pos = order[first]
@@ -128,6 +133,9 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
     for i, j in zip(ex_pos, kp, strict=True):
         if primary[j] and not primary[i]:
             why = "it is flagged primary"
+        elif re_est[i] and not re_est[j]:
+            why = ("it is the published estimate (this one is re-estimated from an extracted "
+                   "series; flag it primary to use it instead)")
         elif has_level and level_key[j] < level_key[i]:
             why = (f"it is better appraised (level {level[j]:g} vs "
                    f"{'not appraised' if np.isnan(level[i]) else f'{level[i]:g}'})")

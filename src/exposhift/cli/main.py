@@ -8,6 +8,7 @@ from exposhift import __version__
 from exposhift.cli import (
     appraisal_cmds,
     dashboard_cmds,
+    dossier_cmds,
     io_cmds,
     replication_cmds,
     store_cmds,
@@ -55,5 +56,6 @@ app.command("init")(store_cmds.init)
 app.command("info")(store_cmds.info)
 
 
-for _module in (io_cmds, synthesis_cmds, appraisal_cmds, replication_cmds, dashboard_cmds):
+for _module in (io_cmds, synthesis_cmds, appraisal_cmds, replication_cmds, dashboard_cmds,
+                dossier_cmds):
     _module.register(app)

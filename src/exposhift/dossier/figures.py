@@ -149,7 +149,11 @@ def timeline(section: OutcomeSection) -> go.Figure | None:
     fig.add_hline(y=1.0 if log else 0.0, line=dict(color="#555555", width=1, dash="dot"))
     fig.update_yaxes(type="log" if log else "linear",
                      title="effect of an exposure increase" + (" (ratio)" if log else ""))
-    fig.update_xaxes(title="date of change", tickformat="d")
+    xs = [_date_number(p.change_date) for p in pts]
+    lo, hi = math.floor(min(xs)) - 1, math.ceil(max(xs)) + 1
+    step = max(1, round((hi - lo) / 10))
+    fig.update_xaxes(title="date of change", range=[lo, hi], tick0=lo, dtick=step,
+                     tickformat="d")
     fig.update_layout(title=dict(text=f"{section.outcome}: replication over time and place "
                                       "(open marker = not concordant)", font=dict(size=14)),
                       showlegend=True)

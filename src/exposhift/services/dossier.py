@@ -164,11 +164,11 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
     if not groups:
         return None
     main = max(groups, key=lambda g: g.k)
+    if main.k < 2:
+        return None
     raw = next(g for g in pool.groups if tuple(g["estimates"]) == main.estimates)
     notes = []
     sens = raw.get("sensitivity") or {}
-    if "note" in sens:
-        notes.append(f"Sensitivity: {sens['note']}.")
     if sens.get("tau2_ci"):
         t = sens["tau2_ci"]
         notes.append(f"τ² interval ({t['method']}): {t['lower']} to {t['upper']}.")
@@ -178,15 +178,13 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
                      else f"Egger test not run: {s['reason']}.")
     levels = [g for g in ev.pooled_groups(by_level.groups) if set(g.estimates) <= set(
         main.estimates)]
-    loo, cum = [], []
-    if main.k >= 2:
-        rows = pool.pooled_rows.set_index("estimate_uid").loc[list(main.estimates)]
-        y, v = rows["y"].to_numpy(float), rows["v"].to_numpy(float)
-        kw = dict(method=opts.method, ci=opts.ci, alpha=opts.alpha, hksj_floor=opts.hksj_floor)
-        labels = (rows["study_id"].astype(str) + " " + rows["event_id"].astype(str)).to_numpy()
-        loo = ev.steps(leave_one_out(y, v, labels=labels, **kw), "omitted", main.scale)
-        dates = rows["change_date"].astype(str).to_numpy()
-        cum = ev.steps(cumulative(y, v, dates, labels=labels, **kw), "added", main.scale)
+    rows = pool.pooled_rows.set_index("estimate_uid").loc[list(main.estimates)]
+    y, v = rows["y"].to_numpy(float), rows["v"].to_numpy(float)
+    kw = dict(method=opts.method, ci=opts.ci, alpha=opts.alpha, hksj_floor=opts.hksj_floor)
+    labels = (rows["study_id"].astype(str) + " " + rows["event_id"].astype(str)).to_numpy()
+    loo = ev.steps(leave_one_out(y, v, labels=labels, **kw), "omitted", main.scale)
+    dates = rows["change_date"].astype(str).to_numpy()
+    cum = ev.steps(cumulative(y, v, dates, labels=labels, **kw), "added", main.scale)
     return Sensitivity(group=main.label, scale=main.scale, leave_one_out=loo, cumulative=cum,
                        by_level=ev.level_steps(levels), notes=notes)
 

@@ -11,10 +11,6 @@ import pytest
 from exposhift.services.demo import build_demo
 from exposhift.services.setup import open_current
 
-CHROMIUM = "/usr/bin/chromium"
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu",
-                 "--disable-background-networking"]
-
 
 @pytest.fixture(scope="session")
 def demo_db(tmp_path_factory) -> Path:
@@ -38,9 +34,3 @@ def demo_copy(demo_db, tmp_path):
     store = open_current(str(path), user="tester")
     yield store
     store.dispose()
-
-
-def require_chromium() -> None:
-    if not Path(CHROMIUM).is_file():
-        pytest.fail(f"Chromium is missing at {CHROMIUM}: apt-get install -y chromium (these "
-                    "tests never skip)")

@@ -9,6 +9,7 @@ demo, the page header of every page says so.
 from __future__ import annotations
 
 import io
+import struct
 from datetime import datetime
 
 from docx import Document
@@ -19,24 +20,62 @@ from exposhift.dossier.content import Dossier, Pooled
 from exposhift.dossier.html import number, percent
 
 FIG_WIDTH = Cm(17.0)
-WIDE_FIG_WIDTH = Cm(25.0)
+MAX_FIG_HEIGHT = Cm(23.0)
+A4_WIDTH, A4_HEIGHT = Cm(21.0), Cm(29.7)
 
 
-def _table(doc, header: list[str], rows: list[list[str]], *, size: float = 8.5):
+def _table(doc, header: list[str], rows: list[list[str]], *, size: float = 8.5,
+           widths: list[float] | None = None):
+    """A real Word table (style "Table Grid"), header row repeated on every page; ``widths``
+    in cm per column."""
     t = doc.add_table(rows=1, cols=len(header))
     t.style = "Table Grid"
+    t.autofit = widths is None
     for cell, text in zip(t.rows[0].cells, header, strict=True):
         cell.text = ""
         run = cell.paragraphs[0].add_run(text)
         run.bold = True
         run.font.size = Pt(size)
+    _repeat_header(t.rows[0])
     for r in rows:
         cells = t.add_row().cells
         for cell, text in zip(cells, r, strict=True):
             cell.text = ""
-            cell.paragraphs[0].add_run(str(text)).font.size = Pt(size)
+            lines = str(text).split("\n")
+            para = cell.paragraphs[0]
+            for i, line in enumerate(lines):
+                run = para.add_run(line)
+                run.font.size = Pt(size if i == 0 else size - 1)
+                if i < len(lines) - 1:
+                    run.add_break()
+    for row in t.rows:
+        _keep_row(row)
+    if widths:
+        for col, w in zip(t.columns, widths, strict=True):
+            col.width = Cm(w)
+        for row in t.rows:
+            for cell, w in zip(row.cells, widths, strict=True):
+                cell.width = Cm(w)
     doc.add_paragraph()
     return t
+
+
+def _row_flag(row, name: str) -> None:
+    from docx.oxml import OxmlElement
+    from docx.oxml.ns import qn
+
+    el = OxmlElement(name)
+    el.set(qn("w:val"), "true")
+    row._tr.get_or_add_trPr().append(el)
+
+
+def _repeat_header(row) -> None:
+    _row_flag(row, "w:tblHeader")
+
+
+def _keep_row(row) -> None:
+    """A row is never split across two pages."""
+    _row_flag(row, "w:cantSplit")
 
 
 def _pooled_rows(groups: list[Pooled]) -> tuple[list[str], list[list[str]]]:
@@ -54,6 +93,7 @@ def _pooled_rows(groups: list[Pooled]) -> tuple[list[str], list[list[str]]]:
 
 
 def _figure(doc, images: dict[str, bytes | None], name: str, what: str, width=FIG_WIDTH):
+    """The figure's image, or a line saying why it is missing."""
     if name not in images:
         return
     png = images[name]
@@ -62,7 +102,11 @@ def _figure(doc, images: dict[str, bytes | None], name: str, what: str, width=FI
                               "available; see the HTML dossier for this figure]")
         p.runs[0].italic = True
         return
-    doc.add_picture(io.BytesIO(png), width=width)
+    w_px, h_px = struct.unpack(">II", png[16:24])  # PNG IHDR: width, height
+    if h_px * width > w_px * MAX_FIG_HEIGHT:  # taller than a page: fit the height instead
+        doc.add_picture(io.BytesIO(png), height=MAX_FIG_HEIGHT)
+    else:
+        doc.add_picture(io.BytesIO(png), width=width)
 
 
 def _demo_header(doc, d: Dossier) -> None:
@@ -81,6 +125,9 @@ def render_docx(d: Dossier, images: dict[str, bytes | None]) -> bytes:
     """The Word file of a dossier, as bytes."""
     doc = Document()
     doc.styles["Normal"].font.size = Pt(10)
+    first = doc.sections[0]
+    first.page_width, first.page_height = A4_WIDTH, A4_HEIGHT
+    first.left_margin = first.right_margin = Cm(2.0)
     cp = doc.core_properties
     cp.title = f"Evidence dossier: {d.exposure}"
     cp.author = f"exposhift {d.provenance.software_version}"
@@ -117,7 +164,8 @@ def render_docx(d: Dossier, images: dict[str, bytes | None]) -> bytes:
             ["Comparison", "; ".join(q.comparison) or "not recorded"],
             ["Outcome", q.outcome + (f" ({s.outcome_group})" if s.outcome_group else "")],
             ["Time zero", "; ".join(q.time_zero) or "not recorded"],
-            ["Follow-up", "; ".join(q.follow_up) or "not recorded"]], size=9)
+            ["Follow-up", "; ".join(q.follow_up) or "not recorded"]], size=9,
+            widths=[3.5, 13.5])
 
     doc.add_heading("Summary per outcome", level=1)
     doc.add_paragraph("Effects of an exposure increase, on the natural scale (ratios "
@@ -156,26 +204,34 @@ def _studies(doc, d: Dossier) -> None:
     # the study table is wide: a landscape section of its own
     sec = doc.add_section()
     sec.orientation = WD_ORIENT.LANDSCAPE
-    sec.page_width, sec.page_height = sec.page_height, sec.page_width
+    sec.page_width, sec.page_height = A4_HEIGHT, A4_WIDTH
     doc.add_heading("The studies", level=1)
     doc.add_paragraph("Consensus appraisal levels per domain (0 = fatal … 3 = strong); the "
                       "overall level decides pooling.")
     keys = [k for k, _ in d.domains]
     rows = []
     for st in d.studies:
-        left = "; ".join(f"{uid}: {why}" for uid, why in st.left_out)
-        rows.append([st.study_id, st.citation,
-                     f"{st.design} ({st.design_family})", st.places, st.change_dates,
-                     st.assignment_grade, *[st.domains.get(k, "-") for k in keys], st.overall,
-                     ", ".join(st.used) or "none", left])
-    _table(doc, ["study", "citation", "design (family)", "place", "date of change",
-                 "assignment grade", *keys, "overall", "estimates used", "left out (why)"],
-           rows, size=7)
-    doc.add_paragraph(f"Levels: {', '.join(d.level_names)}; n/a = no consensus appraisal; "
-                      "- = no rating in that domain.")
+        rows.append([f"{st.study_id}\n{st.citation}", f"{st.design} ({st.design_family})",
+                     st.places, st.change_dates, st.assignment_grade,
+                     *[st.domains.get(k, "-") for k in keys], st.overall, str(len(st.used)),
+                     str(len(st.left_out))])
+    codes = [f"D{i}" for i in range(1, len(keys) + 1)]
+    _table(doc, ["study", "design (family)", "place", "date of change", "grade", *codes,
+                 "overall", "used", "left out"], rows, size=7,
+           widths=[4.6, 2.8, 1.4, 1.8, 1.2, *[0.85] * len(keys), 1.5, 1.1, 1.3])
+    doc.add_paragraph("Domains: " + "; ".join(f"{c} {k}" for c, k in zip(codes, keys,
+                                                                          strict=True))
+                      + f". Levels: {', '.join(d.level_names)}; n/a = no consensus appraisal; "
+                      "- = no rating in that domain. Grade = assignment grade.")
+    doc.add_heading("Estimates used and left out", level=2)
+    est = []
+    for st in d.studies:
+        est += [[uid, "used", ""] for uid in st.used]
+        est += [[uid, "left out", why] for uid, why in st.left_out]
+    _table(doc, ["estimate", "", "why left out"], est, size=7, widths=[11.0, 1.6, 11.0])
     sec = doc.add_section()
     sec.orientation = WD_ORIENT.PORTRAIT
-    sec.page_width, sec.page_height = sec.page_height, sec.page_width
+    sec.page_width, sec.page_height = A4_WIDTH, A4_HEIGHT
 
 
 def _figures(doc, d: Dossier, images: dict[str, bytes | None]) -> None:
@@ -223,7 +279,7 @@ def _provenance(doc, d: Dossier) -> None:
     rows += [["software", f"exposhift {p.software_version}"], ["records used", str(p.records)],
              ["fingerprint (SHA-256)", p.fingerprint],
              ["audit chain head", p.audit_head or "not recorded"], ["made", p.made_at]]
-    _table(doc, ["item", "value"], rows, size=9)
+    _table(doc, ["item", "value"], rows, size=9, widths=[5.0, 12.0])
     doc.add_paragraph("The fingerprint is a SHA-256 hash over exactly the records used (each "
                       "with its version), the rubric hash, the settings above and the software "
                       "version: the same evidence base gives the same fingerprint.")

@@ -12,6 +12,7 @@ inline in the offline HTML and in the image renderer.
 from __future__ import annotations
 
 import functools
+import html
 import json
 import math
 from pathlib import Path
@@ -28,6 +29,12 @@ INK, SOFT, POOL, PI = "#1f3b57", "#a6b4c2", "#b35806", "#7f3b08"
 FONT = dict(family="DejaVu Sans, Arial, sans-serif", size=12)
 PALETTE = ("#1f77b4", "#d62728", "#2ca02c", "#9467bd", "#8c564b", "#e377c2", "#17becf",
            "#bcbd22", "#ff7f0e", "#7f7f7f")
+
+
+def _t(text: object) -> str:
+    """User text for a plotly label: plotly.js reads a subset of HTML tags in labels, so '<',
+    '>' and '&' are written as entities (it shows them as the characters)."""
+    return html.escape(str(text), quote=False)
 
 
 def _base(fig: go.Figure, height: int) -> go.Figure:
@@ -72,12 +79,12 @@ def forest(section: OutcomeSection, overall: Pooled) -> go.Figure:
     pos = 0.0
     for fam in families:
         members = [r for r in rows if r.estimate_uid in set(fam.estimates)]
-        ticks.append((pos, f"<b>{fam.label.split(' · ')[0]}</b>"))
+        ticks.append((pos, f"<b>{_t(fam.label.split(' · ')[0])}</b>"))
         pos -= 1
         ys = []
         for r in members:
             ys.append(pos)
-            ticks.append((pos, f"{r.study_id} ({r.country} {r.change_date[:4]})"))
+            ticks.append((pos, _t(f"{r.study_id} ({r.country} {r.change_date[:4]})")))
             pos -= 1
         _squares(fig, members, ys)
         _diamond(fig, fam, pos, "pooled design family", colour=SOFT)
@@ -91,8 +98,22 @@ def forest(section: OutcomeSection, overall: Pooled) -> go.Figure:
                        f"[{_fmt(overall.ci_lower)}, {_fmt(overall.ci_upper)}]{pi}</b>"))
     fig.update_yaxes(tickvals=[t[0] for t in ticks], ticktext=[t[1] for t in ticks],
                      range=[pos - 0.8, 0.8], showgrid=False, zeroline=False)
-    _xaxis(fig, overall.scale == "log", overall.measure)
-    fig.update_layout(title=dict(text=f"{section.outcome}: {overall.label}", font=dict(size=14)))
+    log = overall.scale == "log"
+    _xaxis(fig, log, overall.measure)
+    values = [v for r in rows for v in (r.ci_lower, r.ci_upper)]
+    values += [v for g in (*families, overall) for v in (g.ci_lower, g.ci_upper, g.pi_lower,
+                                                         g.pi_upper)]
+    values = [v for v in values if v is not None and math.isfinite(v) and (v > 0 or not log)]
+    values.append(1.0 if log else 0.0)
+    lo, hi = min(values), max(values)
+    if log:
+        pad = 0.04 * (math.log10(hi) - math.log10(lo) or 1.0)
+        fig.update_xaxes(range=[math.log10(lo) - pad, math.log10(hi) + pad])
+    else:
+        pad = 0.04 * ((hi - lo) or 1.0)
+        fig.update_xaxes(range=[lo - pad, hi + pad])
+    fig.update_layout(title=dict(text=_t(f"{section.outcome}: {overall.label}"),
+                                 font=dict(size=14)))
     return _base(fig, int(110 + 24 * (1 - pos)))
 
 
@@ -108,7 +129,7 @@ def _squares(fig: go.Figure, rows: list[EstimateRow], ys: list[float]) -> None:
                      array=[r.ci_upper - r.estimate for r in rows],
                      arrayminus=[r.estimate - r.ci_lower for r in rows],
                      color=INK, thickness=1.2, width=0),
-        text=[f"{r.study_id} · {r.event_id} · {r.level}" for r in rows],
+        text=[_t(f"{r.study_id} · {r.event_id} · {r.level}") for r in rows],
         hovertemplate="%{text}<br>%{x:.3f}<extra></extra>"))
 
 
@@ -137,13 +158,13 @@ def timeline(section: OutcomeSection) -> go.Figure | None:
         sub = [p for p in pts if p.country == country]
         fig.add_trace(go.Scatter(
             x=[_date_number(p.change_date) for p in sub], y=[p.estimate for p in sub],
-            mode="markers", name=country,
+            mode="markers", name=_t(country),
             marker=dict(size=10, color=PALETTE[i % len(PALETTE)],
                         symbol=["circle" if p.concordant else "circle-open" for p in sub]),
             error_y=dict(type="data", symmetric=False,
                          array=[p.ci_upper - p.estimate for p in sub],
                          arrayminus=[p.estimate - p.ci_lower for p in sub], width=3),
-            text=[f"{p.event_id} ({p.study_id}, {p.design_family})" for p in sub],
+            text=[_t(f"{p.event_id} ({p.study_id}, {p.design_family})") for p in sub],
             hovertemplate="%{text}<br>%{y:.3f}<extra></extra>"))
     log = scale == "log"
     fig.add_hline(y=1.0 if log else 0.0, line=dict(color="#555555", width=1, dash="dot"))
@@ -154,7 +175,7 @@ def timeline(section: OutcomeSection) -> go.Figure | None:
     step = max(1, round((hi - lo) / 10))
     fig.update_xaxes(title="date of change", range=[lo, hi], tick0=lo, dtick=step,
                      tickformat="d")
-    fig.update_layout(title=dict(text=f"{section.outcome}: replication over time and place "
+    fig.update_layout(title=dict(text=_t(section.outcome) + ": replication over time and place "
                                       "(open marker = not concordant)", font=dict(size=14)),
                       showlegend=True)
     _base(fig, 420)
@@ -185,13 +206,13 @@ def sensitivity(section: OutcomeSection) -> go.Figure | None:
                          array=[(x.ci_upper or x.estimate) - x.estimate for x in steps],
                          arrayminus=[x.estimate - (x.ci_lower or x.estimate) for x in steps],
                          width=0, color=INK),
-            text=[f"{x.label} (k = {x.k})" for x in steps],
+            text=[_t(f"{x.label} (k = {x.k})") for x in steps],
             hovertemplate="%{text}<br>%{x:.3f}<extra></extra>"), row=r, col=1)
-        fig.update_yaxes(tickvals=ys, ticktext=[f"{x.label} (k = {x.k})" for x in steps],
+        fig.update_yaxes(tickvals=ys, ticktext=[_t(f"{x.label} (k = {x.k})") for x in steps],
                          row=r, col=1, showgrid=False, range=[0.3, len(steps) + 0.7])
         _xaxis(fig, s.scale == "log", "pooled" if r == len(panels) else "", row=r, col=1)
-    fig.update_layout(title=dict(text=f"{section.outcome}: what moves the pooled estimate "
-                                      f"({s.group})", font=dict(size=14)))
+    fig.update_layout(title=dict(text=_t(f"{section.outcome}: what moves the pooled estimate "
+                                         f"({s.group})"), font=dict(size=14)))
     fig.update_annotations(font_size=12)
     return _base(fig, int(160 + 20 * sum(sizes)))
 
@@ -249,7 +270,7 @@ def place_map(d: Dossier) -> go.Figure | None:
                                  hoverinfo="skip", showlegend=codes is not None))
     fig.update_xaxes(range=[-180, 180], visible=False)
     fig.update_yaxes(range=[-58, 84], visible=False, scaleanchor="x", scaleratio=1)
-    fig.update_layout(title=dict(text=f"{d.exposure}: places of the exposure changes",
+    fig.update_layout(title=dict(text=_t(f"{d.exposure}: places of the exposure changes"),
                                  font=dict(size=14)))
     _base(fig, 470)
     fig.update_layout(showlegend=True, legend=dict(orientation="h", y=-0.02),

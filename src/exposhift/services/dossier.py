@@ -159,6 +159,10 @@ def _question(outcome: str, records: dict[str, list[dict]]) -> Question:
                     follow_up=_uniq(follow))
 
 
+def _g(x: Any) -> str:
+    return "-" if x is None else f"{float(x):.3g}"
+
+
 def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
     groups = ev.pooled_groups(pool.groups)
     if not groups:
@@ -171,10 +175,11 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
     sens = raw.get("sensitivity") or {}
     if sens.get("tau2_ci"):
         t = sens["tau2_ci"]
-        notes.append(f"τ² interval ({t['method']}): {t['lower']} to {t['upper']}.")
+        notes.append(f"τ² interval ({t['method']}): {_g(t['lower'])} to {_g(t['upper'])}.")
     if sens.get("small_study"):
         s = sens["small_study"]
-        notes.append(f"Egger test: intercept {s['intercept']}, p {s['pvalue']}." if s["run"]
+        notes.append(f"Egger test: intercept {_g(s['intercept'])}, p {_g(s['pvalue'])}."
+                     if s["run"]
                      else f"Egger test not run: {s['reason']}.")
     levels = [g for g in ev.pooled_groups(by_level.groups) if set(g.estimates) <= set(
         main.estimates)]

@@ -15,6 +15,7 @@ from exposhift.cli import (
     browse_cmds,
     dashboard_cmds,
     direction_cmds,
+    dossier_cmds,
     io_cmds,
     replication_cmds,
     series_cmds,
@@ -69,7 +70,7 @@ app.command("info")(store_cmds.info)
 
 
 for _module in (io_cmds, browse_cmds, synthesis_cmds, appraisal_cmds, replication_cmds,
-                dashboard_cmds, direction_cmds, audit_cmds, series_cmds):
+                dashboard_cmds, direction_cmds, audit_cmds, series_cmds, dossier_cmds):
     _module.register(app)
 
 use_plain_help(app)

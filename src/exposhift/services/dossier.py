@@ -83,7 +83,7 @@ class PoolOptions:
     align_to: str = "increase"
     alpha: float = 0.05
     include_fatal: bool = False
-    hksj_floor: bool = False
+    hksj_floor: bool = True
 
 
 @dataclass(frozen=True)
@@ -170,11 +170,12 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
     main = max(groups, key=lambda g: g.k)
     if main.k < 2:
         return None
-    raw = next(g for g in pool.groups if tuple(g["estimates"]) == main.estimates)
+    gi, raw = next((i, g) for i, g in enumerate(pool.groups)
+                   if tuple(g["estimates"]) == main.estimates)
     notes = []
     sens = raw.get("sensitivity") or {}
-    if sens.get("tau2_ci"):
-        t = sens["tau2_ci"]
+    if raw.get("tau2_ci"):
+        t = raw["tau2_ci"]
         notes.append(f"τ² interval ({t['method']}): {_g(t['lower'])} to {_g(t['upper'])}.")
     if sens.get("small_study"):
         s = sens["small_study"]
@@ -183,10 +184,12 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
                      else f"Egger test not run: {s['reason']}.")
     levels = [g for g in ev.pooled_groups(by_level.groups) if set(g.estimates) <= set(
         main.estimates)]
-    rows = pool.pooled_rows.set_index("estimate_uid").loc[list(main.estimates)]
+    # the event-level rows that were pooled: leave one *event* out, cumulative by event
+    rows = pool.pooled_rows[pool.pooled_rows["group"] == gi].sort_values("event_id")
     y, v = rows["y"].to_numpy(float), rows["v"].to_numpy(float)
     kw = dict(method=opts.method, ci=opts.ci, alpha=opts.alpha, hksj_floor=opts.hksj_floor)
-    labels = (rows["study_id"].astype(str) + " " + rows["event_id"].astype(str)).to_numpy()
+    studies = rows["study_ids"] if "study_ids" in rows.columns else rows["study_id"]
+    labels = (rows["event_id"].astype(str) + " (" + studies.astype(str) + ")").to_numpy()
     loo = ev.steps(leave_one_out(y, v, labels=labels, **kw), "omitted", main.scale)
     dates = rows["change_date"].astype(str).to_numpy()
     cum = ev.steps(cumulative(y, v, dates, labels=labels, **kw), "added", main.scale)

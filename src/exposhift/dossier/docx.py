@@ -80,7 +80,7 @@ def _keep_row(row) -> None:
 
 def _pooled_rows(groups: list[Pooled]) -> tuple[list[str], list[list[str]]]:
     extra = sorted({k for g in groups for k in g.extra})
-    header = ["stratum", "k", "measure", "pooled", "CI", "prediction interval", "τ²", "I²",
+    header = ["stratum", "events", "measure", "pooled", "CI", "prediction interval", "τ²", "I²",
               "method", *extra]
     rows = []
     for g in groups:

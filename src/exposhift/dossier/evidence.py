@@ -90,15 +90,39 @@ def pooled_groups(groups: list[dict[str, Any]]) -> list[Pooled]:
                 return _num(back[name])
             return _natural(scale, g.get(name))
 
-        extra = {k: v for k, v in g.items() if k not in _GROUP_KNOWN}
+        extra = _group_extra(g)
         out.append(Pooled(
-            label=group_label(g), k=int(g.get("k") or 0), measure=_text(g.get("measure")),
+            label=group_label(g), k=int(g.get("k_events", g.get("k")) or 0),
+            measure=_text(g.get("measure")),
             scale=scale, estimate=nat("estimate"), ci_lower=nat("ci_lower"),
             ci_upper=nat("ci_upper"), pi_lower=nat("pi_lower"), pi_upper=nat("pi_upper"),
             tau2=_num(g.get("tau2")), i2=_num(g.get("i2")), q=_num(g.get("q")),
             q_pvalue=_num(g.get("q_pvalue")), method=_text(g.get("method")),
             ci_method=_text(g.get("ci_method")),
             estimates=tuple(str(e) for e in g.get("estimates") or ()), extra=extra))
+    return out
+
+
+def _group_extra(g: dict[str, Any]) -> dict[str, Any]:
+    """The pooled group's further facts, as short texts (k counts events)."""
+    out: dict[str, Any] = {}
+    if "k_estimates" in g:
+        out["estimates"] = g["k_estimates"]
+    if g.get("within_event"):
+        rho = f", rho {g['rho']:g}" if g.get("rho") is not None else ""
+        out["within events"] = f"{g['within_event']}{rho}"
+    t2 = g.get("tau2_ci")
+    if t2 and t2.get("lower") is not None:
+        out["τ² 95% CI"] = f"{t2['lower']:.3g} to {t2['upper']:.3g}"
+    if g.get("headline") == "two-events" and g.get("fixed_effect"):
+        fe = g["fixed_effect"].get("natural") or {}
+        if fe.get("estimate") is not None:
+            out["fixed effect (2 events)"] = (f"{fe['estimate']:.3g} ({fe['ci_lower']:.3g} to "
+                                              f"{fe['ci_upper']:.3g})")
+    if g.get("notes"):
+        out["notes"] = "; ".join(map(str, g["notes"]))
+    if g.get("provenance"):
+        out["conversions"] = "; ".join(map(str, g["provenance"]))
     return out
 
 
@@ -123,7 +147,26 @@ def replication(report: Any, meanings: dict[str, str]) -> Replication:
         rule=str(d["rule"]), expected=str(d["expected_direction"].get("meaning", "")),
         independent_events=n,
         triangulation=_text((d.get("triangulation") or {}).get("statement")),
-        extra={k: v for k, v in d.items() if k not in known})
+        extra=_replication_extra(d))
+
+
+def _replication_extra(d: dict[str, Any]) -> dict[str, Any]:
+    """The headline pooled number and the provisional flag of a replication report, as text."""
+    out: dict[str, Any] = {}
+    if d.get("provisional"):
+        out["provisional"] = ("yes: the expected direction was inferred from these same events, "
+                              "not pre-specified by the committee")
+    basis = (d.get("expected_direction") or {}).get("basis")
+    if basis:
+        out["expected direction"] = basis
+    h = d.get("headline") or {}
+    if h.get("k_events") and h.get("estimate") is not None:
+        word = "ratio" if h.get("scale") == "log" else "difference"
+        out["pooled (same evidence as the status)"] = (
+            f"{word} {h['estimate']:.3g} (95% CI {h['ci_lower']:.3g} to {h['ci_upper']:.3g}) "
+            f"from {h['k_events']} event(s), {h['k_estimates']} estimate(s): "
+            f"{h.get('evidence_set', '')}")
+    return out
 
 
 def timeline(report: Any, scale_of: dict[str, str]) -> list[TimelinePoint]:

@@ -41,7 +41,8 @@ def test_errors_are_one_line(demo_db, tmp_path):
     r = runner.invoke(app, [*db, "dossier", "--exposure", "velium", "--out", str(tmp_path)])
     assert r.exit_code == 5
     assert r.output.strip().splitlines() == [
-        "error: no exposure 'velium' in the evidence base; did you mean 'vellium'?"]
+        "error: no exposure 'velium' in the evidence base; did you mean 'vellium'? "
+        "('exposhift list exposures' lists them)"]
     r = runner.invoke(app, [*db, "dossier"])
     assert r.exit_code == 2 and "--exposure" in r.output
     r = runner.invoke(app, [*db, "dossier", "diff", str(tmp_path / "none")])

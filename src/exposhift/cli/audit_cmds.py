@@ -7,10 +7,10 @@ import json
 import typer
 
 from exposhift.cli.common import fail, print_json, settings, user_errors
-from exposhift.services.auditing import show_audit, verify_audit
+from exposhift.cli.helptext import Group
 
-audit_app = typer.Typer(help="The audit trail: verify its hash chain, show its entries.",
-                        no_args_is_help=True)
+audit_app = typer.Typer(help="The audit trail: verify its hash chain, show its entries.\n\n"
+                        "Example: exposhift audit verify", no_args_is_help=True, cls=Group)
 
 
 @audit_app.command("verify")
@@ -24,7 +24,12 @@ def verify(
     as_json: bool = typer.Option(False, "--json", help="Print the result as a JSON object."),
 ) -> None:
     """Recompute the audit trail's hash chain and name the first entry that was changed,
-    deleted, or inserted out of order. Exits with 7 when the chain is broken."""
+    deleted, or inserted out of order. Exits with 7 when the chain is broken.
+
+    Example: exposhift audit verify --entries 1200 --head HASH
+    """
+    from exposhift.services.auditing import verify_audit
+
     report = verify_audit(settings(ctx).db, entries=entries, head=head)
     if as_json:
         print_json({"ok": report.ok, "checked": report.checked, "head": report.head.to_dict(),
@@ -60,7 +65,12 @@ def show(
     limit: int = typer.Option(200, "--limit", help="Show at most this many (the newest)."),
     as_json: bool = typer.Option(False, "--json", help="Print the entries as JSON."),
 ) -> None:
-    """Show audit entries: who changed what and when, with the values before and after."""
+    """Show audit entries: who changed what and when, with the values before and after.
+
+    Example: exposhift audit show --record DRV-SWE-1988 --since 2026-01-01
+    """
+    from exposhift.services.auditing import show_audit
+
     view = show_audit(settings(ctx).db, record=record, user=user, since=since, limit=limit)
     if as_json:
         print_json({"matching": view.total_matching, "entries": view.entries})

@@ -11,7 +11,6 @@ from pathlib import Path
 import typer
 
 from exposhift.cli.common import fail, settings, user_errors
-from exposhift.services.options import check_port
 
 APP_FILE = "exposhift_app.py"
 
@@ -50,6 +49,7 @@ def dashboard(
 
     Example: exposhift --db demo/evidence-demo.db dashboard --port 8502
     """
+    from exposhift.services.options import check_port
     from exposhift.services.setup import database_info
 
     check_port(port)

@@ -8,10 +8,12 @@ from __future__ import annotations
 import typer
 
 from exposhift.cli.common import fail, print_json, settings, user_errors
+from exposhift.cli.helptext import Group
 
 dossier_app = typer.Typer(help="The hazard dossier of one exposure (HTML, Word, data bundle), "
-                               "and what changed since an earlier one.",
-                          invoke_without_command=True, no_args_is_help=False)
+                               "and what changed since an earlier one.\n\nExample: exposhift "
+                               "dossier --exposure dravonil --format html",
+                          invoke_without_command=True, no_args_is_help=False, cls=Group)
 
 
 @dossier_app.callback(invoke_without_command=True)
@@ -33,7 +35,10 @@ def dossier(
     since: str | None = typer.Option(None, "--since", help="An earlier bundle: its changes "
                                      "become the first section."),
 ) -> None:
-    """Write the dossier of one exposure: question, summary, studies, figures, gaps, methods."""
+    """Write the dossier of one exposure: question, summary, studies, figures, gaps, methods.
+
+    Example: exposhift dossier --exposure dravonil --format html,docx --as-of 2026-12-01
+    """
     if ctx.invoked_subcommand is not None:
         return
     if not exposure:
@@ -73,8 +78,10 @@ def diff(
                                      "now)."),
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
 ) -> None:
-    """What changed: records added, removed and changed; pooled estimates that moved; statuses,
-    certainty ratings and new opportunities."""
+    """What changed: records added, removed and changed; pooled estimates that moved; statuses, certainty ratings and new opportunities.
+
+    Example: exposhift dossier diff dossiers/dravonil/bundle
+    """  # noqa: E501
     from exposhift.services.dossier import diff_dossier
     from exposhift.services.setup import open_current
 

@@ -8,9 +8,11 @@ from __future__ import annotations
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.helptext import Group
 
-series_app = typer.Typer(help="Extracted series: import, re-estimate, falsify.",
-                         no_args_is_help=True)
+series_app = typer.Typer(help="Extracted series: import, re-estimate, falsify.\n\nExample: "
+                         "exposhift series estimate SERIES_ID --horizon 12",
+                         no_args_is_help=True, cls=Group)
 
 
 def _f(x, digits: int = 3) -> str:
@@ -25,7 +27,10 @@ def import_cmd(
     encoding: str | None = typer.Option(None, "--encoding", help="CSV encoding."),
     as_json: bool = typer.Option(False, "--json", help="Print the report as JSON."),
 ) -> None:
-    """Import extracted series (long format: docs/series-sheet.md)."""
+    """Import extracted series (long format: docs/series-sheet.md).
+
+    Example: exposhift series import series.csv
+    """
     from exposhift.services.series import import_series_file
 
     s = settings(ctx)
@@ -55,7 +60,10 @@ def estimate_cmd(
                                "the study, flagged re-estimated."),
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
 ) -> None:
-    """Fit the series, compare and falsify it; optionally store the effect."""
+    """Fit the series, compare and falsify it; optionally store the effect.
+
+    Example: exposhift series estimate Duarte1999-exposed --horizon 12 --store
+    """
     from exposhift.services.series import estimate_series_in
 
     s = settings(ctx)

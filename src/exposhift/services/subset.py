@@ -45,8 +45,20 @@ def subset_frames(frames: EvidenceFrames, exposure: str | None = None,
     if directions is not None:  # the committee's directions of the pairs kept come along
         directions = directions[directions["exposure"].isin(set(exposures["name"]))
                                 & directions["outcome"].isin(set(outcomes["name"]))]
+    series = frames.series
+    if series is not None and len(series):  # the series of the studies and events kept
+        from exposhift.io.series_sheet import SeriesFrames
+
+        keep_s = (series.series["study"].isin(keep)
+                  & series.series["event"].isin(set(events["key"])))
+        kept = set(series.series.loc[keep_s, "key"])
+        series = SeriesFrames(
+            series=series.series[keep_s],
+            points=series.points[series.points["series"].isin(kept)],
+            fits=series.fits[series.fits["series"].isin(kept)
+                             & series.fits["estimate"].isin(set(est["key"]))])
     return replace(
-        frames, directions=directions,
+        frames, directions=directions, series=series,
         exposures=exposures, outcomes=outcomes,
         events=events, studies=studies, estimates=est,
         appraisals=frames.appraisals[frames.appraisals["study"].isin(keep)],

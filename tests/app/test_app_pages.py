@@ -290,7 +290,8 @@ def test_replication_family_filter(app, demo_store):
     assert len(values(geo["lon"])) < len(all_events)
     boxes = [e.value for kind in (at.success, at.warning, at.info, at.error) for e in kind
              if e.value.startswith("**Replication status:")]
-    assert boxes == [f"**Replication status: {report.status}**\n\n{report.rule}"]
+    label = report.status + (" (provisional)" if report.provisional else "")
+    assert boxes == [f"**Replication status: {label}**\n\n{report.rule}"]
 
 
 def test_replication_expected_direction_reruns(app):

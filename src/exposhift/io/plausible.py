@@ -16,7 +16,7 @@ the estimate for RD, MD and SMD. Warnings:
   large); the message gives the value to enter instead, SE/(100 + p) (delta method);
 * an SE that disagrees with the CI given on the same row by more than a factor of
   :data:`SE_CI_FACTOR` (the CI is used, the SE ignored, so the pool is not affected; the
-  disagreement still points to a scale or transcription error). Common practice thresholds.
+  disagreement still points to a scale or copying error). Common practice thresholds.
 """
 
 from __future__ import annotations

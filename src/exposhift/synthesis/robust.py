@@ -28,7 +28,7 @@ Another solution is the CR2 of the GLS-whitened regression, A_j = (I − H_jj)^(
 principal power of the non-symmetric H_jj; it gives different numbers (a few per cent in our
 checks) when the working blocks are not spherical. We implement the factorised form above
 because it is the one Pustejovsky & Tipton (2018) publish (written here from the paper as we
-recall it; it is checked against a dense transcription of that formula and against hand-worked
+recall it; it is checked against a dense, written-out form of that formula and against hand-worked
 cases, not against another implementation). Note: for non-spherical working blocks this CR2 can
 fall below CR0 (unlike the whitened form, which inflates every cluster's score for an intercept);
 for Φ_j = φ_j I both forms agree and CR2 ≥ CR0 for an intercept.

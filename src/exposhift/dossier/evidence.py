@@ -137,9 +137,6 @@ def excluded_rows(excluded: list[dict[str, Any]]) -> list[dict[str, str]]:
 def replication(report: Any, meanings: dict[str, str]) -> Replication:
     """A :class:`~exposhift.replication.report.ReplicationReport` in the dossier's terms."""
     d = report.to_dict()
-    known = {"exposure", "outcome", "status", "rule", "expected_direction", "events",
-             "sign_test_p", "sign_test", "by_design_family", "triangulation", "families",
-             "temporal", "reversals", "dose_response", "excluded", "scale_note", "caution"}
     events = report.events
     n = int(events["event_id"].nunique()) if len(events) else 0
     return Replication(

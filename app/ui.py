@@ -14,7 +14,8 @@ from exposhift.synthesis.pooling import CAUTION  # the library's caution, as the
 
 STATUS_TONE = {
     "convergent": "success", "replicated-place": "success", "replicated-time": "success",
-    "discordant": "error", "single-event": "warning", "weak-only": "warning", "none": "info",
+    "discordant": "error", "replicated-against": "error", "not-replicated": "warning",
+    "single-event": "warning", "weak-only": "warning", "none": "info",
 }
 
 
@@ -45,10 +46,12 @@ def demo_notice(summary) -> None:
                 f"{summary.demo_events} events are demo records. {DEMO_NOTE}")
 
 
-def status_box(status: str, rule: str) -> None:
-    """The replication status in a coloured box, with the rule that produced it in words."""
+def status_box(status: str, rule: str, provisional: bool = False) -> None:
+    """The replication status in a coloured box (its tone from the status), with the rule that
+    produced it in words; a provisional status says so in its title."""
     tone = STATUS_TONE.get(status, "info")
-    getattr(st, tone)(f"**Replication status: {status}**\n\n{rule}")
+    label = status + (" (provisional)" if provisional else "")
+    getattr(st, tone)(f"**Replication status: {label}**\n\n{rule}")
 
 
 def level_text(value) -> str:

@@ -49,7 +49,7 @@ if len(families) > 1:
             report = data.replication(db, exposure, outcome, expected, family)
 
 # 2. status with its rule, and the caution ---------------------------------------------------
-ui.status_box(report.status + (" (provisional)" if report.provisional else ""), report.rule)
+ui.status_box(report.status, report.rule, report.provisional)
 ui.caution()
 basis = {"pre-specified": "pre-specified by the committee",
          "settings": "fixed for this run or in the replication settings",

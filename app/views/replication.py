@@ -8,7 +8,8 @@ import ui
 
 import data
 
-EXPECTED = {"pooled": "from the evidence", "raises": "more exposure raises the outcome",
+EXPECTED = {"recorded": "as the evidence base records it", "pooled": "inferred from the events",
+            "raises": "more exposure raises the outcome",
             "lowers": "more exposure lowers the outcome"}
 
 db = data.db_target()
@@ -33,8 +34,10 @@ with c2:
                       key="rep_outcome", param="outcome")
 expected = c3.selectbox(
     "Expected direction", list(EXPECTED), format_func=EXPECTED.get, key="rep_expected",
-    help="'from the evidence': the sign of the combined z of the events at the counted level "
-         "(Stouffer); or state the direction a committee expects.")
+    help="'as recorded': the committee's pre-specified direction (else inferred, and the status "
+         "is provisional); 'inferred': the sign of the combined z of the good events (Stouffer); "
+         "or try a direction for this view only.")
+expected = None if expected == "recorded" else expected
 
 with ui.guard():
     report = data.replication(db, exposure, outcome, expected, None)

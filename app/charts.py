@@ -130,10 +130,22 @@ def _log_ticks(lo: float, hi: float) -> tuple[list[float], list[str]]:
 def empty_figure(message: str, height: int = 220) -> go.Figure:
     """A figure with one centred message (used when there is nothing to draw)."""
     fig = go.Figure()
-    fig.add_annotation(text=message, showarrow=False, x=0.5, y=0.5, xref="paper",
-                       yref="paper", font=dict(size=15, color="#555555"))
-    fig.update_layout(height=height, xaxis_visible=False, yaxis_visible=False,
-                      plot_bgcolor="white", margin=dict(l=10, r=10, t=10, b=10))
+    fig.add_annotation(
+        text=message,
+        showarrow=False,
+        x=0.5,
+        y=0.5,
+        xref="paper",
+        yref="paper",
+        font=dict(size=15, color="#555555"),
+    )
+    fig.update_layout(
+        height=height,
+        xaxis_visible=False,
+        yaxis_visible=False,
+        plot_bgcolor="white",
+        margin=dict(l=10, r=10, t=10, b=10),
+    )
     return fig
 
 
@@ -144,15 +156,28 @@ def pair_bars(pairs: pd.DataFrame, top: int = 20) -> go.Figure:
         return empty_figure("no estimates in the evidence base yet")
     p = pairs.head(top).iloc[::-1]
     labels = p["exposure"].astype(str) + " → " + p["outcome"].astype(str)
-    fig = go.Figure(go.Bar(
-        x=p["studies"], y=labels, orientation="h", marker_color=MAIN,
-        text=[f"{plural(s, 'study', 'studies')} · {plural(e, 'event')}"
-              for s, e in zip(p["studies"], p["events"], strict=True)],
-        textposition="outside", cliponaxis=False,
-        hovertemplate="%{y}<br>%{x} studies<extra></extra>",
-    ))
-    fig.update_layout(height=80 + 30 * len(p), margin=dict(l=10, r=120, t=10, b=30),
-                      xaxis_title="studies", plot_bgcolor="white", font=FONT)
+    fig = go.Figure(
+        go.Bar(
+            x=p["studies"],
+            y=labels,
+            orientation="h",
+            marker_color=MAIN,
+            text=[
+                f"{plural(s, 'study', 'studies')} · {plural(e, 'event')}"
+                for s, e in zip(p["studies"], p["events"], strict=True)
+            ],
+            textposition="outside",
+            cliponaxis=False,
+            hovertemplate="%{y}<br>%{x} studies<extra></extra>",
+        )
+    )
+    fig.update_layout(
+        height=80 + 30 * len(p),
+        margin=dict(l=10, r=120, t=10, b=30),
+        xaxis_title="studies",
+        plot_bgcolor="white",
+        font=FONT,
+    )
     fig.update_xaxes(gridcolor="#e5e5e5")
     return fig
 
@@ -162,12 +187,25 @@ def count_bars(frame: pd.DataFrame, category: str, value: str, title: str) -> go
     if frame.empty:
         return empty_figure("nothing to count yet")
     f = frame.iloc[::-1]
-    fig = go.Figure(go.Bar(x=f[value], y=f[category].astype(str), orientation="h",
-                           marker_color=MAIN, text=f[value], textposition="outside",
-                           cliponaxis=False,
-                           hovertemplate="%{y}: %{x}<extra></extra>"))
-    fig.update_layout(title=dict(text=title, font=dict(size=14)), height=90 + 28 * len(f),
-                      margin=dict(l=10, r=40, t=40, b=30), plot_bgcolor="white", font=FONT)
+    fig = go.Figure(
+        go.Bar(
+            x=f[value],
+            y=f[category].astype(str),
+            orientation="h",
+            marker_color=MAIN,
+            text=f[value],
+            textposition="outside",
+            cliponaxis=False,
+            hovertemplate="%{y}: %{x}<extra></extra>",
+        )
+    )
+    fig.update_layout(
+        title=dict(text=title, font=dict(size=14)),
+        height=90 + 28 * len(f),
+        margin=dict(l=10, r=40, t=40, b=30),
+        plot_bgcolor="white",
+        font=FONT,
+    )
     fig.update_xaxes(gridcolor="#e5e5e5")
     return fig
 
@@ -197,76 +235,154 @@ def forest_plot(rows: pd.DataFrame, groups: list[dict], *, title: str = "") -> g
         for _, r in sub.iterrows():
             ys.append(pos)
             where = " ".join(str(v) for v in (r["country"], r["change_date"][:4]) if v)
-            sub_txt = f" [{r['subgroup']}]" if isinstance(r["subgroup"], str) and r[
-                "subgroup"] else ""
-            combined = (f" · {int(r['k_units'])} estimates combined"
-                        if "k_units" in r and pd.notna(r["k_units"]) and r["k_units"] > 1
-                        else "")
-            ticks.append((pos, f"{r['event_id']}: {r['study_id']} ({where}){sub_txt}"
-                               f"{combined}"))
-            right.append((pos, f"{_fmt(f(r['y']))} [{_fmt(f(r['ci_lower']))}, "
-                               f"{_fmt(f(r['ci_upper']))}]   {100 * r['weight']:.0f}%"))
+            sub_txt = (
+                f" [{r['subgroup']}]" if isinstance(r["subgroup"], str) and r["subgroup"] else ""
+            )
+            combined = (
+                f" · {int(r['k_units'])} estimates combined"
+                if "k_units" in r and pd.notna(r["k_units"]) and r["k_units"] > 1
+                else ""
+            )
+            ticks.append((pos, f"{r['event_id']}: {r['study_id']} ({where}){sub_txt}{combined}"))
+            right.append(
+                (
+                    pos,
+                    f"{_fmt(f(r['y']))} [{_fmt(f(r['ci_lower']))}, "
+                    f"{_fmt(f(r['ci_upper']))}]   {100 * r['weight']:.0f}%",
+                )
+            )
             pos -= 1
-        est, lo, hi = f(sub["y"].to_numpy()), f(sub["ci_lower"].to_numpy()), f(
-            sub["ci_upper"].to_numpy())
+        est, lo, hi = (
+            f(sub["y"].to_numpy()),
+            f(sub["ci_lower"].to_numpy()),
+            f(sub["ci_upper"].to_numpy()),
+        )
         xs_all += [*lo, *hi]
         level = sub["level"].map(lambda v: "not appraised" if pd.isna(v) else f"{int(v)}")
-        fig.add_trace(go.Scatter(
-            x=est, y=ys, mode="markers", name=label, showlegend=False,
-            marker=dict(symbol="square", color=MAIN, size=8 + 18 * np.sqrt(sub["weight"])),
-            error_x=dict(type="data", symmetric=False, array=hi - est, arrayminus=est - lo,
-                         color=MAIN, thickness=1.5, width=0),
-            customdata=np.stack([sub["study_id"], sub["event_id"], sub["design"], level,
-                                 100 * sub["weight"]], axis=-1),
-            hovertemplate=("%{customdata[0]} · event %{customdata[1]}<br>design "
-                           "%{customdata[2]}, level %{customdata[3]}<br>%{x:.3f} "
-                           "(weight %{customdata[4]:.1f}%)<extra></extra>"),
-        ))
+        fig.add_trace(
+            go.Scatter(
+                x=est,
+                y=ys,
+                mode="markers",
+                name=label,
+                showlegend=False,
+                marker=dict(symbol="square", color=MAIN, size=8 + 18 * np.sqrt(sub["weight"])),
+                error_x=dict(
+                    type="data",
+                    symmetric=False,
+                    array=hi - est,
+                    arrayminus=est - lo,
+                    color=MAIN,
+                    thickness=1.5,
+                    width=0,
+                ),
+                customdata=np.stack(
+                    [sub["study_id"], sub["event_id"], sub["design"], level, 100 * sub["weight"]],
+                    axis=-1,
+                ),
+                hovertemplate=(
+                    "%{customdata[0]} · event %{customdata[1]}<br>design "
+                    "%{customdata[2]}, level %{customdata[3]}<br>%{x:.3f} "
+                    "(weight %{customdata[4]:.1f}%)<extra></extra>"
+                ),
+            )
+        )
         if g.get("estimate") is not None:
             e, lo_g, hi_g = (float(f(g[k])) for k in ("estimate", "ci_lower", "ci_upper"))
             xs_all += [lo_g, hi_g]
             if g.get("pi_lower") is not None and g.get("pi_upper") is not None:
                 pl, pu = float(f(g["pi_lower"])), float(f(g["pi_upper"]))
                 xs_all += [pl, pu]
-                fig.add_trace(go.Scatter(
-                    x=[pl, pu], y=[pos, pos], mode="lines", showlegend=False,
-                    name="prediction interval",
-                    line=dict(color="#b35806", width=2, dash="dash"),
-                    hovertemplate=f"prediction interval {_fmt(pl)} to {_fmt(pu)}"
-                                  "<extra></extra>"))
-            fig.add_trace(go.Scatter(
-                x=[lo_g, e, hi_g, e, lo_g], y=[pos, pos + 0.32, pos, pos - 0.32, pos],
-                mode="lines", fill="toself", fillcolor="#b35806", showlegend=False,
-                line=dict(color="#7f3b08", width=1), name="pooled",
-                hovertemplate=(f"pooled {_fmt(e)} ({_fmt(lo_g)} to {_fmt(hi_g)}), "
-                               f"k = {g.get('k')}<extra></extra>")))
+                fig.add_trace(
+                    go.Scatter(
+                        x=[pl, pu],
+                        y=[pos, pos],
+                        mode="lines",
+                        showlegend=False,
+                        name="prediction interval",
+                        line=dict(color="#b35806", width=2, dash="dash"),
+                        hovertemplate=f"prediction interval {_fmt(pl)} to {_fmt(pu)}"
+                        "<extra></extra>",
+                    )
+                )
+            fig.add_trace(
+                go.Scatter(
+                    x=[lo_g, e, hi_g, e, lo_g],
+                    y=[pos, pos + 0.32, pos, pos - 0.32, pos],
+                    mode="lines",
+                    fill="toself",
+                    fillcolor="#b35806",
+                    showlegend=False,
+                    line=dict(color="#7f3b08", width=1),
+                    name="pooled",
+                    hovertemplate=(
+                        f"pooled {_fmt(e)} ({_fmt(lo_g)} to {_fmt(hi_g)}), "
+                        f"k = {g.get('k')}<extra></extra>"
+                    ),
+                )
+            )
             ticks.append((pos, f"<b>pooled, k = {g.get('k')}</b>"))
-            pi = ("" if g.get("pi_lower") is None else
-                  f"  PI {_fmt(f(g['pi_lower']))} to {_fmt(f(g['pi_upper']))}")
+            pi = (
+                ""
+                if g.get("pi_lower") is None
+                else f"  PI {_fmt(f(g['pi_lower']))} to {_fmt(f(g['pi_upper']))}"
+            )
             right.append((pos, f"<b>{_fmt(e)} [{_fmt(lo_g)}, {_fmt(hi_g)}]</b>{pi}"))
         pos -= 1.6
     _null_line(fig, log)
     n_rows = -pos
-    fig.update_yaxes(tickvals=[t[0] for t in ticks], ticktext=[t[1] for t in ticks],
-                     range=[pos + 0.6, 0.8], showgrid=False, zeroline=False)
+    fig.update_yaxes(
+        tickvals=[t[0] for t in ticks],
+        ticktext=[t[1] for t in ticks],
+        range=[pos + 0.6, 0.8],
+        showgrid=False,
+        zeroline=False,
+    )
     for y, text in right:
-        fig.add_annotation(x=1.01, xref="paper", y=y, yref="y", text=text, showarrow=False,
-                           xanchor="left", font=dict(size=12))
+        fig.add_annotation(
+            x=1.01,
+            xref="paper",
+            y=y,
+            yref="y",
+            text=text,
+            showarrow=False,
+            xanchor="left",
+            font=dict(size=12),
+        )
     for y, text in headers:
-        fig.add_annotation(x=0, xref="paper", y=y, yref="y", text=text, showarrow=False,
-                           xanchor="left", font=dict(size=13), bgcolor="white")
+        fig.add_annotation(
+            x=0,
+            xref="paper",
+            y=y,
+            yref="y",
+            text=text,
+            showarrow=False,
+            xanchor="left",
+            font=dict(size=13),
+            bgcolor="white",
+        )
     xs = [x for x in xs_all if x is not None and math.isfinite(x) and (not log or x > 0)]
     if log and xs:
         lo_x, hi_x = min(min(xs), 1.0), max(max(xs), 1.0)
         tv, tt = _log_ticks(lo_x, hi_x)
-        fig.update_xaxes(type="log", tickvals=tv, ticktext=tt,
-                         range=[math.log10(lo_x) - 0.02, math.log10(hi_x) + 0.02])
+        fig.update_xaxes(
+            type="log",
+            tickvals=tv,
+            ticktext=tt,
+            range=[math.log10(lo_x) - 0.02, math.log10(hi_x) + 0.02],
+        )
     measure = "/".join(sorted({str(g.get("measure", "")) for g in groups}))
-    fig.update_xaxes(title=(f"{measure} (log axis; 1 = no effect)" if log
-                            else f"{measure} (0 = no effect)"), gridcolor="#e5e5e5")
-    fig.update_layout(height=int(120 + 26 * n_rows), plot_bgcolor="white", font=FONT,
-                      margin=dict(l=10, r=230, t=40 if title else 10, b=50),
-                      title=dict(text=title, font=dict(size=14)) if title else None)
+    fig.update_xaxes(
+        title=(f"{measure} (log axis; 1 = no effect)" if log else f"{measure} (0 = no effect)"),
+        gridcolor="#e5e5e5",
+    )
+    fig.update_layout(
+        height=int(120 + 26 * n_rows),
+        plot_bgcolor="white",
+        font=FONT,
+        margin=dict(l=10, r=230, t=40 if title else 10, b=50),
+        title=dict(text=title, font=dict(size=14)) if title else None,
+    )
     return fig
 
 
@@ -275,12 +391,19 @@ def _spread(n: int, radius: float = 2.2) -> list[tuple[float, float]]:
     """Offsets (degrees) placing n markers of one country around its point."""
     if n == 1:
         return [(0.0, 0.0)]
-    return [(radius * math.cos(2 * math.pi * i / n), radius * math.sin(2 * math.pi * i / n))
-            for i in range(n)]
+    return [
+        (radius * math.cos(2 * math.pi * i / n), radius * math.sin(2 * math.pi * i / n))
+        for i in range(n)
+    ]
 
 
-def map_extent(lon: list[float], lat: list[float], pad: float = 8.0, min_lon: float = 50.0,
-               min_lat: float = 30.0) -> tuple[list[float], list[float]]:
+def map_extent(
+    lon: list[float],
+    lat: list[float],
+    pad: float = 8.0,
+    min_lon: float = 50.0,
+    min_lat: float = 30.0,
+) -> tuple[list[float], list[float]]:
     """Longitude and latitude ranges around the markers (padded, never narrower than
     ``min_lon`` × ``min_lat`` degrees, never beyond the world without Antarctica)."""
     world = ([-180.0, 180.0], [-58.0, 84.0])
@@ -299,8 +422,9 @@ def map_extent(lon: list[float], lat: list[float], pad: float = 8.0, min_lon: fl
     return ([max(lo_x, -180.0), min(hi_x, 180.0)], [max(lo_y, -58.0), min(hi_y, 84.0)])
 
 
-def event_map(events: pd.DataFrame, *, min_level: int = 2, title: str = "",
-              focus: list[str] | None = None) -> go.Figure:
+def event_map(
+    events: pd.DataFrame, *, min_level: int = 2, title: str = "", focus: list[str] | None = None
+) -> go.Figure:
     """World map of independent events (``ReplicationReport.events`` rows that represent their
     event): countries with events shaded, one triangle per event (▲ exposure increased, ▼
     decreased) coloured by its estimate aligned to an exposure increase (red: the outcome
@@ -310,10 +434,19 @@ def event_map(events: pd.DataFrame, *, min_level: int = 2, title: str = "",
     (alpha-3 codes) when given."""
     shapes = country_shapes()
     base_ids = [f["id"] for f in shapes["features"] if f["id"] != "ATA"]
-    fig = go.Figure(go.Choropleth(
-        geojson=shapes, featureidkey="id", locations=base_ids, z=[0] * len(base_ids),
-        colorscale=[[0, "#e8e8e8"], [1, "#e8e8e8"]], showscale=False, hoverinfo="skip",
-        marker_line=dict(color="white", width=0.5), name="countries"))
+    fig = go.Figure(
+        go.Choropleth(
+            geojson=shapes,
+            featureidkey="id",
+            locations=base_ids,
+            z=[0] * len(base_ids),
+            colorscale=[[0, "#e8e8e8"], [1, "#e8e8e8"]],
+            showscale=False,
+            hoverinfo="skip",
+            marker_line=dict(color="white", width=0.5),
+            name="countries",
+        )
+    )
     ev = events
     if "represents_event" in ev.columns:
         ev = ev[ev["represents_event"].astype(bool)]
@@ -324,14 +457,24 @@ def event_map(events: pd.DataFrame, *, min_level: int = 2, title: str = "",
         counts = ev.groupby("country").size()
         names = [country_name(c) for c in counts.index]
         wanted = set(counts.index)
-        subset = {"type": "FeatureCollection",
-                  "features": [f for f in shapes["features"] if f["id"] in wanted]}
-        fig.add_trace(go.Choropleth(
-            geojson=subset, featureidkey="id", locations=list(counts.index),
-            z=[1] * len(counts), colorscale=[[0, "#c9d6e3"], [1, "#c9d6e3"]],
-            showscale=False, marker_line=dict(color="#6b7f94", width=0.8), name="places",
-            text=[f"{n}: {k} event(s)" for n, k in zip(names, counts, strict=True)],
-            hovertemplate="%{text}<extra></extra>"))
+        subset = {
+            "type": "FeatureCollection",
+            "features": [f for f in shapes["features"] if f["id"] in wanted],
+        }
+        fig.add_trace(
+            go.Choropleth(
+                geojson=subset,
+                featureidkey="id",
+                locations=list(counts.index),
+                z=[1] * len(counts),
+                colorscale=[[0, "#c9d6e3"], [1, "#c9d6e3"]],
+                showscale=False,
+                marker_line=dict(color="#6b7f94", width=0.8),
+                name="places",
+                text=[f"{n}: {k} event(s)" for n, k in zip(names, counts, strict=True)],
+                hovertemplate="%{text}<extra></extra>",
+            )
+        )
         pts = country_points()
         for code, grp in ev.groupby("country", sort=False):
             p = pts.get(str(code))
@@ -348,41 +491,81 @@ def event_map(events: pd.DataFrame, *, min_level: int = 2, title: str = "",
         colour = y if single else y / se
         lim = float(np.nanmax(np.abs(colour))) if np.isfinite(colour).any() else 1.0
         lim = lim or 1.0
-        cbar: dict[str, Any] = dict(title=dict(text="estimate" if single else "z",
-                                               side="right"), len=0.7, thickness=14)
+        cbar: dict[str, Any] = dict(
+            title=dict(text="estimate" if single else "z", side="right"), len=0.7, thickness=14
+        )
         if log:
             tv = np.linspace(-lim, lim, 5)
-            cbar.update(tickvals=tv.tolist(), ticktext=[f"{math.exp(t):.3g}" for t in tv],
-                        title=dict(text="ratio per exposure increase", side="right"))
+            cbar.update(
+                tickvals=tv.tolist(),
+                ticktext=[f"{math.exp(t):.3g}" for t in tv],
+                title=dict(text="ratio per exposure increase", side="right"),
+            )
         good = ev["level"].astype(float).ge(min_level).fillna(False).to_numpy()
-        symbols = [(UP if d == "increase" else DOWN) + ("" if g else "-open")
-                   for d, g in zip(ev["direction"], good, strict=True)]
+        symbols = [
+            (UP if d == "increase" else DOWN) + ("" if g else "-open")
+            for d, g in zip(ev["direction"], good, strict=True)
+        ]
         shown = np.exp(y) if log else y
-        fig.add_trace(go.Scattergeo(
-            lon=lon, lat=lat, mode="markers", name="events",
-            marker=dict(size=15, symbol=symbols, color=colour, colorscale="RdBu_r",
-                        cmin=-lim, cmax=lim, colorbar=cbar,
-                        line=dict(color="#333333", width=1)),
-            customdata=np.stack([ev["event_id"], [country_name(c) for c in ev["country"]],
-                                 ev["change_date"], ev["direction"], ev["design"].fillna(""),
-                                 ev["level"].map(lambda v: "-" if pd.isna(v) else int(v)),
-                                 [_fmt(s) for s in shown]], axis=-1),
-            hovertemplate=("<b>%{customdata[0]}</b> · %{customdata[1]}<br>%{customdata[2]}: "
-                           "exposure %{customdata[3]}d<br>design %{customdata[4]}, level "
-                           "%{customdata[5]}<br>estimate %{customdata[6]}<extra></extra>")))
+        fig.add_trace(
+            go.Scattergeo(
+                lon=lon,
+                lat=lat,
+                mode="markers",
+                name="events",
+                marker=dict(
+                    size=15,
+                    symbol=symbols,
+                    color=colour,
+                    colorscale="RdBu_r",
+                    cmin=-lim,
+                    cmax=lim,
+                    colorbar=cbar,
+                    line=dict(color="#333333", width=1),
+                ),
+                customdata=np.stack(
+                    [
+                        ev["event_id"],
+                        [country_name(c) for c in ev["country"]],
+                        ev["change_date"],
+                        ev["direction"],
+                        ev["design"].fillna(""),
+                        ev["level"].map(lambda v: "-" if pd.isna(v) else int(v)),
+                        [_fmt(s) for s in shown],
+                    ],
+                    axis=-1,
+                ),
+                hovertemplate=(
+                    "<b>%{customdata[0]}</b> · %{customdata[1]}<br>%{customdata[2]}: "
+                    "exposure %{customdata[3]}d<br>design %{customdata[4]}, level "
+                    "%{customdata[5]}<br>estimate %{customdata[6]}<extra></extra>"
+                ),
+            )
+        )
     if focus:
         pts = country_points()
         keep = [pts[c] for c in focus if c in pts]
         lon_range, lat_range = map_extent([p[0] for p in keep], [p[1] for p in keep])
     else:
-        lon_range, lat_range = map_extent([x for x in lon if x is not None],
-                                          [y for y in lat if y is not None])
-    fig.update_geos(visible=False, showframe=False, projection_type="natural earth",
-                    projection_rotation=dict(lon=(lon_range[0] + lon_range[1]) / 2, lat=0),
-                    lonaxis_range=lon_range, lataxis_range=lat_range, bgcolor="white")
-    fig.update_layout(height=520, margin=dict(l=0, r=0, t=40 if title else 0, b=0),
-                      title=dict(text=title, font=dict(size=14)) if title else None,
-                      showlegend=False, font=FONT)
+        lon_range, lat_range = map_extent(
+            [x for x in lon if x is not None], [y for y in lat if y is not None]
+        )
+    fig.update_geos(
+        visible=False,
+        showframe=False,
+        projection_type="natural earth",
+        projection_rotation=dict(lon=(lon_range[0] + lon_range[1]) / 2, lat=0),
+        lonaxis_range=lon_range,
+        lataxis_range=lat_range,
+        bgcolor="white",
+    )
+    fig.update_layout(
+        height=520,
+        margin=dict(l=0, r=0, t=40 if title else 0, b=0),
+        title=dict(text=title, font=dict(size=14)) if title else None,
+        showlegend=False,
+        font=FONT,
+    )
     return fig
 
 
@@ -395,8 +578,9 @@ def outcome_moves(events: pd.DataFrame) -> np.ndarray:
     return np.nan_to_num(y * flip).astype(int)
 
 
-def event_timeline(events: pd.DataFrame, reversals: list[dict] | None = None, *,
-                   min_level: int = 2) -> go.Figure:
+def event_timeline(
+    events: pd.DataFrame, reversals: list[dict] | None = None, *, min_level: int = 2
+) -> go.Figure:
     """Events by change date per country: ▲/▼ = the exposure rose/fell, red/blue = the outcome
     rose/fell after it, open = level below ``min_level``; events of one country joined in
     order, reversals (``ReplicationReport.reversals``) marked with an arrow."""
@@ -405,58 +589,118 @@ def event_timeline(events: pd.DataFrame, reversals: list[dict] | None = None, *,
         ev = ev[ev["represents_event"].astype(bool)]
     if ev.empty:
         return empty_figure("no independent events")
-    ev = ev.assign(_date=ev["change_date"].map(parse_change_date),
-                   _name=ev["country"].map(country_name)).sort_values("_date")
+    ev = ev.assign(
+        _date=ev["change_date"].map(parse_change_date), _name=ev["country"].map(country_name)
+    ).sort_values("_date")
     order = list(dict.fromkeys(ev["_name"]))
     fig = go.Figure()
     for name in order:
         grp = ev[ev["_name"] == name]
         if len(grp) > 1:
-            fig.add_trace(go.Scatter(x=grp["_date"], y=grp["_name"], mode="lines",
-                                     line=dict(color="#bbbbbb", width=2), hoverinfo="skip",
-                                     showlegend=False))
+            fig.add_trace(
+                go.Scatter(
+                    x=grp["_date"],
+                    y=grp["_name"],
+                    mode="lines",
+                    line=dict(color="#bbbbbb", width=2),
+                    hoverinfo="skip",
+                    showlegend=False,
+                )
+            )
     moves = outcome_moves(ev)
     good = ev["level"].astype(float).ge(min_level).fillna(False).to_numpy()
     colours = [ROSE if m > 0 else FELL if m < 0 else FLAT for m in moves]
-    symbols = [(UP if d == "increase" else DOWN) + ("" if g else "-open")
-               for d, g in zip(ev["direction"], good, strict=True)]
-    fig.add_trace(go.Scatter(
-        x=ev["_date"], y=ev["_name"], mode="markers+text", name="events", showlegend=False,
-        text=ev["event_id"], textposition="top center", textfont=dict(size=10),
-        marker=dict(size=16, symbol=symbols, color=colours, line=dict(color=colours, width=2)),
-        customdata=np.stack([ev["event_id"], ev["change_date"], ev["direction"],
-                             ev["design"].fillna(""),
-                             ev["level"].map(lambda v: "-" if pd.isna(v) else int(v)),
-                             ["rose" if m > 0 else "fell" if m < 0 else "did not move"
-                              for m in moves]], axis=-1),
-        hovertemplate=("<b>%{customdata[0]}</b> %{customdata[1]}<br>exposure "
-                       "%{customdata[2]}d; outcome %{customdata[5]}<br>design "
-                       "%{customdata[3]}, level %{customdata[4]}<extra></extra>")))
+    symbols = [
+        (UP if d == "increase" else DOWN) + ("" if g else "-open")
+        for d, g in zip(ev["direction"], good, strict=True)
+    ]
+    fig.add_trace(
+        go.Scatter(
+            x=ev["_date"],
+            y=ev["_name"],
+            mode="markers+text",
+            name="events",
+            showlegend=False,
+            text=ev["event_id"],
+            textposition="top center",
+            textfont=dict(size=10),
+            marker=dict(size=16, symbol=symbols, color=colours, line=dict(color=colours, width=2)),
+            customdata=np.stack(
+                [
+                    ev["event_id"],
+                    ev["change_date"],
+                    ev["direction"],
+                    ev["design"].fillna(""),
+                    ev["level"].map(lambda v: "-" if pd.isna(v) else int(v)),
+                    ["rose" if m > 0 else "fell" if m < 0 else "did not move" for m in moves],
+                ],
+                axis=-1,
+            ),
+            hovertemplate=(
+                "<b>%{customdata[0]}</b> %{customdata[1]}<br>exposure "
+                "%{customdata[2]}d; outcome %{customdata[5]}<br>design "
+                "%{customdata[3]}, level %{customdata[4]}<extra></extra>"
+            ),
+        )
+    )
     by_id = ev.drop_duplicates("event_id").set_index("event_id")
     for r in reversals or []:
         a, b = r.get("decrease_event"), r.get("increase_event")
         if a in by_id.index and b in by_id.index:
             back = r.get("outcome_moved_back")
             fig.add_annotation(
-                x=by_id.at[b, "_date"], y=by_id.at[b, "_name"], ax=by_id.at[a, "_date"],
-                ay=by_id.at[a, "_name"], xref="x", yref="y", axref="x", ayref="y",
-                showarrow=True, arrowhead=2, arrowwidth=2, arrowcolor="#b35806",
-                standoff=10, startstandoff=10)
+                x=by_id.at[b, "_date"],
+                y=by_id.at[b, "_name"],
+                ax=by_id.at[a, "_date"],
+                ay=by_id.at[a, "_name"],
+                xref="x",
+                yref="y",
+                axref="x",
+                ayref="y",
+                showarrow=True,
+                arrowhead=2,
+                arrowwidth=2,
+                arrowcolor="#b35806",
+                standoff=10,
+                startstandoff=10,
+            )
             fig.add_annotation(
-                x=by_id.at[b, "_date"], y=by_id.at[b, "_name"], yshift=-24, showarrow=False,
-                text="reversal: outcome moved back" if back else
-                "reversal: outcome did not move back", font=dict(color="#b35806", size=11))
-    for label, sym, col in (("exposure rose", UP, "#555555"), ("exposure fell", DOWN, "#555555"),
-                            ("outcome rose", "circle", ROSE), ("outcome fell", "circle", FELL),
-                            (f"open: level below {min_level}", "circle-open", "#555555")):
-        fig.add_trace(go.Scatter(x=[None], y=[None], mode="markers", name=label,
-                                 marker=dict(symbol=sym, color=col, size=11)))
-    fig.update_yaxes(categoryorder="array", categoryarray=order[::-1], showgrid=True,
-                     gridcolor="#eeeeee")
+                x=by_id.at[b, "_date"],
+                y=by_id.at[b, "_name"],
+                yshift=-24,
+                showarrow=False,
+                text="reversal: outcome moved back"
+                if back
+                else "reversal: outcome did not move back",
+                font=dict(color="#b35806", size=11),
+            )
+    for label, sym, col in (
+        ("exposure rose", UP, "#555555"),
+        ("exposure fell", DOWN, "#555555"),
+        ("outcome rose", "circle", ROSE),
+        ("outcome fell", "circle", FELL),
+        (f"open: level below {min_level}", "circle-open", "#555555"),
+    ):
+        fig.add_trace(
+            go.Scatter(
+                x=[None],
+                y=[None],
+                mode="markers",
+                name=label,
+                marker=dict(symbol=sym, color=col, size=11),
+            )
+        )
+    fig.update_yaxes(
+        categoryorder="array", categoryarray=order[::-1], showgrid=True, gridcolor="#eeeeee"
+    )
     fig.update_xaxes(title="date of the exposure change", gridcolor="#eeeeee")
-    fig.update_layout(height=max(260, 150 + 55 * len(order)), plot_bgcolor="white",
-                      margin=dict(l=10, r=10, t=30, b=40), font=FONT,
-                      legend=dict(orientation="h", y=1.02, yanchor="bottom", x=0))
+    fig.update_layout(
+        height=max(260, 150 + 55 * len(order)),
+        plot_bgcolor="white",
+        margin=dict(l=10, r=10, t=30, b=40),
+        font=FONT,
+        legend=dict(orientation="h", y=1.02, yanchor="bottom", x=0),
+    )
     return fig
 
 
@@ -471,31 +715,60 @@ def design_family_chart(pools: pd.DataFrame) -> go.Figure:
     log = _is_log(p["measure_group"])
     f = np.exp if log else (lambda a: np.asarray(a, dtype=float))
     inc = p["increment"].fillna("").astype(str)
-    labels = [f"<b>{fam}</b> (k={k})<br><span style='font-size:11px'>{mg} · {kind}"
-              f"{' ' + i if i else ''}{' · supporting only' if sup else ''}</span>"
-              for fam, k, mg, kind, i, sup in zip(p["design_family"], p["k"], p["measure_group"],
-                                                 p["estimate_kind"], inc, p["supporting"],
-                                                 strict=True)]
-    est, lo, hi = (f(p[c].astype(float).to_numpy()) for c in ("estimate", "ci_lower",
-                                                              "ci_upper"))
+    labels = [
+        f"<b>{fam}</b> (k={k})<br><span style='font-size:11px'>{mg} · {kind}"
+        f"{' ' + i if i else ''}{' · supporting only' if sup else ''}</span>"
+        for fam, k, mg, kind, i, sup in zip(
+            p["design_family"],
+            p["k"],
+            p["measure_group"],
+            p["estimate_kind"],
+            inc,
+            p["supporting"],
+            strict=True,
+        )
+    ]
+    est, lo, hi = (f(p[c].astype(float).to_numpy()) for c in ("estimate", "ci_lower", "ci_upper"))
     colours = [MAIN if m else OTHER for m in p["main"]]
-    fig = go.Figure(go.Scatter(
-        x=est, y=labels, mode="markers", marker=dict(symbol="diamond", size=14, color=colours),
-        error_x=dict(type="data", symmetric=False, array=hi - est, arrayminus=est - lo,
-                     color="#555555", thickness=1.5, width=6),
-        hovertemplate="%{y}<br>%{x:.3f}<extra></extra>", showlegend=False))
+    fig = go.Figure(
+        go.Scatter(
+            x=est,
+            y=labels,
+            mode="markers",
+            marker=dict(symbol="diamond", size=14, color=colours),
+            error_x=dict(
+                type="data",
+                symmetric=False,
+                array=hi - est,
+                arrayminus=est - lo,
+                color="#555555",
+                thickness=1.5,
+                width=6,
+            ),
+            hovertemplate="%{y}<br>%{x:.3f}<extra></extra>",
+            showlegend=False,
+        )
+    )
     _null_line(fig, log)
     if log:
         xs = [x for x in (*lo, *hi, 1.0) if math.isfinite(x) and x > 0]
         tv, tt = _log_ticks(min(xs), max(xs))
-        fig.update_xaxes(type="log", tickvals=tv, ticktext=tt,
-                         title="pooled ratio per exposure increase (log axis)")
+        fig.update_xaxes(
+            type="log",
+            tickvals=tv,
+            ticktext=tt,
+            title="pooled ratio per exposure increase (log axis)",
+        )
     else:
         fig.update_xaxes(title="pooled estimate per exposure increase (analysis scale)")
     fig.update_yaxes(categoryorder="array", categoryarray=labels[::-1])
     fig.update_xaxes(gridcolor="#e5e5e5")
-    fig.update_layout(height=120 + 52 * len(p), plot_bgcolor="white", font=FONT,
-                      margin=dict(l=10, r=20, t=20, b=50))
+    fig.update_layout(
+        height=120 + 52 * len(p),
+        plot_bgcolor="white",
+        font=FONT,
+        margin=dict(l=10, r=20, t=20, b=50),
+    )
     return fig
 
 
@@ -518,22 +791,42 @@ def gap_heatmap(cells: pd.DataFrame) -> go.Figure:
         if int(c["events"]):
             text[i, j] = f"{int(c['events'])} ev · {int(c['studies'])} st"
         level = "-" if pd.isna(c["best_level"]) else int(c["best_level"])
-        hover[i, j] = (f"<b>{c['exposure']} × {c['outcome_group']}</b><br>state {c['state']}"
-                       f"<br>status {c['status']}<br>{int(c['events'])} events, "
-                       f"{int(c['studies'])} studies, best level {level}<br>"
-                       f"{c.get('state_rule', '')}")
+        hover[i, j] = (
+            f"<b>{c['exposure']} × {c['outcome_group']}</b><br>state {c['state']}"
+            f"<br>status {c['status']}<br>{int(c['events'])} events, "
+            f"{int(c['studies'])} studies, best level {level}<br>"
+            f"{c.get('state_rule', '')}"
+        )
     n = len(states)
     scale = []
     for i, s in enumerate(states):
         scale += [[i / n, STATE_COLOURS[s]], [(i + 1) / n, STATE_COLOURS[s]]]
-    fig = go.Figure(go.Heatmap(
-        z=z, x=groups, y=exposures, zmin=-0.5, zmax=n - 0.5, colorscale=scale,
-        text=text, texttemplate="%{text}", textfont=dict(size=12), customdata=hover,
-        hovertemplate="%{customdata}<extra></extra>", xgap=3, ygap=3,
-        colorbar=dict(tickvals=list(range(n)), ticktext=states, title="state",
-                      thickness=14, len=0.9)))
+    fig = go.Figure(
+        go.Heatmap(
+            z=z,
+            x=groups,
+            y=exposures,
+            zmin=-0.5,
+            zmax=n - 0.5,
+            colorscale=scale,
+            text=text,
+            texttemplate="%{text}",
+            textfont=dict(size=12),
+            customdata=hover,
+            hovertemplate="%{customdata}<extra></extra>",
+            xgap=3,
+            ygap=3,
+            colorbar=dict(
+                tickvals=list(range(n)), ticktext=states, title="state", thickness=14, len=0.9
+            ),
+        )
+    )
     fig.update_xaxes(side="top", tickangle=-30 if len(groups) > 6 else 0, automargin=True)
     fig.update_yaxes(autorange="reversed", automargin=True)
-    fig.update_layout(height=140 + 52 * len(exposures), plot_bgcolor="white", font=FONT,
-                      margin=dict(l=10, r=10, t=60, b=10))
+    fig.update_layout(
+        height=140 + 52 * len(exposures),
+        plot_bgcolor="white",
+        font=FONT,
+        margin=dict(l=10, r=10, t=60, b=10),
+    )
     return fig

@@ -82,28 +82,59 @@ def agreement(db: str | None) -> pd.DataFrame:
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
-def pool(db: str | None, exposure: str, outcome: str, method: str, ci: str,
-         by: tuple[str, ...], include_fatal: bool, align_to: str) -> browse.PoolView:
-    return browse.pool_view(_store(db), exposure, outcome, method=method, ci=ci, by=list(by),
-                            include_fatal=include_fatal, align_to=align_to)
+def pool(
+    db: str | None,
+    exposure: str,
+    outcome: str,
+    method: str,
+    ci: str,
+    by: tuple[str, ...],
+    include_fatal: bool,
+    align_to: str,
+) -> browse.PoolView:
+    return browse.pool_view(
+        _store(db),
+        exposure,
+        outcome,
+        method=method,
+        ci=ci,
+        by=list(by),
+        include_fatal=include_fatal,
+        align_to=align_to,
+    )
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
-def replication(db: str | None, exposure: str, outcome: str, expected: str | None,
-                family: str | None):
-    return replicating.replication_for(_store(db), exposure, outcome, expected=expected,
-                                       family=family)
+def replication(
+    db: str | None, exposure: str, outcome: str, expected: str | None, family: str | None
+):
+    return replicating.replication_for(
+        _store(db), exposure, outcome, expected=expected, family=family
+    )
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
-def gaps(db: str | None, design_families: tuple[str, ...], regions: tuple[str, ...],
-         countries: tuple[str, ...], year_from: int | None, year_to: int | None,
-         min_level: int | None, stale_after: int | None,
-         studied_only: bool = False) -> replicating.GapReport:
+def gaps(
+    db: str | None,
+    design_families: tuple[str, ...],
+    regions: tuple[str, ...],
+    countries: tuple[str, ...],
+    year_from: int | None,
+    year_to: int | None,
+    min_level: int | None,
+    stale_after: int | None,
+    studied_only: bool = False,
+) -> replicating.GapReport:
     filters = replicating.GapFilters(
-        design_families=design_families, regions=regions, countries=countries,
-        year_from=year_from, year_to=year_to, min_level=min_level, stale_after=stale_after,
-        studied_only=studied_only)
+        design_families=design_families,
+        regions=regions,
+        countries=countries,
+        year_from=year_from,
+        year_to=year_to,
+        min_level=min_level,
+        stale_after=stale_after,
+        studied_only=studied_only,
+    )
     return replicating.gap_report(_store(db), filters)
 
 
@@ -121,10 +152,8 @@ def series_list(db: str | None) -> pd.DataFrame:
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
-def series_estimate(db: str | None, key: str, horizon: int | None, model: str,
-                    seasonal: str):
+def series_estimate(db: str | None, key: str, horizon: int | None, model: str, seasonal: str):
     """Re-estimation of one exposed series (read only: nothing is stored from the dashboard)."""
     from exposhift.services import series
 
-    return series.estimate_series(_store(db), key, horizon=horizon, model=model,
-                                  seasonal=seasonal)
+    return series.estimate_series(_store(db), key, horizon=horizon, model=model, seasonal=seasonal)

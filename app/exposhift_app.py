@@ -24,12 +24,12 @@ import data  # noqa: E402
 # 1. page setup and navigation ---------------------------------------------------------------
 st.set_page_config(page_title="exposhift", layout="wide", initial_sidebar_state="expanded")
 PAGES = [
-    st.Page("views/overview.py", title="Evidence at a glance", url_path="overview",
-            default=True),
+    st.Page("views/overview.py", title="Evidence at a glance", url_path="overview", default=True),
     st.Page("views/studies.py", title="Studies and appraisals", url_path="studies"),
     st.Page("views/pooling.py", title="Pooling", url_path="pooling"),
-    st.Page("views/replication.py", title="Replication across place and time",
-            url_path="replication"),
+    st.Page(
+        "views/replication.py", title="Replication across place and time", url_path="replication"
+    ),
     st.Page("views/gaps.py", title="Gap map", url_path="gaps"),
     st.Page("views/series.py", title="Extracted series", url_path="series"),
 ]
@@ -47,15 +47,19 @@ with st.sidebar:
     elif summary.any_demo:
         st.markdown(":blue-background[**Contains invented demo records**]")
     st.text_input(
-        "Your reviewer name", key="viewer",
+        "Your reviewer name",
+        key="viewer",
         help="Independent appraisals stay hidden from everyone but their reviewer until both "
-             "independent appraisals of a study are in. Give your name to see your own.")
+        "independent appraisals of a study are in. Give your name to see your own.",
+    )
     if st.button("Reload data", help="Read the evidence base again (after an import)."):
         data.clear()
         st.rerun()
     if not st.get_option("server.enableStaticServing"):
-        st.caption("Static file serving is off: maps may stay blank. Start the dashboard with "
-                   "`exposhift dashboard`.")
+        st.caption(
+            "Static file serving is off: maps may stay blank. Start the dashboard with "
+            "`exposhift dashboard`."
+        )
 
 # 3. the chosen page -------------------------------------------------------------------------
 page.run()

@@ -13,9 +13,15 @@ from exposhift.services.browse import DEMO_NOTE
 from exposhift.synthesis.pooling import CAUTION  # the library's caution, as the CLI prints it
 
 STATUS_TONE = {
-    "convergent": "success", "replicated-place": "success", "replicated-time": "success",
-    "discordant": "error", "replicated-against": "error", "not-replicated": "warning",
-    "single-event": "warning", "weak-only": "warning", "none": "info",
+    "convergent": "success",
+    "replicated-place": "success",
+    "replicated-time": "success",
+    "discordant": "error",
+    "replicated-against": "error",
+    "not-replicated": "warning",
+    "single-event": "warning",
+    "weak-only": "warning",
+    "none": "info",
 }
 
 
@@ -42,8 +48,10 @@ def demo_notice(summary) -> None:
     if summary.all_demo:
         st.info(f"**Invented demo data.** {DEMO_NOTE}")
     elif summary.any_demo:
-        st.info(f"**Partly invented demo data:** {summary.demo_studies} studies and "
-                f"{summary.demo_events} events are demo records. {DEMO_NOTE}")
+        st.info(
+            f"**Partly invented demo data:** {summary.demo_studies} studies and "
+            f"{summary.demo_events} events are demo records. {DEMO_NOTE}"
+        )
 
 
 def status_box(status: str, rule: str, provisional: bool = False) -> None:
@@ -58,8 +66,14 @@ def level_text(value) -> str:
     return "not appraised" if value is None or pd.isna(value) else f"{int(value)}"
 
 
-def pick(label: str, options: list[str], key: str, default: str | None = None,
-         help: str | None = None, param: str | None = None) -> str:
+def pick(
+    label: str,
+    options: list[str],
+    key: str,
+    default: str | None = None,
+    help: str | None = None,
+    param: str | None = None,
+) -> str:
     """A selectbox that keeps a valid choice when its options change. ``param``: a URL query
     parameter that gives the first choice (``?exposure=...&outcome=...`` links to a view)."""
     if not options:

@@ -52,21 +52,27 @@ def main() -> int:
         db = args.db
         if db is None:
             db = Path(tmp) / "demo.db"
-            subprocess.run([*cli, "demo", "--db", str(db)], check=True,
-                           stdout=subprocess.DEVNULL)
+            subprocess.run([*cli, "demo", "--db", str(db)], check=True, stdout=subprocess.DEVNULL)
         base = median_cpu([sys.executable, "-c", "import pandas"], args.repeat)
-        print(f"baseline  python -c 'import pandas'  {base * 1000:7.0f} ms CPU (median of "
-              f"{args.repeat})")
-        runs = {"--help": [*cli, "--help"], "--version": [*cli, "--version"],
-                "info": [*cli, "--db", str(db), "info"]}
+        print(
+            f"baseline  python -c 'import pandas'  {base * 1000:7.0f} ms CPU (median of "
+            f"{args.repeat})"
+        )
+        runs = {
+            "--help": [*cli, "--help"],
+            "--version": [*cli, "--version"],
+            "info": [*cli, "--db", str(db), "info"],
+        }
         failed = False
         for name, cmd in runs.items():
             t = median_cpu(cmd, args.repeat)
             ratio = t / base
             ok = ratio <= TARGETS[name]
             failed |= not ok
-            print(f"exposhift {name:<10} {t * 1000:7.0f} ms CPU  {ratio:5.2f}x baseline  "
-                  f"(target <= {TARGETS[name]}x: {'met' if ok else 'NOT met'})")
+            print(
+                f"exposhift {name:<10} {t * 1000:7.0f} ms CPU  {ratio:5.2f}x baseline  "
+                f"(target <= {TARGETS[name]}x: {'met' if ok else 'NOT met'})"
+            )
     return 1 if failed else 0
 
 

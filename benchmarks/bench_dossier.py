@@ -68,28 +68,44 @@ def measure(store, exposure: str, work: Path, repeat: int) -> dict:
             replication_for(store, exposure, o)
 
     base = best(baseline, repeat)
-    html = best(lambda: build_dossier(store, exposure, out=work / "h", formats="html",
-                                      force=True), repeat)
+    html = best(
+        lambda: build_dossier(store, exposure, out=work / "h", formats="html", force=True), repeat
+    )
     fig_t, png_t = Timer(figures, "dossier_figures"), Timer(images, "render_png")
     try:
-        both = best(lambda: build_dossier(store, exposure, out=work / "w",
-                                          formats="html,docx", force=True), repeat)
+        both = best(
+            lambda: build_dossier(store, exposure, out=work / "w", formats="html,docx", force=True),
+            repeat,
+        )
     finally:
         fig_t.restore()
         png_t.restore()
-    return {"exposure": exposure, "outcomes": len(outcomes), "baseline": base, "html": html,
-            "html_docx": both, "figures": fig_t.seconds / repeat, "png": png_t.seconds / repeat}
+    return {
+        "exposure": exposure,
+        "outcomes": len(outcomes),
+        "baseline": base,
+        "html": html,
+        "html_docx": both,
+        "figures": fig_t.seconds / repeat,
+        "png": png_t.seconds / repeat,
+    }
 
 
 def report(name: str, r: dict) -> None:
     print(f"\n{name}: {r['exposure']} ({r['outcomes']} outcomes)")
     print(f"  baseline pool --details + replication   {r['baseline']:8.2f} s   1.00x")
-    print(f"  dossier HTML alone                      {r['html']:8.2f} s   "
-          f"{r['html'] / r['baseline']:5.2f}x  (target < 3x)")
-    print(f"  dossier HTML + Word                     {r['html_docx']:8.2f} s   "
-          f"{r['html_docx'] / r['baseline']:5.2f}x")
-    print(f"  of HTML + Word: building figures {r['figures'] / r['html_docx']:.0%}, rendering "
-          f"them to PNG {r['png'] / r['html_docx']:.0%}")
+    print(
+        f"  dossier HTML alone                      {r['html']:8.2f} s   "
+        f"{r['html'] / r['baseline']:5.2f}x  (target < 3x)"
+    )
+    print(
+        f"  dossier HTML + Word                     {r['html_docx']:8.2f} s   "
+        f"{r['html_docx'] / r['baseline']:5.2f}x"
+    )
+    print(
+        f"  of HTML + Word: building figures {r['figures'] / r['html_docx']:.0%}, rendering "
+        f"them to PNG {r['png'] / r['html_docx']:.0%}"
+    )
 
 
 def main() -> None:
@@ -120,8 +136,10 @@ def main() -> None:
         init_database(url, user="bench")
         syn = open_current(url, user="bench")
         import_into(syn, work / "sheet.csv")
-        report(f"synthetic evidence base, {args.estimates} estimates of one exposure",
-               measure(syn, "synthetic-agent", work, args.repeat))
+        report(
+            f"synthetic evidence base, {args.estimates} estimates of one exposure",
+            measure(syn, "synthetic-agent", work, args.repeat),
+        )
         syn.dispose()
 
 

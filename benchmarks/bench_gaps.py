@@ -42,8 +42,16 @@ from exposhift.replication.gaps import STATE_OF_STATUS, gap_map, opportunities
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.replication.status import STATUS_RANK, analyse
 
-FAMILIES = ["uncontrolled", "trend-extrapolation", "common-trend", "weighted-fit",
-            "local-continuity", "instrument", "as-if-random", "observables"]
+FAMILIES = [
+    "uncontrolled",
+    "trend-extrapolation",
+    "common-trend",
+    "weighted-fit",
+    "local-continuity",
+    "instrument",
+    "as-if-random",
+    "observables",
+]
 
 
 # --------------------------------------------------------------------------------------------
@@ -75,37 +83,59 @@ def make_base(n: int, n_exp: int, n_groups: int, seed: int) -> tuple[pd.DataFram
     ev = np.array([ev_of_exp[e][rng.integers(0, len(ev_of_exp[e]))] for e in exp])
     fam = np.array(FAMILIES, dtype=object)[rng.integers(0, len(FAMILIES), m)]
     kind = np.array(["change", "level", "slope"], dtype=object)[
-        rng.choice(3, m, p=[0.85, 0.1, 0.05])]
+        rng.choice(3, m, p=[0.85, 0.1, 0.05])
+    ]
     mgroup = np.where(rng.random(m) < 0.9, "ratio", "mean_difference").astype(object)
     level = np.array([np.nan, 0, 1, 2, 3])[rng.choice(5, m, p=[0.1, 0.1, 0.2, 0.35, 0.25])]
     truth = rng.normal(0.08, 0.08, n_exp)[exp]
     se = rng.uniform(0.03, 0.15, m)
     y = truth + rng.normal(0, 1, m) * se
-    frame = pd.DataFrame({
-        "exposure": np.array([f"X{e:03d}" for e in exp], dtype=object),
-        "outcome": np.array([f"O{o:03d}" for o in outcome], dtype=object),
-        "outcome_group": np.array([f"G{g:02d}" for g in grp], dtype=object),
-        "event_id": ev_ids[ev], "country": ev_country[ev],
-        "change_date": ev_year[ev].astype(str), "change_year": ev_year[ev].astype(float),
-        "change_direction": ev_dir[ev], "change_kind": "ban",
-        "change_size": ev_size[ev], "change_unit": "ug/m3",
-        "design_family": fam, "design": fam, "level": level, "y": y, "v": se * se,
-        "study_id": np.array([f"S{i:06d}" for i in rng.integers(0, n // 2, m)], dtype=object),
-        "population": np.array(["", "adults", "children"], dtype=object)[
-            rng.integers(0, 3, m)],
-        "data_source": "", "measure_group": mgroup, "estimate_kind": kind, "increment": "",
-    })
+    frame = pd.DataFrame(
+        {
+            "exposure": np.array([f"X{e:03d}" for e in exp], dtype=object),
+            "outcome": np.array([f"O{o:03d}" for o in outcome], dtype=object),
+            "outcome_group": np.array([f"G{g:02d}" for g in grp], dtype=object),
+            "event_id": ev_ids[ev],
+            "country": ev_country[ev],
+            "change_date": ev_year[ev].astype(str),
+            "change_year": ev_year[ev].astype(float),
+            "change_direction": ev_dir[ev],
+            "change_kind": "ban",
+            "change_size": ev_size[ev],
+            "change_unit": "ug/m3",
+            "design_family": fam,
+            "design": fam,
+            "level": level,
+            "y": y,
+            "v": se * se,
+            "study_id": np.array([f"S{i:06d}" for i in rng.integers(0, n // 2, m)], dtype=object),
+            "population": np.array(["", "adults", "children"], dtype=object)[rng.integers(0, 3, m)],
+            "data_source": "",
+            "measure_group": mgroup,
+            "estimate_kind": kind,
+            "increment": "",
+        }
+    )
     # independent units: one per event x population x outcome x measure group x kind
-    frame = frame.drop_duplicates(["event_id", "population", "data_source", "outcome",
-                                   "measure_group", "estimate_kind"]).iloc[:n]
+    frame = frame.drop_duplicates(
+        ["event_id", "population", "data_source", "outcome", "measure_group", "estimate_kind"]
+    ).iloc[:n]
     frame = frame.reset_index(drop=True)
     studied = frame.groupby("event_id")["study_id"].nunique()
-    registry = pd.DataFrame({
-        "event_id": ev_ids, "exposure": np.array([f"X{e:03d}" for e in ev_exp], dtype=object),
-        "change_kind": "ban", "change_direction": ev_dir, "change_size": ev_size,
-        "country": ev_country, "area": None, "change_date": ev_year.astype(str),
-        "change_year": ev_year, "family": None,
-    })
+    registry = pd.DataFrame(
+        {
+            "event_id": ev_ids,
+            "exposure": np.array([f"X{e:03d}" for e in ev_exp], dtype=object),
+            "change_kind": "ban",
+            "change_direction": ev_dir,
+            "change_size": ev_size,
+            "country": ev_country,
+            "area": None,
+            "change_date": ev_year.astype(str),
+            "change_year": ev_year,
+            "family": None,
+        }
+    )
     registry["studies"] = registry["event_id"].map(studied).fillna(0).astype(np.int64)
     return frame, registry
 
@@ -132,8 +162,19 @@ def grouped(units: pd.DataFrame, registry: pd.DataFrame, s: ReplicationSettings)
 def loop_one(sub: pd.DataFrame, s: ReplicationSettings) -> dict:
     """The status of one exposure x outcome, computed alone (the library on one pair)."""
     row = analyse(sub, ("exposure", "outcome"), s).statuses.iloc[0]
-    return {c: row[c] for c in ("status", "n_events", "n_good", "places_count", "time_periods",
-                                "reversal", "families_concordant", "sign_test_p")}
+    return {
+        c: row[c]
+        for c in (
+            "status",
+            "n_events",
+            "n_good",
+            "places_count",
+            "time_periods",
+            "reversal",
+            "families_concordant",
+            "sign_test_p",
+        )
+    }
 
 
 def loop_statuses(units: pd.DataFrame, s: ReplicationSettings) -> pd.DataFrame:
@@ -143,13 +184,19 @@ def loop_statuses(units: pd.DataFrame, s: ReplicationSettings) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def loop_cells(units: pd.DataFrame, registry: pd.DataFrame, statuses: pd.DataFrame,
-               s: ReplicationSettings) -> pd.DataFrame:
+def loop_cells(
+    units: pd.DataFrame, registry: pd.DataFrame, statuses: pd.DataFrame, s: ReplicationSettings
+) -> pd.DataFrame:
     exposures = sorted(set(units["exposure"]) | set(registry["exposure"]))
     groups = sorted(set(units["outcome_group"]))
     by_cell = dict(iter(units.groupby(["exposure", "outcome_group"])))
-    group_of = dict(zip(zip(units["exposure"], units["outcome"], strict=True),
-                        units["outcome_group"], strict=True))
+    group_of = dict(
+        zip(
+            zip(units["exposure"], units["outcome"], strict=True),
+            units["outcome_group"],
+            strict=True,
+        )
+    )
     st_by_cell: dict[tuple, list] = {}
     for r in statuses.itertuples(index=False):
         st_by_cell.setdefault((r.exposure, group_of[(r.exposure, r.outcome)]), []).append(r)
@@ -158,8 +205,16 @@ def loop_cells(units: pd.DataFrame, registry: pd.DataFrame, statuses: pd.DataFra
         for g in groups:
             sub = by_cell.get((x, g))
             if sub is None:
-                rows.append({"exposure": x, "outcome_group": g, "events": 0, "studies": 0,
-                             "status": "none", "state": "no-study"})
+                rows.append(
+                    {
+                        "exposure": x,
+                        "outcome_group": g,
+                        "events": 0,
+                        "studies": 0,
+                        "status": "none",
+                        "state": "no-study",
+                    }
+                )
                 continue
             sts = st_by_cell[(x, g)]
             best = min(sts, key=lambda r: (STATUS_RANK[r.status], -r.n_good, r.outcome))
@@ -167,10 +222,16 @@ def loop_cells(units: pd.DataFrame, registry: pd.DataFrame, statuses: pd.DataFra
             newest = sub["change_year"].max()
             state = "stale" if newest <= STALE_AFTER else STATE_OF_STATUS[best.status]
             assert good >= 0
-            rows.append({"exposure": x, "outcome_group": g,
-                         "events": sub["event_id"].nunique(),
-                         "studies": sub["study_id"].nunique(), "status": best.status,
-                         "state": state})
+            rows.append(
+                {
+                    "exposure": x,
+                    "outcome_group": g,
+                    "events": sub["event_id"].nunique(),
+                    "studies": sub["study_id"].nunique(),
+                    "status": best.status,
+                    "state": state,
+                }
+            )
     return pd.DataFrame(rows)
 
 
@@ -190,8 +251,15 @@ def check_same(g, lp) -> None:
     keys = ["exposure", "outcome"]
     m = gs.merge(ls, on=keys, suffixes=("", "_loop"))
     assert len(m) == len(gs) == len(ls), "different keys"
-    for col in ("status", "n_events", "n_good", "places_count", "time_periods", "reversal",
-                "families_concordant"):
+    for col in (
+        "status",
+        "n_events",
+        "n_good",
+        "places_count",
+        "time_periods",
+        "reversal",
+        "families_concordant",
+    ):
         bad = (m[col] != m[f"{col}_loop"]).sum()
         assert bad == 0, f"{bad} keys differ in {col}"
     np.testing.assert_allclose(m["sign_test_p"], m["sign_test_p_loop"], rtol=1e-9)
@@ -232,15 +300,19 @@ def main() -> None:
     s = DEFAULTS
     units, registry = make_base(args.estimates, args.exposures, args.groups, args.seed)
     n_keys = units.groupby(["exposure", "outcome"]).ngroups
-    print(f"evidence base: {len(units):,} estimates, {units['exposure'].nunique()} exposures, "
-          f"{units['outcome_group'].nunique()} outcome groups, {n_keys:,} exposure x outcome "
-          f"pairs, {units['event_id'].nunique():,} events; register {len(registry):,} events")
+    print(
+        f"evidence base: {len(units):,} estimates, {units['exposure'].nunique()} exposures, "
+        f"{units['outcome_group'].nunique()} outcome groups, {n_keys:,} exposure x outcome "
+        f"pairs, {units['event_id'].nunique():,} events; register {len(registry):,} events"
+    )
 
     t_g, g = best_time(lambda: grouped(units, registry, s), args.repeats)
     t_l, lp = best_time(lambda: loop_route(units, registry, s), 1)
     check_same(g, lp)
-    print(f"same status, counts and sign-test p for all {n_keys:,} pairs; same state and counts "
-          f"for all {len(g[1]):,} cells; same {len(g[2]):,} opportunities")
+    print(
+        f"same status, counts and sign-test p for all {n_keys:,} pairs; same state and counts "
+        f"for all {len(g[1]):,} cells; same {len(g[2]):,} opportunities"
+    )
     statuses = g[0]["status"].value_counts().to_dict()
     states = g[1]["state"].value_counts().to_dict()
     print(f"statuses: {statuses}")
@@ -252,8 +324,10 @@ def main() -> None:
     print(f"{'route':<34}{'time (s)':>10}{'peak memory (MiB)':>20}")
     print(f"{'grouped (analyse + gap_map)':<34}{t_g:>10.3f}{m_g:>20.1f}")
     print(f"{'per-cell Python loop (baseline)':<34}{t_l:>10.3f}{m_l:>20.1f}")
-    print(f"speed ratio loop / grouped: {t_l / t_g:.1f}x (target >= 20x); "
-          f"memory ratio grouped / loop: {m_g / m_l:.2f}")
+    print(
+        f"speed ratio loop / grouped: {t_l / t_g:.1f}x (target >= 20x); "
+        f"memory ratio grouped / loop: {m_g / m_l:.2f}"
+    )
 
 
 if __name__ == "__main__":

@@ -88,8 +88,12 @@ def phase(name: str, work: Path) -> dict:
 def run(name: str, work: Path, repeat: int) -> dict:
     best = None
     for _ in range(repeat):
-        out = subprocess.run([sys.executable, __file__, "--phase", name, "--work", str(work)],
-                             check=True, capture_output=True, text=True).stdout
+        out = subprocess.run(
+            [sys.executable, __file__, "--phase", name, "--work", str(work)],
+            check=True,
+            capture_output=True,
+            text=True,
+        ).stdout
         result = json.loads(out.strip().splitlines()[-1])
         if best is None or result["seconds"] < best["seconds"]:
             best = result
@@ -114,8 +118,10 @@ def main() -> None:
         synthetic_sheet(args.rows).to_csv(work / "sheet.csv", index=False)
         size = (work / "sheet.csv").stat().st_size / 1e6
         print(f"extraction sheet: {args.rows:,} rows, {size:.1f} MB (best of {args.repeat})")
-        results = {n: run(n, work, args.repeat)
-                   for n in ("floor", "import", "export-floor", "export-json", "export-csv")}
+        results = {
+            n: run(n, work, args.repeat)
+            for n in ("floor", "import", "export-floor", "export-json", "export-csv")
+        }
     print(f"{'phase':<34} {'seconds':>8} {'peak RSS MB':>12} {'(base)':>8}")
     labels = {
         "floor": "floor: read_csv + to_sql",
@@ -125,14 +131,18 @@ def main() -> None:
         "export-csv": "export CSV sheet",
     }
     for n, r in results.items():
-        print(f"{labels[n]:<34} {r['seconds']:>8.2f} {r['rss_peak_mb']:>12.0f} "
-              f"{r['rss_base_mb']:>8.0f}")
+        print(
+            f"{labels[n]:<34} {r['seconds']:>8.2f} {r['rss_peak_mb']:>12.0f} "
+            f"{r['rss_base_mb']:>8.0f}"
+        )
     floor = results["floor"]["seconds"]
     ratio = results["import"]["seconds"] / floor
     print(f"import / floor      = {ratio:.2f}x (target <= 3x: {'met' if ratio <= 3 else 'MISSED'})")
     ef = results["export-floor"]["seconds"]
-    print(f"export JSON / floor = {results['export-json']['seconds'] / ef:.2f}x "
-          f"(export floor: read_sql + to_csv)")
+    print(
+        f"export JSON / floor = {results['export-json']['seconds'] / ef:.2f}x "
+        f"(export floor: read_sql + to_csv)"
+    )
     print(f"export CSV / floor  = {results['export-csv']['seconds'] / ef:.2f}x")
 
 

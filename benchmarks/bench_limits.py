@@ -71,14 +71,21 @@ def case(name: str, work: Path, traced: bool) -> dict:
         outcome = "refused: " + exc.problems[0].message[:70]
     seconds = time.perf_counter() - t
     own = tracemalloc.get_traced_memory()[1] / 2**20 if traced else None
-    return {"seconds": seconds, "rss_base_mb": base, "rss_peak_mb": _rss_mb(),
-            "own_mb": own, "outcome": outcome, "bytes": path.stat().st_size}
+    return {
+        "seconds": seconds,
+        "rss_base_mb": base,
+        "rss_peak_mb": _rss_mb(),
+        "own_mb": own,
+        "outcome": outcome,
+        "bytes": path.stat().st_size,
+    }
 
 
 def _once(name: str, work: Path, traced: bool) -> dict:
     cmd = [sys.executable, __file__, "--case", name, "--work", str(work)]
-    out = subprocess.run(cmd + (["--traced"] if traced else []), check=True,
-                         capture_output=True, text=True).stdout
+    out = subprocess.run(
+        cmd + (["--traced"] if traced else []), check=True, capture_output=True, text=True
+    ).stdout
     return json.loads(out.strip().splitlines()[-1])
 
 
@@ -102,23 +109,32 @@ def main() -> None:
         work = Path(tmp)
         make_files(work)
         results = {n: run(n, work, args.repeat) for n in CASES}
-    print(f"best of {args.repeat}; own MB = peak traced allocation of the case; RSS = whole "
-          "process (after imports -> peak)")
-    print(f"{'case':<10} {'file MB':>8} {'seconds':>8} {'own MB':>8} {'RSS MB':>11} "
-          f"{'x time':>7} {'x own':>7}  outcome")
+    print(
+        f"best of {args.repeat}; own MB = peak traced allocation of the case; RSS = whole "
+        "process (after imports -> peak)"
+    )
+    print(
+        f"{'case':<10} {'file MB':>8} {'seconds':>8} {'own MB':>8} {'RSS MB':>11} "
+        f"{'x time':>7} {'x own':>7}  outcome"
+    )
     b = results["baseline"]
     for n, r in results.items():
-        print(f"{n:<10} {r['bytes'] / 1e6:>8.1f} {r['seconds']:>8.3f} {r['own_mb']:>8.1f} "
-              f"{r['rss_base_mb']:>5.0f}->{r['rss_peak_mb']:<5.0f} "
-              f"{r['seconds'] / b['seconds']:>7.2f} {r['own_mb'] / b['own_mb']:>7.2f}  "
-              f"{r['outcome']}")
+        print(
+            f"{n:<10} {r['bytes'] / 1e6:>8.1f} {r['seconds']:>8.3f} {r['own_mb']:>8.1f} "
+            f"{r['rss_base_mb']:>5.0f}->{r['rss_peak_mb']:<5.0f} "
+            f"{r['seconds'] / b['seconds']:>7.2f} {r['own_mb'] / b['own_mb']:>7.2f}  "
+            f"{r['outcome']}"
+        )
     w = results["wide-csv"]
     met = w["seconds"] < 2 and w["own_mb"] < 200
-    print(f"1,000,000-column header: refused in {w['seconds']:.3f} s "
-          f"({w['seconds'] / b['seconds']:.2f}x reading the 100-row sheet), own peak "
-          f"{w['own_mb']:.1f} MB ({w['own_mb'] / b['own_mb']:.2f}x); process RSS "
-          f"{w['rss_base_mb']:.0f} MB after imports -> {w['rss_peak_mb']:.0f} MB peak "
-          f"(target < 2 s and < 200 MB for the refusal itself: {'met' if met else 'MISSED'})")
+    print(
+        f"1,000,000-column header: refused in {w['seconds']:.3f} s "
+        f"({w['seconds'] / b['seconds']:.2f}x reading the 100-row sheet), own peak "
+        f"{w['own_mb']:.1f} MB ({w['own_mb'] / b['own_mb']:.2f}x); process RSS "
+        f"{w['rss_base_mb']:.0f} MB after imports -> {w['rss_peak_mb']:.0f} MB peak "
+        f"(target < 2 s and < 200 MB for the refusal itself: {'met' if met else 'MISSED'})"
+    )
+
 
 if __name__ == "__main__":
     main()

@@ -32,8 +32,12 @@ def make_sets(n_sets: int, seed: int):
     for _ in range(n_sets):
         v = rng.uniform(0.005, 0.2, n)
         s_e, s_w = rng.choice([0.0, 0.1, 0.3]), rng.choice([0.0, 0.1, 0.2])
-        y = (rng.normal(0, 0.3) + rng.normal(0, 1, len(SIZES))[cl] * s_e
-             + rng.normal(0, 1, n) * s_w + rng.normal(0, 1, n) * np.sqrt(v))
+        y = (
+            rng.normal(0, 0.3)
+            + rng.normal(0, 1, len(SIZES))[cl] * s_e
+            + rng.normal(0, 1, n) * s_w
+            + rng.normal(0, 1, n) * np.sqrt(v)
+        )
         out.append((y, v, cl))
     return out
 
@@ -62,10 +66,14 @@ def main() -> None:
     print(f"k = 20 estimates in 9 events, {args.sets} seeded sets, best of {args.repeats}")
     print(f"load average: {os.getloadavg()[0]:.2f} on {os.cpu_count()} CPUs")
     print(f"baseline pool(reml, wald), independent units: {t_base * 1e3:8.3f} ms per pool")
-    print(f"fit_multilevel (REML 3-level + CR2):          {t_fit * 1e3:8.3f} ms per fit "
-          f"({t_fit / t_base:.1f}x baseline)")
-    print(f"pool_multilevel (cr2 interval):               {t_pool * 1e3:8.3f} ms per pool "
-          f"({t_pool / t_base:.1f}x baseline)")
+    print(
+        f"fit_multilevel (REML 3-level + CR2):          {t_fit * 1e3:8.3f} ms per fit "
+        f"({t_fit / t_base:.1f}x baseline)"
+    )
+    print(
+        f"pool_multilevel (cr2 interval):               {t_pool * 1e3:8.3f} ms per pool "
+        f"({t_pool / t_base:.1f}x baseline)"
+    )
     print(f"converged: {converged}/{len(sets)}")
 
 

@@ -47,8 +47,11 @@ def make_groups(n_groups: int, seed: int) -> pd.DataFrame:
     n = g.size
     tau = rng.choice([0.0, 0.05, 0.15, 0.3, 0.6], n_groups)
     v = rng.uniform(0.005, 0.3, n)
-    y = rng.normal(0, 0.4, n_groups)[g] + rng.normal(0, 1, n) * tau[g] \
+    y = (
+        rng.normal(0, 0.4, n_groups)[g]
+        + rng.normal(0, 1, n) * tau[g]
         + rng.normal(0, 1, n) * np.sqrt(v)
+    )
     return pd.DataFrame({"group": g, "y": y, "v": v})
 
 
@@ -91,8 +94,10 @@ def main() -> None:
 
     frame = make_groups(args.groups, args.seed)
     parts = [(g["y"].to_numpy(), g["v"].to_numpy()) for _, g in frame.groupby("group")]
-    print(f"{args.groups} groups, {len(frame)} estimates (k 2-30), seed {args.seed}, "
-          f"best of {args.repeats}")
+    print(
+        f"{args.groups} groups, {len(frame)} estimates (k 2-30), seed {args.seed}, "
+        f"best of {args.repeats}"
+    )
 
     # interleave the runs so that load from other processes hits all of them alike
     t_pm = t_reml = t_sm = float("inf")
@@ -101,37 +106,48 @@ def main() -> None:
         for _ in range(args.repeats):
             t, sm = best_time(lambda: statsmodels_loop(parts), 1)
             t_sm = min(t_sm, t)
-            t, out_pm = best_time(
-                lambda: pool_groups(frame, ["group"], method="pm", ci="wald"), 3)
+            t, out_pm = best_time(lambda: pool_groups(frame, ["group"], method="pm", ci="wald"), 3)
             t_pm = min(t_pm, t)
             t, out_reml = best_time(
-                lambda: pool_groups(frame, ["group"], method="reml", ci="hksj"), 3)
+                lambda: pool_groups(frame, ["group"], method="reml", ci="hksj"), 3
+            )
             t_reml = min(t_reml, t)
         t_sm_tight, sm_tight = best_time(
-            lambda: statsmodels_loop(parts, atol=1e-12, maxiter=500), 1)
+            lambda: statsmodels_loop(parts, atol=1e-12, maxiter=500), 1
+        )
     t_loop, _ = best_time(lambda: [pool(y, v, "reml", "hksj") for y, v in parts], 1)
 
     print(f"statsmodels combine_effects(pm) loop : {t_sm * 1e3:9.1f} ms")
     print(f"  same, atol=1e-12                   : {t_sm_tight * 1e3:9.1f} ms")
     print(f"exposhift pool() loop (REML, scalar) : {t_loop * 1e3:9.1f} ms")
-    print(f"pool_groups PM                       : {t_pm * 1e3:9.1f} ms  "
-          f"-> {t_sm / t_pm:6.1f}x faster than the statsmodels loop")
-    print(f"pool_groups REML (+HKSJ)             : {t_reml * 1e3:9.1f} ms  "
-          f"-> {t_sm / t_reml:6.1f}x faster than the statsmodels loop")
-    print(f"all groups converged: PM {bool(out_pm['converged'].all())}, "
-          f"REML {bool(out_reml['converged'].all())}; REML iterations max "
-          f"{int(out_reml['iterations'].max())}")
+    print(
+        f"pool_groups PM                       : {t_pm * 1e3:9.1f} ms  "
+        f"-> {t_sm / t_pm:6.1f}x faster than the statsmodels loop"
+    )
+    print(
+        f"pool_groups REML (+HKSJ)             : {t_reml * 1e3:9.1f} ms  "
+        f"-> {t_sm / t_reml:6.1f}x faster than the statsmodels loop"
+    )
+    print(
+        f"all groups converged: PM {bool(out_pm['converged'].all())}, "
+        f"REML {bool(out_reml['converged'].all())}; REML iterations max "
+        f"{int(out_reml['iterations'].max())}"
+    )
 
     ours = out_pm[["estimate", "tau2"]].to_numpy(dtype=float)
     for label, ref, atol in (("default atol=1e-5", sm, 1e-5), ("atol=1e-12", sm_tight, 1e-9)):
         ok = valid_mask(parts, ref, atol)
         d = np.abs(ours[ok] - ref[ok])
-        print(f"statsmodels ({label}): valid in {ok.sum()}/{len(ok)} groups; largest |diff| "
-              f"estimate {d[:, 0].max():.2e}, tau2 {d[:, 1].max():.2e}")
+        print(
+            f"statsmodels ({label}): valid in {ok.sum()}/{len(ok)} groups; largest |diff| "
+            f"estimate {d[:, 0].max():.2e}, tau2 {d[:, 1].max():.2e}"
+        )
         if (~ok).any():
             bad = np.flatnonzero(~ok)
-            print(f"  not valid in {bad.size} groups (e.g. group {bad[0]}: statsmodels tau2 "
-                  f"{ref[bad[0], 1]:.4g}, ours {ours[bad[0], 1]:.4g})")
+            print(
+                f"  not valid in {bad.size} groups (e.g. group {bad[0]}: statsmodels tau2 "
+                f"{ref[bad[0], 1]:.4g}, ours {ours[bad[0], 1]:.4g})"
+            )
 
 
 def make_event_groups(n_groups: int, seed: int) -> pd.DataFrame:
@@ -147,20 +163,27 @@ def make_event_groups(n_groups: int, seed: int) -> pd.DataFrame:
     tau = rng.choice([0.0, 0.05, 0.15, 0.3], n_groups)
     u = rng.normal(0, 1, event.size) * tau[cell]
     v = rng.uniform(0.005, 0.3, n)
-    y = rng.normal(0, 0.4, n_groups)[est_cell] + u[est_event] + rng.normal(0, 1, n) * \
-        np.sqrt(v)
-    return pd.DataFrame({"group": est_cell, "event_id": est_event.astype(str), "y": y, "v": v,
-                         "estimate_uid": np.arange(n).astype(str)})
+    y = rng.normal(0, 0.4, n_groups)[est_cell] + u[est_event] + rng.normal(0, 1, n) * np.sqrt(v)
+    return pd.DataFrame(
+        {
+            "group": est_cell,
+            "event_id": est_event.astype(str),
+            "y": y,
+            "v": v,
+            "estimate_uid": np.arange(n).astype(str),
+        }
+    )
 
 
 def event_level(args) -> None:
     frame = make_event_groups(args.groups, args.seed)
-    print(f"\nevent-level routes: {args.groups} groups, {frame['event_id'].nunique()} events, "
-          f"{len(frame)} estimates (1-4 per event), best of {args.repeats}")
+    print(
+        f"\nevent-level routes: {args.groups} groups, {frame['event_id'].nunique()} events, "
+        f"{len(frame)} estimates (1-4 per event), best of {args.repeats}"
+    )
     t_ind = t_agg = t_pm = t_sm = float("inf")
     for _ in range(args.repeats):
-        t, _ = best_time(lambda: pool_event_level(frame, ["group"],
-                                                  within_event="independent"), 1)
+        t, _ = best_time(lambda: pool_event_level(frame, ["group"], within_event="independent"), 1)
         t_ind = min(t_ind, t)
         t, agg = best_time(lambda: pool_event_level(frame, ["group"]), 1)
         t_agg = min(t_agg, t)
@@ -177,14 +200,20 @@ def event_level(args) -> None:
     t_ml, _ = best_time(lambda: pool_event_level(sub, ["group"], within_event="multilevel"), 1)
     t_agg_sub, _ = best_time(lambda: pool_event_level(sub, ["group"]), 1)
     print(f"independent units, REML+HKSJ (baseline)       : {t_ind * 1e3:9.1f} ms")
-    print(f"event-level aggregate, REML+HKSJ              : {t_agg * 1e3:9.1f} ms  -> "
-          f"{t_agg / t_ind:5.2f}x the independent-units route (target <= 3x)")
+    print(
+        f"event-level aggregate, REML+HKSJ              : {t_agg * 1e3:9.1f} ms  -> "
+        f"{t_agg / t_ind:5.2f}x the independent-units route (target <= 3x)"
+    )
     print(f"event-level aggregate, PM+Wald                : {t_pm * 1e3:9.1f} ms")
-    print(f"statsmodels combine_effects(pm) loop, same rows: {t_sm * 1e3:9.1f} ms  -> "
-          f"event-level PM route {t_sm / t_pm:5.1f}x faster")
-    print(f"three-level REML+CR2 loop, 200 groups          : {t_ml * 1e3:9.1f} ms  -> "
-          f"{t_ml / t_agg_sub:5.1f}x the aggregate route on the same groups "
-          f"({t_ml / 200 * 1e3:.2f} ms per group)")
+    print(
+        f"statsmodels combine_effects(pm) loop, same rows: {t_sm * 1e3:9.1f} ms  -> "
+        f"event-level PM route {t_sm / t_pm:5.1f}x faster"
+    )
+    print(
+        f"three-level REML+CR2 loop, 200 groups          : {t_ml * 1e3:9.1f} ms  -> "
+        f"{t_ml / t_agg_sub:5.1f}x the aggregate route on the same groups "
+        f"({t_ml / 200 * 1e3:.2f} ms per group)"
+    )
     print(f"k_events == k in every group: {bool((agg.table['k'] == agg.table['k_events']).all())}")
 
 

@@ -39,8 +39,15 @@ def make_series(n: int, seed: int):
     out = []
     for _ in range(n):
         pop = rng.uniform(5e5, 5e6) * (1 + 0.0003 * t)
-        mu = pop * 2e-4 * np.exp(rng.normal(0, 0.002) * t - 0.1 * (t >= CUT)
-                                 + 0.15 * np.cos(2 * np.pi * (month - rng.integers(12)) / 12))
+        mu = (
+            pop
+            * 2e-4
+            * np.exp(
+                rng.normal(0, 0.002) * t
+                - 0.1 * (t >= CUT)
+                + 0.15 * np.cos(2 * np.pi * (month - rng.integers(12)) / 12)
+            )
+        )
         out.append((rng.poisson(mu).astype(float), pop))
     return out
 
@@ -48,10 +55,21 @@ def make_series(n: int, seed: int):
 def ours(series):
     results = []
     for y, d in series:
-        real = estimate_its(PERIODS, y, CHANGE, denominators=d, model="poisson",
-                            seasonal="fourier", hac_lag=4)
-        results.append(placebo_dates(PERIODS, y, CHANGE, denominators=d, model="poisson",
-                                     seasonal="fourier", hac_lag=4, real=real))
+        real = estimate_its(
+            PERIODS, y, CHANGE, denominators=d, model="poisson", seasonal="fourier", hac_lag=4
+        )
+        results.append(
+            placebo_dates(
+                PERIODS,
+                y,
+                CHANGE,
+                denominators=d,
+                model="poisson",
+                seasonal="fourier",
+                hac_lag=4,
+                real=real,
+            )
+        )
     return results
 
 
@@ -63,14 +81,14 @@ def baseline(series, labels):
     for y, d in series:
         x = design(tl_full, CUT, seasonal_terms(tl_full, "fourier")[0])
         sm.GLM(y, x, family=sm.families.Poisson(), offset=np.log(d)).fit(
-            cov_type="HAC", cov_kwds={"maxlags": 4, "use_correction": True})
+            cov_type="HAC", cov_kwds={"maxlags": 4, "use_correction": True}
+        )
         effects = []
         for c in cuts:
             xp = design(pre, c, seasonal_terms(pre, "fourier")[0])
-            r = sm.GLM(y[:CUT], xp, family=sm.families.Poisson(),
-                       offset=np.log(d[:CUT])).fit(cov_type="HAC",
-                                                   cov_kwds={"maxlags": 4,
-                                                             "use_correction": True})
+            r = sm.GLM(y[:CUT], xp, family=sm.families.Poisson(), offset=np.log(d[:CUT])).fit(
+                cov_type="HAC", cov_kwds={"maxlags": 4, "use_correction": True}
+            )
             effects.append(r.params[2])
         out.append(np.array(effects))
     return out
@@ -92,11 +110,12 @@ def main() -> None:
         t0 = time.perf_counter()
         ref = baseline(series[:nb], res[0].labels)
         t_base = (time.perf_counter() - t0) / nb
-    diff = max(float(np.max(np.abs(r.effects - e))) for r, e in zip(res[:nb], ref,
-                                                                       strict=True))
+    diff = max(float(np.max(np.abs(r.effects - e))) for r, e in zip(res[:nb], ref, strict=True))
     fits = len(res[0].effects) + 1
-    print(f"{len(series)} series x {N} monthly points, Poisson + Fourier + offset, "
-          f"{fits} fits per series (real date + {fits - 1} placebo dates)")
+    print(
+        f"{len(series)} series x {N} monthly points, Poisson + Fourier + offset, "
+        f"{fits} fits per series (real date + {fits - 1} placebo dates)"
+    )
     print(f"exposhift   : {t_ours * 1e3:8.1f} ms per series (placebo analysis)")
     print(f"statsmodels : {t_base * 1e3:8.1f} ms per series (plain GLM loop, first {nb} series)")
     print(f"ratio       : {t_base / t_ours:8.1f}x faster than the statsmodels loop")

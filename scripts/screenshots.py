@@ -27,12 +27,15 @@ PAGES = {
     "overview": ("", "Evidence at a glance"),
     "studies": ("studies", "Studies and appraisals"),
     "pooling": ("pooling", "Pooling"),
-    "pooling-by-family": ("pooling?exposure=vellium&outcome=child+respiratory+admissions",
-                          "Pooling"),
+    "pooling-by-family": (
+        "pooling?exposure=vellium&outcome=child+respiratory+admissions",
+        "Pooling",
+    ),
     "replication": ("replication", "Replication across place and time"),
     "replication-reversal": (
         "replication?exposure=corvane&outcome=asthma+emergency+visits",
-        "Replication across place and time"),
+        "Replication across place and time",
+    ),
     "replication-europe": ("replication", "Replication across place and time"),
     "gaps": ("gaps", "Gap map"),
 }
@@ -54,15 +57,17 @@ def exposhift_exe() -> str:
 def start_dashboard(db: str, port: int, log_path: Path) -> subprocess.Popen:
     """``exposhift dashboard`` in a subprocess; returns once the server answers."""
     log = open(log_path, "wb")  # noqa: SIM115 - closed by the caller through the process
-    proc = subprocess.Popen([exposhift_exe(), "dashboard", "--db", db, "--port", str(port)],
-                            stdout=log, stderr=subprocess.STDOUT)
+    proc = subprocess.Popen(
+        [exposhift_exe(), "dashboard", "--db", db, "--port", str(port)],
+        stdout=log,
+        stderr=subprocess.STDOUT,
+    )
     deadline = time.monotonic() + 60
     while time.monotonic() < deadline:
         if proc.poll() is not None:
             raise RuntimeError(f"dashboard exited with {proc.returncode}; see {log_path}")
         try:
-            with urllib.request.urlopen(f"http://127.0.0.1:{port}/_stcore/health",
-                                        timeout=2) as r:
+            with urllib.request.urlopen(f"http://127.0.0.1:{port}/_stcore/health", timeout=2) as r:
                 if r.status == 200:
                     return proc
         except OSError:
@@ -83,8 +88,12 @@ def stop(proc: subprocess.Popen) -> None:
 def offline_page(browser, port: int, blocked: list[str], width: int = 1400):
     """A page whose requests to anything but the local server are aborted and recorded."""
     page = browser.new_page(viewport={"width": width, "height": 1000})
-    local = (f"http://127.0.0.1:{port}", f"ws://127.0.0.1:{port}",
-             f"http://localhost:{port}", f"ws://localhost:{port}")
+    local = (
+        f"http://127.0.0.1:{port}",
+        f"ws://127.0.0.1:{port}",
+        f"http://localhost:{port}",
+        f"ws://localhost:{port}",
+    )
 
     def route(r):
         url = r.request.url
@@ -102,19 +111,22 @@ def wait_rendered(page, heading: str, timeout: float = 60_000) -> None:
     """Wait for the page heading, for Streamlit to finish running, and for charts to draw."""
     page.get_by_role("heading", name=heading).first.wait_for(timeout=timeout)
     page.wait_for_function(
-        "() => !document.querySelector('[data-testid=\"stStatusWidget\"]')", timeout=timeout)
+        "() => !document.querySelector('[data-testid=\"stStatusWidget\"]')", timeout=timeout
+    )
     page.wait_for_timeout(1500)
     page.wait_for_function(
-        "() => !document.querySelector('[data-testid=\"stStatusWidget\"]')", timeout=timeout)
+        "() => !document.querySelector('[data-testid=\"stStatusWidget\"]')", timeout=timeout
+    )
 
 
 def full_height(page) -> None:
     """Grow the viewport to the page's content (Streamlit scrolls inside its own container, so
     a full-page screenshot alone would stop at the window) and let charts redraw."""
     height = page.evaluate(
-        "() => Math.max(...[...document.querySelectorAll('[data-testid=\"stMain\"], "
-        "[data-testid=\"stMainBlockContainer\"], section.main, .main')]"
-        ".map(e => e.scrollHeight), document.body.scrollHeight)")
+        '() => Math.max(...[...document.querySelectorAll(\'[data-testid="stMain"], '
+        '[data-testid="stMainBlockContainer"], section.main, .main\')]'
+        ".map(e => e.scrollHeight), document.body.scrollHeight)"
+    )
     page.set_viewport_size({"width": page.viewport_size["width"], "height": int(height) + 40})
     page.wait_for_timeout(1200)
 
@@ -162,8 +174,9 @@ def main() -> int:
         db = args.db
         if db is None:
             db = os.path.join(tmp, "demo.db")
-            subprocess.run([exposhift_exe(), "demo", "--db", db], check=True,
-                           stdout=subprocess.DEVNULL)
+            subprocess.run(
+                [exposhift_exe(), "demo", "--db", db], check=True, stdout=subprocess.DEVNULL
+            )
         files, blocked, errors = shoot(db, Path(args.out), args.width)
     for f in files:
         print(f)

@@ -37,8 +37,7 @@ def pg_session_url() -> Iterator[str]:
     dropped at the end), so that concurrent test sessions never share a schema."""
     base = make_url(PG_URL)
     name = f"{base.database}_{os.getpid()}"
-    admin = create_engine(base, isolation_level="AUTOCOMMIT",
-                          connect_args={"connect_timeout": 5})
+    admin = create_engine(base, isolation_level="AUTOCOMMIT", connect_args={"connect_timeout": 5})
     try:
         with admin.connect() as conn:
             conn.execute(text(f'DROP DATABASE IF EXISTS "{name}"'))

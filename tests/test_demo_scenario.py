@@ -50,13 +50,28 @@ from exposhift.vocab import (
 SEED_DIR = Path(__file__).resolve().parents[1] / "seed_records"
 
 # the rubric domain keys as the appraisal issue names them (not read from the demo module)
-DOMAINS = ("origin", "counterfactual", "design_checks", "falsification", "timing",
-           "concurrent_changes", "exposure_shift", "outcome_data", "inference", "transparency",
-           "applicability")
+DOMAINS = (
+    "origin",
+    "counterfactual",
+    "design_checks",
+    "falsification",
+    "timing",
+    "concurrent_changes",
+    "exposure_shift",
+    "outcome_data",
+    "inference",
+    "transparency",
+    "applicability",
+)
 CORE = ("origin", "counterfactual", "design_checks", "concurrent_changes")
 RATIO = ("RR", "OR", "HR", "IRR")
-FALSIFICATION = {"placebo-date", "placebo-place", "negative-control-outcome",
-                 "negative-control-exposure", "in-space-placebo"}
+FALSIFICATION = {
+    "placebo-date",
+    "placebo-place",
+    "negative-control-outcome",
+    "negative-control-exposure",
+    "in-space-placebo",
+}
 
 
 @pytest.fixture(scope="module")
@@ -101,15 +116,17 @@ def blank(value) -> bool:
 
 # ---------------------------------------------------------------- shape and import validation
 
+
 def test_frames_have_the_sheet_columns_in_order(scenario):
     # every sheet column except the optional same_population_as (no demo study declares one)
-    assert list(scenario["estimates"].columns) == [c for c in COLUMN_NAMES
-                                                   if c != "same_population_as"]
+    assert list(scenario["estimates"].columns) == [
+        c for c in COLUMN_NAMES if c != "same_population_as"
+    ]
     assert list(scenario["events"].columns) == [*EVENT_COLUMNS, "demo"]
     cols = list(scenario["appraisals"].columns)
     assert cols[:3] == ["study_id", "reviewer", "stage"]
-    assert cols[3:3 + len(DOMAINS)] == list(DOMAINS)
-    assert set(cols[3 + len(DOMAINS):]) <= {f"{d}_why" for d in DOMAINS}
+    assert cols[3 : 3 + len(DOMAINS)] == list(DOMAINS)
+    assert set(cols[3 + len(DOMAINS) :]) <= {f"{d}_why" for d in DOMAINS}
 
 
 def test_every_row_is_flagged_demo(scenario):
@@ -200,8 +217,7 @@ def test_study_and_event_fields_agree_on_every_row(scenario):
 
 
 def test_estimate_keys_unique(est):
-    key = ["study_id", "event_id", "outcome", "measure", "estimate_kind", "subgroup",
-           "time_window"]
+    key = ["study_id", "event_id", "outcome", "measure", "estimate_kind", "subgroup", "time_window"]
     assert not est[key].fillna("").duplicated().any()
 
 
@@ -211,6 +227,7 @@ def test_citations_name_obviously_invented_journals(est):
 
 
 # ---------------------------------------------------------------- richness
+
 
 def test_counts(scenario, est):
     assert est["study_id"].nunique() >= 40
@@ -239,16 +256,19 @@ def test_uncertainty_and_estimate_forms_are_mixed(est):
 def test_events_analysed_by_two_studies_including_a_same_unit_pair(est):
     per_event = est.groupby("event_id")["study_id"].nunique()
     assert (per_event >= 2).sum() >= 3
-    units = est.drop_duplicates(["study_id", "event_id"]).groupby(
-        ["event_id", "population", "data_source"])["study_id"].nunique()
+    units = (
+        est.drop_duplicates(["study_id", "event_id"])
+        .groupby(["event_id", "population", "data_source"])["study_id"]
+        .nunique()
+    )
     assert (units >= 2).any()  # the second study must be counted once later
 
 
 def test_ban_family_spans_six_countries_and_25_years(est):
     bans = est[est["change_kind"] == "ban"].drop_duplicates("event_id")
     best = bans.groupby("exposure").agg(
-        n=("country", "nunique"),
-        span=("change_date", lambda d: int(max(d)[:4]) - int(min(d)[:4])))
+        n=("country", "nunique"), span=("change_date", lambda d: int(max(d)[:4]) - int(min(d)[:4]))
+    )
     assert ((best["n"] >= 6) & (best["span"] >= 25)).any()
 
 
@@ -276,6 +296,7 @@ def test_design_facts_for_appraisal_suggestions(est):
 
 # ---------------------------------------------------------------- numbers behave as claimed
 
+
 def test_noise_matches_the_reported_standard_errors(est):
     """Standardised residuals (reported - true) / SE should look standard normal
     (Kolmogorov-Smirnov test from scipy)."""
@@ -302,8 +323,9 @@ def test_reported_forms_agree_with_the_se(est):
             if not blank(r.ci_low):
                 level = 0.95 if blank(r.ci_level) else r.ci_level
                 zc = stats.norm.ppf(1 - (1 - level) / 2)
-                se = (analysis_value(r.measure, r.ci_high)
-                      - analysis_value(r.measure, r.ci_low)) / (2 * zc)
+                se = (
+                    analysis_value(r.measure, r.ci_high) - analysis_value(r.measure, r.ci_low)
+                ) / (2 * zc)
                 assert se == pytest.approx(e.se, rel=0.25), study.study_id
             if not blank(r.p_value) and blank(r.ci_low):
                 se = abs(b) / stats.norm.isf(r.p_value / 2)
@@ -321,22 +343,24 @@ def _one_per_event(frame: pd.DataFrame, levels: dict[str, int]) -> pd.DataFrame:
 
 def test_ban_heterogeneity_is_real_but_moderate(est, levels):
     """Paule-Mandel tau^2 and I^2 from statsmodels on one estimate per dravonil ban."""
-    f = _one_per_event(est[(est["exposure"] == "dravonil")
-                           & (est["outcome"] == "preterm birth")], levels)
+    f = _one_per_event(
+        est[(est["exposure"] == "dravonil") & (est["outcome"] == "preterm birth")], levels
+    )
     assert len(f) >= 6
     y, v = [], []
     for r in f.itertuples():
         b = analysis_value(r.measure, r.estimate)
         if not blank(r.ci_low):
             level = 0.95 if blank(r.ci_level) else r.ci_level
-            se = (math.log(r.ci_high) - math.log(r.ci_low)) / (2 * stats.norm.ppf(
-                1 - (1 - level) / 2))
+            se = (math.log(r.ci_high) - math.log(r.ci_low)) / (
+                2 * stats.norm.ppf(1 - (1 - level) / 2)
+            )
         elif not blank(r.se):
             se = r.se
         else:
             se = abs(b) / stats.norm.isf(r.p_value / 2)
         y.append(b)
-        v.append(se ** 2)
+        v.append(se**2)
     res = combine_effects(np.array(y), np.array(v), method_re="pm")
     assert -0.25 < res.mean_effect_re < -0.08
     assert 0 < math.sqrt(res.tau2) < 0.15
@@ -344,6 +368,7 @@ def test_ban_heterogeneity_is_real_but_moderate(est, levels):
 
 
 # ---------------------------------------------------------------- appraisals
+
 
 def test_appraisal_levels_and_keys(scenario, appr):
     for d in DOMAINS:
@@ -401,9 +426,13 @@ def test_departures_from_the_rubric_suggestions_are_justified(est, appr):
     n_suggested = 0
     for _, row in appr.iterrows():
         s = studies.loc[row["study_id"]]
-        facts = facts_from_record(s["design"], s["pre_points"], s["post_points"],
-                                  checks=s["checks"] if s["checks"] is not None else "",
-                                  assignment_grade=s["assignment_grade"])
+        facts = facts_from_record(
+            s["design"],
+            s["pre_points"],
+            s["post_points"],
+            checks=s["checks"] if s["checks"] is not None else "",
+            assignment_grade=s["assignment_grade"],
+        )
         for domain, suggestion in suggest_levels(facts).items():
             n_suggested += 1
             if not suggestion.allows(int(row[domain])):
@@ -421,6 +450,7 @@ def test_fixed_ratings_carry_their_reason(appr):
 
 # ---------------------------------------------------------------- what the demo should show
 
+
 def _aligned(r) -> float:
     """Effect on the analysis scale, positive when it points the expected way for a harmful
     exposure (outcome down when exposure falls, up when it rises)."""
@@ -433,8 +463,9 @@ def _places_and_times(cell: pd.DataFrame, levels: dict[str, int]):
     good = good[good["level"] >= 2]
     concordant = all(_aligned(r) > 0 for r in good.itertuples())
     places = good["country"].nunique()
-    times = max((g["change_date"].nunique() for _, g in good.groupby(["family", "country"])),
-                default=0)
+    times = max(
+        (g["change_date"].nunique() for _, g in good.groupby(["family", "country"])), default=0
+    )
     families = {DESIGNS[d][0] for d in good["design"]}
     return concordant, places, times, families
 
@@ -467,6 +498,7 @@ def test_demo_has_every_status_the_replication_issue_asks_for():
 
 # ---------------------------------------------------------------- stability
 
+
 def test_deterministic(scenario):
     again = demo_scenario.build_scenario()
     for key, frame in scenario.items():
@@ -487,8 +519,17 @@ def test_committed_csv_reads_back_to_the_same_numbers(scenario):
     """The stable float format loses nothing: pandas reads the committed file back exactly."""
     back = pd.read_csv(SEED_DIR / demo_scenario.FILES["estimates"], encoding="utf-8")
     frame = scenario["estimates"]
-    for col in ("estimate", "ci_low", "ci_high", "ci_level", "se", "p_value", "per_unit",
-                "baseline_risk", "change_size"):
+    for col in (
+        "estimate",
+        "ci_low",
+        "ci_high",
+        "ci_level",
+        "se",
+        "p_value",
+        "per_unit",
+        "baseline_risk",
+        "change_size",
+    ):
         np.testing.assert_array_equal(back[col].to_numpy(float), frame[col].to_numpy(float))
     assert list(back["study_id"]) == list(frame["study_id"])
 

@@ -99,13 +99,17 @@ def shapes(topo: dict) -> dict:
         polys = _polygons(geom, arcs)
         if not polys:
             continue
-        coords = [[[[round(x, 2), round(y, 2)] for x, y in ring] for ring in poly]
-                  for poly in polys]
-        features.append({
-            "type": "Feature", "id": _alpha3(geom),
-            "properties": {"name": geom.get("properties", {}).get("name", "")},
-            "geometry": {"type": "MultiPolygon", "coordinates": coords},
-        })
+        coords = [
+            [[[round(x, 2), round(y, 2)] for x, y in ring] for ring in poly] for poly in polys
+        ]
+        features.append(
+            {
+                "type": "Feature",
+                "id": _alpha3(geom),
+                "properties": {"name": geom.get("properties", {}).get("name", "")},
+                "geometry": {"type": "MultiPolygon", "coordinates": coords},
+            }
+        )
     return {"type": "FeatureCollection", "features": features}
 
 
@@ -141,7 +145,8 @@ def interior_point(poly) -> tuple[float, float]:
             x0 + (x1 - x0) * (y - y0) / (y1 - y0)
             for ring in poly
             for (x0, y0), (x1, y1) in zip(ring, ring[1:] + ring[:1], strict=True)
-            if (y0 > y) != (y1 > y))
+            if (y0 > y) != (y1 > y)
+        )
         for a, b in zip(xs[::2], xs[1::2], strict=False):
             if b - a > best and _in_polygon((a + b) / 2, y, poly):
                 best, point = b - a, ((a + b) / 2, y)
@@ -189,12 +194,11 @@ def main(package_dir: str) -> None:
     src = Path(package_dir)
     small = json.loads((src / "countries-110m.json").read_text())
     medium = json.loads((src / "countries-50m.json").read_text())
-    (HERE / "countries-110m.geojson").write_text(
-        json.dumps(shapes(small), separators=(",", ":")))
-    (HERE / "world_110m.json").write_text(
-        json.dumps(plotly_topology(small), separators=(",", ":")))
+    (HERE / "countries-110m.geojson").write_text(json.dumps(shapes(small), separators=(",", ":")))
+    (HERE / "world_110m.json").write_text(json.dumps(plotly_topology(small), separators=(",", ":")))
     (HERE / "country_points.json").write_text(
-        json.dumps(points(medium, prefer=largest_polygons(small)), separators=(",", ":")))
+        json.dumps(points(medium, prefer=largest_polygons(small)), separators=(",", ":"))
+    )
 
 
 if __name__ == "__main__":

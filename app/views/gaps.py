@@ -29,25 +29,40 @@ with st.expander("Filters", expanded=True):
     f1, f2, f3 = st.columns(3)
     families = f1.multiselect("Design families", list(DESIGN_FAMILIES), key="gap_families")
     regions = f2.multiselect("Regions", sorted(settings.regions), key="gap_regions")
-    countries = f3.multiselect("Countries", summary.countries, key="gap_countries",
-                               format_func=lambda c: f"{charts.country_name(c)} ({c})")
+    countries = f3.multiselect(
+        "Countries",
+        summary.countries,
+        key="gap_countries",
+        format_func=lambda c: f"{charts.country_name(c)} ({c})",
+    )
     f4, f5, f6 = st.columns(3)
     years = f4.slider("Exposure changes between", lo, hi, (lo, hi), key="gap_years")
     level_opts = {"any level": None, "≥ 1": 1, "≥ 2": 2, "3": 3}
-    min_level = level_opts[f5.selectbox("Appraisal level of record", list(level_opts),
-                                        key="gap_level")]
+    min_level = level_opts[
+        f5.selectbox("Appraisal level of record", list(level_opts), key="gap_level")
+    ]
     stale_on = f6.checkbox("Mark cells stale when no change after a year", key="gap_stale_on")
-    stale_after = (f6.number_input("Year", lo, hi + 20, hi - 5 if hi - 5 > lo else lo,
-                                   key="gap_stale") if stale_on else None)
-    studied_only = st.toggle("Only exposure × outcome groups with some study",
-                             key="gap_studied")
+    stale_after = (
+        f6.number_input("Year", lo, hi + 20, hi - 5 if hi - 5 > lo else lo, key="gap_stale")
+        if stale_on
+        else None
+    )
+    studied_only = st.toggle("Only exposure × outcome groups with some study", key="gap_studied")
 
 year_from = years[0] if years[0] > lo else None
 year_to = years[1] if years[1] < hi else None
 with ui.guard():
-    report = data.gaps(db, tuple(families), tuple(regions), tuple(countries), year_from,
-                       year_to, min_level, None if stale_after is None else int(stale_after),
-                       studied_only)
+    report = data.gaps(
+        db,
+        tuple(families),
+        tuple(regions),
+        tuple(countries),
+        year_from,
+        year_to,
+        min_level,
+        None if stale_after is None else int(stale_after),
+        studied_only,
+    )
 cells = report.cells
 
 # 2. the map ---------------------------------------------------------------------------------
@@ -56,12 +71,19 @@ cols = st.columns(len(GAP_STATES))
 for col, state in zip(cols, GAP_STATES, strict=True):
     col.metric(state, int(counts.get(state, 0)), help=GAP_STATES[state])
 st.plotly_chart(charts.gap_heatmap(cells), config=charts.PLOTLY_CONFIG, key="gap_heatmap")
-st.caption("Cells: independent events (ev) and studies (st). States: "
-           + "; ".join(f"**{k}**: {v}" for k, v in GAP_STATES.items()) + ".")
+st.caption(
+    "Cells: independent events (ev) and studies (st). States: "
+    + "; ".join(f"**{k}**: {v}" for k, v in GAP_STATES.items())
+    + "."
+)
 
 with st.expander("Cells as a table"):
-    st.dataframe(cells.assign(best_level=cells["best_level"].map(ui.level_text)),
-                 hide_index=True, width="stretch", key="gap_cells")
+    st.dataframe(
+        cells.assign(best_level=cells["best_level"].map(ui.level_text)),
+        hide_index=True,
+        width="stretch",
+        key="gap_cells",
+    )
 
 # 3. opportunities ---------------------------------------------------------------------------
 opps = report.opportunities
@@ -72,22 +94,42 @@ else:
     shown = opps.assign(
         country=opps["country"].map(lambda c: f"{charts.country_name(c)} ({c})"),
         area=opps["area"].fillna(""),
-        change=opps["change_kind"].astype(str) + ", " + opps["change_direction"].astype(str))
-    cols = ["event_id", "exposure", "country", "area", "change_date", "change", "family",
-            "family_events_evaluated", "outcomes_studied_elsewhere", "designs_used_elsewhere",
-            "needs"]
-    st.dataframe(pd.DataFrame(shown[cols]), hide_index=True, width="stretch", key="gap_opps",
-                 column_config={
-                     "event_id": "event", "change_date": "date",
-                     "family_events_evaluated": st.column_config.NumberColumn(
-                         "events of the family evaluated"),
-                     "outcomes_studied_elsewhere": "outcomes studied elsewhere",
-                     "designs_used_elsewhere": "designs used elsewhere",
-                     "needs": st.column_config.TextColumn("an evaluation needs",
-                                                          width="large")})
+        change=opps["change_kind"].astype(str) + ", " + opps["change_direction"].astype(str),
+    )
+    cols = [
+        "event_id",
+        "exposure",
+        "country",
+        "area",
+        "change_date",
+        "change",
+        "family",
+        "family_events_evaluated",
+        "outcomes_studied_elsewhere",
+        "designs_used_elsewhere",
+        "needs",
+    ]
+    st.dataframe(
+        pd.DataFrame(shown[cols]),
+        hide_index=True,
+        width="stretch",
+        key="gap_opps",
+        column_config={
+            "event_id": "event",
+            "change_date": "date",
+            "family_events_evaluated": st.column_config.NumberColumn(
+                "events of the family evaluated"
+            ),
+            "outcomes_studied_elsewhere": "outcomes studied elsewhere",
+            "designs_used_elsewhere": "designs used elsewhere",
+            "needs": st.column_config.TextColumn("an evaluation needs", width="large"),
+        },
+    )
     with st.expander("What each evaluation would need"):
         for _, o in opps.iterrows():
-            st.markdown(f"- **{o['event_id']}** ({o['exposure']}, "
-                        f"{charts.country_name(o['country'])}, {o['change_date']}): "
-                        f"{o['needs']}")
+            st.markdown(
+                f"- **{o['event_id']}** ({o['exposure']}, "
+                f"{charts.country_name(o['country'])}, {o['change_date']}): "
+                f"{o['needs']}"
+            )
 st.caption(report.caution)

@@ -14,40 +14,56 @@ with ui.guard():
 
 # 2. heading, demo notice, caution -----------------------------------------------------------
 st.title("Evidence at a glance")
-st.caption("Natural-experiment studies of environmental exposures: bans, closures, accidents, "
-           "new standards, and what followed.")
+st.caption(
+    "Natural-experiment studies of environmental exposures: bans, closures, accidents, "
+    "new standards, and what followed."
+)
 ui.demo_notice(summary)
 
 # 3. counts ----------------------------------------------------------------------------------
 c = summary.counts
 cols = st.columns(5)
 cols[0].metric("Studies", c.get("studies", 0))
-cols[1].metric("Events", c.get("events", 0),
-               help="Registered exposure changes (bans, closures, standards...); "
-                    f"{summary.events_without_study} have no study yet")
+cols[1].metric(
+    "Events",
+    c.get("events", 0),
+    help="Registered exposure changes (bans, closures, standards...); "
+    f"{summary.events_without_study} have no study yet",
+)
 cols[2].metric("Estimates", c.get("estimates", 0))
 cols[3].metric("Appraisals", c.get("appraisals", 0))
 cols[4].metric("Countries", len(summary.countries))
 if summary.first_year is not None:
     st.markdown(f"Exposure changes dated **{summary.first_year}** to **{summary.last_year}**.")
 if summary.events_without_study:
-    st.markdown(f"**{summary.events_without_study}** registered exposure changes have never "
-                "been evaluated: see the **Gap map** for these opportunities.")
+    st.markdown(
+        f"**{summary.events_without_study}** registered exposure changes have never "
+        "been evaluated: see the **Gap map** for these opportunities."
+    )
 
 # 4. what has been studied -------------------------------------------------------------------
 left, right = st.columns([3, 2])
 with left:
     st.subheader("Studies per exposure and outcome")
-    st.plotly_chart(charts.pair_bars(summary.pairs), config=charts.PLOTLY_CONFIG,
-                    key="overview_pairs")
+    st.plotly_chart(
+        charts.pair_bars(summary.pairs), config=charts.PLOTLY_CONFIG, key="overview_pairs"
+    )
 with right:
     st.subheader("Designs and appraisals")
-    st.plotly_chart(charts.count_bars(summary.by_design_family, "design_family", "studies",
-                                      "studies per design family"),
-                    config=charts.PLOTLY_CONFIG, key="overview_families")
-    st.plotly_chart(charts.count_bars(summary.by_level, "level", "studies",
-                                      "studies per appraisal level of record"),
-                    config=charts.PLOTLY_CONFIG, key="overview_levels")
+    st.plotly_chart(
+        charts.count_bars(
+            summary.by_design_family, "design_family", "studies", "studies per design family"
+        ),
+        config=charts.PLOTLY_CONFIG,
+        key="overview_families",
+    )
+    st.plotly_chart(
+        charts.count_bars(
+            summary.by_level, "level", "studies", "studies per appraisal level of record"
+        ),
+        config=charts.PLOTLY_CONFIG,
+        key="overview_levels",
+    )
 
 # 5. what the evidence says, with the caution ------------------------------------------------
 st.subheader("Replication status and pooled effect per exposure and outcome")
@@ -55,19 +71,27 @@ ui.caution()
 with ui.guard():
     findings = data.findings(db)
 st.dataframe(
-    findings, hide_index=True, width="stretch", key="overview_findings",
+    findings,
+    hide_index=True,
+    width="stretch",
+    key="overview_findings",
     column_config={
         "events": st.column_config.NumberColumn("independent events"),
         "stratum": st.column_config.TextColumn(
-            "largest stratum pooled", help="measure group / estimate kind (and increment) "
-            "with the most independent estimates; see Pooling for every stratum"),
+            "largest stratum pooled",
+            help="measure group / estimate kind (and increment) "
+            "with the most independent estimates; see Pooling for every stratum",
+        ),
         "k": st.column_config.NumberColumn("k"),
         "estimate": st.column_config.NumberColumn("pooled", format="%.3f"),
         "ci_lower": st.column_config.NumberColumn("CI low", format="%.3f"),
         "ci_upper": st.column_config.NumberColumn("CI high", format="%.3f"),
         "tau2": st.column_config.NumberColumn("τ²", format="%.4f"),
         "i2": st.column_config.NumberColumn("I²", format="percent"),
-    })
-st.caption("Ratios are shown back-transformed (scale 'log'); effects of an exposure increase; "
-           "REML τ² with the HKSJ interval. Open Pooling and Replication for the details.")
+    },
+)
+st.caption(
+    "Ratios are shown back-transformed (scale 'log'); effects of an exposure increase; "
+    "REML τ² with the HKSJ interval. Open Pooling and Replication for the details."
+)
 st.caption(f"Evidence base `{summary.url}` ({summary.backend}).")

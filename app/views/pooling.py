@@ -8,10 +8,16 @@ import ui
 
 import data
 
-METHODS = {"reml": "REML", "dl": "DerSimonian–Laird", "pm": "Paule–Mandel",
-           "fe": "fixed effect (inverse variance)"}
-CIS = {"hksj": "Hartung–Knapp–Sidik–Jonkman (t, events − 1 df, scale floored at 1)",
-       "wald": "Wald (z)"}
+METHODS = {
+    "reml": "REML",
+    "dl": "DerSimonian–Laird",
+    "pm": "Paule–Mandel",
+    "fe": "fixed effect (inverse variance)",
+}
+CIS = {
+    "hksj": "Hartung–Knapp–Sidik–Jonkman (t, events − 1 df, scale floored at 1)",
+    "wald": "Wald (z)",
+}
 STRATA = ["design-family", "level", "design", "country", "outcome-group"]
 
 db = data.db_target()
@@ -30,23 +36,31 @@ if pairs.empty:
 
 c1, c2 = st.columns(2)
 with c1:
-    exposure = ui.pick("Exposure", sorted(pairs["exposure"].unique()), key="pool_exposure",
-                       param="exposure", default=str(pairs["exposure"].iloc[0]))
+    exposure = ui.pick(
+        "Exposure",
+        sorted(pairs["exposure"].unique()),
+        key="pool_exposure",
+        param="exposure",
+        default=str(pairs["exposure"].iloc[0]),
+    )
 with c2:
     outcomes = pairs.loc[pairs["exposure"] == exposure, "outcome"].tolist()
     outcome = ui.pick("Outcome", outcomes, key="pool_outcome", param="outcome")
 c3, c4, c5, c6 = st.columns([1, 1.3, 1.5, 1])
-method = c3.selectbox("τ² estimator", list(METHODS), format_func=METHODS.get,
-                      key="pool_method")
+method = c3.selectbox("τ² estimator", list(METHODS), format_func=METHODS.get, key="pool_method")
 ci = c4.selectbox("Interval", list(CIS), format_func=CIS.get, key="pool_ci")
-by = c5.multiselect("Stratify by", STRATA, key="pool_by",
-                    help="Estimates are always kept apart by measure group, estimate kind and "
-                         "exposure increment; add strata here. Pooling within design family "
-                         "is the primary analysis; across families it is secondary.")
-align = c6.selectbox("Express effects for an exposure", ["increase", "decrease"],
-                     key="pool_align")
-include_fatal = st.checkbox("Keep studies appraised fatal overall (left out by default)",
-                            key="pool_fatal")
+by = c5.multiselect(
+    "Stratify by",
+    STRATA,
+    key="pool_by",
+    help="Estimates are always kept apart by measure group, estimate kind and "
+    "exposure increment; add strata here. Pooling within design family "
+    "is the primary analysis; across families it is secondary.",
+)
+align = c6.selectbox("Express effects for an exposure", ["increase", "decrease"], key="pool_align")
+include_fatal = st.checkbox(
+    "Keep studies appraised fatal overall (left out by default)", key="pool_fatal"
+)
 
 with ui.guard():
     view = data.pool(db, exposure, outcome, method, ci, tuple(by), include_fatal, align)
@@ -54,48 +68,81 @@ out = view.output
 
 # 2. forest plot -----------------------------------------------------------------------------
 st.subheader(f"{exposure} → {outcome}")
-st.caption(f"Effects of an exposure {align}; {METHODS[method]} τ², {CIS[ci]} interval. "
-           "Squares: one exposure-change event each (several estimates of one event combined "
-           "into one number; size = weight); diamond: pooled estimate and its interval; "
-           "dashed line: 95% prediction interval (3 or more events).")
+st.caption(
+    f"Effects of an exposure {align}; {METHODS[method]} τ², {CIS[ci]} interval. "
+    "Squares: one exposure-change event each (several estimates of one event combined "
+    "into one number; size = weight); diamond: pooled estimate and its interval; "
+    "dashed line: 95% prediction interval (3 or more events)."
+)
 if not out.groups:
     st.info("Nothing left to pool after leaving out the estimates below.")
 else:
-    st.plotly_chart(charts.forest_plot(view.rows, out.groups), config=charts.PLOTLY_CONFIG,
-                    key="pool_forest")
+    st.plotly_chart(
+        charts.forest_plot(view.rows, out.groups), config=charts.PLOTLY_CONFIG, key="pool_forest"
+    )
 
-# 3. pooled results table --------------------------------------------------------------------
+    # 3. pooled results table --------------------------------------------------------------------
     def back(g, f):
         bt = g.get("back_transformed")
         return g[f] if bt is None else bt[f]
 
-    table = pd.DataFrame([{
-        "stratum": label, "events": g["k_events"], "estimates": g["k_estimates"],
-        "measure": g["measure"],
-        "pooled": back(g, "estimate"), "CI low": back(g, "ci_lower"),
-        "CI high": back(g, "ci_upper"), "PI low": back(g, "pi_lower"),
-        "PI high": back(g, "pi_upper"), "τ²": g["tau2"], "I²": g["i2"], "Q": g["q"],
-        "Q p": g["q_pvalue"], "signs flipped": g["sign_flipped"]}
-        for label, g in zip(view.rows.groupby("group")["group_label"].first(), out.groups,
-                            strict=True)])
-    st.dataframe(table, hide_index=True, width="stretch", key="pool_table",
-                 column_config={c: st.column_config.NumberColumn(format="%.3f")
-                                for c in ("pooled", "CI low", "CI high", "PI low", "PI high",
-                                          "τ²", "Q", "Q p")}
-                 | {"I²": st.column_config.NumberColumn(format="percent")})
-    st.caption(f"Evidence set: {out.evidence_set}. Ratio measures are shown as ratios "
-               "(back-transformed from the log scale). τ², I² and Q are on the analysis scale "
-               "and count events. A prediction interval needs 3 or more events; with 2 events "
-               "the t interval has 1 degree of freedom and is very wide.")
+    table = pd.DataFrame(
+        [
+            {
+                "stratum": label,
+                "events": g["k_events"],
+                "estimates": g["k_estimates"],
+                "measure": g["measure"],
+                "pooled": back(g, "estimate"),
+                "CI low": back(g, "ci_lower"),
+                "CI high": back(g, "ci_upper"),
+                "PI low": back(g, "pi_lower"),
+                "PI high": back(g, "pi_upper"),
+                "τ²": g["tau2"],
+                "I²": g["i2"],
+                "Q": g["q"],
+                "Q p": g["q_pvalue"],
+                "signs flipped": g["sign_flipped"],
+            }
+            for label, g in zip(
+                view.rows.groupby("group")["group_label"].first(), out.groups, strict=True
+            )
+        ]
+    )
+    st.dataframe(
+        table,
+        hide_index=True,
+        width="stretch",
+        key="pool_table",
+        column_config={
+            c: st.column_config.NumberColumn(format="%.3f")
+            for c in ("pooled", "CI low", "CI high", "PI low", "PI high", "τ²", "Q", "Q p")
+        }
+        | {"I²": st.column_config.NumberColumn(format="percent")},
+    )
+    st.caption(
+        f"Evidence set: {out.evidence_set}. Ratio measures are shown as ratios "
+        "(back-transformed from the log scale). τ², I² and Q are on the analysis scale "
+        "and count events. A prediction interval needs 3 or more events; with 2 events "
+        "the t interval has 1 degree of freedom and is very wide."
+    )
 
 # 4. estimates left out ----------------------------------------------------------------------
 st.subheader(f"Estimates left out ({len(out.excluded)})")
 if out.excluded:
     left_out = pd.DataFrame(out.excluded)[["study_id", "event_id", "reason", "estimate_uid"]]
-    st.dataframe(left_out, hide_index=True, width="stretch", key="pool_excluded",
-                 column_config={"estimate_uid": "estimate", "study_id": "study",
-                                "event_id": "event", "reason": st.column_config.TextColumn(
-                                    "reason", width="large")})
+    st.dataframe(
+        left_out,
+        hide_index=True,
+        width="stretch",
+        key="pool_excluded",
+        column_config={
+            "estimate_uid": "estimate",
+            "study_id": "study",
+            "event_id": "event",
+            "reason": st.column_config.TextColumn("reason", width="large"),
+        },
+    )
     with st.expander("Reasons in full"):
         for r in out.excluded:
             st.markdown(f"- **{r['study_id']}**, event {r['event_id']}: {r['reason']}")

@@ -19,7 +19,8 @@ st.title("Studies and appraisals")
 ui.demo_notice(summary)
 
 tab_studies, tab_events, tab_agreement = st.tabs(
-    ["Studies", "Exposure-change events", "Reviewer agreement"])
+    ["Studies", "Exposure-change events", "Reviewer agreement"]
+)
 
 # 2. study list with filters -----------------------------------------------------------------
 with tab_studies:
@@ -28,8 +29,9 @@ with tab_studies:
     families = sorted(studies["design_family"].dropna().unique())
     exp_pick = f1.multiselect("Exposure", exposures, key="studies_exposure")
     fam_pick = f2.multiselect("Design family", families, key="studies_family")
-    lvl_pick = f3.multiselect("Level of record", ["0", "1", "2", "3", "not appraised"],
-                              key="studies_level")
+    lvl_pick = f3.multiselect(
+        "Level of record", ["0", "1", "2", "3", "not appraised"], key="studies_level"
+    )
     text = f4.text_input("Search citation, study, country or outcome", key="studies_search")
     shown = studies.assign(level=studies["level"].map(ui.level_text))
     mask = pd.Series(True, index=shown.index)
@@ -45,15 +47,21 @@ with tab_studies:
     shown = shown[mask]
     st.caption(f"{len(shown)} of {len(studies)} studies")
     st.dataframe(
-        shown, hide_index=True, width="stretch", key="studies_table",
+        shown,
+        hide_index=True,
+        width="stretch",
+        key="studies_table",
         column_config={
-            "study_id": "study", "design_family": "design family",
-            "level": st.column_config.TextColumn("level of record",
-                                                 help="overall level of the consensus "
-                                                      "appraisal (0 fatal … 3 strong)"),
+            "study_id": "study",
+            "design_family": "design family",
+            "level": st.column_config.TextColumn(
+                "level of record",
+                help="overall level of the consensus appraisal (0 fatal … 3 strong)",
+            ),
             "year": st.column_config.NumberColumn("year", format="%d"),
             "demo": st.column_config.CheckboxColumn("demo"),
-        })
+        },
+    )
 
     # 3. one study's appraisals --------------------------------------------------------------
     st.subheader("Appraisal of record")
@@ -63,33 +71,50 @@ with tab_studies:
         study = ui.pick("Study", shown["study_id"].tolist(), key="studies_pick")
         with ui.guard():
             view = data.appraisals(db, study, viewer)
-        st.markdown(f"**{view['citation']}** · design `{view['design']}` · "
-                    f"{view['independent']} independent appraisal(s)")
+        st.markdown(
+            f"**{view['citation']}** · design `{view['design']}` · "
+            f"{view['independent']} independent appraisal(s)"
+        )
         record = view["of_record"]
         if record is None:
-            st.info("No consensus appraisal yet: this study has no level of record and is "
-                    "counted as not appraised.")
+            st.info(
+                "No consensus appraisal yet: this study has no level of record and is "
+                "counted as not appraised."
+            )
         else:
-            st.markdown(f"Overall level **{record.overall}**, decided by "
-                        f"`{record.decided_by}`: {record.reason}. Rubric {record.rubric}.")
+            st.markdown(
+                f"Overall level **{record.overall}**, decided by "
+                f"`{record.decided_by}`: {record.reason}. Rubric {record.rubric}."
+            )
         table = {}
         for a in view["appraisals"]:
             col = f"{a.reviewer} ({a.stage})"
             table[col] = ["hidden" if a.blinded else ui.level_text(a.overall)] + [
                 "hidden" if a.blinded else ui.level_text((a.ratings or {}).get(d))
-                for d in view["domains"]]
+                for d in view["domains"]
+            ]
         if table:
             titles = data.domain_titles()
             frame = pd.DataFrame(table, index=["overall", *view["domains"]])
-            frame.insert(0, "title", ["overall level (the rubric's summary rule)"] + [
-                titles.get(d, d) for d in view["domains"]])
-            st.dataframe(frame.rename_axis("domain").reset_index(), hide_index=True,
-                         width="stretch", key="appraisal_table",
-                         height=36 * (len(frame) + 1) + 3)
+            frame.insert(
+                0,
+                "title",
+                ["overall level (the rubric's summary rule)"]
+                + [titles.get(d, d) for d in view["domains"]],
+            )
+            st.dataframe(
+                frame.rename_axis("domain").reset_index(),
+                hide_index=True,
+                width="stretch",
+                key="appraisal_table",
+                height=36 * (len(frame) + 1) + 3,
+            )
         hidden = [a.reviewer for a in view["appraisals"] if a.blinded]
         if hidden:
-            st.info(f"Hidden until both independent appraisals are in: {', '.join(hidden)}. "
-                    "Reviewers see their own appraisal by giving their name in the sidebar.")
+            st.info(
+                f"Hidden until both independent appraisals are in: {', '.join(hidden)}. "
+                "Reviewers see their own appraisal by giving their name in the sidebar."
+            )
         if record is not None and record.justifications:
             titles = data.domain_titles()
             with st.expander("Reasons recorded with the appraisal of record"):
@@ -101,15 +126,20 @@ with tab_studies:
 with tab_events:
     with ui.guard():
         events = data.events(db)
-    st.caption(f"{len(events)} registered exposure-change events; "
-               f"{int((events['studies'] == 0).sum())} without any study.")
-    st.dataframe(events.drop(columns=["change_year"]), hide_index=True, width="stretch",
-                 key="events_table")
+    st.caption(
+        f"{len(events)} registered exposure-change events; "
+        f"{int((events['studies'] == 0).sum())} without any study."
+    )
+    st.dataframe(
+        events.drop(columns=["change_year"]), hide_index=True, width="stretch", key="events_table"
+    )
 
 # 5. agreement -------------------------------------------------------------------------------
 with tab_agreement:
     with ui.guard():
         agree = data.agreement(db)
-    st.caption("Agreement between the two independent reviewers per rubric domain (only "
-               "studies whose independent appraisals are both in).")
+    st.caption(
+        "Agreement between the two independent reviewers per rubric domain (only "
+        "studies whose independent appraisals are both in)."
+    )
     st.dataframe(agree, hide_index=True, width="stretch", key="agreement_table")

@@ -82,9 +82,7 @@ DATE_PRECISIONS: tuple[str, ...] = ("year", "month", "day")
 def _check(kind: str, value: str, accepted: Iterable[str]) -> str:
     accepted = list(accepted)
     if value not in accepted:
-        raise VocabularyError(
-            f"unknown {kind} '{value}'; accepted: {', '.join(accepted)}"
-        )
+        raise VocabularyError(f"unknown {kind} '{value}'; accepted: {', '.join(accepted)}")
     return value
 
 

@@ -19,25 +19,40 @@ import pytest
 from dashboard_helpers import APP_DIR
 
 ROOT = APP_DIR.parent
-_spec = importlib.util.spec_from_file_location("exposhift_screenshots",
-                                               ROOT / "scripts" / "screenshots.py")
+_spec = importlib.util.spec_from_file_location(
+    "exposhift_screenshots", ROOT / "scripts" / "screenshots.py"
+)
 shots = importlib.util.module_from_spec(_spec)
 _spec.loader.exec_module(shots)
 
 #: page -> texts that must be visible on it
 VISIBLE = {
-    "overview": ["Invented demo data", "Studies", "support, never replace, expert judgement",
-                 "Replication status and pooled effect"],
+    "overview": [
+        "Invented demo data",
+        "Studies",
+        "support, never replace, expert judgement",
+        "Replication status and pooled effect",
+    ],
     "studies": ["Appraisal of record", "Lindqvist, Okafor et al. 1996", "Overall level"],
-    "pooling": ["support, never replace, expert judgement", "dravonil → preterm birth",
-                "Estimates left out (5)"],
+    "pooling": [
+        "support, never replace, expert judgement",
+        "dravonil → preterm birth",
+        "Estimates left out (5)",
+    ],
     "pooling-by-family": ["vellium → child respiratory admissions"],
-    "replication": ["Replication status:", "Sign test:", "Triangulation:",
-                    "support, never replace, expert judgement"],
+    "replication": [
+        "Replication status:",
+        "Sign test:",
+        "Triangulation:",
+        "support, never replace, expert judgement",
+    ],
     "replication-reversal": ["Replication status: convergent", "Reversal in Portugal"],
     "replication-europe": ["Map view", "Replication status: replicated-place"],
-    "gaps": ["Opportunities: registered exposure changes never evaluated (5)",
-             "support, never replace, expert judgement", "replicated-in-part"],
+    "gaps": [
+        "Opportunities: registered exposure changes never evaluated (5)",
+        "support, never replace, expert judgement",
+        "replicated-in-part",
+    ],
 }
 
 
@@ -57,7 +72,8 @@ def browser():
 
     assert Path(shots.CHROMIUM).exists(), (
         f"Chromium is missing at {shots.CHROMIUM}: apt-get install -y chromium "
-        "(scripts/run_tests.sh does this when run as root)")
+        "(scripts/run_tests.sh does this when run as root)"
+    )
     with sync_playwright() as pw:
         b = pw.chromium.launch(executable_path=shots.CHROMIUM, args=shots.CHROMIUM_ARGS)
         yield b
@@ -123,14 +139,16 @@ def test_world_map_drawn_from_vendored_shapes(page, server, demo_store):
 
 
 def test_keeping_fatal_studies_reruns_in_the_browser(page, server):
-    page.goto(f"http://127.0.0.1:{server}/pooling?exposure=trelomene&outcome="
-              "elevated+liver+enzymes")
+    page.goto(
+        f"http://127.0.0.1:{server}/pooling?exposure=trelomene&outcome=elevated+liver+enzymes"
+    )
     shots.wait_rendered(page, "Pooling")
     before = page.get_by_text("Estimates left out (", exact=False).first.inner_text()
     page.get_by_text("Keep studies appraised fatal overall").click()
     shots.wait_rendered(page, "Pooling")
     page.wait_for_function(
-        "t => ![...document.querySelectorAll('h3')].some(h => h.innerText === t)", arg=before)
+        "t => ![...document.querySelectorAll('h3')].some(h => h.innerText === t)", arg=before
+    )
     after = page.get_by_text("Estimates left out (", exact=False).first.inner_text()
     assert int(after.split("(")[1].rstrip(")")) < int(before.split("(")[1].rstrip(")"))
     assert page.locator(shots.ERROR_SELECTORS).count() == 0

@@ -74,18 +74,26 @@ def test_overview_counts_demo_notice_and_caution(app, demo_db):
     assert at.title[0].value == "Evidence at a glance"
     metrics = {m.label: m.value for m in at.metric}
     # counts read straight from the file with sqlite3, not through exposhift
-    for label, table in (("Studies", "study"), ("Events", "event"), ("Estimates", "estimate"),
-                         ("Appraisals", "appraisal")):
+    for label, table in (
+        ("Studies", "study"),
+        ("Events", "event"),
+        ("Estimates", "estimate"),
+        ("Appraisals", "appraisal"),
+    ):
         assert metrics[label] == str(_sql(demo_db, f"SELECT count(*) FROM {table}")[0][0])
     assert metrics["Countries"] == str(
-        _sql(demo_db, "SELECT count(DISTINCT country) FROM event")[0][0])
+        _sql(demo_db, "SELECT count(DISTINCT country) FROM event")[0][0]
+    )
     text = _texts(at)
     assert "Invented demo data" in text
     assert CAUTION_WORDS in text
     assert len(at.get("plotly_chart")) == 3
     findings = _frame(at, "status")
-    pairs = _sql(demo_db, "SELECT count(DISTINCT e.exposure_id || '/' || s.outcome_id) "
-                          "FROM estimate s JOIN event e ON e.id = s.event_id")[0][0]
+    pairs = _sql(
+        demo_db,
+        "SELECT count(DISTINCT e.exposure_id || '/' || s.outcome_id) "
+        "FROM estimate s JOIN event e ON e.id = s.event_id",
+    )[0][0]
     assert len(findings) == pairs
     # every chart asks plotly.js for local topojson only
     for c in at.get("plotly_chart"):
@@ -131,11 +139,13 @@ def test_studies_table_and_blinded_appraisal(app, demo_db):
     table = _frame(at, "citation")
     assert len(table) == _sql(demo_db, "SELECT count(*) FROM study")[0][0]
     # a study with a single independent appraisal: hidden from everyone but its reviewer
-    (study, reviewer), = _sql(
-        demo_db, "SELECT s.key, a.reviewer FROM appraisal a JOIN study s ON s.id = a.study_id "
+    ((study, reviewer),) = _sql(
+        demo_db,
+        "SELECT s.key, a.reviewer FROM appraisal a JOIN study s ON s.id = a.study_id "
         "WHERE s.key IN (SELECT s2.key FROM appraisal a2 JOIN study s2 ON s2.id = a2.study_id "
         "WHERE a2.stage = 'independent' GROUP BY s2.key HAVING count(*) = 1) ORDER BY s.key "
-        "LIMIT 1")
+        "LIMIT 1",
+    )
     at.selectbox(key="studies_pick").set_value(study).run()
     assert not at.exception
     shown = _frame(at, "domain")
@@ -145,10 +155,15 @@ def test_studies_table_and_blinded_appraisal(app, demo_db):
     # the reviewer sees their own ratings, exactly as stored
     at.sidebar.text_input(key="viewer").input(reviewer).run()
     shown = _frame(at, "domain").set_index("domain")
-    stored = dict(_sql(
-        demo_db, "SELECT r.domain, r.level FROM rating r JOIN appraisal a ON a.id = "
-        "r.appraisal_id JOIN study s ON s.id = a.study_id WHERE s.key = ? AND a.reviewer = ?",
-        study, reviewer))
+    stored = dict(
+        _sql(
+            demo_db,
+            "SELECT r.domain, r.level FROM rating r JOIN appraisal a ON a.id = "
+            "r.appraisal_id JOIN study s ON s.id = a.study_id WHERE s.key = ? AND a.reviewer = ?",
+            study,
+            reviewer,
+        )
+    )
     assert stored
     for domain, level in stored.items():
         assert shown.loc[domain, col] == str(level)
@@ -193,8 +208,11 @@ def test_pooling_method_change_matches_statsmodels(app, demo_store, method, meth
     first = rows[rows["group"] == 0]
     # statsmodels combine_effects: "dl" is DerSimonian-Laird (method_re="chi2"), "pm" is
     # Paule-Mandel (method_re="iterated"); reference library, not exposhift code
-    ref = combine_effects(first["y"].to_numpy(), first["se"].to_numpy() ** 2,
-                          method_re={"dl": "chi2", "pm": "iterated"}[method_re])
+    ref = combine_effects(
+        first["y"].to_numpy(),
+        first["se"].to_numpy() ** 2,
+        method_re={"dl": "chi2", "pm": "iterated"}[method_re],
+    )
     assert ref.q > len(first) - 1  # heterogeneous: statsmodels' untruncated DL tau2 is valid
     table = _frame(at, "pooled")
     assert table["pooled"].iloc[0] == pytest.approx(np.exp(ref.mean_effect_re), rel=1e-6)
@@ -244,10 +262,13 @@ def test_replication_status_rule_charts_and_sign_test(app, demo_db):
     geo = charts[0]
     assert geo["layout"]["geo"]["visible"] is False
     events = [t for t in geo["data"] if t["type"] == "scattergeo"][0]
-    n_events = _sql(demo_db, "SELECT count(DISTINCT e.key) FROM estimate s JOIN event e ON "
-                             "e.id = s.event_id JOIN exposure x ON x.id = e.exposure_id JOIN "
-                             "outcome o ON o.id = s.outcome_id WHERE x.name = 'corvane' AND "
-                             "o.name = 'asthma emergency visits'")[0][0]
+    n_events = _sql(
+        demo_db,
+        "SELECT count(DISTINCT e.key) FROM estimate s JOIN event e ON "
+        "e.id = s.event_id JOIN exposure x ON x.id = e.exposure_id JOIN "
+        "outcome o ON o.id = s.outcome_id WHERE x.name = 'corvane' AND "
+        "o.name = 'asthma emergency visits'",
+    )[0][0]
     assert len(values(events["lon"])) == n_events
     # sign test: "k of n events ... p = x" against scipy's exact binomial test
     line = next(m.value for m in at.markdown if m.value.startswith("**Sign test:**"))
@@ -279,17 +300,21 @@ def test_replication_family_filter(app, demo_store):
     at.selectbox(key="rep_outcome").set_value("child respiratory admissions").run()
     options = at.selectbox(key="rep_family").options
     assert options[0] == "all families" and len(options) == 3
-    all_events = values([t for t in _charts(at)[0]["data"] if t["type"] == "scattergeo"][0]
-                        ["lon"])
+    all_events = values([t for t in _charts(at)[0]["data"] if t["type"] == "scattergeo"][0]["lon"])
     at.selectbox(key="rep_family").set_value(options[1]).run()
     assert not at.exception
-    report = replication_for(demo_store, "vellium", "child respiratory admissions",
-                             family=options[1])
+    report = replication_for(
+        demo_store, "vellium", "child respiratory admissions", family=options[1]
+    )
     geo = [t for t in _charts(at)[0]["data"] if t["type"] == "scattergeo"][0]
     assert len(values(geo["lon"])) == int(report.events["represents_event"].sum())
     assert len(values(geo["lon"])) < len(all_events)
-    boxes = [e.value for kind in (at.success, at.warning, at.info, at.error) for e in kind
-             if e.value.startswith("**Replication status:")]
+    boxes = [
+        e.value
+        for kind in (at.success, at.warning, at.info, at.error)
+        for e in kind
+        if e.value.startswith("**Replication status:")
+    ]
     label = report.status + (" (provisional)" if report.provisional else "")
     assert boxes == [f"**Replication status: {label}**\n\n{report.rule}"]
 
@@ -304,8 +329,12 @@ def test_replication_expected_direction_reruns(app):
     assert "an exposure increase lowers the outcome" in text
     # against the evidence: no event points the "expected" way; the effect replicates
     # against the expected direction, and the label says so
-    boxes = [e.value for kind in (at.success, at.warning, at.info, at.error) for e in kind
-             if e.value.startswith("**Replication status:")]
+    boxes = [
+        e.value
+        for kind in (at.success, at.warning, at.info, at.error)
+        for e in kind
+        if e.value.startswith("**Replication status:")
+    ]
     assert len(boxes) == 1
     assert "replicated-against" in boxes[0].split("\n")[0] and "convergent" not in boxes[0]
     line = next(m.value for m in at.markdown if m.value.startswith("**Sign test:**"))
@@ -326,15 +355,19 @@ def test_gap_map_cells_opportunities_and_filter(app, demo_db):
     heat = _charts(at)[0]["data"][0]
     assert heat["type"] == "heatmap"
     assert len(heat["y"]) == n_exposures and len(heat["x"]) == n_groups
-    never = _sql(demo_db, "SELECT count(*) FROM event WHERE id NOT IN "
-                          "(SELECT event_id FROM estimate)")[0][0]
+    never = _sql(
+        demo_db, "SELECT count(*) FROM event WHERE id NOT IN (SELECT event_id FROM estimate)"
+    )[0][0]
     assert len(_frame(at, "needs")) == never
     # filter: only studied cells
     at.toggle(key="gap_studied").set_value(True).run()
     assert not at.exception
-    studied = _sql(demo_db, "SELECT count(DISTINCT e.exposure_id || '/' || o.outcome_group) "
-                            "FROM estimate s JOIN event e ON e.id = s.event_id JOIN outcome o "
-                            "ON o.id = s.outcome_id")[0][0]
+    studied = _sql(
+        demo_db,
+        "SELECT count(DISTINCT e.exposure_id || '/' || o.outcome_group) "
+        "FROM estimate s JOIN event e ON e.id = s.event_id JOIN outcome o "
+        "ON o.id = s.outcome_id",
+    )[0][0]
     metrics = {m.label: int(m.value) for m in at.metric}
     assert metrics["no-study"] == 0
     assert sum(metrics.values()) == studied

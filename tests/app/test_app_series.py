@@ -33,9 +33,11 @@ def page(demo_db, monkeypatch) -> AppTest:
 def _points(db: str, key: str):
     con = sqlite3.connect(db)
     try:
-        rows = con.execute("SELECT p.period, p.value, p.denominator FROM series_point p JOIN "
-                           "series s ON s.id = p.series_id WHERE s.key = ? ORDER BY p.period",
-                           (key,)).fetchall()
+        rows = con.execute(
+            "SELECT p.period, p.value, p.denominator FROM series_point p JOIN "
+            "series s ON s.id = p.series_id WHERE s.key = ? ORDER BY p.period",
+            (key,),
+        ).fetchall()
     finally:
         con.close()
     return [r[0] for r in rows], np.array([r[1] for r in rows]), np.array([r[2] for r in rows])
@@ -79,12 +81,22 @@ def test_series_page_trend_example_fails_placebo_dates(page):
 def test_series_charts_are_pure_builders():
     import series_charts
 
-    fig = {"series": "S", "periods": ["2001", "2002", "2003", "2004", "2005", "2006"],
-           "observed": [5, 4, 3, 1, 0, -1], "fitted": [5, 4, 3, 1, 0, -1],
-           "counterfactual": [5, 4, 3, 2, 1, 0], "counterfactual_low": [4, 3, 2, 1, 0, -1],
-           "counterfactual_high": [6, 5, 4, 3, 2, 1], "change_at": "2004",
-           "value_label": "mean", "placebo_labels": ["2001"], "placebo_effects": [0.2],
-           "real_effect": -1.0, "effect_scale": "identity", "comparisons": {}}
+    fig = {
+        "series": "S",
+        "periods": ["2001", "2002", "2003", "2004", "2005", "2006"],
+        "observed": [5, 4, 3, 1, 0, -1],
+        "fitted": [5, 4, 3, 1, 0, -1],
+        "counterfactual": [5, 4, 3, 2, 1, 0],
+        "counterfactual_low": [4, 3, 2, 1, 0, -1],
+        "counterfactual_high": [6, 5, 4, 3, 2, 1],
+        "change_at": "2004",
+        "value_label": "mean",
+        "placebo_labels": ["2001"],
+        "placebo_effects": [0.2],
+        "real_effect": -1.0,
+        "effect_scale": "identity",
+        "comparisons": {},
+    }
     f = series_charts.series_plot(fig)
     band = f.data[0]
     assert list(band.x) == ["2004", "2005", "2006", "2006", "2005", "2004"]

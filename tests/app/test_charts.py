@@ -45,22 +45,23 @@ def test_forest_rows_diamond_and_prediction_interval(dl_view):
     fig = charts.forest_plot(rows, groups)
     (sq,) = _squares(fig)
     np.testing.assert_allclose(sq.x, np.exp(rows["y"]), rtol=1e-12)
-    np.testing.assert_allclose(sq.error_x.array, np.exp(rows["ci_upper"]) - np.exp(rows["y"]),
-                               rtol=1e-12)
+    np.testing.assert_allclose(
+        sq.error_x.array, np.exp(rows["ci_upper"]) - np.exp(rows["y"]), rtol=1e-12
+    )
     # the same numbers pooled by statsmodels (DerSimonian-Laird, method_re="chi2")
     ref = combine_effects(rows["y"].to_numpy(), rows["se"].to_numpy() ** 2, method_re="chi2")
     assert ref.q > len(rows) - 1  # Q above its df: statsmodels' DL tau2 is not truncated here
     diamond = next(t for t in fig.data if t.name == "pooled")
     assert diamond.x[1] == pytest.approx(math.exp(ref.mean_effect_re), rel=1e-8)
     lo, hi = ref.conf_int(use_t=False)[1]
-    assert (diamond.x[0], diamond.x[2]) == pytest.approx((math.exp(lo), math.exp(hi)),
-                                                         rel=1e-8)
+    assert (diamond.x[0], diamond.x[2]) == pytest.approx((math.exp(lo), math.exp(hi)), rel=1e-8)
     # prediction interval, Higgins et al. 2009, from statsmodels' tau2 and SE
     k = len(rows)
-    half = stats.t.ppf(0.975, k - 2) * math.sqrt(ref.tau2 + ref.sd_eff_w_re ** 2)
+    half = stats.t.ppf(0.975, k - 2) * math.sqrt(ref.tau2 + ref.sd_eff_w_re**2)
     pi = next(t for t in fig.data if t.name == "prediction interval")
-    assert tuple(pi.x) == pytest.approx((math.exp(ref.mean_effect_re - half),
-                                         math.exp(ref.mean_effect_re + half)), rel=1e-6)
+    assert tuple(pi.x) == pytest.approx(
+        (math.exp(ref.mean_effect_re - half), math.exp(ref.mean_effect_re + half)), rel=1e-6
+    )
     # square sizes follow the random-effects weights (statsmodels weights_rel_re)
     np.testing.assert_allclose(rows["weight"], ref.weights_rel_re, rtol=1e-8)
     order = np.argsort(rows["weight"].to_numpy())
@@ -76,8 +77,9 @@ def test_forest_one_trace_per_group_with_labels(demo_store):
     assert [len(t.x) for t in squares] == [g["k_events"] for g in view.output.groups]
     headers = [a.text for a in fig.layout.annotations if a.text.startswith("<b>stratum:")]
     assert len(headers) == len(view.output.groups)
-    assert all(str(g["design_family"]) in h for g, h in zip(view.output.groups, headers,
-                                                            strict=True))
+    assert all(
+        str(g["design_family"]) in h for g, h in zip(view.output.groups, headers, strict=True)
+    )
     ticks = list(fig.layout.yaxis.ticktext)
     assert all(any(str(s) in t for t in ticks) for s in view.rows["study_id"])
 
@@ -110,8 +112,7 @@ def test_event_map_markers_colours_and_offline_layers(corvane):
     np.testing.assert_allclose(geo.marker.color, by_id.loc[ids, "estimate"], rtol=1e-12)
     for sym, eid in zip(geo.marker.symbol, ids, strict=True):
         row = by_id.loc[eid]
-        assert sym.startswith("triangle-up" if row["direction"] == "increase"
-                              else "triangle-down")
+        assert sym.startswith("triangle-up" if row["direction"] == "increase" else "triangle-down")
         assert sym.endswith("-open") == (pd.isna(row["level"]) or row["level"] < 2)
     # every event within a few degrees of its country's point
     pts = charts.country_points()
@@ -136,12 +137,20 @@ def test_event_map_focus_fits_named_countries(corvane):
 
 
 def test_event_map_mixed_measures_colour_by_z():
-    ev = pd.DataFrame({
-        "event_id": ["A", "B"], "country": ["PRT", "ESP"], "change_date": ["2000", "2001"],
-        "direction": ["decrease", "increase"], "design": ["did", "its"], "level": [2.0, 1.0],
-        "estimate": [0.2, -3.0], "se": [0.1, 1.5], "measure_group": ["ratio",
-                                                                    "mean_difference"],
-        "represents_event": [True, True]})
+    ev = pd.DataFrame(
+        {
+            "event_id": ["A", "B"],
+            "country": ["PRT", "ESP"],
+            "change_date": ["2000", "2001"],
+            "direction": ["decrease", "increase"],
+            "design": ["did", "its"],
+            "level": [2.0, 1.0],
+            "estimate": [0.2, -3.0],
+            "se": [0.1, 1.5],
+            "measure_group": ["ratio", "mean_difference"],
+            "represents_event": [True, True],
+        }
+    )
     fig = charts.event_map(ev)
     (geo,) = [t for t in fig.data if t.type == "scattergeo"]
     np.testing.assert_allclose(geo.marker.color, [2.0, -2.0])
@@ -210,8 +219,12 @@ def test_timeline_directions_names_and_reversal(corvane):
 
 
 def test_outcome_moves_and_dates():
-    ev = pd.DataFrame({"estimate": [0.1, 0.1, -0.2, 0.0],
-                       "direction": ["decrease", "increase", "decrease", "increase"]})
+    ev = pd.DataFrame(
+        {
+            "estimate": [0.1, 0.1, -0.2, 0.0],
+            "direction": ["decrease", "increase", "decrease", "increase"],
+        }
+    )
     assert charts.outcome_moves(ev).tolist() == [-1, 1, 1, 0]
     assert charts.parse_change_date("1996") == pd.Timestamp("1996-07-01")
     assert charts.parse_change_date("2004-07") == pd.Timestamp("2004-07-15")
@@ -226,8 +239,11 @@ def test_design_family_chart(corvane):
     fig = charts.design_family_chart(pools)
     (t,) = fig.data
     np.testing.assert_allclose(t.x, np.exp(pools["estimate"].astype(float)), rtol=1e-12)
-    np.testing.assert_allclose(np.asarray(t.x) + np.asarray(t.error_x.array),
-                               np.exp(pools["ci_upper"].astype(float)), rtol=1e-12)
+    np.testing.assert_allclose(
+        np.asarray(t.x) + np.asarray(t.error_x.array),
+        np.exp(pools["ci_upper"].astype(float)),
+        rtol=1e-12,
+    )
     assert [c == charts.MAIN for c in t.marker.color] == list(pools["main"])
     assert all(f in y for f, y in zip(pools["design_family"], t.y, strict=True))
     assert fig.layout.xaxis.type == "log"
@@ -243,7 +259,7 @@ def test_gap_heatmap_states_and_counts(demo_store):
     for _, c in cells.iterrows():
         i, j = list(h.y).index(c["exposure"]), list(h.x).index(c["outcome_group"])
         assert states[int(h.z[i][j])] == c["state"]
-        expected = (f"{int(c['events'])} ev · {int(c['studies'])} st" if c["events"] else "")
+        expected = f"{int(c['events'])} ev · {int(c['studies'])} st" if c["events"] else ""
         assert h.text[i][j] == expected
     assert list(h.colorbar.ticktext) == states
 

@@ -8,6 +8,7 @@ REPO = Path(__file__).resolve().parents[2]
 RUBRIC_FILE = REPO / "evidence" / "rubric.toml"
 PACKAGED_FILE = REPO / "src" / "exposhift" / "data" / "rubric.toml"
 
+
 def edited(text: str, old: str, new: str) -> str:
     """``text`` with the single occurrence of ``old`` replaced (fails if not exactly one)."""
     assert text.count(old) == 1, f"expected exactly one {old!r} in the rubric"

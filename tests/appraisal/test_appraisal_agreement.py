@@ -65,6 +65,7 @@ def example_table(example):
 
 # ---- published worked examples -----------------------------------------------------------------
 
+
 @pytest.mark.parametrize("example", CHECKS, ids=[e["name"] for e in CHECKS])
 def test_published_worked_examples(example):
     table = example_table(example)
@@ -77,7 +78,9 @@ def test_published_worked_examples(example):
     }
     for quantity, expected in example["expected"].items():
         assert got[quantity] == pytest.approx(expected, abs=example["abs_tol"][quantity]), (
-            quantity, example["source"])
+            quantity,
+            example["source"],
+        )
 
 
 def test_altman_observed_and_expected_agreement():
@@ -92,8 +95,11 @@ def test_altman_observed_and_expected_agreement():
 # ---- scikit-learn and statsmodels as reference libraries ---------------------------------------
 
 pairs = st.integers(min_value=1, max_value=60).flatmap(
-    lambda n: st.tuples(st.lists(st.sampled_from(SCALE), min_size=n, max_size=n),
-                        st.lists(st.sampled_from(SCALE), min_size=n, max_size=n)))
+    lambda n: st.tuples(
+        st.lists(st.sampled_from(SCALE), min_size=n, max_size=n),
+        st.lists(st.sampled_from(SCALE), min_size=n, max_size=n),
+    )
+)
 
 
 @settings(max_examples=300, deadline=None)
@@ -110,8 +116,12 @@ def test_matches_sklearn_cohen_kappa_score(pair, weights):
 
 
 @settings(max_examples=100, deadline=None)
-@given(st.lists(st.tuples(st.sampled_from("abcde"), st.sampled_from("abcde")), min_size=2,
-                max_size=40), st.sampled_from([None, "linear", "quadratic"]))
+@given(
+    st.lists(
+        st.tuples(st.sampled_from("abcde"), st.sampled_from("abcde")), min_size=2, max_size=40
+    ),
+    st.sampled_from([None, "linear", "quadratic"]),
+)
 def test_matches_sklearn_on_another_scale(items, weights):
     scale = ("a", "b", "c", "d", "e")
     a = [x for x, _ in items]
@@ -125,11 +135,14 @@ def test_matches_statsmodels_on_the_altman_table():
     table = np.array(BY_NAME["altman_radiologists"]["table"])
     a, b = expand(table)
     assert weighted_kappa(a, b, "linear") == pytest.approx(
-        cohens_kappa(table, wt="linear", return_results=False), abs=1e-12)
+        cohens_kappa(table, wt="linear", return_results=False), abs=1e-12
+    )
     assert weighted_kappa(a, b, "quadratic") == pytest.approx(
-        cohens_kappa(table, wt="quadratic", return_results=False), abs=1e-12)
+        cohens_kappa(table, wt="quadratic", return_results=False), abs=1e-12
+    )
     assert weighted_kappa(a, b, None) == pytest.approx(
-        cohens_kappa(table, return_results=False), abs=1e-12)
+        cohens_kappa(table, return_results=False), abs=1e-12
+    )
 
 
 def test_full_scale_weights_differ_from_sklearn_without_labels():
@@ -176,6 +189,7 @@ def test_bad_input_is_reported():
 
 # ---- the agreement table -----------------------------------------------------------------------
 
+
 def long_frame(rows):
     return pd.DataFrame(rows, columns=["study_id", "reviewer", "domain", "level", "stage"])
 
@@ -193,18 +207,26 @@ def frame():
             rows.append((study, who, "counterfactual", counterfactual, "independent"))
     # a third reviewer on s1 (ignored: first two by name), a consensus (ignored), a study with
     # one reviewer (unpaired), and a domain rated by only one of the two on s2
-    rows += [("s1", "cem", "origin", 0, "independent"),
-             ("s1", "ana", "origin", 1, "consensus"),
-             ("s6", "ana", "origin", 3, "independent"),
-             ("s2", "ana", "timing", 2, "independent"),
-             ("s3", "ben", "timing", None, "independent")]
+    rows += [
+        ("s1", "cem", "origin", 0, "independent"),
+        ("s1", "ana", "origin", 1, "consensus"),
+        ("s6", "ana", "origin", 3, "independent"),
+        ("s2", "ana", "timing", 2, "independent"),
+        ("s3", "ben", "timing", None, "independent"),
+    ]
     return long_frame(rows)
 
 
 def test_agreement_table_per_domain_against_sklearn(frame, rubric):
     table = agreement_table(frame, rubric)
-    assert list(table.columns) == ["domain", "n", "percent_agreement", "kappa_linear",
-                                   "kappa_quadratic", "note"]
+    assert list(table.columns) == [
+        "domain",
+        "n",
+        "percent_agreement",
+        "kappa_linear",
+        "kappa_quadratic",
+        "note",
+    ]
     assert list(table["domain"]) == ["origin", "counterfactual", "timing", "all domains"]
     row = table.set_index("domain")
     # origin pairs by hand: (3,3) (2,1) (1,1) (0,0) (2,3) -> 3 of 5 agree
@@ -214,18 +236,19 @@ def test_agreement_table_per_domain_against_sklearn(frame, rubric):
     assert row.loc["counterfactual", "percent_agreement"] == 40.0
     for dom, (a, b) in {"origin": (oa, ob), "counterfactual": (ca, cb)}.items():
         for w in ("linear", "quadratic"):
-            assert row.loc[dom, f"kappa_{w}"] == pytest.approx(sklearn_kappa(a, b, w),
-                                                               abs=1e-12)
+            assert row.loc[dom, f"kappa_{w}"] == pytest.approx(sklearn_kappa(a, b, w), abs=1e-12)
     assert row.loc["timing", "n"] == 0 and math.isnan(row.loc["timing", "kappa_linear"])
     assert row.loc["timing", "note"] == "no paired ratings"
     # "all domains" pools every study x domain pair (n = pairs)
     assert row.loc["all domains", "n"] == 10
     assert row.loc["all domains", "kappa_quadratic"] == pytest.approx(
-        sklearn_kappa(oa + ca, ob + cb, "quadratic"), abs=1e-12)
+        sklearn_kappa(oa + ca, ob + cb, "quadratic"), abs=1e-12
+    )
     assert row.loc["all domains", "percent_agreement"] == 50.0
     assert "Kappa depends on how ratings spread" in table.attrs["caution"]
     assert table.attrs["notes"] == [
-        "study 's1' has 3 reviewers; the first two by name (ana, ben) are compared"]
+        "study 's1' has 3 reviewers; the first two by name (ana, ben) are compared"
+    ]
 
 
 def test_agreement_table_notes_an_undefined_kappa(rubric):
@@ -233,14 +256,17 @@ def test_agreement_table_notes_an_undefined_kappa(rubric):
     table = agreement_table(long_frame(rows), rubric).set_index("domain")
     assert table.loc["origin", "percent_agreement"] == 100.0
     assert math.isnan(table.loc["origin", "kappa_linear"])
-    assert "undefined: both reviewers gave all 2 ratings the same level (3)" in table.loc[
-        "origin", "note"]
+    assert (
+        "undefined: both reviewers gave all 2 ratings the same level (3)"
+        in table.loc["origin", "note"]
+    )
 
 
 def test_agreement_table_rejects_bad_frames(frame, rubric):
     dup = pd.concat([frame, frame.iloc[[0]]])
-    with pytest.raises(ReviewError, match="reviewer 'ana' rated domain 'origin' of study 's1' "
-                       "more than once"):
+    with pytest.raises(
+        ReviewError, match="reviewer 'ana' rated domain 'origin' of study 's1' more than once"
+    ):
         agreement_table(dup, rubric)
     odd = frame.copy()
     odd.loc[0, "domain"] = "blinding"
@@ -248,8 +274,11 @@ def test_agreement_table_rejects_bad_frames(frame, rubric):
         agreement_table(odd, rubric)
     high = frame.copy()
     high.loc[1, "level"] = 5
-    with pytest.raises(RubricError, match="level 5 for study 's1', reviewer 'ana', domain "
-                       "'counterfactual' is outside 0, 1, 2, 3"):
+    with pytest.raises(
+        RubricError,
+        match="level 5 for study 's1', reviewer 'ana', domain "
+        "'counterfactual' is outside 0, 1, 2, 3",
+    ):
         agreement_table(high, rubric)
     with pytest.raises(AnalysisError, match="no column reviewer"):
         agreement_table(frame.drop(columns="reviewer"), rubric)

@@ -25,8 +25,16 @@ from exposhift.errors import RubricError
 from exposhift.vocab import DESIGNS
 
 ISSUE_DOMAINS = (
-    "origin", "counterfactual", "design_checks", "falsification", "timing",
-    "concurrent_changes", "exposure_shift", "outcome_data", "inference", "transparency",
+    "origin",
+    "counterfactual",
+    "design_checks",
+    "falsification",
+    "timing",
+    "concurrent_changes",
+    "exposure_shift",
+    "outcome_data",
+    "inference",
+    "transparency",
     "applicability",
 )
 
@@ -34,14 +42,19 @@ ISSUE_DOMAINS = (
 def test_domains_and_summary_rule_match_the_design_notes(rubric):
     assert rubric.domain_keys == ISSUE_DOMAINS
     assert set(DOMAIN_KEYS) == set(ISSUE_DOMAINS)
-    assert rubric.core_domains == ("origin", "counterfactual", "design_checks",
-                                   "concurrent_changes")
+    assert rubric.core_domains == (
+        "origin",
+        "counterfactual",
+        "design_checks",
+        "concurrent_changes",
+    )
     assert [d.key for d in rubric.domains if d.core] == list(rubric.core_domains)
     assert rubric.apart_domains == ("applicability",)
     assert rubric.domain("applicability").apart
     assert rubric.cap_trigger == 0 and rubric.cap_at == 1
     assert set(rubric.cap_domains) == set(ISSUE_DOMAINS) - set(rubric.core_domains) - {
-        "applicability"}
+        "applicability"
+    }
     assert rubric.never_lifts == ("falsification",)
     assert rubric.exclude_from_pooling == (0,)
 
@@ -58,7 +71,11 @@ def test_every_domain_has_a_question_and_criteria_for_each_level(rubric):
 
 def test_scale_and_reporting_keys(rubric):
     assert [(s.level, s.key) for s in rubric.scale] == [
-        (3, "strong"), (2, "adequate"), (1, "weak"), (0, "fatal")]
+        (3, "strong"),
+        (2, "adequate"),
+        (1, "weak"),
+        (0, "fatal"),
+    ]
     assert rubric.level_name(1) == "weak"
     # reporting: reported / partly reported / not reported, under our own keys
     assert [r.label for r in rubric.reporting] == ["reported", "partly reported", "not reported"]
@@ -110,8 +127,9 @@ def test_crlf_cr_and_bom_give_the_same_hash(tmp_path, rubric_text, rubric):
 
 
 def test_any_other_change_gives_a_new_hash(tmp_path, rubric_text, rubric):
-    reworded = edited(rubric_text, 'criteria = ["one null test"]',
-                      'criteria = ["exactly one null test"]')
+    reworded = edited(
+        rubric_text, 'criteria = ["one null test"]', 'criteria = ["exactly one null test"]'
+    )
     changed = load_rubric(write(tmp_path, reworded))
     assert changed.content_hash != rubric.content_hash
     assert changed.version == rubric.version  # a forgotten version bump is caught by the hash
@@ -119,8 +137,7 @@ def test_any_other_change_gives_a_new_hash(tmp_path, rubric_text, rubric):
     assert trailing.content_hash != rubric.content_hash
 
 
-def test_new_version_and_new_hash_while_the_old_rubric_keeps_its_own(tmp_path, rubric_text,
-                                                                        rubric):
+def test_new_version_and_new_hash_while_the_old_rubric_keeps_its_own(tmp_path, rubric_text, rubric):
     old_hash = rubric.content_hash
     bumped = edited(rubric_text, 'version = "1.0"', 'version = "1.1"')
     bumped = edited(bumped, "cap_at = 1\n", "cap_at = 2\n")

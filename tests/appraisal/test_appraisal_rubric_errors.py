@@ -17,46 +17,116 @@ FALSIFICATION_LEVEL_0 = 'level = 0\ncriteria = ["a test finds'
 
 # (case id, old text, new text, marker on the expected line, expected words in the message)
 CASES = [
-    ("syntax-missing-value", "cap_at = 1\n", "cap_at = \n", "cap_at =",
-     "TOML syntax error: Invalid value"),
-    ("syntax-duplicate-key", "cap_at = 1\n", "cap_at = 1\ncap_at = 2 # again\n", "# again",
-     "TOML syntax error"),
-    ("level-4", FALSIFICATION_LEVEL_0, FALSIFICATION_LEVEL_0.replace("0", "4"), "level = 4",
-     "level 4 is outside 0-3; accepted levels: 0 (fatal), 1 (weak), 2 (adequate), 3 (strong)"),
-    ("level-negative", "cap_trigger = 0", "cap_trigger = -1", "cap_trigger = -1",
-     "level -1 is outside 0-3"),
-    ("unknown-key", 'key = "timing"\n', 'key = "timing"\nquestoin = "typo"\n', "questoin",
-     "unknown key 'questoin' in [domain]; accepted keys: key, title, question"),
-    ("unknown-top-table", "[summary]\n", "[sumary]\nx = 1\n\n[summary]\n", "[sumary]",
-     "unknown key 'sumary' in [top level]"),
-    ("unknown-domain", 'key = "timing"\n', 'key = "timeliness"\n', 'key = "timeliness"',
-     "unknown domain 'timeliness'; accepted domains: origin, counterfactual"),
-    ("duplicate-domain", 'key = "applicability"\n', 'key = "inference" # dup\n', "# dup",
-     "domain 'inference' is defined twice (first at line "),
-    ("unknown-design", "[domain.design.rd-geo]\nminimum", "[domain.design.rd-geography]\nminimum",
-     "rd-geography", "unknown design 'rd-geography'; accepted designs: before-after"),
-    ("unknown-check", 'lacks_all = ["first-stage-f", "weak-iv-robust"]',
-     'lacks_all = ["first-stage-F-stat", "weak-iv-robust"]', "first-stage-F-stat",
-     "unknown check code 'first-stage-F-stat' in 'lacks_all'"),
-    ("core-flag-disagrees", 'key = "concurrent_changes"\ntitle = "Concurrent changes and '
-     'spillover"\nquestion = "Could something else that changed at the same time, or leakage, '
-     'explain the result?"\ncore = true',
-     'key = "concurrent_changes"\ntitle = "Concurrent changes and spillover"\nquestion = '
-     '"Could something else that changed at the same time, or leakage, explain the result?"\n'
-     'core = false # here', "core = false # here",
-     "domain 'concurrent_changes' says core = false but [summary] core lists it"),
-    ("version-not-text", 'version = "1.0"', "version = 1.0", "version = 1.0",
-     "'version' must be text in quotes"),
+    (
+        "syntax-missing-value",
+        "cap_at = 1\n",
+        "cap_at = \n",
+        "cap_at =",
+        "TOML syntax error: Invalid value",
+    ),
+    (
+        "syntax-duplicate-key",
+        "cap_at = 1\n",
+        "cap_at = 1\ncap_at = 2 # again\n",
+        "# again",
+        "TOML syntax error",
+    ),
+    (
+        "level-4",
+        FALSIFICATION_LEVEL_0,
+        FALSIFICATION_LEVEL_0.replace("0", "4"),
+        "level = 4",
+        "level 4 is outside 0-3; accepted levels: 0 (fatal), 1 (weak), 2 (adequate), 3 (strong)",
+    ),
+    (
+        "level-negative",
+        "cap_trigger = 0",
+        "cap_trigger = -1",
+        "cap_trigger = -1",
+        "level -1 is outside 0-3",
+    ),
+    (
+        "unknown-key",
+        'key = "timing"\n',
+        'key = "timing"\nquestoin = "typo"\n',
+        "questoin",
+        "unknown key 'questoin' in [domain]; accepted keys: key, title, question",
+    ),
+    (
+        "unknown-top-table",
+        "[summary]\n",
+        "[sumary]\nx = 1\n\n[summary]\n",
+        "[sumary]",
+        "unknown key 'sumary' in [top level]",
+    ),
+    (
+        "unknown-domain",
+        'key = "timing"\n',
+        'key = "timeliness"\n',
+        'key = "timeliness"',
+        "unknown domain 'timeliness'; accepted domains: origin, counterfactual",
+    ),
+    (
+        "duplicate-domain",
+        'key = "applicability"\n',
+        'key = "inference" # dup\n',
+        "# dup",
+        "domain 'inference' is defined twice (first at line ",
+    ),
+    (
+        "unknown-design",
+        "[domain.design.rd-geo]\nminimum",
+        "[domain.design.rd-geography]\nminimum",
+        "rd-geography",
+        "unknown design 'rd-geography'; accepted designs: before-after",
+    ),
+    (
+        "unknown-check",
+        'lacks_all = ["first-stage-f", "weak-iv-robust"]',
+        'lacks_all = ["first-stage-F-stat", "weak-iv-robust"]',
+        "first-stage-F-stat",
+        "unknown check code 'first-stage-F-stat' in 'lacks_all'",
+    ),
+    (
+        "core-flag-disagrees",
+        'key = "concurrent_changes"\ntitle = "Concurrent changes and '
+        'spillover"\nquestion = "Could something else that changed at the same time, or leakage, '
+        'explain the result?"\ncore = true',
+        'key = "concurrent_changes"\ntitle = "Concurrent changes and spillover"\nquestion = '
+        '"Could something else that changed at the same time, or leakage, explain the result?"\n'
+        "core = false # here",
+        "core = false # here",
+        "domain 'concurrent_changes' says core = false but [summary] core lists it",
+    ),
+    (
+        "version-not-text",
+        'version = "1.0"',
+        "version = 1.0",
+        "version = 1.0",
+        "'version' must be text in quotes",
+    ),
     ("cap-level-5", "cap_at = 1\n", "cap_at = 5\n", "cap_at = 5", "level 5 is outside 0-3"),
-    ("summary-unknown-domain", "never_lifts = [\"falsification\"]",
-     "never_lifts = [\"falsifications\"]", "falsifications",
-     "unknown domain 'falsifications' in 'never_lifts'"),
-    ("suggest-two-bounds", 'id = "no-balance"\n', 'id = "no-balance"\nlevel = 0 # both\n',
-     '[[suggest]]\nid = "no-balance"', "needs exactly one of level, max_level or "
-     "max_level_from (found level, max_level)"),
-    ("suggest-unknown-domain", 'id = "no-balance"\ndomain = "design_checks"',
-     'id = "no-balance"\ndomain = "design-checks"', 'domain = "design-checks"',
-     "unknown domain 'design-checks'"),
+    (
+        "summary-unknown-domain",
+        'never_lifts = ["falsification"]',
+        'never_lifts = ["falsifications"]',
+        "falsifications",
+        "unknown domain 'falsifications' in 'never_lifts'",
+    ),
+    (
+        "suggest-two-bounds",
+        'id = "no-balance"\n',
+        'id = "no-balance"\nlevel = 0 # both\n',
+        '[[suggest]]\nid = "no-balance"',
+        "needs exactly one of level, max_level or max_level_from (found level, max_level)",
+    ),
+    (
+        "suggest-unknown-domain",
+        'id = "no-balance"\ndomain = "design_checks"',
+        'id = "no-balance"\ndomain = "design-checks"',
+        'domain = "design-checks"',
+        "unknown domain 'design-checks'",
+    ),
 ]
 
 
@@ -102,8 +172,11 @@ def test_missing_level_names_the_domain_header(tmp_path, rubric_text):
     path = write(tmp_path, text)
     start = text.index('[[domain]]\nkey = "falsification"')
     expected = text[:start].count("\n") + 1
-    with pytest.raises(RubricError, match=rf", line {expected}: domain 'falsification' has no "
-                       r"criteria for level 2"):
+    with pytest.raises(
+        RubricError,
+        match=rf", line {expected}: domain 'falsification' has no "
+        r"criteria for level 2",
+    ):
         load_rubric(path)
 
 
@@ -128,16 +201,16 @@ def test_non_utf8_bytes_name_the_line(tmp_path, rubric_text):
 
 def test_line_index_handles_arrays_of_tables_and_multiline_values():
     text = (
-        "[a]\n"               # 1
-        "x = 1\n"             # 2
-        "[[t]]\n"             # 3
-        "k = '''\n"           # 4
-        "y = 'not a key'\n"   # 5  (inside a multi-line string)
-        "'''\n"               # 6
-        "[[t]]\n"             # 7
-        'k = ["[", # ]\n'     # 8  (bracket inside a string, comment after)
-        "  2]\n"              # 9
-        "[[t.u]]\n"           # 10
+        "[a]\n"  # 1
+        "x = 1\n"  # 2
+        "[[t]]\n"  # 3
+        "k = '''\n"  # 4
+        "y = 'not a key'\n"  # 5  (inside a multi-line string)
+        "'''\n"  # 6
+        "[[t]]\n"  # 7
+        'k = ["[", # ]\n'  # 8  (bracket inside a string, comment after)
+        "  2]\n"  # 9
+        "[[t.u]]\n"  # 10
         '"quoted key".z = 3\n'  # 11
     )
     lines = TomlLines(text)

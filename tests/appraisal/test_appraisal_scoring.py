@@ -20,10 +20,8 @@ from exposhift.appraisal.scoring import score_appraisal
 from exposhift.errors import RubricError
 
 CORE = ("origin", "counterfactual", "design_checks", "concurrent_changes")
-OTHER = ("falsification", "timing", "exposure_shift", "outcome_data", "inference",
-         "transparency")
-ALL = (*CORE[:3], "falsification", "timing", "concurrent_changes", *OTHER[2:],
-       "applicability")
+OTHER = ("falsification", "timing", "exposure_shift", "outcome_data", "inference", "transparency")
+ALL = (*CORE[:3], "falsification", "timing", "concurrent_changes", *OTHER[2:], "applicability")
 
 
 def ratings(**levels: int) -> dict[str, int]:
@@ -37,21 +35,41 @@ def ratings(**levels: int) -> dict[str, int]:
 CRAFTED = [
     ("all strong", ratings(), 3, "origin", None),
     ("lowest core decides", ratings(counterfactual=1, origin=2), 1, "counterfactual", None),
-    ("core tie: first in rubric order", ratings(design_checks=2, concurrent_changes=2), 2,
-     "design_checks", None),
+    (
+        "core tie: first in rubric order",
+        ratings(design_checks=2, concurrent_changes=2),
+        2,
+        "design_checks",
+        None,
+    ),
     ("fatal core", ratings(concurrent_changes=0), 0, "concurrent_changes", None),
     ("fatal non-core caps at 1", ratings(inference=0), 1, "inference", "inference"),
     ("cap from an adequate core", ratings(origin=2, timing=0), 1, "timing", "timing"),
-    ("first capping domain in rubric order", ratings(transparency=0, timing=0), 1, "timing",
-     "timing"),
+    (
+        "first capping domain in rubric order",
+        ratings(transparency=0, timing=0),
+        1,
+        "timing",
+        "timing",
+    ),
     ("falsification 0 caps too", ratings(falsification=0), 1, "falsification", "falsification"),
     ("weak core already below the cap", ratings(origin=1, outcome_data=0), 1, "origin", None),
-    ("fatal core and fatal non-core", ratings(counterfactual=0, timing=0), 0, "counterfactual",
-     None),
+    (
+        "fatal core and fatal non-core",
+        ratings(counterfactual=0, timing=0),
+        0,
+        "counterfactual",
+        None,
+    ),
     ("weak non-core does not cap", ratings(exposure_shift=1, inference=1), 3, "origin", None),
     ("applicability fatal does not cap", ratings(applicability=0), 3, "origin", None),
-    ("strong falsification does not lift a weak core",
-     ratings(counterfactual=1, falsification=3), 1, "counterfactual", None),
+    (
+        "strong falsification does not lift a weak core",
+        ratings(counterfactual=1, falsification=3),
+        1,
+        "counterfactual",
+        None,
+    ),
 ]
 
 
@@ -70,8 +88,9 @@ def test_reason_in_words(rubric):
     tie = score_appraisal(ratings(origin=2, concurrent_changes=2), rubric)
     assert tie.reason == "lowest core domain: origin = 2 (adequate), tied with concurrent_changes"
     cap = score_appraisal(ratings(origin=2, timing=0), rubric)
-    assert cap.reason == ("capped at 1 (weak) by timing = 0 (fatal); "
-                          "lowest core domain: origin = 2 (adequate)")
+    assert cap.reason == (
+        "capped at 1 (weak) by timing = 0 (fatal); lowest core domain: origin = 2 (adequate)"
+    )
 
 
 def test_cap_that_changes_nothing_is_noted(rubric):
@@ -84,8 +103,9 @@ def test_cap_that_changes_nothing_is_noted(rubric):
 def test_no_lifting_is_shown(rubric):
     res = score_appraisal(ratings(design_checks=1, falsification=3), rubric)
     assert res.overall == 1
-    assert ("falsification = 3 (strong) is shown but does not lift the overall level "
-            "(summary rule)") in res.notes
+    assert (
+        "falsification = 3 (strong) is shown but does not lift the overall level (summary rule)"
+    ) in res.notes
     plain = score_appraisal(ratings(), rubric)
     assert not any("does not lift" in n for n in plain.notes)
 
@@ -108,7 +128,10 @@ def test_fatal_overall_is_excluded_from_pooling_with_a_note(rubric):
 def test_result_records_the_rubric(rubric):
     res = score_appraisal(ratings(), rubric)
     assert (res.rubric_id, res.rubric_version, res.rubric_hash) == (
-        rubric.rubric_id, rubric.version, rubric.content_hash)
+        rubric.rubric_id,
+        rubric.version,
+        rubric.content_hash,
+    )
     d = res.as_dict()
     assert d["ratings"]["origin"] == 3 and d["overall"] == 3 and d["capped_by"] is None
     # top-level import and default rubric give the same answer

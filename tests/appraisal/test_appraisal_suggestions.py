@@ -33,51 +33,177 @@ ALL_FALSIFICATION = "placebo-date; negative-control-outcome"
 # (rule id, facts that fire it, domain, expected level (exact) or None, expected max_level,
 #  near-miss facts that must not fire it)
 RULES = [
-    ("few-points", F("its", 2, 10, checks="autocorrelation"), "counterfactual", 0, 0,
-     F("its", 3, 10, checks="autocorrelation")),
-    ("few-points", F("before-after", 1, 1), "counterfactual", 0, 0,
-     F("before-after", 1, 1, has_comparison=True)),
+    (
+        "few-points",
+        F("its", 2, 10, checks="autocorrelation"),
+        "counterfactual",
+        0,
+        0,
+        F("its", 3, 10, checks="autocorrelation"),
+    ),
+    (
+        "few-points",
+        F("before-after", 1, 1),
+        "counterfactual",
+        0,
+        0,
+        F("before-after", 1, 1, has_comparison=True),
+    ),
     ("short-single-series", F("its", 6, 20), "counterfactual", None, 1, F("its", 12, 20)),
-    ("long-single-series", F("its", 12, 12), "counterfactual", None, 2,
-     F("its", 12, 12, has_comparison=True)),
-    ("similarity-not-shown", F("did", 4, 4, checks=""), "counterfactual", None, 1,
-     F("did", 4, 4, checks="Parallel trends")),
-    ("synthetic-fit-not-shown", F("synthetic-control", checks="in-space-placebo"),
-     "counterfactual", None, 1, F("synthetic-control", checks="pre period fit")),
+    (
+        "long-single-series",
+        F("its", 12, 12),
+        "counterfactual",
+        None,
+        2,
+        F("its", 12, 12, has_comparison=True),
+    ),
+    (
+        "similarity-not-shown",
+        F("did", 4, 4, checks=""),
+        "counterfactual",
+        None,
+        1,
+        F("did", 4, 4, checks="Parallel trends"),
+    ),
+    (
+        "synthetic-fit-not-shown",
+        F("synthetic-control", checks="in-space-placebo"),
+        "counterfactual",
+        None,
+        1,
+        F("synthetic-control", checks="pre period fit"),
+    ),
     ("its-minimum-points", F("its", 2, 30), "design_checks", 0, 0, F("rd-time", 2, 30)),
-    ("its-autocorrelation", F("its", 12, 12, checks="seasonality"), "design_checks", None, 1,
-     F("its", 12, 12, checks="serial correlation")),
+    (
+        "its-autocorrelation",
+        F("its", 12, 12, checks="seasonality"),
+        "design_checks",
+        None,
+        1,
+        F("its", 12, 12, checks="serial correlation"),
+    ),
     ("did-one-pre-period", F("did", 1, 6), "design_checks", 0, 0, F("did", 2, 6)),
-    ("did-no-pre-trends", F("controlled-its", 6, 6, checks="autocorrelation"), "design_checks",
-     None, 1, F("controlled-its", 6, 6, checks="autocorrelation; pre-trends")),
-    ("staggered-no-robust-estimator", F("staggered-did", checks="pre-trends"), "design_checks",
-     None, 1, F("staggered-did", checks="Callaway & Sant'Anna")),
-    ("staggered-no-robust-estimator", F("staggered-did", checks="pre-trends"), "design_checks",
-     None, 1, F("staggered-did", checks="Goodman-Bacon")),
-    ("synthetic-minimum", F("synthetic-control", checks="pre-period-fit"), "design_checks",
-     None, 1, F("synthetic-control", checks="pre-period-fit; placebo in space")),
-    ("rd-minimum", F("rd", checks="density-test"), "design_checks", None, 1,
-     F("rd", checks="McCrary; covariate continuity")),
-    ("rd-minimum", F("rd-geo", checks="covariate_continuity"), "design_checks", None, 1,
-     F("rd-geo", checks="density test; covariate continuity")),
-    ("rd-time-minimum", F("rd-time", checks="narrow-window"), "design_checks", None, 1,
-     F("rd-time", checks="narrow window; placebo dates")),
-    ("iv-no-first-stage", F("iv", checks="balance"), "design_checks", None, 1,
-     F("iv", checks="First stage F")),
-    ("iv-no-first-stage", F("iv", checks=()), "design_checks", None, 1,
-     F("iv", checks="weak_iv_robust")),
-    ("no-balance", F("as-if-random", checks=()), "design_checks", None, 1,
-     F("as-if-random", checks="covariate balance")),
-    ("no-balance", F("exposed-cohort", checks="placebo-date"), "design_checks", None, 1,
-     F("exposed-cohort", checks="balance")),
-    ("no-falsification", F("did", 4, 4, checks="pre-trends"), "falsification", 1, 1,
-     F("did", 4, 4, checks="pre-trends; negative control")),
-    ("one-kind-of-falsification", F("rd", checks="placebo-place"), "falsification", None, 2,
-     F("rd", checks=ALL_FALSIFICATION)),
-    ("series-naive-inference", F("rd-time", 30, 30, checks="placebo-date"), "inference", None,
-     1, F("rd-time", 30, 30, checks="autocorrelation")),
-    ("assignment-grade", F("as-if-random", assignment_grade=1), "origin", None, 1,
-     F("as-if-random")),
+    (
+        "did-no-pre-trends",
+        F("controlled-its", 6, 6, checks="autocorrelation"),
+        "design_checks",
+        None,
+        1,
+        F("controlled-its", 6, 6, checks="autocorrelation; pre-trends"),
+    ),
+    (
+        "staggered-no-robust-estimator",
+        F("staggered-did", checks="pre-trends"),
+        "design_checks",
+        None,
+        1,
+        F("staggered-did", checks="Callaway & Sant'Anna"),
+    ),
+    (
+        "staggered-no-robust-estimator",
+        F("staggered-did", checks="pre-trends"),
+        "design_checks",
+        None,
+        1,
+        F("staggered-did", checks="Goodman-Bacon"),
+    ),
+    (
+        "synthetic-minimum",
+        F("synthetic-control", checks="pre-period-fit"),
+        "design_checks",
+        None,
+        1,
+        F("synthetic-control", checks="pre-period-fit; placebo in space"),
+    ),
+    (
+        "rd-minimum",
+        F("rd", checks="density-test"),
+        "design_checks",
+        None,
+        1,
+        F("rd", checks="McCrary; covariate continuity"),
+    ),
+    (
+        "rd-minimum",
+        F("rd-geo", checks="covariate_continuity"),
+        "design_checks",
+        None,
+        1,
+        F("rd-geo", checks="density test; covariate continuity"),
+    ),
+    (
+        "rd-time-minimum",
+        F("rd-time", checks="narrow-window"),
+        "design_checks",
+        None,
+        1,
+        F("rd-time", checks="narrow window; placebo dates"),
+    ),
+    (
+        "iv-no-first-stage",
+        F("iv", checks="balance"),
+        "design_checks",
+        None,
+        1,
+        F("iv", checks="First stage F"),
+    ),
+    (
+        "iv-no-first-stage",
+        F("iv", checks=()),
+        "design_checks",
+        None,
+        1,
+        F("iv", checks="weak_iv_robust"),
+    ),
+    (
+        "no-balance",
+        F("as-if-random", checks=()),
+        "design_checks",
+        None,
+        1,
+        F("as-if-random", checks="covariate balance"),
+    ),
+    (
+        "no-balance",
+        F("exposed-cohort", checks="placebo-date"),
+        "design_checks",
+        None,
+        1,
+        F("exposed-cohort", checks="balance"),
+    ),
+    (
+        "no-falsification",
+        F("did", 4, 4, checks="pre-trends"),
+        "falsification",
+        1,
+        1,
+        F("did", 4, 4, checks="pre-trends; negative control"),
+    ),
+    (
+        "one-kind-of-falsification",
+        F("rd", checks="placebo-place"),
+        "falsification",
+        None,
+        2,
+        F("rd", checks=ALL_FALSIFICATION),
+    ),
+    (
+        "series-naive-inference",
+        F("rd-time", 30, 30, checks="placebo-date"),
+        "inference",
+        None,
+        1,
+        F("rd-time", 30, 30, checks="autocorrelation"),
+    ),
+    (
+        "assignment-grade",
+        F("as-if-random", assignment_grade=1),
+        "origin",
+        None,
+        1,
+        F("as-if-random"),
+    ),
 ]
 
 
@@ -126,15 +252,19 @@ def test_checks_not_recorded_fire_no_check_rule(rubric):
 
 
 def test_a_strong_study_gets_no_suggestion(rubric):
-    facts = F("did", 8, 8, checks="pre-trends; placebo-date; negative-control-outcome",
-              assignment_grade=3)
+    facts = F(
+        "did", 8, 8, checks="pre-trends; placebo-date; negative-control-outcome", assignment_grade=3
+    )
     s = suggest_levels(facts, rubric)
     assert list(s) == ["origin"] and s["origin"].max_level == 3
 
 
 def test_rules_are_read_from_the_rubric_file(tmp_path, rubric_text):
-    text = edited(rubric_text, 'fewest_points_at_least = 12\nmax_level = 2',
-                  'fewest_points_at_least = 12\nmax_level = 1')
+    text = edited(
+        rubric_text,
+        "fewest_points_at_least = 12\nmax_level = 2",
+        "fewest_points_at_least = 12\nmax_level = 1",
+    )
     adapted = load_rubric(write(tmp_path, text))
     assert suggest_levels(F("its", 24, 24), adapted)["counterfactual"].max_level == 1
 
@@ -145,12 +275,16 @@ def test_override_needs_a_justification(rubric):
     assert (ok.level, ok.overridden, ok.justification) == (1, False, "")
     assert not apply_override(cap, 0).overridden  # below a limit agrees with it
     for empty in ("", "   "):
-        with pytest.raises(RubricError, match="departs from the suggestion .*write a "
-                           "justification"):
+        with pytest.raises(
+            RubricError, match="departs from the suggestion .*write a justification"
+        ):
             apply_override(cap, 3, empty)
     d = apply_override(cap, 3, " F = 48 reported in the supplement, table S2 ")
     assert (d.level, d.overridden, d.justification) == (
-        3, True, "F = 48 reported in the supplement, table S2")
+        3,
+        True,
+        "F = 48 reported in the supplement, table S2",
+    )
     exact = suggest_levels(F("its", 2, 10), rubric)["counterfactual"]  # suggested 0
     with pytest.raises(RubricError):
         apply_override(exact, 1)
@@ -169,8 +303,13 @@ def test_study_facts_validation_and_defaults():
     assert not F("its").comparison and not F("rd-time").comparison
     assert F("did").comparison and F("iv").comparison
     assert F("its", has_comparison=True).comparison
-    f = F("did", np.int64(4), 5, checks="Parallel trends; my own test; pre_trends",
-          assignment_grade=np.int64(2))
+    f = F(
+        "did",
+        np.int64(4),
+        5,
+        checks="Parallel trends; my own test; pre_trends",
+        assignment_grade=np.int64(2),
+    )
     assert f.checks == ("pre-trends", "my-own-test") and f.unknown_checks == ("my-own-test",)
     assert f.pre_points == 4 and type(f.pre_points) is int and f.assignment_grade == 2
     assert "my-own-test" in f.checks_note
@@ -194,15 +333,19 @@ def test_facts_from_record_treats_blank_cells_as_missing():
 
 # ---- check codes -----------------------------------------------------------------------------
 
-@pytest.mark.parametrize("text,code", [
-    ("  Placebo_Date ", "placebo-date"),
-    ("PLACEBO   DATE", "placebo-date"),
-    ("negative_control__outcome", "negative-control-outcome"),
-    ("First-stage F statistic", "first-stage-f"),
-    ("Callaway & Sant'Anna", "robust-staggered-estimator"),
-    ("McCrary", "density-test"),
-    ("something new", "something-new"),
-])
+
+@pytest.mark.parametrize(
+    "text,code",
+    [
+        ("  Placebo_Date ", "placebo-date"),
+        ("PLACEBO   DATE", "placebo-date"),
+        ("negative_control__outcome", "negative-control-outcome"),
+        ("First-stage F statistic", "first-stage-f"),
+        ("Callaway & Sant'Anna", "robust-staggered-estimator"),
+        ("McCrary", "density-test"),
+        ("something new", "something-new"),
+    ],
+)
 def test_normalise_check(text, code):
     assert normalise_check(text) == code
 

@@ -39,9 +39,11 @@ def test_agreement_json_matches_scikit_learn_on_demo(demo_db):
         a, b = both[first].astype(int), both[second].astype(int)
         assert rows[domain]["n"] == len(both)
         assert rows[domain]["kappa_quadratic"] == pytest.approx(
-            cohen_kappa_score(a, b, weights="quadratic", labels=[0, 1, 2, 3]), abs=1e-12)
+            cohen_kappa_score(a, b, weights="quadratic", labels=[0, 1, 2, 3]), abs=1e-12
+        )
         assert rows[domain]["kappa_linear"] == pytest.approx(
-            cohen_kappa_score(a, b, weights="linear", labels=[0, 1, 2, 3]), abs=1e-12)
+            cohen_kappa_score(a, b, weights="linear", labels=[0, 1, 2, 3]), abs=1e-12
+        )
 
 
 def test_show_hides_other_reviewer_until_both_in(demo_db, tmp_path):
@@ -53,15 +55,19 @@ def test_show_hides_other_reviewer_until_both_in(demo_db, tmp_path):
     reviewer = ap[(ap["study_id"] == single) & (ap["stage"] == "independent")]["reviewer"].iloc[0]
     hidden = runner.invoke(app, ["--db", demo_db, "appraise", "show", single, "--as", "nobody"])
     assert hidden.exit_code == 0 and "hidden until both independent appraisals are in" in (
-        hidden.stdout)
+        hidden.stdout
+    )
     own = runner.invoke(app, ["--db", demo_db, "appraise", "show", single, "--as", reviewer])
     assert own.exit_code == 0 and "hidden" not in own.stdout and "origin" in own.stdout
 
 
 def test_appraise_import_errors_are_one_block_and_write_nothing(demo_db, tmp_path):
     bad = tmp_path / "bad.csv"
-    bad.write_text("study_id,reviewer,stage,origin,counterfactual,design_checks,"
-                   "concurrent_changes\nNO-SUCH,ana,independent,2,2,2,9\n", encoding="utf-8")
+    bad.write_text(
+        "study_id,reviewer,stage,origin,counterfactual,design_checks,"
+        "concurrent_changes\nNO-SUCH,ana,independent,2,2,2,9\n",
+        encoding="utf-8",
+    )
     before = json.loads(runner.invoke(app, ["--db", demo_db, "info", "--json"]).stdout)
     result = runner.invoke(app, ["--db", demo_db, "appraise", "import", str(bad)])
     assert result.exit_code == 2

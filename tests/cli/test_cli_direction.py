@@ -36,23 +36,67 @@ def run(db: str, *args: str):
 
 
 def test_set_list_clear(db):
-    r = run(db, "set", "--exposure", "agent-x", "--outcome", "wheeze", "--expect", "raises",
-            "--why", "invented test rationale", "--at", "2026-01-15")
+    r = run(
+        db,
+        "set",
+        "--exposure",
+        "agent-x",
+        "--outcome",
+        "wheeze",
+        "--expect",
+        "raises",
+        "--why",
+        "invented test rationale",
+        "--at",
+        "2026-01-15",
+    )
     assert r.exit_code == 0, r.output
     assert r.stdout.strip() == "added: agent-x x wheeze expected to raise (version 1)"
     r = run(db, "list", "--json")
     assert r.exit_code == 0
-    assert json.loads(r.stdout) == [{
-        "exposure": "agent-x", "outcome": "wheeze", "direction": "raises",
-        "rationale": "invented test rationale", "decided_by": "alice",
-        "decided_at": "2026-01-15T00:00:00Z", "version": 1}]
+    assert json.loads(r.stdout) == [
+        {
+            "exposure": "agent-x",
+            "outcome": "wheeze",
+            "direction": "raises",
+            "rationale": "invented test rationale",
+            "decided_by": "alice",
+            "decided_at": "2026-01-15T00:00:00Z",
+            "version": 1,
+        }
+    ]
     table = run(db, "list").stdout
     assert "agent-x" in table and "raises" in table and "invented test rationale" in table
-    r = run(db, "set", "--exposure", "agent-x", "--outcome", "wheeze", "--expect", "lowers",
-            "--why", "second thoughts", "--if-version", "1", "--json")
+    r = run(
+        db,
+        "set",
+        "--exposure",
+        "agent-x",
+        "--outcome",
+        "wheeze",
+        "--expect",
+        "lowers",
+        "--why",
+        "second thoughts",
+        "--if-version",
+        "1",
+        "--json",
+    )
     assert r.exit_code == 0 and json.loads(r.stdout)["version"] == 2
-    r = run(db, "set", "--exposure", "agent-x", "--outcome", "wheeze", "--expect", "raises",
-            "--why", "stale", "--if-version", "1")
+    r = run(
+        db,
+        "set",
+        "--exposure",
+        "agent-x",
+        "--outcome",
+        "wheeze",
+        "--expect",
+        "raises",
+        "--why",
+        "stale",
+        "--if-version",
+        "1",
+    )
     assert r.exit_code == 4 and "changed by someone else" in r.stderr
     r = run(db, "clear", "--exposure", "agent-x", "--outcome", "wheeze")
     assert r.exit_code == 0 and r.stdout.startswith("cleared: agent-x x wheeze (was version 2)")
@@ -60,14 +104,26 @@ def test_set_list_clear(db):
     assert json.loads(run(db, "list", "--json").stdout) == []
 
 
-@pytest.mark.parametrize(("args", "code", "message"), [
-    (["--exposure", "agent-y", "--expect", "raises", "--why", "w"], 5,
-     "error: no exposure 'agent-y' in the evidence base; did you mean 'agent-x'?"),
-    (["--exposure", "agent-x", "--expect", "higher", "--why", "w"], 2,
-     "error: expected direction 'higher' is not one of raises, lowers"),
-    (["--exposure", "agent-x", "--expect", "raises", "--why", ""], 2,
-     "error: a pre-specified direction needs a rationale"),
-])
+@pytest.mark.parametrize(
+    ("args", "code", "message"),
+    [
+        (
+            ["--exposure", "agent-y", "--expect", "raises", "--why", "w"],
+            5,
+            "error: no exposure 'agent-y' in the evidence base; did you mean 'agent-x'?",
+        ),
+        (
+            ["--exposure", "agent-x", "--expect", "higher", "--why", "w"],
+            2,
+            "error: expected direction 'higher' is not one of raises, lowers",
+        ),
+        (
+            ["--exposure", "agent-x", "--expect", "raises", "--why", ""],
+            2,
+            "error: a pre-specified direction needs a rationale",
+        ),
+    ],
+)
 def test_set_errors(db, args, code, message):
     r = run(db, "set", "--outcome", "wheeze", *args)
     assert r.exit_code == code
@@ -77,15 +133,17 @@ def test_set_errors(db, args, code, message):
 
 def test_import_and_its_problems(db, tmp_path):
     good = tmp_path / "d.csv"
-    good.write_text("exposure,outcome,direction,rationale\nagent-x,wheeze,raises,why\n",
-                    encoding="utf-8")
+    good.write_text(
+        "exposure,outcome,direction,rationale\nagent-x,wheeze,raises,why\n", encoding="utf-8"
+    )
     r = run(db, "import", str(good), "--dry-run")
     assert r.exit_code == 0 and r.stdout.startswith("would add 1 expected directions")
     r = run(db, "import", str(good))
     assert r.exit_code == 0 and r.stdout.startswith("added 1 expected directions, updated 0")
     bad = tmp_path / "bad.csv"
-    bad.write_text("exposure,outcome,direction,rationale\nagent-x,asthma,raise,\n",
-                   encoding="utf-8")
+    bad.write_text(
+        "exposure,outcome,direction,rationale\nagent-x,asthma,raise,\n", encoding="utf-8"
+    )
     r = run(db, "import", str(bad))
     assert r.exit_code == 2
     assert "bad.csv, row 2, column 'direction'" in r.stderr

@@ -36,9 +36,23 @@ COMMANDS = _paths(typer.main.get_command(app))
 
 def test_the_sweep_finds_every_command():
     names = {" ".join(p) for p in COMMANDS}
-    for expected in ("import", "export", "demo", "list", "show", "pool", "replication", "gaps",
-                     "agreement", "init", "info", "dashboard", "appraise import",
-                     "appraise show", "events import"):
+    for expected in (
+        "import",
+        "export",
+        "demo",
+        "list",
+        "show",
+        "pool",
+        "replication",
+        "gaps",
+        "agreement",
+        "init",
+        "info",
+        "dashboard",
+        "appraise import",
+        "appraise show",
+        "events import",
+    ):
         assert expected in names
 
 
@@ -66,8 +80,9 @@ def test_pool_help_lists_every_stratum():
         assert key in text
 
 
-@pytest.mark.parametrize("args", [["--help"], ["--version"], ["import", "--help"],
-                                  ["pool", "--help"]])
+@pytest.mark.parametrize(
+    "args", [["--help"], ["--version"], ["import", "--help"], ["pool", "--help"]]
+)
 def test_help_and_version_import_no_heavy_library(args):
     code = (
         "import json, sys\n"
@@ -78,8 +93,7 @@ def test_help_and_version_import_no_heavy_library(args):
         "    pass\n"
         f"sys.stderr.write(json.dumps([m for m in {HEAVY!r} if m in sys.modules]))\n"
     )
-    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
-                          check=True)
+    proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert json.loads(proc.stderr.strip().splitlines()[-1]) == []
 
 

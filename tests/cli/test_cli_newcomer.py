@@ -45,8 +45,9 @@ def scenario():
     s = dict(build_scenario())
     est = s["estimates"]
     cols = list(s["events"].columns)
-    s["all_events"] = (pd.concat([est[cols], s["events"]], ignore_index=True)
-                       .drop_duplicates("event_id"))
+    s["all_events"] = pd.concat([est[cols], s["events"]], ignore_index=True).drop_duplicates(
+        "event_id"
+    )
     s["studies"] = est.drop_duplicates("study_id")
     return s
 
@@ -59,7 +60,8 @@ def _independent_pairs(db: str) -> dict[str, tuple[list, list]]:
         ratings = con.execute(
             "SELECT s.key, a.reviewer, r.domain, r.level FROM rating r JOIN appraisal a ON "
             "a.id = r.appraisal_id JOIN study s ON s.id = a.study_id WHERE a.stage = "
-            "'independent' AND r.level IS NOT NULL").fetchall()
+            "'independent' AND r.level IS NOT NULL"
+        ).fetchall()
         overall = con.execute(
             "SELECT s.key, a.reviewer, 'overall level', a.overall FROM appraisal a JOIN study s "
             "ON s.id = a.study_id WHERE a.stage = 'independent' AND a.overall IS NOT NULL"
@@ -83,25 +85,31 @@ def _independent_pairs(db: str) -> dict[str, tuple[list, list]]:
 
 def test_agreement_prints_percent_on_a_0_100_scale_and_overall_level_over_studies(demo_db):
     text = ok("--db", demo_db, "agreement").stdout
-    rows = {m[0]: (int(m[1]), float(m[2]), float(m[3]))
-            for m in re.findall(r"^(\w[\w ]*?)\s+(\d+)\s+([\d.]+)%\s+([\d.]+)", text, re.M)}
+    rows = {
+        m[0]: (int(m[1]), float(m[2]), float(m[3]))
+        for m in re.findall(r"^(\w[\w ]*?)\s+(\d+)\s+([\d.]+)%\s+([\d.]+)", text, re.M)
+    }
     pairs = _independent_pairs(demo_db)
     for domain in ("origin", "timing", "overall level"):
         a, b = pairs[domain]
         percent = 100 * sum(x == y for x, y in zip(a, b, strict=True)) / len(a)  # Altman 1991
         n, shown, kappa = rows[domain]
         assert n == len(a) and shown == pytest.approx(percent, abs=0.05)
-        assert kappa == pytest.approx(cohen_kappa_score(a, b, weights="linear",
-                                                        labels=[0, 1, 2, 3]), abs=0.005)
+        assert kappa == pytest.approx(
+            cohen_kappa_score(a, b, weights="linear", labels=[0, 1, 2, 3]), abs=0.005
+        )
     studies = len(pairs["overall level"][0])
     assert rows["overall level"][0] == studies  # n = studies, not studies x domains
-    assert rows["all domains"][0] == sum(len(a) for d, (a, _) in pairs.items()
-                                         if d != "overall level")
+    assert rows["all domains"][0] == sum(
+        len(a) for d, (a, _) in pairs.items() if d != "overall level"
+    )
     assert all(v[1] <= 100 for v in rows.values())
     data = {r["domain"]: r for r in json.loads(ok("--db", demo_db, "agreement", "--json").stdout)}
     assert data["overall level"]["n"] == studies
-    assert data["overall level"]["kappa_quadratic"] == pytest.approx(cohen_kappa_score(
-        *pairs["overall level"], weights="quadratic", labels=[0, 1, 2, 3]), abs=1e-12)
+    assert data["overall level"]["kappa_quadratic"] == pytest.approx(
+        cohen_kappa_score(*pairs["overall level"], weights="quadratic", labels=[0, 1, 2, 3]),
+        abs=1e-12,
+    )
 
 
 # ---------------------------------------------------------------------------- list, show
@@ -115,16 +123,15 @@ def test_list_gives_the_names_with_counts(demo_db, scenario):
     assert "mean birth weight" in text and "preterm birth" not in text
     studies = json.loads(ok("--db", demo_db, "list", "studies", "--json").stdout)
     assert len(studies) == len(scenario["studies"])
-    ev = json.loads(ok("--db", demo_db, "list", "events", "--exposure", "Vellium",
-                       "--json").stdout)
-    assert {e["event_id"] for e in ev} == set(events.loc[events["exposure"] == "vellium",
-                                                         "event_id"])
+    ev = json.loads(ok("--db", demo_db, "list", "events", "--exposure", "Vellium", "--json").stdout)
+    assert {e["event_id"] for e in ev} == set(
+        events.loc[events["exposure"] == "vellium", "event_id"]
+    )
     bad = runner.invoke(app, ["--db", demo_db, "list", "agents"])
     assert bad.exit_code == 2 and "exposures, outcomes, studies, events" in bad.stderr
 
 
-def test_show_prints_the_study_with_events_estimates_and_appraisal_of_record(demo_db,
-                                                                             scenario):
+def test_show_prints_the_study_with_events_estimates_and_appraisal_of_record(demo_db, scenario):
     ap = scenario["appraisals"]
     study = ap.loc[ap["stage"] == "consensus", "study_id"].iloc[0]
     text = ok("--db", demo_db, "show", study).stdout
@@ -140,21 +147,60 @@ def test_show_prints_the_study_with_events_estimates_and_appraisal_of_record(dem
 
 # ------------------------------------------------------------------------------ names
 def test_exposure_and_outcome_names_match_in_any_case(demo_db):
-    lower = json.loads(ok("--db", demo_db, "pool", "--exposure", "vellium", "--outcome",
-                          "mean birth weight", "--json").stdout)
-    upper = json.loads(ok("--db", demo_db, "pool", "--exposure", "VELLIUM", "--outcome",
-                          "Mean Birth Weight", "--json").stdout)
+    lower = json.loads(
+        ok(
+            "--db",
+            demo_db,
+            "pool",
+            "--exposure",
+            "vellium",
+            "--outcome",
+            "mean birth weight",
+            "--json",
+        ).stdout
+    )
+    upper = json.loads(
+        ok(
+            "--db",
+            demo_db,
+            "pool",
+            "--exposure",
+            "VELLIUM",
+            "--outcome",
+            "Mean Birth Weight",
+            "--json",
+        ).stdout
+    )
     assert upper == lower
-    rep = json.loads(ok("--db", demo_db, "replication", "--exposure", "Dravonil", "--outcome",
-                        "PRETERM BIRTH", "--json").stdout)
+    rep = json.loads(
+        ok(
+            "--db",
+            demo_db,
+            "replication",
+            "--exposure",
+            "Dravonil",
+            "--outcome",
+            "PRETERM BIRTH",
+            "--json",
+        ).stdout
+    )
     assert rep["exposure"] == "dravonil" and rep["outcome"] == "preterm birth"
 
 
 # ------------------------------------------------------------------------------ export
 def test_export_of_one_exposure_and_outcome_with_consensus_levels(demo_db, scenario, tmp_path):
     out = tmp_path / "part.csv"
-    ok("--db", demo_db, "export", str(out), "--exposure", "Vellium", "--outcome",
-       "mean birth weight", "--with-appraisals")
+    ok(
+        "--db",
+        demo_db,
+        "export",
+        str(out),
+        "--exposure",
+        "Vellium",
+        "--outcome",
+        "mean birth weight",
+        "--with-appraisals",
+    )
     with open(out, newline="", encoding="utf-8") as fh:
         rows = list(csv.DictReader(fh))
     est = scenario["estimates"]
@@ -162,8 +208,12 @@ def test_export_of_one_exposure_and_outcome_with_consensus_levels(demo_db, scena
     assert len(rows) == len(want) and {r["exposure"] for r in rows} == {"vellium"}
     con = sqlite3.connect(demo_db)
     try:
-        levels = dict(con.execute("SELECT s.key, a.overall FROM appraisal a JOIN study s ON "
-                                  "s.id = a.study_id WHERE a.stage = 'consensus'").fetchall())
+        levels = dict(
+            con.execute(
+                "SELECT s.key, a.overall FROM appraisal a JOIN study s ON "
+                "s.id = a.study_id WHERE a.stage = 'consensus'"
+            ).fetchall()
+        )
     finally:
         con.close()
     for r in rows:
@@ -192,8 +242,7 @@ def test_global_db_is_honoured_by_demo(tmp_path, monkeypatch):
     assert not (tmp_path / "demo").exists()
 
 
-def test_demo_refuses_a_base_with_a_reviewers_own_appraisal_unless_forced(tmp_path,
-                                                                         scenario):
+def test_demo_refuses_a_base_with_a_reviewers_own_appraisal_unless_forced(tmp_path, scenario):
     db = tmp_path / "demo.db"
     ok("demo", "--db", str(db))
     ok("demo", "--db", str(db))  # a demo file holding only demo records is replaced
@@ -211,8 +260,12 @@ def test_demo_refuses_a_base_with_a_reviewers_own_appraisal_unless_forced(tmp_pa
     assert "appraisal" in refused.stderr and "--force" in refused.stderr
     con = sqlite3.connect(db)
     try:
-        assert con.execute("SELECT count(*) FROM appraisal WHERE reviewer = "
-                           "'my-own-reviewer'").fetchone()[0] == 1
+        assert (
+            con.execute(
+                "SELECT count(*) FROM appraisal WHERE reviewer = 'my-own-reviewer'"
+            ).fetchone()[0]
+            == 1
+        )
     finally:
         con.close()
     forced = ok("demo", "--db", str(db), "--force")
@@ -220,8 +273,12 @@ def test_demo_refuses_a_base_with_a_reviewers_own_appraisal_unless_forced(tmp_pa
     assert str(backup) in forced.stdout
     con = sqlite3.connect(backup)
     try:
-        assert con.execute("SELECT count(*) FROM appraisal WHERE reviewer = "
-                           "'my-own-reviewer'").fetchone()[0] == 1
+        assert (
+            con.execute(
+                "SELECT count(*) FROM appraisal WHERE reviewer = 'my-own-reviewer'"
+            ).fetchone()[0]
+            == 1
+        )
     finally:
         con.close()
 

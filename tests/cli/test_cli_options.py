@@ -26,18 +26,25 @@ def base(sqlite_store, monkeypatch):
     return sqlite_store.url
 
 
-@pytest.mark.parametrize("args, message", [
-    (["gaps", "--stale-after", "-3"], "--stale-after -3 is not a year exposhift records; give "
-     "a year from 1800 to 2100"),
-    (["gaps", "--from", "20000"], "--from 20000 is not a year"),
-    (["gaps", "--country", "NLD,XXX"], "--country: unknown ISO 3166-1 alpha-3 country code "
-     "'XXX'"),
-    (["gaps", "--country", "Germany"], "did you mean DEU, Germany?"),
-    (["dashboard", "--port", "-1"], "--port -1 is not a port; give a number from 1 to 65535"),
-    (["dashboard", "--port", "65536"], "--port 65536 is not a port"),
-    (["audit", "show", "--limit", "0"], "--limit 0 is not allowed; give 1 or more"),
-    (["audit", "verify", "--entries", "-1", "--head", "ab"], "--entries -1 is negative"),
-])
+@pytest.mark.parametrize(
+    "args, message",
+    [
+        (
+            ["gaps", "--stale-after", "-3"],
+            "--stale-after -3 is not a year exposhift records; give a year from 1800 to 2100",
+        ),
+        (["gaps", "--from", "20000"], "--from 20000 is not a year"),
+        (
+            ["gaps", "--country", "NLD,XXX"],
+            "--country: unknown ISO 3166-1 alpha-3 country code 'XXX'",
+        ),
+        (["gaps", "--country", "Germany"], "did you mean DEU, Germany?"),
+        (["dashboard", "--port", "-1"], "--port -1 is not a port; give a number from 1 to 65535"),
+        (["dashboard", "--port", "65536"], "--port 65536 is not a port"),
+        (["audit", "show", "--limit", "0"], "--limit 0 is not allowed; give 1 or more"),
+        (["audit", "verify", "--entries", "-1", "--head", "ab"], "--entries -1 is negative"),
+    ],
+)
 def test_bad_option_is_one_error_line(base, args, message):
     result = CliRunner().invoke(app, ["--db", base, *args])
     assert result.exit_code == 2, result.output
@@ -46,6 +53,7 @@ def test_bad_option_is_one_error_line(base, args, message):
 
 
 def test_good_country_and_year_are_accepted(base):
-    result = CliRunner().invoke(app, ["--db", base, "gaps", "--country", "nld",
-                                      "--stale-after", "2010"])
+    result = CliRunner().invoke(
+        app, ["--db", base, "gaps", "--country", "nld", "--stale-after", "2010"]
+    )
     assert result.exit_code == 0, result.output

@@ -7,12 +7,12 @@ from pathlib import Path
 import pytest
 
 CHROMIUM = "/usr/bin/chromium"
-CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu",
-                 "--disable-background-networking"]
-
+CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking"]
 
 
 def require_chromium() -> None:
     if not Path(CHROMIUM).is_file():
-        pytest.fail(f"Chromium is missing at {CHROMIUM}: apt-get install -y chromium (these "
-                    "tests never skip)")
+        pytest.fail(
+            f"Chromium is missing at {CHROMIUM}: apt-get install -y chromium (these "
+            "tests never skip)"
+        )

@@ -31,10 +31,12 @@ def _bundle_bytes(out: Path) -> dict[str, bytes]:
 
 
 def test_same_evidence_same_fingerprint_and_bytes(demo_store, tmp_path):
-    a = build_dossier(demo_store, "dravonil", out=tmp_path / "a", formats="html,bundle",
-                      as_of="2026-01-31")
-    b = build_dossier(demo_store, "dravonil", out=tmp_path / "b", formats="html,bundle",
-                      as_of="2026-01-31")
+    a = build_dossier(
+        demo_store, "dravonil", out=tmp_path / "a", formats="html,bundle", as_of="2026-01-31"
+    )
+    b = build_dossier(
+        demo_store, "dravonil", out=tmp_path / "b", formats="html,bundle", as_of="2026-01-31"
+    )
     assert a.fingerprint == b.fingerprint and len(a.fingerprint) == 64
     assert _bundle_bytes(tmp_path / "a") == _bundle_bytes(tmp_path / "b")
     assert (tmp_path / "a/dossier.html").read_bytes() == (tmp_path / "b/dossier.html").read_bytes()
@@ -59,32 +61,38 @@ def test_numbers_are_the_services_numbers(demo_store):
     s = d.sections[0]
     pooled = pool_evidence(demo_store, "dravonil", "preterm birth").groups
     assert [g.k for g in s.pooled] == [g["k"] for g in pooled]
-    assert s.pooled[0].estimate == pytest.approx(pooled[0]["back_transformed"]["estimate"],
-                                                 rel=1e-12)
+    assert s.pooled[0].estimate == pytest.approx(
+        pooled[0]["back_transformed"]["estimate"], rel=1e-12
+    )
     rep = replication_for(demo_store, "dravonil", "preterm birth")
     assert s.replication.status == rep.status and s.replication.rule == rep.rule
     assert s.certainty.rating == "not yet rated"
 
 
 def test_edit_changes_fingerprint_and_diff_names_it(demo_copy, tmp_path):
-    old = build_dossier(demo_copy, "dravonil", out=tmp_path / "old", formats="bundle",
-                        as_of="2026-01-01")
+    old = build_dossier(
+        demo_copy, "dravonil", out=tmp_path / "old", formats="bundle", as_of="2026-01-01"
+    )
     # an edit of another exposure's record leaves this fingerprint alone
     other = next(e for e in gather(demo_copy, "corvane").records["estimate"])
     _edit(demo_copy, "estimate", other["key"], {"point": other["point"] * 1.5})
-    same = build_dossier(demo_copy, "dravonil", out=tmp_path / "same", formats="bundle",
-                         as_of="2026-01-01")
+    same = build_dossier(
+        demo_copy, "dravonil", out=tmp_path / "same", formats="bundle", as_of="2026-01-01"
+    )
     assert same.fingerprint == old.fingerprint
     # a one-field edit of a record used changes it
     g = gather(demo_copy, "dravonil", ["preterm birth"])
     used = g.dossier.sections[0].pooled[0].estimates[0]
     rec = next(e for e in g.records["estimate"] if e["key"] == used)
     _edit(demo_copy, "estimate", used, {"point": rec["point"] * 1.3})
-    new = build_dossier(demo_copy, "dravonil", out=tmp_path / "new", formats="bundle",
-                        as_of="2026-02-01")
+    new = build_dossier(
+        demo_copy, "dravonil", out=tmp_path / "new", formats="bundle", as_of="2026-02-01"
+    )
     assert new.fingerprint != old.fingerprint
-    for diff in (diff_dossier(None, tmp_path / "old", tmp_path / "new"),
-                 diff_dossier(demo_copy, tmp_path / "old")):
+    for diff in (
+        diff_dossier(None, tmp_path / "old", tmp_path / "new"),
+        diff_dossier(demo_copy, tmp_path / "old"),
+    ):
         changed = diff.of_kind("record-changed")
         assert [(c.key, c.field) for c in changed] == [(f"estimate:{used}", "point")]
         assert changed[0].old == str(rec["point"])
@@ -95,14 +103,22 @@ def test_edit_changes_fingerprint_and_diff_names_it(demo_copy, tmp_path):
 
 
 def test_since_puts_the_changes_first(demo_copy, tmp_path):
-    build_dossier(demo_copy, "trelomene", out=tmp_path / "old", formats="bundle",
-                  as_of="2026-01-01")
+    build_dossier(
+        demo_copy, "trelomene", out=tmp_path / "old", formats="bundle", as_of="2026-01-01"
+    )
     study = gather(demo_copy, "trelomene").records["study"][0]
     _edit(demo_copy, "study", study["key"], {"population": "an edited population"})
-    r = build_dossier(demo_copy, "trelomene", out=tmp_path / "new", formats="html",
-                      since=tmp_path / "old", as_of="2026-02-01")
+    r = build_dossier(
+        demo_copy,
+        "trelomene",
+        out=tmp_path / "new",
+        formats="html",
+        since=tmp_path / "old",
+        as_of="2026-02-01",
+    )
     assert [(c.kind, c.key, c.field) for c in r.changes.changes] == [
-        ("record-changed", f"study:{study['key']}", "population")]
+        ("record-changed", f"study:{study['key']}", "population")
+    ]
     html = (tmp_path / "new/dossier.html").read_text()
     assert html.index('id="changes"') < html.index('id="question"')
     assert "an edited population" in html
@@ -110,8 +126,9 @@ def test_since_puts_the_changes_first(demo_copy, tmp_path):
 
 @pytest.mark.parametrize("exposure", DEMO_EXPOSURES)
 def test_every_demo_exposure_builds(demo_store, tmp_path, exposure):
-    r = build_dossier(demo_store, exposure, out=tmp_path / exposure, formats="html,bundle",
-                      zip_bundle=True)
+    r = build_dossier(
+        demo_store, exposure, out=tmp_path / exposure, formats="html,bundle", zip_bundle=True
+    )
     assert r.demo
     html = (tmp_path / exposure / "dossier.html").read_text()
     sections = html.count('<section class="page"')
@@ -119,17 +136,25 @@ def test_every_demo_exposure_builds(demo_store, tmp_path, exposure):
     assert html.count('<p class="demo">DEMO') == sections >= 6
     assert "support, never replace, expert judgement" in html
     assert (tmp_path / exposure / "bundle.zip").is_file()
-    assert diff_dossier(None, tmp_path / exposure / "bundle.zip",
-                        tmp_path / exposure).changes == []
+    assert diff_dossier(None, tmp_path / exposure / "bundle.zip", tmp_path / exposure).changes == []
 
 
 def test_exposure_without_poolable_estimate(sqlite_store, tmp_path):
     with sqlite_store.write() as conn:
         w = Writer(conn, "tester")
         exp = records.ensure_vocab(w, "exposure", "lonely agent")
-        records.create(w, "event", {"key": "L1", "exposure_id": exp, "change_kind": "ban",
-                                    "change_direction": "decrease", "country": "FRA",
-                                    "change_date": "2010"})
+        records.create(
+            w,
+            "event",
+            {
+                "key": "L1",
+                "exposure_id": exp,
+                "change_kind": "ban",
+                "change_direction": "decrease",
+                "country": "FRA",
+                "change_date": "2010",
+            },
+        )
         w.flush()
     r = build_dossier(sqlite_store, "lonely agent", out=tmp_path / "l", formats="html,bundle")
     html = (tmp_path / "l/dossier.html").read_text()

@@ -21,9 +21,24 @@ def test_help():
 def test_dossier_and_diff(demo_db, tmp_path):
     db = ["--db", str(demo_db)]
     out = tmp_path / "v"
-    r = runner.invoke(app, [*db, "dossier", "--exposure", "vellium", "--outcome",
-                            "mean birth weight", "--out", str(out), "--format", "html,bundle",
-                            "--zip", "--as-of", "2026-03-01"])
+    r = runner.invoke(
+        app,
+        [
+            *db,
+            "dossier",
+            "--exposure",
+            "vellium",
+            "--outcome",
+            "mean birth weight",
+            "--out",
+            str(out),
+            "--format",
+            "html,bundle",
+            "--zip",
+            "--as-of",
+            "2026-03-01",
+        ],
+    )
     assert r.exit_code == 0, r.output
     assert f"dossier of vellium written to {out}/" in r.output
     assert "every page of the dossier says so" in r.output
@@ -42,7 +57,8 @@ def test_errors_are_one_line(demo_db, tmp_path):
     assert r.exit_code == 5
     assert r.output.strip().splitlines() == [
         "error: no exposure 'velium' in the evidence base; did you mean 'vellium'? "
-        "('exposhift list exposures' lists them)"]
+        "('exposhift list exposures' lists them)"
+    ]
     r = runner.invoke(app, [*db, "dossier"])
     assert r.exit_code == 2 and "--exposure" in r.output
     r = runner.invoke(app, [*db, "dossier", "diff", str(tmp_path / "none")])

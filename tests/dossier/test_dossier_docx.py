@@ -21,8 +21,11 @@ def corvane_docx(demo_store, tmp_path_factory):
 
 
 def _study_table(doc):
-    tables = [t for t in doc.tables if t.rows[0].cells[0].text == "study"
-              and t.rows[0].cells[1].text == "design (family)"]
+    tables = [
+        t
+        for t in doc.tables
+        if t.rows[0].cells[0].text == "study" and t.rows[0].cells[1].text == "design (family)"
+    ]
     assert len(tables) == 1
     return tables[0]
 
@@ -36,11 +39,13 @@ def test_study_table_one_row_per_study_with_consensus_levels(corvane_docx, demo_
     assert [r[0].split("\n")[0] for r in rows] == [s["key"] for s in studies]
     # the consensus levels as the store holds them (read here with the store's own query)
     with demo_store.read() as conn:
-        consensus = {k[0]: v["ratings"] for k, v in existing_appraisals(conn).items()
-                     if k[2] == "consensus"}
+        consensus = {
+            k[0]: v["ratings"] for k, v in existing_appraisals(conn).items() if k[2] == "consensus"
+        }
     legend = next(p.text for p in doc.paragraphs if p.text.startswith("Domains: "))
-    codes = dict(part.split(" ", 1) for part in legend[len("Domains: "):].split(". ")[0]
-                 .split("; "))
+    codes = dict(
+        part.split(" ", 1) for part in legend[len("Domains: ") :].split(". ")[0].split("; ")
+    )
     checked = 0
     for r in rows:
         ratings = consensus.get(r[0].split("\n")[0], {})
@@ -56,8 +61,10 @@ def test_headings_tables_and_figures(corvane_docx):
     styles = [p.style.name for p in doc.paragraphs if p.style.name.startswith("Heading")]
     assert styles.count("Heading 1") >= 6 and "Heading 2" in styles
     titles = [p.text for p in doc.paragraphs if p.style.name == "Heading 1"]
-    assert titles[:2] == ["The question, framed as the trial one would have run",
-                          "Summary per outcome"]
+    assert titles[:2] == [
+        "The question, framed as the trial one would have run",
+        "Summary per outcome",
+    ]
     assert "Methods and provenance" in titles and "Cautions" in titles
     assert len(doc.tables) >= 8
     assert len(doc.inline_shapes) >= 5  # map, forest plots, timelines, sensitivity

@@ -14,9 +14,23 @@ from exposhift.services.importing import import_into
 
 PAYLOAD = '<script>alert(1)</script><b onmouseover="alert(2)">bold</b>&amp;'
 #: every free-text column of the extraction sheet, keys and names included
-TEXT_FIELDS = ("study_id", "event_id", "citation", "doi", "comparison", "population",
-               "data_source", "exposure", "outcome", "outcome_group", "area", "family",
-               "change_unit", "subgroup", "time_window")
+TEXT_FIELDS = (
+    "study_id",
+    "event_id",
+    "citation",
+    "doi",
+    "comparison",
+    "population",
+    "data_source",
+    "exposure",
+    "outcome",
+    "outcome_group",
+    "area",
+    "family",
+    "change_unit",
+    "subgroup",
+    "time_window",
+)
 
 
 def _open(path, routes: list[str]):
@@ -42,8 +56,7 @@ def _open(path, routes: list[str]):
     page.on("dialog", lambda d: (alerts.append(d.message), d.dismiss()))
     page.on("pageerror", lambda e: errors.append(str(e)))
     page.goto(path.as_uri())
-    page.wait_for_function("document.querySelectorAll('.js-plotly-plot').length > 0",
-                           timeout=30000)
+    page.wait_for_function("document.querySelectorAll('.js-plotly-plot').length > 0", timeout=30000)
     page.wait_for_timeout(500)
     return pw, browser, page, alerts, errors
 
@@ -73,7 +86,7 @@ def hostile_html(tmp_path_factory):
 def test_user_text_is_escaped_in_the_source(hostile_html):
     text = hostile_html.read_text(encoding="utf-8")
     assert PAYLOAD not in text
-    assert "<script>alert" not in text and "onmouseover=\"alert" not in text
+    assert "<script>alert" not in text and 'onmouseover="alert' not in text
     # shown as text: escaped the way jinja2's autoescape (markupsafe) escapes, once per place
     # the page shows a user field (citation, population, comparison, keys, names, ...)
     assert text.count(str(escape(PAYLOAD))) > 100
@@ -92,7 +105,8 @@ def test_user_text_shows_as_text_and_runs_nothing(hostile_html):
         # figure labels too: plotly shows the entity-escaped text as the characters
         svg_text = page.evaluate(
             "Array.from(document.querySelectorAll('.js-plotly-plot text'))"
-            ".map(t => t.textContent).join('\\n')")
+            ".map(t => t.textContent).join('\\n')"
+        )
         assert "<script>alert(1)</script>" in svg_text
         page.hover("#study-table")
         assert alerts == []

@@ -13,13 +13,29 @@ from exposhift.store.records import TABLES
 
 #: one valid estimate row (spreadsheet row 2 when first)
 BASE = {
-    "study_id": "S1", "citation": "Invented, A. et al. 2005, Demo J", "year": "2005",
-    "design": "its", "pre_points": "24", "post_points": "24", "checks": "pre-trends",
-    "demo": "yes", "event_id": "E1", "exposure": "agent-x", "change_kind": "ban",
-    "change_direction": "decrease", "change_size": "4.5", "change_unit": "ug/m3",
-    "country": "NLD", "change_date": "2001-05", "outcome": "wheeze",
-    "outcome_group": "respiratory", "measure": "RR", "estimate": "0.8", "ci_low": "0.7",
-    "ci_high": "0.9", "primary": "yes",
+    "study_id": "S1",
+    "citation": "Invented, A. et al. 2005, Demo J",
+    "year": "2005",
+    "design": "its",
+    "pre_points": "24",
+    "post_points": "24",
+    "checks": "pre-trends",
+    "demo": "yes",
+    "event_id": "E1",
+    "exposure": "agent-x",
+    "change_kind": "ban",
+    "change_direction": "decrease",
+    "change_size": "4.5",
+    "change_unit": "ug/m3",
+    "country": "NLD",
+    "change_date": "2001-05",
+    "outcome": "wheeze",
+    "outcome_group": "respiratory",
+    "measure": "RR",
+    "estimate": "0.8",
+    "ci_low": "0.7",
+    "ci_high": "0.9",
+    "primary": "yes",
 }
 
 
@@ -27,8 +43,9 @@ def row(**changes) -> dict:
     return {**BASE, **changes}
 
 
-def write_sheet(path: Path, rows: list[dict], columns: list[str] | None = None,
-                encoding: str = "utf-8") -> Path:
+def write_sheet(
+    path: Path, rows: list[dict], columns: list[str] | None = None, encoding: str = "utf-8"
+) -> Path:
     """A CSV file with ``columns`` (default: every column any row uses, in sheet order)."""
     if columns is None:
         used = {k for r in rows for k in r}

@@ -32,9 +32,10 @@ def _source_archive(tmp_path) -> tuple:
     src = open_current(url, user="source")
     try:
         import_into(src, write_sheet(tmp_path / "s.csv", two_rows()))
-        rows = [dict(study_id="S1", reviewer=r, stage=stage, **{d: "1" for d in DOMAINS})
-                for r, stage in (("ana", "independent"), ("ben", "independent"),
-                                 ("panel", "consensus"))]
+        rows = [
+            dict(study_id="S1", reviewer=r, stage=stage, **{d: "1" for d in DOMAINS})
+            for r, stage in (("ana", "independent"), ("ben", "independent"), ("panel", "consensus"))
+        ]
         pd.DataFrame(rows).to_csv(tmp_path / "ap.csv", index=False)
         import_appraisals(src, tmp_path / "ap.csv")
         path = tmp_path / "a.json"
@@ -100,8 +101,9 @@ def test_conflict_needs_replace_and_is_audited(store, tmp_path):
     ana = _appraisal(doc, "ana")
     rating = next(r for r in ana["ratings"] if r["domain"] == "timing")
     rating["level"], rating["justification"] = 0, "the change date is only known to the year"
-    ana["overall"] = score_appraisal({r["domain"]: r["level"] for r in ana["ratings"]},
-                                     RUBRIC).overall
+    ana["overall"] = score_appraisal(
+        {r["domain"]: r["level"] for r in ana["ratings"]}, RUBRIC
+    ).overall
     edited = _write(tmp_path, doc)
     got, text = _problems(store, edited)
     assert got == {(doc["appraisals"].index(ana) + 1, "reviewer")}
@@ -116,7 +118,8 @@ def test_conflict_needs_replace_and_is_audited(store, tmp_path):
     with store.read() as conn:
         replaced = [e for e in audit_rows(conn) if e["action"] == "replace"]
     assert [(e["row_key"], e["user"], e["after"]["archive"]) for e in replaced] == [
-        ("S1|ana|independent", "tester", "edited.json")]
+        ("S1|ana|independent", "tester", "edited.json")
+    ]
 
 
 def test_consensus_without_independent_appraisals_is_refused(store, tmp_path):
@@ -130,16 +133,27 @@ def test_consensus_without_independent_appraisals_is_refused(store, tmp_path):
 def test_unknown_domain_rubric_and_hash_are_refused(store, tmp_path):
     path, doc = _source_archive(tmp_path)
     ana, ben, panel = (_appraisal(doc, r) for r in ("ana", "ben", "panel"))
-    ana["ratings"].append({"domain": "vibes", "level": 3, "reporting": None,
-                           "justification": None, "suggested_level": None,
-                           "suggestion_reason": None})
+    ana["ratings"].append(
+        {
+            "domain": "vibes",
+            "level": 3,
+            "reporting": None,
+            "justification": None,
+            "suggested_level": None,
+            "suggestion_reason": None,
+        }
+    )
     ben["rubric_id"], ben["rubric_hash"] = "invented-rubric", "0" * 64
     panel["rubric_hash"] = "f" * 64
     got, text = _problems(store, _write(tmp_path, doc))
-    rows = {r: doc["appraisals"].index(a) + 1 for r, a in
-            (("ana", ana), ("ben", ben), ("panel", panel))}
-    assert got == {(rows["ana"], "ratings[vibes]"), (rows["ben"], "rubric_id"),
-                   (rows["panel"], "rubric_hash")}
+    rows = {
+        r: doc["appraisals"].index(a) + 1 for r, a in (("ana", ana), ("ben", ben), ("panel", panel))
+    }
+    assert got == {
+        (rows["ana"], "ratings[vibes]"),
+        (rows["ben"], "rubric_id"),
+        (rows["panel"], "rubric_hash"),
+    }
     assert "holds no rubric 'invented-rubric'" in text
 
 

@@ -52,8 +52,9 @@ def test_import_json_output(db, tmp_path):
 
 
 def test_bad_file_reports_every_problem_and_writes_nothing(db, tmp_path):
-    rows = two_rows(country="XXX") + [row(study_id="S3", event_id="E3", outcome="x",
-                                          se="-1", ci_low="", ci_high="")]
+    rows = two_rows(country="XXX") + [
+        row(study_id="S3", event_id="E3", outcome="x", se="-1", ci_low="", ci_high="")
+    ]
     path = write_sheet(tmp_path / "bad.csv", rows)
     out = runner.invoke(app, ["--db", db, "import", str(path)])
     assert out.exit_code == 2
@@ -129,10 +130,20 @@ def test_export_formats(db, tmp_path):
 
 
 def test_events_import_command(db, tmp_path):
-    path = write_sheet(tmp_path / "ev.csv", [{
-        "event_id": "E9", "exposure": "agent-y", "change_kind": "closure",
-        "change_direction": "decrease", "country": "SWE", "change_date": "2011-09",
-        "demo": "yes"}])
+    path = write_sheet(
+        tmp_path / "ev.csv",
+        [
+            {
+                "event_id": "E9",
+                "exposure": "agent-y",
+                "change_kind": "closure",
+                "change_direction": "decrease",
+                "country": "SWE",
+                "change_date": "2011-09",
+                "demo": "yes",
+            }
+        ],
+    )
     out = runner.invoke(app, ["--db", db, "events", "import", str(path)])
     assert out.exit_code == 0, out.output
     assert "  events            1         0          0" in out.stdout
@@ -168,8 +179,9 @@ def test_demo_refuses_other_files(tmp_path, monkeypatch):
     assert junk.read_text(encoding="utf-8") == "my notes"
     real = str(tmp_path / "real.db")
     runner.invoke(app, ["--db", real, "init"])
-    runner.invoke(app, ["--db", real, "import",
-                        str(write_sheet(tmp_path / "s.csv", [row(demo="no")]))])
+    runner.invoke(
+        app, ["--db", real, "import", str(write_sheet(tmp_path / "s.csv", [row(demo="no")]))]
+    )
     out = runner.invoke(app, ["demo", "--db", real])
     assert out.exit_code == 2 and "not demo records" in out.stderr
     con = sqlite3.connect(real)

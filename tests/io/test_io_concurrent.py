@@ -24,17 +24,35 @@ from exposhift.store.audit_chain import verify_chain
 
 def _importer(db_url, path, **env):
     return subprocess.Popen(
-        [sys.executable, "-c", "from exposhift.cli.main import app; app()", "--db", db_url,
-         "--user", path.stem, "import", str(path), "--quiet"],
-        env={**os.environ, **env}, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        [
+            sys.executable,
+            "-c",
+            "from exposhift.cli.main import app; app()",
+            "--db",
+            db_url,
+            "--user",
+            path.stem,
+            "import",
+            str(path),
+            "--quiet",
+        ],
+        env={**os.environ, **env},
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
 
 
 def test_two_imports_of_the_same_new_names_at_once(db_url, tmp_path):
     init_database(db_url, "tester")
-    a = write_sheet(tmp_path / "first.csv", [row(study_id="SA", event_id="EA",
-                                                 exposure="new-agent", outcome="new-outcome")])
-    b = write_sheet(tmp_path / "second.csv", [row(study_id="SB", event_id="EB",
-                                                  exposure="new-agent", outcome="new-outcome")])
+    a = write_sheet(
+        tmp_path / "first.csv",
+        [row(study_id="SA", event_id="EA", exposure="new-agent", outcome="new-outcome")],
+    )
+    b = write_sheet(
+        tmp_path / "second.csv",
+        [row(study_id="SB", event_id="EB", exposure="new-agent", outcome="new-outcome")],
+    )
     first = _importer(db_url, a, **{PAUSE_ENV: "1", PAUSE_SECONDS_ENV: "4"})
     _wait_for_pause(first)  # the first import is inside its transaction, names inserted
     store = open_current(db_url, "second")

@@ -40,7 +40,8 @@ def test_demo_loads_every_seed_record(demo):
     events = {r["event_id"] for r in evidence} | {r["event_id"] for r in registered}
     assert result.counts["events"] == len(events)
     assert result.counts["events_without_study"] == len(
-        {r["event_id"] for r in registered} - {r["event_id"] for r in evidence})
+        {r["event_id"] for r in registered} - {r["event_id"] for r in evidence}
+    )
     assert result.counts["appraisals"] == len(_rows("appraisals.csv"))
     assert all(r["demo"] == "yes" for r in evidence + registered)
     assert [r.counts["estimates"].added for r in result.imports[:1]] == [len(evidence)]
@@ -51,8 +52,12 @@ def test_demo_records_are_all_flagged_demo(demo):
     store = open_current(str(path))
     try:
         with store.read() as conn:
-            real = conn.execute(text("SELECT (SELECT count(*) FROM study WHERE NOT demo) + "
-                                     "(SELECT count(*) FROM event WHERE NOT demo)")).scalar()
+            real = conn.execute(
+                text(
+                    "SELECT (SELECT count(*) FROM study WHERE NOT demo) + "
+                    "(SELECT count(*) FROM event WHERE NOT demo)"
+                )
+            ).scalar()
     finally:
         store.dispose()
     assert real == 0

@@ -17,7 +17,8 @@ def test_every_column_is_documented_as_in_the_code():
     text = (DOCS / "extraction-sheet.md").read_text(encoding="utf-8")
     table = re.findall(r"^\| `(\w+)` \| (\w+) \| ?(yes)? ?\|", text, flags=re.M)
     assert [(name, entity, req == "yes") for name, entity, req in table] == [
-        (c.name, c.entity, c.required) for c in COLUMNS]
+        (c.name, c.entity, c.required) for c in COLUMNS
+    ]
     for code in (*DESIGNS, *CHANGE_KINDS):
         assert f"`{code}`" in text
 
@@ -29,5 +30,6 @@ def test_example_sheet_imports_and_round_trips(sqlite_store, tmp_path):
     report = import_into(sqlite_store, example)
     assert report.counts["estimates"].added == 4
     export_store(sqlite_store, tmp_path / "out.csv")
-    assert (tmp_path / "out.csv").read_text(encoding="utf-8").splitlines()[0] == \
-        example.read_text(encoding="utf-8").splitlines()[0]
+    assert (tmp_path / "out.csv").read_text(encoding="utf-8").splitlines()[0] == example.read_text(
+        encoding="utf-8"
+    ).splitlines()[0]

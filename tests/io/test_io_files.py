@@ -35,8 +35,7 @@ def test_utf8_with_and_without_bom(sheet, tmp_path):
 
 
 def test_other_encodings_name_the_option(sheet):
-    path = sheet(two_rows(citation="Müller, B. 2005, Démo J"), name="latin.csv",
-                 encoding="latin-1")
+    path = sheet(two_rows(citation="Müller, B. 2005, Démo J"), name="latin.csv", encoding="latin-1")
     with pytest.raises(InputFileError) as info:
         read_input(path)
     (p,) = info.value.problems
@@ -44,8 +43,9 @@ def test_other_encodings_name_the_option(sheet):
     assert "--encoding" in p.message and "latin-1" in p.message
     _, frames = read_input(path, encoding="latin-1")
     assert "Müller, B. 2005, Démo J" in frames.studies["citation"].tolist()
-    _, frames = read_input(sheet(two_rows(citation="Müller"), name="cp.csv",
-                                 encoding="cp1252"), encoding="cp1252")
+    _, frames = read_input(
+        sheet(two_rows(citation="Müller"), name="cp.csv", encoding="cp1252"), encoding="cp1252"
+    )
     assert "Müller" in frames.studies["citation"].tolist()
 
 
@@ -90,13 +90,32 @@ def _workbook(path, header, rows):
 def test_excel_import_with_typed_cells(tmp_path, sqlite_store):
     r = row()
     header = list(r)
-    values = dict(r, year=2005, pre_points=24, post_points=24, change_size=4.5, estimate=0.8,
-                  ci_low=0.7, ci_high=0.9, demo=True, primary=True,
-                  change_date="2001-05")
-    second = dict(values, study_id="S2", event_id="E2", outcome="asthma",
-                  change_date=dt.datetime(2003, 7, 1), year=2006.0)
-    path = _workbook(tmp_path / "sheet.xlsx", header,
-                     [[values[h] for h in header], [second[h] for h in header], [None] * 3])
+    values = dict(
+        r,
+        year=2005,
+        pre_points=24,
+        post_points=24,
+        change_size=4.5,
+        estimate=0.8,
+        ci_low=0.7,
+        ci_high=0.9,
+        demo=True,
+        primary=True,
+        change_date="2001-05",
+    )
+    second = dict(
+        values,
+        study_id="S2",
+        event_id="E2",
+        outcome="asthma",
+        change_date=dt.datetime(2003, 7, 1),
+        year=2006.0,
+    )
+    path = _workbook(
+        tmp_path / "sheet.xlsx",
+        header,
+        [[values[h] for h in header], [second[h] for h in header], [None] * 3],
+    )
     report = import_into(sqlite_store, path)
     assert report.counts["estimates"].added == 2
     _, frames = read_input(path)
@@ -110,8 +129,11 @@ def test_excel_problems_use_sheet_rows(tmp_path):
     r = row()
     header = list(r)
     bad = dict(r, study_id="S2", event_id="E2", outcome="asthma", country="XXX")
-    path = _workbook(tmp_path / "bad.xlsx", header,
-                     [[r[h] for h in header], [None] * len(header), [bad[h] for h in header]])
+    path = _workbook(
+        tmp_path / "bad.xlsx",
+        header,
+        [[r[h] for h in header], [None] * len(header), [bad[h] for h in header]],
+    )
     with pytest.raises(InputFileError) as info:
         read_input(path)
     (p,) = info.value.problems
@@ -126,23 +148,54 @@ def test_not_a_workbook(tmp_path):
 
 
 # OWASP CSV Injection: cells beginning with = + - @ tab or carriage return are run as formulas
-FORMULAS = ["=1+1", "+1+1", "-1+1", "@SUM(A1)", "=HYPERLINK(\"http://x\")", "'=already quoted"]
+FORMULAS = ["=1+1", "+1+1", "-1+1", "@SUM(A1)", '=HYPERLINK("http://x")', "'=already quoted"]
 
 
 def test_neutralise_rule():
     s = pd.Series([*FORMULAS, "-5", "+0.5", "1e3", "-", "safe", "a=b", ""], dtype="str")
     assert neutralise(s).tolist() == [
-        "'=1+1", "'+1+1", "'-1+1", "'@SUM(A1)", "'=HYPERLINK(\"http://x\")",
-        "''=already quoted", "-5", "+0.5", "1e3", "'-", "safe", "a=b", ""]
+        "'=1+1",
+        "'+1+1",
+        "'-1+1",
+        "'@SUM(A1)",
+        '\'=HYPERLINK("http://x")',
+        "''=already quoted",
+        "-5",
+        "+0.5",
+        "1e3",
+        "'-",
+        "safe",
+        "a=b",
+        "",
+    ]
     tab = pd.Series(["\tx", "\rx"], dtype="str")
     assert neutralise(tab).tolist() == ["'\tx", "'\rx"]
 
 
 def test_csv_export_neutralises_formulas_and_keeps_numbers(tmp_path, sqlite_store):
-    rows = [row(citation=FORMULAS[0], comparison="@cmd", area="-SUM(A1)", estimate="-0.25",
-                measure="MD", ci_low="-0.5", ci_high="0.1", subgroup="-5"),
-            row(outcome="asthma", citation=FORMULAS[0], comparison="@cmd", area="-SUM(A1)",
-                measure="MD", estimate="0.2", ci_low="-0.1", ci_high="0.5", subgroup="-5")]
+    rows = [
+        row(
+            citation=FORMULAS[0],
+            comparison="@cmd",
+            area="-SUM(A1)",
+            estimate="-0.25",
+            measure="MD",
+            ci_low="-0.5",
+            ci_high="0.1",
+            subgroup="-5",
+        ),
+        row(
+            outcome="asthma",
+            citation=FORMULAS[0],
+            comparison="@cmd",
+            area="-SUM(A1)",
+            measure="MD",
+            estimate="0.2",
+            ci_low="-0.1",
+            ci_high="0.5",
+            subgroup="-5",
+        ),
+    ]
     import_into(sqlite_store, write_sheet(tmp_path / "in.csv", rows))
     out = tmp_path / "out.csv"
     export_store(sqlite_store, out)
@@ -163,9 +216,13 @@ def test_csv_export_neutralises_formulas_and_keeps_numbers(tmp_path, sqlite_stor
 def test_xlsx_export_types(tmp_path, sqlite_store):
     from openpyxl import load_workbook
 
-    import_into(sqlite_store, write_sheet(tmp_path / "in.csv",
-                                          [row(citation="=1+1", measure="MD", estimate="-0.25",
-                                               ci_low="-0.5", ci_high="0.1")]))
+    import_into(
+        sqlite_store,
+        write_sheet(
+            tmp_path / "in.csv",
+            [row(citation="=1+1", measure="MD", estimate="-0.25", ci_low="-0.5", ci_high="0.1")],
+        ),
+    )
     out = tmp_path / "out.xlsx"
     export_store(sqlite_store, out)
     ws = load_workbook(out).worksheets[0]
@@ -182,8 +239,10 @@ def test_xlsx_export_refuses_control_characters(tmp_path, sqlite_store):
     from exposhift.store import records
     from exposhift.store.writer import Writer
 
-    with pytest.raises(InputFileError, match="row 2, column 'comparison': the cell holds the "
-                       "control character U\\+0001"):
+    with pytest.raises(
+        InputFileError,
+        match="row 2, column 'comparison': the cell holds the control character U\\+0001",
+    ):
         import_into(sqlite_store, write_sheet(tmp_path / "bad.csv", [row(comparison="a\x01b")]))
     import_into(sqlite_store, write_sheet(tmp_path / "in.csv", [row()]))
     with sqlite_store.write() as conn:
@@ -197,9 +256,17 @@ def test_xlsx_export_refuses_control_characters(tmp_path, sqlite_store):
 
 
 def test_events_sheet_export_and_reimport(tmp_path, sqlite_store, sheet):
-    events = [{"event_id": "E9", "exposure": "agent-y", "change_kind": "closure",
-               "change_direction": "decrease", "country": "SWE", "change_date": "2011",
-               "demo": "yes"}]
+    events = [
+        {
+            "event_id": "E9",
+            "exposure": "agent-y",
+            "change_kind": "closure",
+            "change_direction": "decrease",
+            "country": "SWE",
+            "change_date": "2011",
+            "demo": "yes",
+        }
+    ]
     import_into(sqlite_store, sheet(events, name="events.csv"), events_only=True)
     import_into(sqlite_store, sheet([row()], name="sheet.csv"))
     out = tmp_path / "events_out.csv"
@@ -220,6 +287,9 @@ def test_archive_is_deterministic_and_has_no_ids(tmp_path, sqlite_store, sheet):
     text = a.read_text(encoding="utf-8")
     for volatile in ('"id"', '"version"', '"created_at"', '"updated_at"', '"study_id"'):
         assert volatile not in text
-    keys = [line.split('"key": "')[1].split('"')[0] for line in text.splitlines()
-            if line.strip().startswith('{"key": "S1|')]
+    keys = [
+        line.split('"key": "')[1].split('"')[0]
+        for line in text.splitlines()
+        if line.strip().startswith('{"key": "S1|')
+    ]
     assert keys == sorted(keys) == ["S1|E1|a|RR|change||", "S1|E1|b|RR|change||"]

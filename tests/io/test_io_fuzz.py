@@ -23,20 +23,43 @@ from exposhift.services.appraising import import_appraisals
 from exposhift.services.exporting import export_store
 from exposhift.services.importing import import_into
 
-FUZZ = settings(max_examples=40, deadline=None,
-                suppress_health_check=[HealthCheck.function_scoped_fixture,
-                                       HealthCheck.too_slow])
+FUZZ = settings(
+    max_examples=40,
+    deadline=None,
+    suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
+)
 
 cell = st.one_of(
     st.text(max_size=12),
-    st.sampled_from(["", "NaN", "inf", "-0", "1e400", "0x10", "yes", "=1+1", '"', ",", ";",
-                     "\x00", "a\x1bb", "\ud7ff", "2001-02-30", "NLD", "RR", "ban"]),
+    st.sampled_from(
+        [
+            "",
+            "NaN",
+            "inf",
+            "-0",
+            "1e400",
+            "0x10",
+            "yes",
+            "=1+1",
+            '"',
+            ",",
+            ";",
+            "\x00",
+            "a\x1bb",
+            "\ud7ff",
+            "2001-02-30",
+            "NLD",
+            "RR",
+            "ban",
+        ]
+    ),
     st.builds(str, st.floats(allow_nan=True, allow_infinity=True)),
-    st.builds(str, st.integers(-10**20, 10**20)),
+    st.builds(str, st.integers(-(10**20), 10**20)),
     st.just("x" * 200_001),
 )
-header = st.lists(st.one_of(st.sampled_from(COLUMN_NAMES), st.text(max_size=8)),
-                  min_size=1, max_size=12)
+header = st.lists(
+    st.one_of(st.sampled_from(COLUMN_NAMES), st.text(max_size=8)), min_size=1, max_size=12
+)
 
 
 def _try(store, path, **kw):
@@ -77,12 +100,19 @@ def test_fuzzed_sheets_import_or_raise_our_error(data, sqlite_store, tmp_path):
 
 
 json_value = st.recursive(
-    st.one_of(st.none(), st.booleans(), st.integers(-10**30, 10**30),
-              st.floats(allow_nan=False), st.text(max_size=10),
-              st.sampled_from(["\x00", "\ud800", "S1", "E1", "independent", "consensus"])),
-    lambda inner: st.one_of(st.lists(inner, max_size=3),
-                            st.dictionaries(st.text(max_size=6), inner, max_size=3)),
-    max_leaves=8)
+    st.one_of(
+        st.none(),
+        st.booleans(),
+        st.integers(-(10**30), 10**30),
+        st.floats(allow_nan=False),
+        st.text(max_size=10),
+        st.sampled_from(["\x00", "\ud800", "S1", "E1", "independent", "consensus"]),
+    ),
+    lambda inner: st.one_of(
+        st.lists(inner, max_size=3), st.dictionaries(st.text(max_size=6), inner, max_size=3)
+    ),
+    max_leaves=8,
+)
 
 
 def _paths(node, prefix=()):

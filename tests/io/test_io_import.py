@@ -14,10 +14,19 @@ from exposhift.services.importing import import_into
 from exposhift.store import records
 from exposhift.store.writer import Writer, audit_rows
 
-EVENT_ROW = {"event_id": "E9", "exposure": "agent-y", "change_kind": "closure",
-             "change_direction": "decrease", "change_size": "", "change_unit": "",
-             "country": "SWE", "area": "Kiruna", "change_date": "2011", "family": "",
-             "demo": "yes"}
+EVENT_ROW = {
+    "event_id": "E9",
+    "exposure": "agent-y",
+    "change_kind": "closure",
+    "change_direction": "decrease",
+    "change_size": "",
+    "change_unit": "",
+    "country": "SWE",
+    "area": "Kiruna",
+    "change_date": "2011",
+    "family": "",
+    "demo": "yes",
+}
 
 
 def counts(report) -> dict:
@@ -26,9 +35,13 @@ def counts(report) -> dict:
 
 def test_import_adds_every_entity_once(store, sheet):
     report = import_into(store, sheet(two_rows() + [row(outcome="asthma")]))
-    assert counts(report) == {"exposures": (1, 0, 0), "outcomes": (2, 0, 0),
-                              "events": (2, 0, 0), "studies": (2, 0, 0),
-                              "estimates": (3, 0, 0)}
+    assert counts(report) == {
+        "exposures": (1, 0, 0),
+        "outcomes": (2, 0, 0),
+        "events": (2, 0, 0),
+        "studies": (2, 0, 0),
+        "estimates": (3, 0, 0),
+    }
     with store.read() as conn:
         est = records.get(conn, "estimate", "S1|E1|asthma|RR|change||")
         ev = records.get(conn, "event", "E1")
@@ -124,7 +137,10 @@ def test_update_respects_a_concurrent_edit(store, sheet):
     with store.read() as conn:
         st = records.get(conn, "study", "S1")
     assert (st["citation"], st["comparison"], st["version"]) == (
-        "new citation", "edited by hand", 3)
+        "new citation",
+        "edited by hand",
+        3,
+    )
 
 
 def test_column_left_out_keeps_values_blank_cell_clears(store, sheet):
@@ -166,14 +182,19 @@ def test_problems_write_nothing(store, sheet):
 
 
 def test_events_import(store, sheet):
-    path = sheet([EVENT_ROW, dict(EVENT_ROW, event_id="E10", country="NOR", area="")],
-                 name="events.csv")
+    path = sheet(
+        [EVENT_ROW, dict(EVENT_ROW, event_id="E10", country="NOR", area="")], name="events.csv"
+    )
     report = import_into(store, path, events_only=True)
     assert counts(report) == {"exposures": (1, 0, 0), "events": (2, 0, 0)}
     with store.read() as conn:
         ev = records.get(conn, "event", "E9")
     assert (ev["country"], ev["area"], ev["date_precision"], ev["demo"]) == (
-        "SWE", "Kiruna", "year", True)
+        "SWE",
+        "Kiruna",
+        "year",
+        True,
+    )
     assert counts(import_into(store, path, events_only=True))["events"] == (0, 0, 2)
     moved = sheet([dict(EVENT_ROW, change_date="2011-09")], name="events2.csv")
     assert counts(import_into(store, moved, events_only=True))["events"] == (0, 1, 0)
@@ -183,8 +204,7 @@ def test_events_import_validates_and_ignores_study_columns(store, sheet):
     bad = sheet([dict(EVENT_ROW, country="XX", change_kind="shutdown")], name="bad.csv")
     with pytest.raises(InputFileError) as info:
         import_into(store, bad, events_only=True)
-    assert {(p.row, p.column) for p in info.value.problems} == {(2, "country"),
-                                                                 (2, "change_kind")}
+    assert {(p.row, p.column) for p in info.value.problems} == {(2, "country"), (2, "change_kind")}
     full = sheet([row()], name="full.csv")
     report = import_into(store, full, events_only=True)
     assert counts(report)["events"] == (1, 0, 0) and count(store, "study") == 0
@@ -192,21 +212,59 @@ def test_events_import_validates_and_ignores_study_columns(store, sheet):
 
 
 def test_archive_problems(tmp_path, sqlite_store):
-    doc = {"format": "exposhift-evidence-base", "format_version": 1,
-           "vocabularies": {"exposures": [], "outcomes": []},
-           "events": [{"key": "E1", "exposure": "a", "change_kind": "ban",
-                       "change_direction": "decrease", "change_size": "big",
-                       "change_unit": None, "country": "ZZZ", "area": None,
-                       "change_date": "2001", "family": None, "demo": True}],
-           "studies": [],
-           "estimates": [{"key": "S1|E1|o|RR|change||", "study": "S1", "event": "E1",
-                          "outcome": "o", "measure": "RR", "estimate_kind": "change",
-                          "per_unit": None, "point": 0.8, "ci_low": None, "ci_high": None,
-                          "ci_level": None, "se": None, "p_value": None,
-                          "baseline_risk": None, "subgroup": None, "time_window": None,
-                          "primary": False}],
-           "appraisals": [{"study": "S1", "reviewer": "a", "stage": "draft", "rubric_id": "r",
-                           "rubric_hash": "h", "overall": 7, "ratings": []}]}
+    doc = {
+        "format": "exposhift-evidence-base",
+        "format_version": 1,
+        "vocabularies": {"exposures": [], "outcomes": []},
+        "events": [
+            {
+                "key": "E1",
+                "exposure": "a",
+                "change_kind": "ban",
+                "change_direction": "decrease",
+                "change_size": "big",
+                "change_unit": None,
+                "country": "ZZZ",
+                "area": None,
+                "change_date": "2001",
+                "family": None,
+                "demo": True,
+            }
+        ],
+        "studies": [],
+        "estimates": [
+            {
+                "key": "S1|E1|o|RR|change||",
+                "study": "S1",
+                "event": "E1",
+                "outcome": "o",
+                "measure": "RR",
+                "estimate_kind": "change",
+                "per_unit": None,
+                "point": 0.8,
+                "ci_low": None,
+                "ci_high": None,
+                "ci_level": None,
+                "se": None,
+                "p_value": None,
+                "baseline_risk": None,
+                "subgroup": None,
+                "time_window": None,
+                "primary": False,
+            }
+        ],
+        "appraisals": [
+            {
+                "study": "S1",
+                "reviewer": "a",
+                "stage": "draft",
+                "rubric_id": "r",
+                "rubric_hash": "h",
+                "overall": 7,
+                "ratings": [],
+            }
+        ],
+    }
     path = tmp_path / "bad.json"
     path.write_text(json.dumps(doc), encoding="utf-8")
     with pytest.raises(InputFileError) as info:

@@ -69,8 +69,9 @@ def _transaction_is_open(db_url: str, store) -> bool:
             con.close()
         return False
     with store.read() as conn:
-        n = conn.execute(text("SELECT count(*) FROM pg_stat_activity "
-                              "WHERE state = 'idle in transaction'")).scalar_one()
+        n = conn.execute(
+            text("SELECT count(*) FROM pg_stat_activity WHERE state = 'idle in transaction'")
+        ).scalar_one()
     return n >= 1
 
 
@@ -92,9 +93,23 @@ def test_sigkill_mid_import_leaves_database_as_before(db_url, tmp_path):
 
         env = {**os.environ, PAUSE_ENV: "5000", PAUSE_SECONDS_ENV: "300"}
         proc = subprocess.Popen(
-            [sys.executable, "-c", "from exposhift.cli.main import app; app()",
-             "--db", db_url, "--user", "killed", "import", "--quiet", str(big_path)],
-            stderr=subprocess.PIPE, stdout=subprocess.DEVNULL, text=True, env=env)
+            [
+                sys.executable,
+                "-c",
+                "from exposhift.cli.main import app; app()",
+                "--db",
+                db_url,
+                "--user",
+                "killed",
+                "import",
+                "--quiet",
+                str(big_path),
+            ],
+            stderr=subprocess.PIPE,
+            stdout=subprocess.DEVNULL,
+            text=True,
+            env=env,
+        )
         try:
             line = _wait_for_pause(proc)
             assert "after 5000 estimate rows" in line

@@ -38,8 +38,10 @@ def test_million_column_header_is_refused_before_parsing(tmp_path, sqlite_store)
 
 
 def test_long_cell_is_refused_with_row_and_column(tmp_path, sqlite_store):
-    path = write_sheet(tmp_path / "long.csv", [row(), row(study_id="S2", event_id="E2",
-                                                          comparison="x" * 10_000_001)])
+    path = write_sheet(
+        tmp_path / "long.csv",
+        [row(), row(study_id="S2", event_id="E2", comparison="x" * 10_000_001)],
+    )
     (p,) = _problems(sqlite_store, path)
     assert (p.row, p.column) == (3, "comparison")
     assert "10,000,001 characters, over the limit of 100,000" in p.message
@@ -66,16 +68,20 @@ def test_limits_are_configurable(tmp_path, sqlite_store, monkeypatch):
 
 @pytest.mark.parametrize("char", ["\x00", "\x1b", "\x7f"])
 def test_control_characters_are_refused_at_import(tmp_path, sqlite_store, char):
-    path = write_sheet(tmp_path / "c.csv", [row(), row(study_id="S2", event_id="E2",
-                                                       population=f"adults{char}only")])
+    path = write_sheet(
+        tmp_path / "c.csv",
+        [row(), row(study_id="S2", event_id="E2", population=f"adults{char}only")],
+    )
     (p,) = _problems(sqlite_store, path)
     assert (p.row, p.column) == (3, "population")
     assert f"control character U+{ord(char):04X} at position 7" in p.message
 
 
 def test_tab_and_newline_in_text_still_import_and_export_to_xlsx(tmp_path, sqlite_store):
-    import_into(sqlite_store, write_sheet(tmp_path / "ok.csv",
-                                          [row(population="adults\tover 65\nboth sexes")]))
+    import_into(
+        sqlite_store,
+        write_sheet(tmp_path / "ok.csv", [row(population="adults\tover 65\nboth sexes")]),
+    )
     export_store(sqlite_store, tmp_path / "out.xlsx")
 
 
@@ -87,8 +93,13 @@ def _archive(tmp_path, sqlite_store) -> dict:
 
 def test_deeply_nested_archive_is_refused(tmp_path, sqlite_store):
     path = tmp_path / "deep.json"
-    path.write_text('{"format": "exposhift-evidence-base", "format_version": 1, "events": '
-                    + "[" * 100_000 + "]" * 100_000 + "}", encoding="utf-8")
+    path.write_text(
+        '{"format": "exposhift-evidence-base", "format_version": 1, "events": '
+        + "[" * 100_000
+        + "]" * 100_000
+        + "}",
+        encoding="utf-8",
+    )
     (p,) = _problems(sqlite_store, path)
     assert "nested 100,001 levels deep, over the limit of 32" in p.message
 
@@ -101,7 +112,8 @@ def test_archive_sections_of_the_wrong_type(tmp_path, sqlite_store):
     path.write_text(json.dumps(doc), encoding="utf-8")
     got = {(p.file, p.column): p.message for p in _problems(sqlite_store, path)}
     assert got[("wrong.json", "vocabularies")].startswith(
-        "'vocabularies' must be an object ({...}), not a list")
+        "'vocabularies' must be an object ({...}), not a list"
+    )
     assert got[("wrong.json: studies", "studies")] == "'studies' must be a list of records"
     doc = _archive(tmp_path, sqlite_store)
     doc["vocabularies"]["designs"] = "all of them"
@@ -146,6 +158,6 @@ def test_wide_workbook_is_refused(tmp_path, sqlite_store):
 def test_header_and_depth_counters():
     # reference values counted by hand
     assert header_columns(b'a,"b,c",d') == 3  # the comma inside quotes does not count
-    assert header_columns(b'a;b;c\td') == 3  # the most frequent separator counts
+    assert header_columns(b"a;b;c\td") == 3  # the most frequent separator counts
     assert json_depth(b'{"a": [1, {"b": "[[[["}]}') == 3
     assert json_depth(b"[]" * 10) == 1

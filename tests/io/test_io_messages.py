@@ -54,10 +54,13 @@ def test_workbook_saved_as_csv_is_named_for_what_it_is(tmp_path):
     assert "--encoding" not in p.message
 
 
-@pytest.mark.parametrize(("head", "what"), [
-    (b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1" + b"\0" * 504, "old-format Excel workbook (.xls)"),
-    (b"%PDF-1.7\n%\xe2\xe3\xcf\xd3\n", "a PDF document"),
-])
+@pytest.mark.parametrize(
+    ("head", "what"),
+    [
+        (b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1" + b"\0" * 504, "old-format Excel workbook (.xls)"),
+        (b"%PDF-1.7\n%\xe2\xe3\xcf\xd3\n", "a PDF document"),
+    ],
+)
 def test_xls_and_pdf_named_csv_are_recognised(tmp_path, head, what):
     path = tmp_path / "extraction.csv"
     path.write_bytes(head)
@@ -82,8 +85,7 @@ def test_csv_text_named_xlsx_is_recognised(sheet, tmp_path):
 
 
 def test_utf16_file_with_bom_is_read_and_said(tmp_path):
-    path = write_sheet(tmp_path / "u16.csv", [row(citation="Ünvented, Ä. 2005")],
-                       encoding="utf-16")
+    path = write_sheet(tmp_path / "u16.csv", [row(citation="Ünvented, Ä. 2005")], encoding="utf-16")
     assert path.read_bytes()[:2] in (b"\xff\xfe", b"\xfe\xff")
     kind, frames = read_input(path)
     assert frames.studies["citation"].tolist() == ["Ünvented, Ä. 2005"]
@@ -124,8 +126,14 @@ def test_comma_file_gets_no_delimiter_note(sheet):
 # ---------------------------------------------------------------------------- worksheets
 def test_workbook_with_instructions_first_reads_the_sheet_and_names_it(tmp_path):
     path = tmp_path / "book.xlsx"
-    _workbook(path, {"Instructions": [["Fill in the Data sheet"], ["one row per estimate"]],
-                     "Data": _sheet_rows([row()]), "Lists": [["designs"], ["its"]]})
+    _workbook(
+        path,
+        {
+            "Instructions": [["Fill in the Data sheet"], ["one row per estimate"]],
+            "Data": _sheet_rows([row()]),
+            "Lists": [["designs"], ["its"]],
+        },
+    )
     kind, frames = read_input(path)
     assert frames.studies["key"].tolist() == ["S1"]
     (note,) = [n for n in frames.notes if "worksheet" in n]
@@ -135,8 +143,9 @@ def test_workbook_with_instructions_first_reads_the_sheet_and_names_it(tmp_path)
 
 def test_sheet_option_picks_a_worksheet_and_names_the_others_when_missing(tmp_path):
     path = tmp_path / "book.xlsx"
-    _workbook(path, {"Old": _sheet_rows([row(study_id="OLD")]),
-                     "New": _sheet_rows([row(study_id="NEW")])})
+    _workbook(
+        path, {"Old": _sheet_rows([row(study_id="OLD")]), "New": _sheet_rows([row(study_id="NEW")])}
+    )
     assert read_input(path, sheet="new")[1].studies["key"].tolist() == ["NEW"]
     (p,) = problems_of(path, sheet="Newest")
     assert "no worksheet 'Newest'" in p.message and "Old, New" in p.message
@@ -153,9 +162,16 @@ def test_header_only_file_has_no_data_rows(sheet, tmp_path):
 
 # --------------------------------------------------------------------- follow-on errors
 def test_reused_study_id_is_one_problem_listing_rows_and_fields(sheet):
-    other = row(event_id="E2", outcome="asthma", citation="Other, B. 2011, Demo J",
-                year="2011", design="did", pre_points="8", post_points="6",
-                checks="placebo-date")
+    other = row(
+        event_id="E2",
+        outcome="asthma",
+        citation="Other, B. 2011, Demo J",
+        year="2011",
+        design="did",
+        pre_points="8",
+        post_points="6",
+        checks="placebo-date",
+    )
     problems = problems_of(sheet([row(), other, dict(other, outcome="cough")]))
     assert len(problems) == 1  # was one per differing field and row (10 here)
     msg = problems[0].message

@@ -55,11 +55,11 @@ def test_every_bad_id_is_reported_at_once_and_nothing_is_written(store, sheet):
     import_into(store, sheet([row(study_id="S0")]))
     before = table_dump(store)
     rows = [
-        row(),                                                          # row 2: S1, event E1
-        row(study_id="S2", same_population_as="S2"),                    # row 3: itself
-        row(study_id="S3", same_population_as="S1;S9"),                 # row 4: S9 unknown
-        row(study_id="S4", event_id="E2", same_population_as="S1"),     # row 5: no shared event
-        row(study_id="S5", same_population_as="S11", ci_low="x"),       # row 6: + another rule
+        row(),  # row 2: S1, event E1
+        row(study_id="S2", same_population_as="S2"),  # row 3: itself
+        row(study_id="S3", same_population_as="S1;S9"),  # row 4: S9 unknown
+        row(study_id="S4", event_id="E2", same_population_as="S1"),  # row 5: no shared event
+        row(study_id="S5", same_population_as="S11", ci_low="x"),  # row 6: + another rule
     ]
     with pytest.raises(InputFileError) as exc:
         import_into(store, sheet(rows, name="bad.csv"))
@@ -67,8 +67,13 @@ def test_every_bad_id_is_reported_at_once_and_nothing_is_written(store, sheet):
     col = "same_population_as"
     # in file order: by row, then in sheet column order; the ci_low problems of row 6 come with
     assert [(f, r, c) for f, r, c, _ in got] == [
-        ("bad.csv", 3, col), ("bad.csv", 4, col), ("bad.csv", 5, col), ("bad.csv", 6, col),
-        ("bad.csv", 6, "ci_low"), ("bad.csv", 6, "ci_low")]
+        ("bad.csv", 3, col),
+        ("bad.csv", 4, col),
+        ("bad.csv", 5, col),
+        ("bad.csv", 6, col),
+        ("bad.csv", 6, "ci_low"),
+        ("bad.csv", 6, "ci_low"),
+    ]
     assert "'S2' names itself" in got[0][3]
     assert "no study 'S9' in this file or in the evidence base" in got[1][3]
     assert "shares no event" in got[2][3] and "'E1'" in got[2][3] and "'E2'" in got[2][3]
@@ -90,8 +95,11 @@ def test_a_study_already_in_the_evidence_base_may_be_named(store, sheet):
 
 
 def test_rows_of_one_study_must_agree(store, sheet):
-    rows = [row(), row(study_id="S2", same_population_as="S1"),
-            row(study_id="S2", outcome="asthma", same_population_as="")]
+    rows = [
+        row(),
+        row(study_id="S2", same_population_as="S1"),
+        row(study_id="S2", outcome="asthma", same_population_as=""),
+    ]
     with pytest.raises(InputFileError) as exc:
         import_into(store, sheet(rows))
     assert [(p[1], p[2]) for p in _problems(exc)] == [(4, "same_population_as")]
@@ -112,11 +120,17 @@ def test_archive_and_sheet_round_trips_keep_the_field(store, sheet, tmp_path):
     export_store(store, tmp_path / "a.csv")
     doc = json.loads((tmp_path / "a.json").read_text(encoding="utf-8"))
     assert {s["key"]: s["same_population_as"] for s in doc["studies"]} == {
-        "S1": None, "S2": "S1", "S3": None}
+        "S1": None,
+        "S2": "S1",
+        "S3": None,
+    }
     with open(tmp_path / "a.csv", encoding="utf-8", newline="") as fh:
         sheet_rows = list(csv.DictReader(fh))
     assert {r["study_id"]: r["same_population_as"] for r in sheet_rows} == {
-        "S1": "", "S2": "S1", "S3": ""}
+        "S1": "",
+        "S2": "S1",
+        "S3": "",
+    }
     for name in ("a.json", "a.csv"):
         url = f"sqlite:///{tmp_path / (name + '.db')}"
         init_database(url)

@@ -17,19 +17,21 @@ from exposhift.synthesis.harmonise import harmonise
 
 
 def test_plain_rows_give_no_warning(sheet):
-    _, frames = read_input(sheet([row(), row(outcome="cough", ci_low="", ci_high="",
-                                          se="0.1")]))
+    _, frames = read_input(sheet([row(), row(outcome="cough", ci_low="", ci_high="", se="0.1")]))
     assert frames.warnings == []
 
 
 def test_implausible_ses_are_warnings_with_file_row_and_column(sheet):
-    path = sheet([
-        row(),
-        row(outcome="o2", ci_low="", ci_high="", se="2.0"),  # SE of the RR itself?
-        row(outcome="o3", measure="pct_change", estimate="10", ci_low="", ci_high="",
-            se="5"),  # percent points
-        row(outcome="o4", se="0.5"),  # CI 0.7-0.9 implies SE 0.064 on the log scale
-    ])
+    path = sheet(
+        [
+            row(),
+            row(outcome="o2", ci_low="", ci_high="", se="2.0"),  # SE of the RR itself?
+            row(
+                outcome="o3", measure="pct_change", estimate="10", ci_low="", ci_high="", se="5"
+            ),  # percent points
+            row(outcome="o4", se="0.5"),  # CI 0.7-0.9 implies SE 0.064 on the log scale
+        ]
+    )
     _, frames = read_input(path)  # imported: warnings, not errors
     w = frames.warnings
     assert [(p.row, p.column) for p in w] == [(3, "se"), (4, "se"), (5, "se")]
@@ -41,8 +43,7 @@ def test_implausible_ses_are_warnings_with_file_row_and_column(sheet):
     assert str(w[0]).startswith(f"{path.name}, row 3, column 'se': ")
 
 
-@pytest.mark.parametrize("cell", ["<0.001", "< 0.001", "p<0.001", "P < 0.001", "<=0.001",
-                                  "≤0.001"])
+@pytest.mark.parametrize("cell", ["<0.001", "< 0.001", "p<0.001", "P < 0.001", "<=0.001", "≤0.001"])
 def test_p_bound_written_in_the_cell(sheet, cell):
     _, frames = read_input(sheet([row(ci_low="", ci_high="", p_value=cell)]))
     est = frames.estimates.iloc[0]
@@ -60,8 +61,15 @@ def test_exact_p_is_no_bound_and_bound_without_p_is_a_problem(sheet):
 
 
 def test_p_bound_is_stored_and_reaches_the_pool(sqlite_store, sheet):
-    import_into(sqlite_store, sheet([row(ci_low="", ci_high="", p_value="<0.01"),
-                                     row(outcome="o2", ci_low="", ci_high="", p_value="0.02")]))
+    import_into(
+        sqlite_store,
+        sheet(
+            [
+                row(ci_low="", ci_high="", p_value="<0.01"),
+                row(outcome="o2", ci_low="", ci_high="", p_value="0.02"),
+            ]
+        ),
+    )
     with sqlite_store.read() as conn:
         frame = analysis_frame(conn)
     assert frame.set_index("outcome")["p_bound"].to_dict() == {"wheeze": True, "o2": False}

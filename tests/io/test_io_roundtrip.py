@@ -36,8 +36,11 @@ COUNTRIES = sorted(c.alpha_3 for c in pycountry.countries)
 RATIOS = ("RR", "OR", "HR", "IRR")
 
 _chars = st.characters(categories=("L", "N", "P", "S"), exclude_characters="|")
-plain = st.text(alphabet=st.one_of(_chars, st.just(" ")), min_size=1, max_size=10).map(
-    str.strip).filter(bool)
+plain = (
+    st.text(alphabet=st.one_of(_chars, st.just(" ")), min_size=1, max_size=10)
+    .map(str.strip)
+    .filter(bool)
+)
 # text a spreadsheet would run as a formula, and text that already starts with quotes
 risky = st.builds(lambda p, t: p + t, st.sampled_from(["=", "+", "-", "@", "'=", "''-"]), plain)
 text = st.one_of(plain, risky)
@@ -51,8 +54,13 @@ def _f(lo, hi):
 @st.composite
 def estimate_values(draw):
     measure = draw(st.sampled_from(["RR", "OR", "HR", "IRR", "pct_change", "RD", "MD", "SMD"]))
-    lo, hi = (1e-6, 1e6) if measure in RATIOS else (-99.9, 1e4) if measure == "pct_change" \
+    lo, hi = (
+        (1e-6, 1e6)
+        if measure in RATIOS
+        else (-99.9, 1e4)
+        if measure == "pct_change"
         else (-1e9, 1e9)
+    )
     a, b, c = sorted(draw(st.lists(_f(lo, hi), min_size=3, max_size=3)))
     assume(a < c)
     kind = draw(st.sampled_from(list(ESTIMATE_KINDS)))
@@ -61,13 +69,18 @@ def estimate_values(draw):
     p = draw(maybe(_f(1e-12, 1.0).filter(lambda x: x > 0)))
     assume(has_ci or se is not None or p is not None)
     return {
-        "measure": measure, "estimate_kind": kind, "estimate": b,
-        "ci_low": a if has_ci else None, "ci_high": c if has_ci else None,
+        "measure": measure,
+        "estimate_kind": kind,
+        "estimate": b,
+        "ci_low": a if has_ci else None,
+        "ci_high": c if has_ci else None,
         "ci_level": draw(maybe(st.sampled_from([0.9, 0.95, 0.99, 0.8413]))) if has_ci else None,
-        "se": se, "p_value": p,
+        "se": se,
+        "p_value": p,
         "per_unit": draw(_f(1e-3, 1e3)) if kind == "per-unit" else draw(maybe(_f(1e-3, 1e3))),
         "baseline_risk": draw(maybe(_f(1e-4, 0.9999))),
-        "subgroup": draw(maybe(plain)), "time_window": draw(maybe(plain)),
+        "subgroup": draw(maybe(plain)),
+        "time_window": draw(maybe(plain)),
         "primary": draw(st.booleans()),
     }
 
@@ -75,30 +88,44 @@ def estimate_values(draw):
 @st.composite
 def events(draw):
     date = draw(st.dates(dt.date(1000, 1, 1), dt.date(2999, 12, 31)))
-    shown = draw(st.sampled_from([date.strftime("%Y"), date.strftime("%Y-%m"),
-                                  date.isoformat()]))
+    shown = draw(st.sampled_from([date.strftime("%Y"), date.strftime("%Y-%m"), date.isoformat()]))
     return {
-        "event_id": draw(plain), "exposure": draw(text),
+        "event_id": draw(plain),
+        "exposure": draw(text),
         "change_kind": draw(st.sampled_from(list(CHANGE_KINDS))),
         "change_direction": draw(st.sampled_from(list(DIRECTIONS))),
-        "change_size": draw(maybe(_f(0, 1e6))), "change_unit": draw(maybe(text)),
-        "country": draw(st.sampled_from(COUNTRIES)), "area": draw(maybe(text)),
-        "change_date": f"{int(shown[:4]):04d}{shown[4:]}", "family": draw(maybe(text)),
+        "change_size": draw(maybe(_f(0, 1e6))),
+        "change_unit": draw(maybe(text)),
+        "country": draw(st.sampled_from(COUNTRIES)),
+        "area": draw(maybe(text)),
+        "change_date": f"{int(shown[:4]):04d}{shown[4:]}",
+        "family": draw(maybe(text)),
     }
 
 
 @st.composite
 def studies(draw):
     return {
-        "study_id": draw(plain), "citation": draw(text), "year": draw(st.integers(1800, 2100)),
-        "doi": draw(maybe(text)), "design": draw(st.sampled_from(list(DESIGNS))),
-        "comparison": draw(maybe(text)), "population": draw(maybe(text)),
-        "data_source": draw(maybe(text)), "assignment_grade": draw(maybe(st.integers(0, 3))),
+        "study_id": draw(plain),
+        "citation": draw(text),
+        "year": draw(st.integers(1800, 2100)),
+        "doi": draw(maybe(text)),
+        "design": draw(st.sampled_from(list(DESIGNS))),
+        "comparison": draw(maybe(text)),
+        "population": draw(maybe(text)),
+        "data_source": draw(maybe(text)),
+        "assignment_grade": draw(maybe(st.integers(0, 3))),
         "pre_points": draw(maybe(st.integers(0, 500))),
         "post_points": draw(maybe(st.integers(0, 500))),
-        "checks": draw(maybe(st.lists(st.sampled_from(["pre-trends", "placebo-date",
-                                                       "placebo-place"]), min_size=1,
-                                      unique=True).map(";".join))),
+        "checks": draw(
+            maybe(
+                st.lists(
+                    st.sampled_from(["pre-trends", "placebo-date", "placebo-place"]),
+                    min_size=1,
+                    unique=True,
+                ).map(";".join)
+            )
+        ),
         "demo": draw(st.booleans()),
     }
 
@@ -113,9 +140,18 @@ def evidence(draw):
         s, e = draw(st.sampled_from(sts)), draw(st.sampled_from(evs))
         outcome = draw(st.sampled_from(sorted(outcomes)))
         est = draw(estimate_values())
-        key = "|".join(str(x or "") for x in (s["study_id"], e["event_id"], outcome,
-                                               est["measure"], est["estimate_kind"],
-                                               est["subgroup"], est["time_window"]))
+        key = "|".join(
+            str(x or "")
+            for x in (
+                s["study_id"],
+                e["event_id"],
+                outcome,
+                est["measure"],
+                est["estimate_kind"],
+                est["subgroup"],
+                est["time_window"],
+            )
+        )
         if key in keys:
             continue
         keys.add(key)
@@ -179,9 +215,11 @@ def _dir(tmp_path_factory) -> Path:
     return tmp_path_factory.mktemp("rt")
 
 
-SETTINGS = settings(max_examples=15, deadline=None,
-                    suppress_health_check=[HealthCheck.function_scoped_fixture,
-                                           HealthCheck.too_slow])
+SETTINGS = settings(
+    max_examples=15,
+    deadline=None,
+    suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
+)
 
 
 @SETTINGS
@@ -213,30 +251,52 @@ def test_sheet_archive_and_csv_round_trips(rows, template, tmp_path_factory):
         by_key = {e["key"]: e for e in doc["estimates"]}
         assert len(by_key) == len(rows)
         for r in rows:
-            key = "|".join(str(r[k] or "") for k in ("study_id", "event_id", "outcome",
-                                                       "measure", "estimate_kind", "subgroup",
-                                                       "time_window"))
+            key = "|".join(
+                str(r[k] or "")
+                for k in (
+                    "study_id",
+                    "event_id",
+                    "outcome",
+                    "measure",
+                    "estimate_kind",
+                    "subgroup",
+                    "time_window",
+                )
+            )
             e = by_key[key]
             assert (e["point"], e["ci_low"], e["ci_high"], e["se"], e["p_value"]) == (
-                r["estimate"], r["ci_low"], r["ci_high"], r["se"], r["p_value"])
+                r["estimate"],
+                r["ci_low"],
+                r["ci_high"],
+                r["se"],
+                r["p_value"],
+            )
             assert (e["subgroup"], e["primary"]) == (r["subgroup"], r["primary"])
         studies_out = {s["key"]: s for s in doc["studies"]}
         for r in rows:
             s = studies_out[r["study_id"]]
             assert (s["citation"], s["year"], s["comparison"], s["checks"]) == (
-                r["citation"], r["year"], r["comparison"], r["checks"])
+                r["citation"],
+                r["year"],
+                r["comparison"],
+                r["checks"],
+            )
         # the CSV as a spreadsheet reads it: formula-like text is quoted, numbers are numbers
         with open(root / "c1.csv", encoding="utf-8", newline="") as fh:
             for rec in csv.DictReader(fh):
-                assert not rec["citation"].startswith(("=", "+", "-", "@")) or \
-                    _number(rec["citation"])
+                assert not rec["citation"].startswith(("=", "+", "-", "@")) or _number(
+                    rec["citation"]
+                )
                 float(rec["estimate"])  # a plain number, never quoted
     finally:
         fresh.close()
 
 
-@settings(max_examples=6, deadline=None,
-          suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow])
+@settings(
+    max_examples=6,
+    deadline=None,
+    suppress_health_check=[HealthCheck.function_scoped_fixture, HealthCheck.too_slow],
+)
 @given(rows=evidence())
 def test_excel_round_trip(rows, template, tmp_path_factory):
     from openpyxl import load_workbook
@@ -244,8 +304,9 @@ def test_excel_round_trip(rows, template, tmp_path_factory):
     # openpyxl writes numbers with 16 significant digits ("%.16g"), Excel shows 15: the
     # workbook round trip is exact for numbers as reviewers type them (here <= 15 digits);
     # JSON and CSV are exact for every double
-    rows = [{k: float(f"{v:.15g}") if isinstance(v, float) else v for k, v in r.items()}
-            for r in rows]
+    rows = [
+        {k: float(f"{v:.15g}") if isinstance(v, float) else v for k, v in r.items()} for r in rows
+    ]
     assume(all(r["ci_low"] is None or r["ci_low"] < r["ci_high"] for r in rows))
     root = _dir(tmp_path_factory)
     fresh = Fresh(template, root)
@@ -263,8 +324,7 @@ def test_excel_round_trip(rows, template, tmp_path_factory):
         ws = load_workbook(root / "x1.xlsx", read_only=True).worksheets[0]
         header, *body = list(ws.iter_rows(values_only=True))
         col = header.index("estimate")
-        assert all(isinstance(r[col], (int, float)) and not isinstance(r[col], bool)
-                   for r in body)
+        assert all(isinstance(r[col], (int, float)) and not isinstance(r[col], bool) for r in body)
     finally:
         fresh.close()
 
@@ -275,15 +335,24 @@ RUBRIC = load_rubric()
 def _appraisal(draw, key, reviewer, stage):
     levels = {d: draw(st.integers(0, 3)) for d in RUBRIC.domain_keys}
     return {
-        "study": key, "reviewer": reviewer, "stage": stage,
-        "rubric_id": RUBRIC.rubric_id, "rubric_hash": RUBRIC.content_hash,
+        "study": key,
+        "reviewer": reviewer,
+        "stage": stage,
+        "rubric_id": RUBRIC.rubric_id,
+        "rubric_hash": RUBRIC.content_hash,
         "overall": score_appraisal(levels, RUBRIC).overall,
         # every rating justified, so any level is a valid departure from a suggestion
-        "ratings": [{"domain": d, "level": lv,
-                     "reporting": draw(maybe(st.sampled_from([r.key for r in RUBRIC.reporting]))),
-                     "justification": draw(text),
-                     "suggested_level": draw(maybe(st.integers(0, 3))),
-                     "suggestion_reason": draw(maybe(text))} for d, lv in levels.items()],
+        "ratings": [
+            {
+                "domain": d,
+                "level": lv,
+                "reporting": draw(maybe(st.sampled_from([r.key for r in RUBRIC.reporting]))),
+                "justification": draw(text),
+                "suggested_level": draw(maybe(st.integers(0, 3))),
+                "suggestion_reason": draw(maybe(text)),
+            }
+            for d, lv in levels.items()
+        ],
     }
 
 

@@ -40,14 +40,26 @@ RULES = [
     ({"country": "XXX"}, "country", "unknown ISO 3166-1 alpha-3"),
     ({"country": "Netherlands"}, "country", "did you mean NLD"),
     ({"estimate": "0.5"}, "estimate", "outside its confidence interval"),
-    ({"measure": "OR", "estimate": "0", "ci_low": "", "ci_high": "", "se": "0.1"}, "estimate",
-     "must be positive"),
-    ({"measure": "HR", "estimate": "0.5", "ci_low": "-0.1", "ci_high": "0.9"}, "ci_low",
-     "lower limit must be positive"),
-    ({"measure": "pct_change", "estimate": "-100", "ci_low": "", "ci_high": "", "se": "1"},
-     "estimate", "above -100"),
-    ({"measure": "pct_change", "estimate": "-20", "ci_low": "-100", "ci_high": "5"}, "ci_low",
-     "above -100"),
+    (
+        {"measure": "OR", "estimate": "0", "ci_low": "", "ci_high": "", "se": "0.1"},
+        "estimate",
+        "must be positive",
+    ),
+    (
+        {"measure": "HR", "estimate": "0.5", "ci_low": "-0.1", "ci_high": "0.9"},
+        "ci_low",
+        "lower limit must be positive",
+    ),
+    (
+        {"measure": "pct_change", "estimate": "-100", "ci_low": "", "ci_high": "", "se": "1"},
+        "estimate",
+        "above -100",
+    ),
+    (
+        {"measure": "pct_change", "estimate": "-20", "ci_low": "-100", "ci_high": "5"},
+        "ci_low",
+        "above -100",
+    ),
     ({"ci_low": "", "ci_high": "", "se": "0"}, "se", "not positive"),
     ({"ci_low": "", "ci_high": "", "se": "-0.2"}, "se", "not positive"),
     ({"ci_level": "95"}, "ci_level", "outside (0, 1)"),
@@ -86,8 +98,9 @@ RULES = [
 ]
 
 
-@pytest.mark.parametrize("bad,column,words", RULES,
-                         ids=[f"{c}:{'/'.join(b.values())}" for b, c, _ in RULES])
+@pytest.mark.parametrize(
+    "bad,column,words", RULES, ids=[f"{c}:{'/'.join(b.values())}" for b, c, _ in RULES]
+)
 def test_rule_reports_file_row_column(sheet, bad, column, words):
     problems = problems_of(sheet(two_rows(**bad), name="extraction.csv"))
     found = only(problems, column)
@@ -104,12 +117,19 @@ def test_valid_rows_pass(sheet):
 
 
 def test_every_problem_in_one_pass(sheet):
-    rows = [row(), row(study_id="S2", event_id="E2", outcome="a", country="XXX"),
-            row(study_id="S3", event_id="E3", outcome="b", se="-1", ci_low="", ci_high=""),
-            row(study_id="S4", event_id="E4", outcome="c", design="nope", estimate="abc")]
+    rows = [
+        row(),
+        row(study_id="S2", event_id="E2", outcome="a", country="XXX"),
+        row(study_id="S3", event_id="E3", outcome="b", se="-1", ci_low="", ci_high=""),
+        row(study_id="S4", event_id="E4", outcome="c", design="nope", estimate="abc"),
+    ]
     problems = problems_of(sheet(rows))
     assert [(p.row, p.column) for p in problems] == [
-        (3, "country"), (4, "se"), (5, "design"), (5, "estimate")]
+        (3, "country"),
+        (4, "se"),
+        (5, "design"),
+        (5, "estimate"),
+    ]
 
 
 def test_unknown_vocabulary_lists_every_accepted_code(sheet):
@@ -120,8 +140,16 @@ def test_unknown_vocabulary_lists_every_accepted_code(sheet):
 
 
 def test_codes_forgive_case_spaces_and_underscores(sheet):
-    _, frames = read_input(sheet(two_rows(design="Synthetic_Control", measure="rr",
-                                          change_kind="Policy Removal", country="swe")))
+    _, frames = read_input(
+        sheet(
+            two_rows(
+                design="Synthetic_Control",
+                measure="rr",
+                change_kind="Policy Removal",
+                country="swe",
+            )
+        )
+    )
     s2 = frames.studies.set_index("key").loc["S2"]
     e2 = frames.events.set_index("key").loc["E2"]
     assert s2["design"] == "synthetic-control"
@@ -201,8 +229,7 @@ def test_blank_rows_still_count_in_row_numbers(tmp_path, sheet):
 def test_row_with_too_many_cells(tmp_path, sheet):
     path = sheet(two_rows())
     lines = path.read_text(encoding="utf-8").splitlines()
-    path.write_text("\n".join([lines[0], lines[1] + ",extra", lines[2]]) + "\n",
-                    encoding="utf-8")
+    path.write_text("\n".join([lines[0], lines[1] + ",extra", lines[2]]) + "\n", encoding="utf-8")
     (p,) = problems_of(path)
     assert p.row == 2 and "cells but the header has" in p.message
 
@@ -224,18 +251,29 @@ def test_checks_are_normalised(sheet):
     assert frames.studies["checks"].tolist() == ["pre-trends;placebo-date"]
 
 
-@pytest.mark.parametrize("text,value", [("yes", True), ("No", False), ("TRUE", True),
-                                        ("false", False), ("1", True), ("0", False),
-                                        ("", False)])
+@pytest.mark.parametrize(
+    "text,value",
+    [
+        ("yes", True),
+        ("No", False),
+        ("TRUE", True),
+        ("false", False),
+        ("1", True),
+        ("0", False),
+        ("", False),
+    ],
+)
 def test_booleans(sheet, text, value):
     _, frames = read_input(sheet([row(primary=text)]))
     assert frames.estimates["primary"].tolist() == [value]
 
 
 def test_date_precision_is_kept(sheet):
-    rows = [row(event_id="E1", change_date="2001"),
-            row(event_id="E2", change_date="2001-05", outcome="a"),
-            row(event_id="E3", change_date="2000-02-29", outcome="b")]
+    rows = [
+        row(event_id="E1", change_date="2001"),
+        row(event_id="E2", change_date="2001-05", outcome="a"),
+        row(event_id="E3", change_date="2000-02-29", outcome="b"),
+    ]
     _, frames = read_input(sheet(rows))
     ev = frames.events.set_index("key")
     assert ev["change_date"].to_dict() == {"E1": "2001", "E2": "2001-05", "E3": "2000-02-29"}
@@ -243,8 +281,10 @@ def test_date_precision_is_kept(sheet):
 
 
 def test_uncertainty_by_se_or_p_alone_is_enough(sheet):
-    rows = [row(ci_low="", ci_high="", se="0.1"),
-            row(outcome="a", ci_low="", ci_high="", p_value="0.04")]
+    rows = [
+        row(ci_low="", ci_high="", se="0.1"),
+        row(outcome="a", ci_low="", ci_high="", p_value="0.04"),
+    ]
     _, frames = read_input(sheet(rows))
     assert len(frames.estimates) == 2
 
@@ -282,8 +322,9 @@ def test_calendar_agrees_with_datetime():
 def test_numbers_parse_exactly_as_python_float():
     # reference: Python's float() (correctly rounded decimal -> binary conversion)
     rng = np.random.default_rng(7)
-    values = np.concatenate([rng.standard_normal(2000) * 10.0 ** rng.integers(-30, 30, 2000),
-                             rng.random(2000)])
+    values = np.concatenate(
+        [rng.standard_normal(2000) * 10.0 ** rng.integers(-30, 30, 2000), rng.random(2000)]
+    )
     texts = [repr(float(v)) for v in values] + ["1e5", "+0.5", ".5", "5.", "-0"]
     log = ProblemLog("f.csv", np.arange(len(texts)) + 2)
     parsed = cells.parse_float(pd.Series(texts, dtype="str"), "estimate", log)

@@ -26,31 +26,143 @@ def crafted():
         # a x g1: three good significant events in three places on one outcome ->
         # replicated in place (replicated-in-part: not in time or across designs), ready to pool;
         # a second outcome of the group is weak only
-        unit("A1", "FRA", 2000, "decrease", 0.2, 0.05, 2, exposure="a", outcome="o1",
-             outcome_group="g1"),
-        unit("A2", "ESP", 2005, "decrease", 0.1, 0.05, 3, exposure="a", outcome="o1",
-             outcome_group="g1"),
-        unit("A3", "ITA", 2012, "decrease", 0.15, 0.05, 2, exposure="a", outcome="o1",
-             outcome_group="g1", study_id="S-shared"),
-        unit("A1", "FRA", 2000, "decrease", 0.2, 0.05, 1, exposure="a", outcome="o2",
-             outcome_group="g1", study_id="S-shared"),
+        unit(
+            "A1",
+            "FRA",
+            2000,
+            "decrease",
+            0.2,
+            0.05,
+            2,
+            exposure="a",
+            outcome="o1",
+            outcome_group="g1",
+        ),
+        unit(
+            "A2",
+            "ESP",
+            2005,
+            "decrease",
+            0.1,
+            0.05,
+            3,
+            exposure="a",
+            outcome="o1",
+            outcome_group="g1",
+        ),
+        unit(
+            "A3",
+            "ITA",
+            2012,
+            "decrease",
+            0.15,
+            0.05,
+            2,
+            exposure="a",
+            outcome="o1",
+            outcome_group="g1",
+            study_id="S-shared",
+        ),
+        unit(
+            "A1",
+            "FRA",
+            2000,
+            "decrease",
+            0.2,
+            0.05,
+            1,
+            exposure="a",
+            outcome="o2",
+            outcome_group="g1",
+            study_id="S-shared",
+        ),
         # b x g1: one good event -> single-event; b x g2: weak only
-        unit("B1", "DEU", 2007, "decrease", 0.2, 0.05, 2, exposure="b", outcome="o1",
-             outcome_group="g1"),
-        unit("B2", "AUT", 2008, "decrease", 0.2, 0.05, 1, exposure="b", outcome="o3",
-             outcome_group="g2"),
+        unit(
+            "B1",
+            "DEU",
+            2007,
+            "decrease",
+            0.2,
+            0.05,
+            2,
+            exposure="b",
+            outcome="o1",
+            outcome_group="g1",
+        ),
+        unit(
+            "B2",
+            "AUT",
+            2008,
+            "decrease",
+            0.2,
+            0.05,
+            1,
+            exposure="b",
+            outcome="o3",
+            outcome_group="g2",
+        ),
         # c x g1: two good significant events in two places -> replicated-in-part
-        unit("C1", "NLD", 2009, "decrease", 0.2, 0.05, 2, exposure="c", outcome="o1",
-             outcome_group="g1"),
-        unit("C2", "BEL", 2011, "decrease", 0.2, 0.05, 2, exposure="c", outcome="o1",
-             outcome_group="g1"),
+        unit(
+            "C1",
+            "NLD",
+            2009,
+            "decrease",
+            0.2,
+            0.05,
+            2,
+            exposure="c",
+            outcome="o1",
+            outcome_group="g1",
+        ),
+        unit(
+            "C2",
+            "BEL",
+            2011,
+            "decrease",
+            0.2,
+            0.05,
+            2,
+            exposure="c",
+            outcome="o1",
+            outcome_group="g1",
+        ),
         # c x g2: good events, but nothing after 2005 -> stale when --stale-after 2005
-        unit("C3", "SWE", 1995, "decrease", 0.2, 0.05, 3, exposure="c", outcome="o3",
-             outcome_group="g2"),
-        unit("C4", "NOR", 2005, "decrease", 0.2, 0.05, 3, exposure="c", outcome="o3",
-             outcome_group="g2"),
-        unit("C5", "DNK", 2004, "decrease", 0.2, 0.05, 3, exposure="c", outcome="o3",
-             outcome_group="g2"),
+        unit(
+            "C3",
+            "SWE",
+            1995,
+            "decrease",
+            0.2,
+            0.05,
+            3,
+            exposure="c",
+            outcome="o3",
+            outcome_group="g2",
+        ),
+        unit(
+            "C4",
+            "NOR",
+            2005,
+            "decrease",
+            0.2,
+            0.05,
+            3,
+            exposure="c",
+            outcome="o3",
+            outcome_group="g2",
+        ),
+        unit(
+            "C5",
+            "DNK",
+            2004,
+            "decrease",
+            0.2,
+            0.05,
+            3,
+            exposure="c",
+            outcome="o3",
+            outcome_group="g2",
+        ),
     )
 
 
@@ -95,14 +207,18 @@ def test_cell_contents():
 
 def test_threshold_settings_change_states():
     c = gap_map(crafted(), settings=DEFAULTS.with_(ready_min_events=4)).set_index(
-        ["exposure", "outcome_group"])
+        ["exposure", "outcome_group"]
+    )
     assert not c.loc[("a", "g1"), "ready_for_synthesis"]
     # the rule names the cell's own count (3 good events)
-    assert "3 independent event(s) at level ≥ 2 on the best-covered outcome" in \
-        c.loc[("a", "g1"), "state_rule"]
+    assert (
+        "3 independent event(s) at level ≥ 2 on the best-covered outcome"
+        in c.loc[("a", "g1"), "state_rule"]
+    )
     assert "enough to pool" not in c.loc[("a", "g1"), "state_rule"]
     c = gap_map(crafted(), settings=DEFAULTS.with_(min_level=3)).set_index(
-        ["exposure", "outcome_group"])
+        ["exposure", "outcome_group"]
+    )
     assert c.loc[("a", "g1"), "state"] == "single-event"
     assert c.loc[("c", "g1"), "state"] == "weak-only"
 
@@ -116,17 +232,49 @@ def test_studies_count_includes_studies_set_aside_as_duplicates():
 
 
 def registry():
-    return pd.DataFrame([
-        {"event_id": "A1", "exposure": "a", "change_kind": "ban", "change_direction": "decrease",
-         "change_size": 2.0, "country": "FRA", "area": None, "change_date": "2000",
-         "family": "a / ban", "studies": 2, "change_year": 2000},
-        {"event_id": "A9", "exposure": "a", "change_kind": "ban", "change_direction": "decrease",
-         "change_size": None, "country": "POL", "area": "two regions", "change_date": "2019-05",
-         "family": "a / ban", "studies": 0, "change_year": 2019},
-        {"event_id": "D1", "exposure": "d", "change_kind": "closure",
-         "change_direction": "decrease", "change_size": 4.0, "country": "KEN", "area": None,
-         "change_date": "2015", "family": "d / closure", "studies": 0, "change_year": 2015},
-    ])
+    return pd.DataFrame(
+        [
+            {
+                "event_id": "A1",
+                "exposure": "a",
+                "change_kind": "ban",
+                "change_direction": "decrease",
+                "change_size": 2.0,
+                "country": "FRA",
+                "area": None,
+                "change_date": "2000",
+                "family": "a / ban",
+                "studies": 2,
+                "change_year": 2000,
+            },
+            {
+                "event_id": "A9",
+                "exposure": "a",
+                "change_kind": "ban",
+                "change_direction": "decrease",
+                "change_size": None,
+                "country": "POL",
+                "area": "two regions",
+                "change_date": "2019-05",
+                "family": "a / ban",
+                "studies": 0,
+                "change_year": 2019,
+            },
+            {
+                "event_id": "D1",
+                "exposure": "d",
+                "change_kind": "closure",
+                "change_direction": "decrease",
+                "change_size": 4.0,
+                "country": "KEN",
+                "area": None,
+                "change_date": "2015",
+                "family": "d / closure",
+                "studies": 0,
+                "change_year": 2015,
+            },
+        ]
+    )
 
 
 def test_registered_exposures_get_rows_and_unevaluated_counts():

@@ -35,8 +35,10 @@ def lowers():
 def test_two_non_significant_events_are_not_replicated_place():
     # z = 1.0 and 1.2 (both p > 0.05); their pooled estimate with HKSJ (floored) on 1 df
     # includes no effect: neither event counts, so no place replicates
-    df = frame(unit("A", "FRA", 2000, "decrease", 0.05, 0.05, 2),
-               unit("B", "ESP", 2004, "decrease", 0.06, 0.05, 2))
+    df = frame(
+        unit("A", "FRA", 2000, "decrease", 0.05, 0.05, 2),
+        unit("B", "ESP", 2004, "decrease", 0.06, 0.05, 2),
+    )
     row = status_of(df)
     assert row["status"] == "not-replicated"
     assert row["places_count"] == 0 and not row["pooled_supports"]
@@ -49,9 +51,11 @@ def test_two_non_significant_events_are_not_replicated_place():
 def test_three_events_at_z_point_three_are_not_convergent():
     # three events at z = 0.3 in two places and two periods, two design families: pooled
     # p is about 0.6 (as in the issue): nothing counts
-    df = frame(unit("A", "FRA", 2000, "decrease", 0.03, 0.1, 2),
-               unit("B", "FRA", 2010, "decrease", 0.03, 0.1, 2, family="weighted-fit"),
-               unit("C", "ESP", 2005, "decrease", 0.03, 0.1, 2))
+    df = frame(
+        unit("A", "FRA", 2000, "decrease", 0.03, 0.1, 2),
+        unit("B", "FRA", 2010, "decrease", 0.03, 0.1, 2, family="weighted-fit"),
+        unit("C", "ESP", 2005, "decrease", 0.03, 0.1, 2),
+    )
     row = status_of(df)
     assert row["status"] == "not-replicated"
     assert row["pooled_pvalue"] > 0.5
@@ -62,8 +66,7 @@ def test_one_precise_event_against_seven_imprecise_is_discordant():
     # one significant increase effect (z = 4) and seven imprecise opposite ones (z = -0.5):
     # the majority points one way, a significant event the other
     rows = [unit("P", "FRA", 2000, "decrease", 0.2, 0.05, 3)]
-    rows += [unit(f"N{i}", COUNTRIES[i + 1], 2001 + i, "decrease", -0.05, 0.1, 2)
-             for i in range(7)]
+    rows += [unit(f"N{i}", COUNTRIES[i + 1], 2001 + i, "decrease", -0.05, 0.1, 2) for i in range(7)]
     row = status_of(frame(*rows))
     assert row["status"] == "discordant"
     assert row["sig_against_majority"]
@@ -72,8 +75,7 @@ def test_one_precise_event_against_seven_imprecise_is_discordant():
 
 def test_significant_effects_against_a_prespecified_direction_replicate_against():
     # five significant effects (z = 4) where the committee expected the opposite direction
-    rows = [unit(f"E{i}", COUNTRIES[i], 2000 + 2 * i, "decrease", 0.2, 0.05, 2)
-            for i in range(5)]
+    rows = [unit(f"E{i}", COUNTRIES[i], 2000 + 2 * i, "decrease", 0.2, 0.05, 2) for i in range(5)]
     row = status_of(frame(*rows), directions=lowers())
     assert row["expected"] == -1 and row["expected_source"] == "pre-specified"
     assert row["status"] == "replicated-against"
@@ -83,8 +85,7 @@ def test_significant_effects_against_a_prespecified_direction_replicate_against(
 
 
 def test_an_inferred_direction_makes_the_status_provisional():
-    rows = [unit(f"E{i}", COUNTRIES[i], 2000 + 2 * i, "decrease", 0.2, 0.05, 2)
-            for i in range(3)]
+    rows = [unit(f"E{i}", COUNTRIES[i], 2000 + 2 * i, "decrease", 0.2, 0.05, 2) for i in range(3)]
     inferred = status_of(frame(*rows))
     assert inferred["status"] == "replicated-place" and inferred["provisional"]
     assert "provisional" in inferred["rule"]
@@ -96,8 +97,10 @@ def test_an_inferred_direction_makes_the_status_provisional():
 
 def test_change_dates_one_month_apart_are_one_period_and_years_apart_are_two():
     def two(d1, d2):
-        df = frame(unit("A", "PRT", 2000, "decrease", 0.2, 0.05, 2),
-                   unit("B", "PRT", 2001, "decrease", 0.2, 0.05, 2))
+        df = frame(
+            unit("A", "PRT", 2000, "decrease", 0.2, 0.05, 2),
+            unit("B", "PRT", 2001, "decrease", 0.2, 0.05, 2),
+        )
         df["change_date"] = [d1, d2]
         return status_of(df)
 
@@ -111,8 +114,7 @@ def test_change_dates_one_month_apart_are_one_period_and_years_apart_are_two():
 
 
 def test_each_status_states_its_event_count_sign_test_and_minimum_p():
-    rows = [unit(f"E{i}", COUNTRIES[i], 2000 + 2 * i, "decrease", 0.2, 0.05, 2)
-            for i in range(3)]
+    rows = [unit(f"E{i}", COUNTRIES[i], 2000 + 2 * i, "decrease", 0.2, 0.05, 2) for i in range(3)]
     row = status_of(frame(*rows))
     # exact two-sided sign test, 3 of 3: p = 0.25 = the smallest attainable at n = 3
     assert row["sign_test_p"] == pytest.approx(stats.binomtest(3, 3, 0.5).pvalue, rel=1e-12)
@@ -124,10 +126,12 @@ def test_each_status_states_its_event_count_sign_test_and_minimum_p():
 
 def test_an_event_counts_once_whatever_its_number_of_estimates():
     # one event with three populations: one good event, its estimate the combination
-    df = frame(unit("A", "FRA", 2000, "decrease", 0.20, 0.05, 2, population="adults"),
-               unit("A", "FRA", 2000, "decrease", 0.25, 0.06, 3, population="children"),
-               unit("A", "FRA", 2000, "decrease", 0.22, 0.05, 2, population="elderly"),
-               unit("B", "ESP", 2003, "decrease", 0.21, 0.05, 2))
+    df = frame(
+        unit("A", "FRA", 2000, "decrease", 0.20, 0.05, 2, population="adults"),
+        unit("A", "FRA", 2000, "decrease", 0.25, 0.06, 3, population="children"),
+        unit("A", "FRA", 2000, "decrease", 0.22, 0.05, 2, population="elderly"),
+        unit("B", "ESP", 2003, "decrease", 0.21, 0.05, 2),
+    )
     row = status_of(df)
     assert row["n_good"] == 2 and row["pooled_k_events"] == 2
     assert row["pooled_k_estimates"] == 4
@@ -138,10 +142,18 @@ def test_gap_state_never_contradicts_the_status():
     rows = []
     for x in range(5):
         for e in range(int(rng.integers(1, 6))):
-            rows.append(unit(f"X{x}E{e}", COUNTRIES[int(rng.integers(0, 9))],
-                             int(rng.integers(1990, 2020)), "decrease",
-                             float(rng.normal(0.1, 0.15)), float(rng.uniform(0.03, 0.1)),
-                             [None, 1, 2, 3][int(rng.integers(0, 4))], exposure=f"x{x}"))
+            rows.append(
+                unit(
+                    f"X{x}E{e}",
+                    COUNTRIES[int(rng.integers(0, 9))],
+                    int(rng.integers(1990, 2020)),
+                    "decrease",
+                    float(rng.normal(0.1, 0.15)),
+                    float(rng.uniform(0.03, 0.1)),
+                    [None, 1, 2, 3][int(rng.integers(0, 4))],
+                    exposure=f"x{x}",
+                )
+            )
     cells = gap_map(frame(*rows))
     assert len(cells) == 5
     for status, state in zip(cells["status"], cells["state"], strict=True):
@@ -151,9 +163,13 @@ def test_gap_state_never_contradicts_the_status():
 def test_significance_threshold_is_the_normal_quantile():
     # an event at z just below / above the two-sided 5% critical value (scipy norm.isf)
     z = stats.norm.isf(0.025)
-    below = frame(unit("A", "FRA", 2000, "decrease", 0.05 * (z - 0.01), 0.05, 2),
-                  unit("B", "ESP", 2004, "decrease", 0.05 * (z - 0.01), 0.05, 2))
-    above = frame(unit("A", "FRA", 2000, "decrease", 0.05 * (z + 0.01), 0.05, 2),
-                  unit("B", "ESP", 2004, "decrease", 0.05 * (z + 0.01), 0.05, 2))
+    below = frame(
+        unit("A", "FRA", 2000, "decrease", 0.05 * (z - 0.01), 0.05, 2),
+        unit("B", "ESP", 2004, "decrease", 0.05 * (z - 0.01), 0.05, 2),
+    )
+    above = frame(
+        unit("A", "FRA", 2000, "decrease", 0.05 * (z + 0.01), 0.05, 2),
+        unit("B", "ESP", 2004, "decrease", 0.05 * (z + 0.01), 0.05, 2),
+    )
     assert status_of(below)["places_count"] == 0
     assert status_of(above)["places_count"] == 2

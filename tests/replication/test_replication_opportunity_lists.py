@@ -13,16 +13,37 @@ def _units(outcomes: list[str]) -> pd.DataFrame:
     rows = []
     for i in range(len(outcomes)):
         for o in outcomes[: len(outcomes) - i]:
-            rows.append({"event_id": f"E{i}", "exposure": "a", "change_kind": "ban",
-                         "family": "a / ban", "outcome": o, "design": "its"})
+            rows.append(
+                {
+                    "event_id": f"E{i}",
+                    "exposure": "a",
+                    "change_kind": "ban",
+                    "family": "a / ban",
+                    "outcome": o,
+                    "design": "its",
+                }
+            )
     return pd.DataFrame(rows)
 
 
 def _registry() -> pd.DataFrame:
-    return pd.DataFrame([{"event_id": "NEW", "exposure": "a", "change_kind": "ban",
-                          "change_direction": "decrease", "change_size": 1.0, "country": "FRA",
-                          "area": None, "change_date": "2020", "family": "a / ban",
-                          "studies": 0, "change_year": 2020}])
+    return pd.DataFrame(
+        [
+            {
+                "event_id": "NEW",
+                "exposure": "a",
+                "change_kind": "ban",
+                "change_direction": "decrease",
+                "change_size": 1.0,
+                "country": "FRA",
+                "area": None,
+                "change_date": "2020",
+                "family": "a / ban",
+                "studies": 0,
+                "change_year": 2020,
+            }
+        ]
+    )
 
 
 def test_more_than_three_outcomes_are_all_named():

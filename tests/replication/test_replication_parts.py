@@ -45,9 +45,11 @@ def test_sign_test_published_value():
 
 
 def test_periods_merge_events_closer_than_min_months_apart():
-    df = frame(unit("A", "PRT", 2000, "decrease", 0.2, 0.05, 2),
-               unit("B", "PRT", 2001, "decrease", 0.2, 0.05, 2),
-               unit("C", "PRT", 2004, "decrease", 0.2, 0.05, 2))
+    df = frame(
+        unit("A", "PRT", 2000, "decrease", 0.2, 0.05, 2),
+        unit("B", "PRT", 2001, "decrease", 0.2, 0.05, 2),
+        unit("C", "PRT", 2004, "decrease", 0.2, 0.05, 2),
+    )
     rep = replication_report(df, "agent", "o1", DEFAULTS.with_(min_months_apart=24))
     (seq,) = rep.temporal
     assert [e["period"] for e in seq["events"]] == [1, 1, 2]
@@ -63,8 +65,20 @@ def test_periods_merge_events_closer_than_min_months_apart():
 
 
 def _dose_units(sizes, slope=0.02, se=0.03, intercept=0.01):
-    rows = [unit(f"E{i}", f"C{i}", 2000 + i, "decrease", intercept + slope * s, se, 2,
-                 change_size=s, change_unit="ug/m3") for i, s in enumerate(sizes)]
+    rows = [
+        unit(
+            f"E{i}",
+            f"C{i}",
+            2000 + i,
+            "decrease",
+            intercept + slope * s,
+            se,
+            2,
+            change_size=s,
+            change_unit="ug/m3",
+        )
+        for i, s in enumerate(sizes)
+    ]
     return prepare_units(frame(*rows))
 
 
@@ -73,8 +87,9 @@ def test_dose_response_runs_with_five_events_and_matches_weighted_least_squares(
     units = _dose_units(sizes)
     # jitter off the line so the fit is not exact, but keep tau2 at 0
     units["y"] = units["y"] + np.array([0.004, -0.003, 0.002, -0.004, 0.001])
-    res = dose_response(units, {"measure_group": "ratio", "estimate_kind": "change",
-                                "increment": ""})
+    res = dose_response(
+        units, {"measure_group": "ratio", "estimate_kind": "change", "increment": ""}
+    )
     assert res.run and res.k == 5 and res.unit == "ug/m3"
     # reference: statsmodels WLS with weights 1/v (tau2 = 0 here, as the residual Q < df)
     wls = sm.WLS(units["y"], sm.add_constant(np.array(sizes)), weights=1 / units["v"]).fit()
@@ -82,28 +97,34 @@ def test_dose_response_runs_with_five_events_and_matches_weighted_least_squares(
     assert res.slope == pytest.approx(wls.params.iloc[1], rel=1e-8)
     assert res.intercept == pytest.approx(wls.params.iloc[0], rel=1e-8)
     # on the natural scale: a ratio of ratios per unit of change, exp(slope)
-    assert f"multiplies the ratio for an exposure increase by {np.exp(res.slope):.3g}" in \
-        res.interpretation
+    assert (
+        f"multiplies the ratio for an exposure increase by {np.exp(res.slope):.3g}"
+        in res.interpretation
+    )
 
 
 def test_dose_response_says_why_it_was_not_run():
     main = {"measure_group": "ratio", "estimate_kind": "change", "increment": ""}
     four = dose_response(_dose_units([1.0, 2.0, 3.0, 4.0]), main)
     assert not four.run
-    assert four.reason == ("not run: 4 independent event(s) at level ≥ 2 report the size of "
-                           "the change in the main stratum; needs ≥ 5")
+    assert four.reason == (
+        "not run: 4 independent event(s) at level ≥ 2 report the size of "
+        "the change in the main stratum; needs ≥ 5"
+    )
     same = dose_response(_dose_units([2.0] * 6), main)
     assert not same.run and "same size of change" in same.reason
     assert not dose_response(_dose_units([1.0]), None).run
-    assert dose_response(_dose_units(range(1, 7)), main,
-                         DEFAULTS.with_(dose_min_events=7)).reason.endswith("needs ≥ 7")
+    assert dose_response(
+        _dose_units(range(1, 7)), main, DEFAULTS.with_(dose_min_events=7)
+    ).reason.endswith("needs ≥ 7")
 
 
 def test_dose_response_never_mixes_units():
     units = _dose_units([1.0, 2.0, 3.0, 4.0, 5.0, 6.0])
     units.loc[units.index[:2], "change_unit"] = "ppb"
-    res = dose_response(units, {"measure_group": "ratio", "estimate_kind": "change",
-                                "increment": ""})
+    res = dose_response(
+        units, {"measure_group": "ratio", "estimate_kind": "change", "increment": ""}
+    )
     assert not res.run and res.k == 4 and "'ppb' left out" in res.reason
 
 
@@ -123,8 +144,9 @@ def test_settings_file_errors_name_the_problem(tmp_path):
         DEFAULTS.with_(expected_direction="up")
     with pytest.raises(ConfigError, match="not found"):
         load_settings(tmp_path / "missing.toml")
-    custom = settings_from_mapping({"thresholds": {"min_places": 3},
-                                    "regions": {"Nordic": ["dnk", "SWE"]}})
+    custom = settings_from_mapping(
+        {"thresholds": {"min_places": 3}, "regions": {"Nordic": ["dnk", "SWE"]}}
+    )
     assert custom.min_places == 3 and custom.regions["nordic"] == ("DNK", "SWE")
     assert custom.regions["europe"] == M49_REGIONS["europe"]
 
@@ -139,8 +161,14 @@ def test_m49_regions_are_valid_iso_codes_covering_every_country_once():
 
 
 def test_prepare_units_flags():
-    u = prepare_units(pd.DataFrame([unit("A", "FRA", 2000, "decrease", 0.1, 0.05, 2),
-                                    unit("B", "FRA", 2000, "decrease", 0.0, 0.05, 1)]))
+    u = prepare_units(
+        pd.DataFrame(
+            [
+                unit("A", "FRA", 2000, "decrease", 0.1, 0.05, 2),
+                unit("B", "FRA", 2000, "decrease", 0.0, 0.05, 1),
+            ]
+        )
+    )
     assert u["good"].tolist() == [True, False]
     assert u["sign"].tolist() == [1, 0]
     # |z| = 2 > 1.96 (alpha 0.05, two-sided normal quantile)

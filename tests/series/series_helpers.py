@@ -12,8 +12,12 @@ from exposhift.services.demo import seed_dir
 from exposhift.services.importing import import_into
 from exposhift.store.models import Estimate, Series, SeriesFit, SeriesPoint
 
-TABLES = {"series": Series.__table__, "series_point": SeriesPoint.__table__,
-          "series_fit": SeriesFit.__table__, "estimate": Estimate.__table__}
+TABLES = {
+    "series": Series.__table__,
+    "series_point": SeriesPoint.__table__,
+    "series_fit": SeriesFit.__table__,
+    "estimate": Estimate.__table__,
+}
 
 
 def load_evidence(store) -> None:

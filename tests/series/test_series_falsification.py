@@ -69,15 +69,14 @@ def test_placebo_places_and_negative_control_feed_the_appraisal_check_codes():
     rng = np.random.default_rng(8)
     step = (T >= YEARS.index("2008")) * -10.0
     exposed = _series("E", 80 - 0.5 * T + step + rng.normal(0, 1, len(T)))
-    comps = [_series(f"C{i}", 70 - 0.5 * T + rng.normal(0, 1, len(T)), "comparison")
-             for i in range(9)]
+    comps = [
+        _series(f"C{i}", 70 - 0.5 * T + rng.normal(0, 1, len(T)), "comparison") for i in range(9)
+    ]
     neg = _series("N", 50 + 0.2 * T + rng.normal(0, 1, len(T)), "negative-control")
-    a = analyse_series(exposed, "2008", comparisons=comps, negative_controls=[neg],
-                       seasonal=None)
+    a = analyse_series(exposed, "2008", comparisons=comps, negative_controls=[neg], seasonal=None)
     assert a.placebo_places is not None and a.placebo_places.rank == 1
     assert a.placebo_places.p_value == pytest.approx(0.1)
-    assert set(a.checks_passed) == {"placebo-date", "placebo-place",
-                                    "negative-control-outcome"}
+    assert set(a.checks_passed) == {"placebo-date", "placebo-place", "negative-control-outcome"}
     # the rubric's suggestions look for these codes: the falsification limit rises
     before = suggest_levels(facts_from_record("its", 18, 8, checks=""))
     after = suggest_levels(facts_from_record("its", 18, 8, checks=";".join(a.checks_passed)))
@@ -90,7 +89,8 @@ def test_placebo_places_and_negative_control_feed_the_appraisal_check_codes():
 
 def test_placebo_places_alone_rank_among_comparisons():
     real = estimate_its(YEARS, 80 - 10.0 * (T >= 18) + np.sin(T), "2008")
-    comps = {f"C{i}": estimate_its(YEARS, 60 + np.cos(T + i) + 0.2 * i * T, "2008")
-             for i in range(4)}
+    comps = {
+        f"C{i}": estimate_its(YEARS, 60 + np.cos(T + i) + 0.2 * i * T, "2008") for i in range(4)
+    }
     p = placebo_places(real, comps)
     assert p.rank == 1 and p.status == "inconclusive"  # 5 places: p cannot reach 0.10

@@ -16,11 +16,22 @@ runner = CliRunner()
 
 
 def _pair(**re_row):
-    base = {"event_id": "E1", "population": "p", "data_source": "d", "outcome": "o",
-            "measure_group": "ratio", "estimate_kind": "change", "study_id": "S1",
-            "v": 0.01, "primary": False, "re_estimated": False, "estimate_uid": "published"}
-    return pd.DataFrame([base, {**base, "v": 0.001, "re_estimated": True,
-                                "estimate_uid": "re-estimate", **re_row}])
+    base = {
+        "event_id": "E1",
+        "population": "p",
+        "data_source": "d",
+        "outcome": "o",
+        "measure_group": "ratio",
+        "estimate_kind": "change",
+        "study_id": "S1",
+        "v": 0.01,
+        "primary": False,
+        "re_estimated": False,
+        "estimate_uid": "published",
+    }
+    return pd.DataFrame(
+        [base, {**base, "v": 0.001, "re_estimated": True, "estimate_uid": "re-estimate", **re_row}]
+    )
 
 
 def test_published_estimate_is_kept_over_a_more_precise_re_estimate():
@@ -43,8 +54,9 @@ def test_without_the_column_the_rule_is_unchanged():
 def test_series_commands_import_estimate_store(tmp_path):
     db = str(tmp_path / "ev.db")
     assert runner.invoke(app, ["--db", db, "init"]).exit_code == 0
-    assert runner.invoke(app, ["--db", db, "import", str(seed_dir() / "evidence.csv")]
-                         ).exit_code == 0
+    assert (
+        runner.invoke(app, ["--db", db, "import", str(seed_dir() / "evidence.csv")]).exit_code == 0
+    )
     sheet = write_series(tmp_path / "series.csv", demo_series())
     out = runner.invoke(app, ["--db", db, "series", "import", str(sheet)])
     assert out.exit_code == 0, out.output
@@ -53,19 +65,23 @@ def test_series_commands_import_estimate_store(tmp_path):
     assert out.exit_code == 0, out.output
     assert "placebo dates: 10 false change dates" in out.output and "failed" in out.output
     assert "before-after comparison ignoring trends" in out.output
-    out = runner.invoke(app, ["--db", db, "series", "estimate", "Duarte1999-asthma",
-                              "--horizon", "12", "--json"])
+    out = runner.invoke(
+        app, ["--db", db, "series", "estimate", "Duarte1999-asthma", "--horizon", "12", "--json"]
+    )
     doc = json.loads(out.output)
     assert doc["fit"]["measure"] == "IRR" and doc["stored_estimate"] is None
     assert doc["figure"]["change_at"] == "1996-01"
-    out = runner.invoke(app, ["--db", db, "series", "estimate", "Duarte1999-asthma",
-                              "--horizon", "12", "--store"])
+    out = runner.invoke(
+        app, ["--db", db, "series", "estimate", "Duarte1999-asthma", "--horizon", "12", "--store"]
+    )
     assert out.exit_code == 0 and "flagged re-estimated" in out.output
-    again = runner.invoke(app, ["--db", db, "series", "estimate", "Duarte1999-asthma",
-                                "--horizon", "12", "--store"])
+    again = runner.invoke(
+        app, ["--db", db, "series", "estimate", "Duarte1999-asthma", "--horizon", "12", "--store"]
+    )
     assert again.exit_code == 2 and "already stored" in again.output
-    out = runner.invoke(app, ["--db", db, "series", "estimate", "Santos2009-mortality",
-                              "--horizon", "12"])
+    out = runner.invoke(
+        app, ["--db", db, "series", "estimate", "Santos2009-mortality", "--horizon", "12"]
+    )
     assert out.exit_code == 2 and "never extrapolated" in out.output
     out = runner.invoke(app, ["--db", db, "series", "estimate", "nope"])
     assert out.exit_code == 5 and out.output.startswith("error: no series 'nope'")

@@ -30,8 +30,14 @@ def _design(seasonal):
 
 def _gaussian(seed=1):
     rng = np.random.default_rng(seed)
-    return 20 + 0.1 * T - 3 * POST - 0.05 * np.where(POST, T - CUT, 0) \
-        + 2 * np.sin(2 * np.pi * MONTH / 12) + rng.normal(0, 1, N)
+    return (
+        20
+        + 0.1 * T
+        - 3 * POST
+        - 0.05 * np.where(POST, T - CUT, 0)
+        + 2 * np.sin(2 * np.pi * MONTH / 12)
+        + rng.normal(0, 1, N)
+    )
 
 
 def _counts(seed=2):
@@ -47,8 +53,9 @@ def test_ols_coefficients_and_newey_west_equal_statsmodels(seasonal, lag):
     # reference: statsmodels OLS, cov_type="HAC" (Bartlett, use_correction=True) on the same X
     y = _gaussian()
     r = estimate_its(PERIODS, y, "2013-01", seasonal=seasonal, hac_lag=lag)
-    ref = sm.OLS(y, _design(seasonal)).fit(cov_type="HAC",
-                                           cov_kwds={"maxlags": lag, "use_correction": True})
+    ref = sm.OLS(y, _design(seasonal)).fit(
+        cov_type="HAC", cov_kwds={"maxlags": lag, "use_correction": True}
+    )
     assert r.level_change == pytest.approx(ref.params[2], rel=1e-10)
     assert r.slope_change == pytest.approx(ref.params[3], rel=1e-10)
     assert r.level_change_se == pytest.approx(ref.bse[2], rel=1e-8)
@@ -61,12 +68,17 @@ def test_count_glm_with_offset_equals_statsmodels(model):
     # reference: statsmodels GLM (Poisson, or NegativeBinomial with our alpha) with
     # offset=log(denominator), cov_type="HAC", use_correction=True
     y, d = _counts()
-    r = estimate_its(PERIODS, y, "2013-01", denominators=d, model=model, seasonal="fourier",
-                     hac_lag=3)
-    fam = (sm.families.Poisson() if model == "poisson"
-           else sm.families.NegativeBinomial(alpha=r.diagnostics["negbin_alpha"]))
+    r = estimate_its(
+        PERIODS, y, "2013-01", denominators=d, model=model, seasonal="fourier", hac_lag=3
+    )
+    fam = (
+        sm.families.Poisson()
+        if model == "poisson"
+        else sm.families.NegativeBinomial(alpha=r.diagnostics["negbin_alpha"])
+    )
     ref = sm.GLM(y, _design("fourier"), family=fam, offset=np.log(d)).fit(
-        cov_type="HAC", cov_kwds={"maxlags": 3, "use_correction": True}, tol=1e-12)
+        cov_type="HAC", cov_kwds={"maxlags": 3, "use_correction": True}, tol=1e-12
+    )
     assert r.level_change == pytest.approx(ref.params[2], rel=1e-7)
     assert r.slope_change == pytest.approx(ref.params[3], rel=1e-6)
     assert r.level_change_se == pytest.approx(ref.bse[2], rel=1e-6)
@@ -123,8 +135,9 @@ def test_horizon_effect_is_the_linear_combination_statsmodels_tests():
     # reference: statsmodels t_test of b2 + b3 (h-1)/2 under the same HAC covariance
     y = _gaussian()
     r = estimate_its(PERIODS, y, "2013-01", horizon=12, hac_lag=2)
-    ref = sm.OLS(y, _design(None)).fit(cov_type="HAC",
-                                       cov_kwds={"maxlags": 2, "use_correction": True})
+    ref = sm.OLS(y, _design(None)).fit(
+        cov_type="HAC", cov_kwds={"maxlags": 2, "use_correction": True}
+    )
     c = np.zeros(4)
     c[2], c[3] = 1.0, 5.5
     tt = ref.t_test(c)
@@ -142,9 +155,10 @@ def test_controlled_its_equals_statsmodels_driscoll_kraay():
     r = estimate_controlled(PERIODS, y, PERIODS, yc, "2013-01", hac_lag=2)
     base = _design(None)
     x = np.vstack([np.hstack([base, base]), np.hstack([base, np.zeros_like(base)])])
-    ref = sm.OLS(np.r_[y, yc], x).fit(cov_type="hac-groupsum",
-                                      cov_kwds={"time": np.r_[T, T], "maxlags": 2,
-                                                "use_correction": False})
+    ref = sm.OLS(np.r_[y, yc], x).fit(
+        cov_type="hac-groupsum",
+        cov_kwds={"time": np.r_[T, T], "maxlags": 2, "use_correction": False},
+    )
     k = x.shape[1]
     factor = np.sqrt(2 * N / (2 * N - k))
     assert r.level_change_diff == pytest.approx(ref.params[6], rel=1e-10)
@@ -183,14 +197,12 @@ def test_coverage_of_a_known_level_change_with_seasonality():
     month = t % 12
     hits = {"gaussian": 0, "poisson": 0}
     for _ in range(200):
-        y = 50 + 0.05 * t - 4.0 * post + 3 * np.cos(2 * np.pi * month / 12) \
-            + rng.normal(0, 2, n)
+        y = 50 + 0.05 * t - 4.0 * post + 3 * np.cos(2 * np.pi * month / 12) + rng.normal(0, 2, n)
         r = estimate_its(periods, y, "2004-01", seasonal="fourier")
         hits["gaussian"] += r.effect_ci[0] <= -4.0 <= r.effect_ci[1]
     for _ in range(200):
         mu = 1000 * np.exp(-0.002 * t - 0.1 * post + 0.15 * np.cos(2 * np.pi * month / 12))
-        r = estimate_its(periods, rng.poisson(mu), "2004-01", model="poisson",
-                         seasonal="month")
+        r = estimate_its(periods, rng.poisson(mu), "2004-01", model="poisson", seasonal="month")
         hits["poisson"] += r.effect_ci[0] <= -0.1 <= r.effect_ci[1]
     assert hits["gaussian"] >= 186, hits
     assert hits["poisson"] >= 186, hits

@@ -66,8 +66,9 @@ def _cases():
     other_unit.loc[comp, "period"] = [str(1900 + i) for i in range(len(comp))]
     other_unit.loc[comp, "change_at"] = "1950"
     no_overlap = f.copy()
-    no_overlap.loc[comp, "period"] = [f"{2030 + i // 12}-{i % 12 + 1:02d}"
-                                      for i in range(len(comp))]
+    no_overlap.loc[comp, "period"] = [
+        f"{2030 + i // 12}-{i % 12 + 1:02d}" for i in range(len(comp))
+    ]
     no_overlap.loc[comp, "change_at"] = "2033-01"
     unknown_study = _bad(f, "study_id", "NoSuchStudy2001", range(n))
     # (frame, spreadsheet row, column, words in the message)
@@ -94,7 +95,10 @@ def test_bad_series_input_names_series_row_and_column_and_writes_nothing(base, t
     assert hits, [str(p) for p in err.value.problems]
     assert words in hits[0].message
     assert "NagyFarkas2014-asthma" in hits[0].message or case in (
-        "negative count", "zero denominator", "unknown study")
+        "negative count",
+        "zero denominator",
+        "unknown study",
+    )
     assert all(p.file == "bad.csv" for p in err.value.problems)
     assert count(base, "series") == 0 and count(base, "series_point") == 0
 

@@ -26,8 +26,8 @@ ROWS = [
     ("B", "E2", "ESP", "did", 0.90, 0.80, 1.0125, 3),
     ("C", "E3", "ITA", "synthetic-control", 0.70, 0.55, 0.891, 2),
     ("D", "E4", "DEU", "its", 0.95, 0.85, 1.062, 2),
-    ("F", "E5", "AUT", "before-after", 0.50, 0.40, 0.625, 0),   # fatal: left out
-    ("G", "E1", "FRA", "did", 0.85, 0.75, 0.963, 1),            # same event as A: left out
+    ("F", "E5", "AUT", "before-after", 0.50, 0.40, 0.625, 0),  # fatal: left out
+    ("G", "E1", "FRA", "did", 0.85, 0.75, 0.963, 1),  # same event as A: left out
 ]
 
 
@@ -39,20 +39,50 @@ def _fill(store):
         made = set()
         for sid, ev, iso, design, rr, lo, hi, lvl in ROWS:
             if ev not in made:
-                records.create(w, "event", {"key": ev, "exposure_id": exp, "change_kind": "ban",
-                                            "change_direction": "decrease", "country": iso,
-                                            "change_date": "2001"})
+                records.create(
+                    w,
+                    "event",
+                    {
+                        "key": ev,
+                        "exposure_id": exp,
+                        "change_kind": "ban",
+                        "change_direction": "decrease",
+                        "country": iso,
+                        "change_date": "2001",
+                    },
+                )
                 made.add(ev)
-            st = records.create(w, "study", {"key": sid, "citation": sid, "year": 2005,
-                                             "design": design})
+            st = records.create(
+                w, "study", {"key": sid, "citation": sid, "year": 2005, "design": design}
+            )
             ev_id = records.get(conn, "event", ev)["id"]
-            records.create(w, "estimate", {"key": f"{sid}|{ev}|asthma|RR|change||",
-                                           "study_id": st, "event_id": ev_id, "outcome_id": out,
-                                           "measure": "RR", "point": rr, "ci_low": lo,
-                                           "ci_high": hi, "primary": True})
-            records.create(w, "appraisal", {"study_id": st, "reviewer": "panel",
-                                            "stage": "consensus", "rubric_id": "r",
-                                            "rubric_hash": "h", "overall": lvl})
+            records.create(
+                w,
+                "estimate",
+                {
+                    "key": f"{sid}|{ev}|asthma|RR|change||",
+                    "study_id": st,
+                    "event_id": ev_id,
+                    "outcome_id": out,
+                    "measure": "RR",
+                    "point": rr,
+                    "ci_low": lo,
+                    "ci_high": hi,
+                    "primary": True,
+                },
+            )
+            records.create(
+                w,
+                "appraisal",
+                {
+                    "study_id": st,
+                    "reviewer": "panel",
+                    "stage": "consensus",
+                    "rubric_id": "r",
+                    "rubric_hash": "h",
+                    "overall": lvl,
+                },
+            )
         w.flush()
 
 
@@ -83,8 +113,12 @@ def test_include_fatal_and_strata(store):
     out = pool_evidence(store, "agent", "asthma", include_fatal=True, by=["design-family"])
     fams = {g["design_family"]: g["k"] for g in out.groups}
     # A and B (G is a duplicate of A's event), C, D, and the fatal F kept on request
-    assert fams == {"common-trend": 2, "weighted-fit": 1, "trend-extrapolation": 1,
-                    "uncontrolled": 1}
+    assert fams == {
+        "common-trend": 2,
+        "weighted-fit": 1,
+        "trend-extrapolation": 1,
+        "uncontrolled": 1,
+    }
 
 
 def test_unknown_exposure_names_close_matches(store):
@@ -95,20 +129,50 @@ def test_unknown_exposure_names_close_matches(store):
 
 def test_pool_cli_json_shape(store):
     _fill(store)
-    result = CliRunner().invoke(app, ["--db", store.url, "pool", "--exposure", "agent",
-                                      "--outcome", "asthma", "--json"])
+    result = CliRunner().invoke(
+        app, ["--db", store.url, "pool", "--exposure", "agent", "--outcome", "asthma", "--json"]
+    )
     assert result.exit_code == 0, result.output
     data = json.loads(result.stdout)
-    assert {"exposure", "outcome", "evidence_set", "options", "groups", "overall",
-            "caution"} <= set(data)
+    assert {
+        "exposure",
+        "outcome",
+        "evidence_set",
+        "options",
+        "groups",
+        "overall",
+        "caution",
+    } <= set(data)
     assert data["options"]["within_event"] == "aggregate" and data["options"]["hksj_floor"]
-    for key in ("k", "k_events", "k_estimates", "method", "ci_method", "measure", "scale",
-                "estimate", "se", "ci_lower", "ci_upper", "pi_lower", "pi_upper", "tau2",
-                "tau2_ci", "i2", "q", "q_pvalue", "excluded", "natural", "back_transformed",
-                "provenance", "headline"):
+    for key in (
+        "k",
+        "k_events",
+        "k_estimates",
+        "method",
+        "ci_method",
+        "measure",
+        "scale",
+        "estimate",
+        "se",
+        "ci_lower",
+        "ci_upper",
+        "pi_lower",
+        "pi_upper",
+        "tau2",
+        "tau2_ci",
+        "i2",
+        "q",
+        "q_pvalue",
+        "excluded",
+        "natural",
+        "back_transformed",
+        "provenance",
+        "headline",
+    ):
         assert key in data["groups"][0], key
-    text = CliRunner().invoke(app, ["--db", store.url, "pool", "--exposure", "agent",
-                                    "--outcome", "asthma"])
+    text = CliRunner().invoke(
+        app, ["--db", store.url, "pool", "--exposure", "agent", "--outcome", "asthma"]
+    )
     assert text.exit_code == 0 and "never replace" in text.stdout
 
 

@@ -37,6 +37,7 @@ def test_summary_matches_pool_and_replication(demo):
         # the headline number is the pool of the good events (level >= 2), one per event: the
         # pool action restricted to the same evidence set gives the same number
         groups = pool_evidence(demo, row["exposure"], row["outcome"], min_level=2).groups
+
         def stratum(g):
             inc = f" {g['increment']}" if g["increment"] else ""
             return f"{g['measure_group']}/{g['estimate_kind']}{inc}"

@@ -49,9 +49,20 @@ def test_untouched_chain_verifies_and_hash_is_sha256_of_the_entry(store):
     assert report.ok and report.checked == 8 and report.bad_id is None
     with store.read() as conn:
         first = conn.execute(text("SELECT * FROM audit_entry ORDER BY id LIMIT 1")).mappings().one()
-    payload = json.dumps([GENESIS, first["at"], first["user"], first["table_name"],
-                          first["row_key"], first["action"], first["before"], first["after"]],
-                         ensure_ascii=False, separators=(",", ":"))
+    payload = json.dumps(
+        [
+            GENESIS,
+            first["at"],
+            first["user"],
+            first["table_name"],
+            first["row_key"],
+            first["action"],
+            first["before"],
+            first["after"],
+        ],
+        ensure_ascii=False,
+        separators=(",", ":"),
+    )
     assert first["entry_hash"] == hashlib.sha256(payload.encode()).hexdigest()
     assert audit_chain_head(store).head == report.head.head
     assert audit_chain_head(store).entries == 8
@@ -59,8 +70,11 @@ def test_untouched_chain_verifies_and_hash_is_sha256_of_the_entry(store):
 
 def test_update_of_an_entry_is_caught(store):
     _seed(store)
-    _sql(store, "UPDATE audit_entry SET \"user\" = 'someone-else' WHERE id = "
-         "(SELECT MIN(id) + 2 FROM audit_entry)")
+    _sql(
+        store,
+        "UPDATE audit_entry SET \"user\" = 'someone-else' WHERE id = "
+        "(SELECT MIN(id) + 2 FROM audit_entry)",
+    )
     report = _verify(store)
     assert not report.ok and report.checked == 2
     assert "was changed after it was written" in report.problem
@@ -91,8 +105,11 @@ def test_reordered_entries_are_caught(store):
 
 def test_inserted_entry_is_caught(store):
     _seed(store, 1)
-    _sql(store, "INSERT INTO audit_entry (at, \"user\", table_name, row_key, action) "
-         "VALUES ('2026-01-01T00:00:00.000000Z', 'x', 'study', 'S9', 'insert')")
+    _sql(
+        store,
+        'INSERT INTO audit_entry (at, "user", table_name, row_key, action) '
+        "VALUES ('2026-01-01T00:00:00.000000Z', 'x', 'study', 'S9', 'insert')",
+    )
     report = _verify(store)
     assert not report.ok and "written outside exposhift" in report.problem
 
@@ -114,10 +131,14 @@ def test_migration_chains_entries_written_before_it(db_url):
     with store.write() as conn:
         command.upgrade(alembic_config(conn), "0001")
         for i in range(3):
-            conn.execute(text("INSERT INTO audit_entry (at, \"user\", table_name, row_key, "
-                              "action, after) VALUES (:at, 'old', 'exposure', :k, 'insert', "
-                              "'{}')"), {"at": f"2026-01-0{i + 1}T00:00:00.000000Z",
-                                         "k": f"a{i}"})
+            conn.execute(
+                text(
+                    'INSERT INTO audit_entry (at, "user", table_name, row_key, '
+                    "action, after) VALUES (:at, 'old', 'exposure', :k, 'insert', "
+                    "'{}')"
+                ),
+                {"at": f"2026-01-0{i + 1}T00:00:00.000000Z", "k": f"a{i}"},
+            )
     store.dispose()
     init_database(db_url)
     s = open_current(db_url, user="new")

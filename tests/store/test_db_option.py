@@ -15,8 +15,9 @@ from exposhift.services.setup import open_current
 from exposhift.store.records import TABLES
 
 
-@pytest.mark.parametrize("command", [["info"], ["gaps"], ["export", "out.json"], ["init"],
-                                     ["audit", "verify"]])
+@pytest.mark.parametrize(
+    "command", [["info"], ["gaps"], ["export", "out.json"], ["init"], ["audit", "verify"]]
+)
 @pytest.mark.parametrize("kind", ["csv", "directory", "binary"])
 def test_db_that_is_not_a_database(tmp_path, monkeypatch, kind, command):
     monkeypatch.chdir(tmp_path)
@@ -41,8 +42,9 @@ def test_driver_error_from_a_raw_cursor_is_one_database_error(store):
     with pytest.raises(DatabaseError, match="refused the change .*nothing was written"):
         with store.write() as conn:
             cur = conn.connection.cursor()
-            cur.executemany(f"INSERT INTO exposure (name, version) VALUES ({mark}, 1)",
-                            [("same",), ("same",)])
+            cur.executemany(
+                f"INSERT INTO exposure (name, version) VALUES ({mark}, 1)", [("same",), ("same",)]
+            )
     with store.read() as conn:
         assert store.count(conn, TABLES["exposure"]) == 0
 

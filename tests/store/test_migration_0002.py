@@ -22,19 +22,28 @@ def _at_0001_with_rows(db_url) -> None:
         command.upgrade(alembic_config(conn), "0001")
         conn.execute(text("INSERT INTO exposure (id, name, version) VALUES (1, 'agent-x', 1)"))
         conn.execute(text("INSERT INTO outcome (id, name, version) VALUES (1, 'wheeze', 1)"))
-        conn.execute(text(
-            "INSERT INTO study (id, key, citation, year, design, population, demo, version, "
-            "created_at, updated_at) VALUES (1, 'S1', 'Invented 2005', 2005, 'its', "
-            f"'all births', true, 3, '{T}', '{T}')"))
-        conn.execute(text(
-            "INSERT INTO event (id, key, exposure_id, change_kind, change_direction, country, "
-            "change_date, date_precision, demo, version, created_at, updated_at) VALUES "
-            f"(1, 'E1', 1, 'ban', 'decrease', 'NLD', '2001', 'year', true, 1, '{T}', '{T}')"))
-        conn.execute(text(
-            "INSERT INTO estimate (id, key, study_id, event_id, outcome_id, measure, "
-            'estimate_kind, point, se, "primary", version, created_at, updated_at) VALUES '
-            "(1, 'S1|E1|wheeze|RR|change||', 1, 1, 1, 'RR', 'change', 0.8, 0.1, true, 1, "
-            f"'{T}', '{T}')"))
+        conn.execute(
+            text(
+                "INSERT INTO study (id, key, citation, year, design, population, demo, version, "
+                "created_at, updated_at) VALUES (1, 'S1', 'Invented 2005', 2005, 'its', "
+                f"'all births', true, 3, '{T}', '{T}')"
+            )
+        )
+        conn.execute(
+            text(
+                "INSERT INTO event (id, key, exposure_id, change_kind, change_direction, country, "
+                "change_date, date_precision, demo, version, created_at, updated_at) VALUES "
+                f"(1, 'E1', 1, 'ban', 'decrease', 'NLD', '2001', 'year', true, 1, '{T}', '{T}')"
+            )
+        )
+        conn.execute(
+            text(
+                "INSERT INTO estimate (id, key, study_id, event_id, outcome_id, measure, "
+                'estimate_kind, point, se, "primary", version, created_at, updated_at) VALUES '
+                "(1, 'S1|E1|wheeze|RR|change||', 1, 1, 1, 'RR', 'change', 0.8, 0.1, true, 1, "
+                f"'{T}', '{T}')"
+            )
+        )
         assert current_revision(conn) == "0001"
     store.dispose()
 
@@ -46,8 +55,9 @@ def test_upgrade_from_0001_keeps_rows_and_leaves_the_new_field_null(db_url):
     store = open_current(db_url)
     try:
         with store.read() as conn:
-            study = conn.execute(text("SELECT key, population, version, same_population_as "
-                                      "FROM study")).one()
+            study = conn.execute(
+                text("SELECT key, population, version, same_population_as FROM study")
+            ).one()
             est = conn.execute(text("SELECT key, point, se FROM estimate")).one()
             n_dirs = conn.execute(text("SELECT count(*) FROM expected_direction")).scalar()
             uniques = inspect(conn).get_unique_constraints("expected_direction")

@@ -64,7 +64,8 @@ def test_newer_revision_is_refused_and_nothing_written(db_url):
     store = open_store(db_url)
     with store.read() as conn:
         assert conn.execute(text("SELECT version_num FROM alembic_version")).scalar_one() == (
-            "f00dfeed9999")
+            "f00dfeed9999"
+        )
     store.dispose()
 
 

@@ -15,20 +15,60 @@ def _fill(store):
         w = Writer(conn, "t")
         exp = records.ensure_vocab(w, "exposure", "agent-x")
         out = records.ensure_vocab(w, "outcome", "asthma", {"outcome_group": "respiratory"})
-        ev1 = records.create(w, "event", {"key": "E1", "exposure_id": exp, "change_kind": "ban",
-                                          "change_direction": "decrease", "country": "FRA",
-                                          "change_date": "1999-03-01"})
-        records.create(w, "event", {"key": "E2", "exposure_id": exp, "change_kind": "ban",
-                                    "change_direction": "decrease", "country": "ESP",
-                                    "change_date": "2004", "family": "agent-x bans"})
-        st = records.create(w, "study", {"key": "S1", "citation": "c", "year": 2003,
-                                         "design": "did"})
-        records.create(w, "estimate", {"key": "S1|E1|asthma|RR|change||", "study_id": st,
-                                       "event_id": ev1, "outcome_id": out, "measure": "RR",
-                                       "point": 0.9, "ci_low": 0.8, "ci_high": 1.01})
-        ap = records.create(w, "appraisal", {"study_id": st, "reviewer": "panel",
-                                             "stage": "consensus", "rubric_id": "r",
-                                             "rubric_hash": "h", "overall": 2})
+        ev1 = records.create(
+            w,
+            "event",
+            {
+                "key": "E1",
+                "exposure_id": exp,
+                "change_kind": "ban",
+                "change_direction": "decrease",
+                "country": "FRA",
+                "change_date": "1999-03-01",
+            },
+        )
+        records.create(
+            w,
+            "event",
+            {
+                "key": "E2",
+                "exposure_id": exp,
+                "change_kind": "ban",
+                "change_direction": "decrease",
+                "country": "ESP",
+                "change_date": "2004",
+                "family": "agent-x bans",
+            },
+        )
+        st = records.create(
+            w, "study", {"key": "S1", "citation": "c", "year": 2003, "design": "did"}
+        )
+        records.create(
+            w,
+            "estimate",
+            {
+                "key": "S1|E1|asthma|RR|change||",
+                "study_id": st,
+                "event_id": ev1,
+                "outcome_id": out,
+                "measure": "RR",
+                "point": 0.9,
+                "ci_low": 0.8,
+                "ci_high": 1.01,
+            },
+        )
+        ap = records.create(
+            w,
+            "appraisal",
+            {
+                "study_id": st,
+                "reviewer": "panel",
+                "stage": "consensus",
+                "rubric_id": "r",
+                "rubric_hash": "h",
+                "overall": 2,
+            },
+        )
         assert ap
         w.flush()
 

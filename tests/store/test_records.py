@@ -18,20 +18,58 @@ def _seed(store):
         w = Writer(conn, store.user)
         exp = records.ensure_vocab(w, "exposure", "demo-agent", {"agent_class": "solvent"})
         out = records.ensure_vocab(w, "outcome", "wheeze", {"outcome_group": "respiratory"})
-        ev = records.create(w, "event", {
-            "key": "EV1", "exposure_id": exp, "change_kind": "ban",
-            "change_direction": "decrease", "country": "NLD", "change_date": "2001-05",
-            "demo": True})
-        st = records.create(w, "study", {
-            "key": "S1", "citation": "Demo A 2005", "year": 2005, "design": "its",
-            "pre_points": 24, "post_points": 24, "demo": True})
-        records.create(w, "estimate", {
-            "key": "S1|EV1|wheeze|RR|change||", "study_id": st, "event_id": ev,
-            "outcome_id": out, "measure": "RR", "point": 0.8, "ci_low": 0.7, "ci_high": 0.9,
-            "primary": True})
-        ap = records.create(w, "appraisal", {
-            "study_id": st, "reviewer": "r1", "stage": "independent", "rubric_id": "x",
-            "rubric_hash": "h"})
+        ev = records.create(
+            w,
+            "event",
+            {
+                "key": "EV1",
+                "exposure_id": exp,
+                "change_kind": "ban",
+                "change_direction": "decrease",
+                "country": "NLD",
+                "change_date": "2001-05",
+                "demo": True,
+            },
+        )
+        st = records.create(
+            w,
+            "study",
+            {
+                "key": "S1",
+                "citation": "Demo A 2005",
+                "year": 2005,
+                "design": "its",
+                "pre_points": 24,
+                "post_points": 24,
+                "demo": True,
+            },
+        )
+        records.create(
+            w,
+            "estimate",
+            {
+                "key": "S1|EV1|wheeze|RR|change||",
+                "study_id": st,
+                "event_id": ev,
+                "outcome_id": out,
+                "measure": "RR",
+                "point": 0.8,
+                "ci_low": 0.7,
+                "ci_high": 0.9,
+                "primary": True,
+            },
+        )
+        ap = records.create(
+            w,
+            "appraisal",
+            {
+                "study_id": st,
+                "reviewer": "r1",
+                "stage": "independent",
+                "rubric_id": "x",
+                "rubric_hash": "h",
+            },
+        )
         w.insert(TABLES["rating"], {"appraisal_id": ap, "domain": "origin", "level": 2})
         w.flush()
 
@@ -124,9 +162,18 @@ def test_foreign_keys_are_enforced(store):
         records.delete(Writer(conn, "t"), "study", "S1", 1)
     # an estimate pointing at a study that does not exist is refused
     with pytest.raises(DatabaseError, match="refused the change"), store.write() as conn:
-        records.create(Writer(conn, "t"), "estimate", {
-            "key": "ghost", "study_id": 999_999, "event_id": 999_999, "outcome_id": 999_999,
-            "measure": "RR", "point": 1.0})
+        records.create(
+            Writer(conn, "t"),
+            "estimate",
+            {
+                "key": "ghost",
+                "study_id": 999_999,
+                "event_id": 999_999,
+                "outcome_id": 999_999,
+                "measure": "RR",
+                "point": 1.0,
+            },
+        )
     with store.read() as conn:
         assert records.get(conn, "study", "S1")["version"] == 1
         assert records.find(conn, "estimate", "ghost") is None
@@ -134,8 +181,11 @@ def test_foreign_keys_are_enforced(store):
 
 def test_vocabulary_codes_are_checked(store):
     with pytest.raises(VocabularyError) as err, store.write() as conn:
-        records.create(Writer(conn, "t"), "study", {
-            "key": "S9", "citation": "x", "year": 2000, "design": "cohort-ish"})
+        records.create(
+            Writer(conn, "t"),
+            "study",
+            {"key": "S9", "citation": "x", "year": 2000, "design": "cohort-ish"},
+        )
     assert "accepted:" in str(err.value) and "synthetic-control" in str(err.value)
 
 

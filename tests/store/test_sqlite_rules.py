@@ -63,8 +63,12 @@ def test_two_processes_write_one_file_without_locking_errors(tmp_path):
     init_database(url)
     n = 150
     procs = [
-        subprocess.Popen([sys.executable, "-c", _WRITER, url, tag, str(n)],
-                         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+        subprocess.Popen(
+            [sys.executable, "-c", _WRITER, url, tag, str(n)],
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+            text=True,
+        )
         for tag in ("alpha", "beta")
     ]
     outs = [p.communicate(timeout=300) for p in procs]

@@ -64,12 +64,14 @@ def test_row_order_does_not_matter():
 
 
 def test_several_keys_and_missing_key_values():
-    frame = pd.DataFrame({
-        "family": ["x", "x", "x", "y", "y", None, None],
-        "kind": ["change", "change", "level", "change", "change", "change", "change"],
-        "y": [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7],
-        "v": [0.1] * 7,
-    })
+    frame = pd.DataFrame(
+        {
+            "family": ["x", "x", "x", "y", "y", None, None],
+            "kind": ["change", "change", "level", "change", "change", "change", "change"],
+            "y": [0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7],
+            "v": [0.1] * 7,
+        }
+    )
     out = pool_groups(frame, ["family", "kind"], method="dl")
     assert len(out) == 4
     missing = out[out["family"].isna()]
@@ -91,8 +93,9 @@ def test_empty_frame_gives_empty_table():
 
 
 def test_bad_rows_are_named():
-    frame = pd.DataFrame({"g": [1, 1, 2], "y": [0.1, 0.2, 0.3], "v": [0.1, 0.0, 0.1]},
-                         index=[10, 11, 12])
+    frame = pd.DataFrame(
+        {"g": [1, 1, 2], "y": [0.1, 0.2, 0.3], "v": [0.1, 0.0, 0.1]}, index=[10, 11, 12]
+    )
     with pytest.raises(AnalysisError, match=r"row\(s\) 11: 'y' must be finite and 'v' positive"):
         pool_groups(frame, ["g"])
     with pytest.raises(AnalysisError, match="column\\(s\\) se not in the frame"):

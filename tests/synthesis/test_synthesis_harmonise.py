@@ -37,7 +37,8 @@ def test_woodward_log_scale_and_se_from_ci():
     # published one scaled by 1.96/1.959964 (a relative change of 1.8e-5)
     se = hm.se_from_ci(1.33, 3.47, 0.95, "log")
     assert se * hm.z_for_level(0.95) / 1.96 == approx(
-        "SE = (ln hi - ln lo)/3.92 (= average of the two)")
+        "SE = (ln hi - ln lo)/3.92 (= average of the two)"
+    )
     assert se == pytest.approx(0.244637, rel=3e-5)
 
 
@@ -49,8 +50,9 @@ def test_woodward_half_widths_and_asymmetry():
     y, lo, hi = (hm.to_analysis_scale("RR", x) for x in (2.15, 1.33, 3.47))
     assert (hi - y) / 1.96 == approx("SE from upper side (ln hi - ln est)/1.96")
     assert (y - lo) / 1.96 == approx("SE from lower side (ln est - ln lo)/1.96")
-    assert hm.ci_asymmetry(y, lo, hi) == pytest.approx(abs(se_up - se_lo) / (se_up + se_lo),
-                                                       abs=5e-6)
+    assert hm.ci_asymmetry(y, lo, hi) == pytest.approx(
+        abs(se_up - se_lo) / (se_up + se_lo), abs=5e-6
+    )
     assert not hm.ci_asymmetric(y, lo, hi)  # 0.17 % of the width: well within rounding
 
 
@@ -94,7 +96,8 @@ def test_altman_bland_ratio_example():
     lo, hi = hm.wald_ci(y, se)
     assert hm.from_analysis_scale("log", lo) == approx("ratio: CI lower (RR scale, 2 dp)")
     assert hm.from_analysis_scale("log", hi) == approx(
-        "ratio: CI upper (RR scale; blog prints 0.90 after rounding to 1 dp)")
+        "ratio: CI upper (RR scale; blog prints 0.90 after rounding to 1 dp)"
+    )
 
 
 def test_cochrane_z_for_p():
@@ -116,7 +119,8 @@ def test_law_rescaling_example():
     # Law, Morris & Wald 2009 (secondary quote): RR 0.7 per 8 mm Hg = 0.64 per 10 mm Hg
     beta = hm.to_analysis_scale("RR", 0.7)
     assert math.exp(hm.rescale_increment(beta, 8, 10)) == approx(
-        "Rescale RR 0.7 per 8 mm Hg to per 10 mm Hg (2 dp)")
+        "Rescale RR 0.7 per 8 mm Hg to per 10 mm Hg (2 dp)"
+    )
     assert hm.rescale_factor(8, 10) == 1.25
 
 
@@ -168,8 +172,13 @@ def test_conversion_errors(call, words):
 
 
 def _row(**kw):
-    base = {"measure": "RR", "estimate": 1.2, "ci_low": 1.0, "ci_high": 1.44,
-            "change_direction": "increase"}
+    base = {
+        "measure": "RR",
+        "estimate": 1.2,
+        "ci_low": 1.0,
+        "ci_high": 1.44,
+        "change_direction": "increase",
+    }
     base.update(kw)
     return base
 
@@ -181,7 +190,8 @@ def test_harmonise_woodward_row():
     r = out.iloc[0]
     assert r["y"] == approx("ln RR 2.15")
     assert math.sqrt(r["v"]) * hm.z_for_level(0.95) / 1.96 == approx(
-        "SE = (ln hi - ln lo)/3.92 (= average of the two)")  # exact z, see above
+        "SE = (ln hi - ln lo)/3.92 (= average of the two)"
+    )  # exact z, see above
     assert (r["scale"], r["se_source"], r["measure_group"]) == ("log", "ci", "ratio")
     assert not r["ci_asymmetric"] and not r["sign_flipped"]
     assert r["harmonise_note"] == "SE from 95% CI"
@@ -189,12 +199,14 @@ def test_harmonise_woodward_row():
 
 
 def test_uncertainty_precedence_ci_then_se_then_p():
-    frame = pd.DataFrame([
-        _row(se=0.5, p_value=0.01),  # CI wins
-        _row(ci_low=np.nan, ci_high=np.nan, se=0.5, p_value=0.01),  # SE next
-        _row(ci_low=np.nan, ci_high=np.nan, p_value=0.01),  # p last
-        _row(ci_high=np.nan, se=0.5),  # single limit: SE, with a note
-    ])
+    frame = pd.DataFrame(
+        [
+            _row(se=0.5, p_value=0.01),  # CI wins
+            _row(ci_low=np.nan, ci_high=np.nan, se=0.5, p_value=0.01),  # SE next
+            _row(ci_low=np.nan, ci_high=np.nan, p_value=0.01),  # p last
+            _row(ci_high=np.nan, se=0.5),  # single limit: SE, with a note
+        ]
+    )
     out = harmonise(frame)
     assert list(out["se_source"]) == ["ci", "se", "p", "se"]
     y = math.log(1.2)
@@ -205,10 +217,12 @@ def test_uncertainty_precedence_ci_then_se_then_p():
 
 
 def test_ci_of_other_level_and_percent_change():
-    frame = pd.DataFrame([
-        _row(measure="MD", estimate=3.0, ci_low=1.0, ci_high=5.0, ci_level=0.90),
-        _row(measure="pct_change", estimate=-10.0, ci_low=-15.0, ci_high=-5.0),
-    ])
+    frame = pd.DataFrame(
+        [
+            _row(measure="MD", estimate=3.0, ci_low=1.0, ci_high=5.0, ci_level=0.90),
+            _row(measure="pct_change", estimate=-10.0, ci_low=-15.0, ci_high=-5.0),
+        ]
+    )
     out = harmonise(frame)
     assert out["v"].iloc[0] == pytest.approx((4.0 / (2 * 1.6448536269514722)) ** 2)
     assert out["scale"].iloc[0] == "identity" and out["measure_group"].iloc[0] == "mean_difference"
@@ -219,8 +233,9 @@ def test_ci_of_other_level_and_percent_change():
 
 
 def test_direction_alignment_is_explicit():
-    frame = pd.DataFrame([_row(estimate=0.8, ci_low=0.7, ci_high=0.914,
-                               change_direction="decrease")])
+    frame = pd.DataFrame(
+        [_row(estimate=0.8, ci_low=0.7, ci_high=0.914, change_direction="decrease")]
+    )
     up = harmonise(frame, align_to="increase").iloc[0]
     assert up["y"] == pytest.approx(math.log(1.25))  # 1/RR
     assert up["sign_flipped"] and "sign flipped" in up["harmonise_note"]
@@ -230,12 +245,15 @@ def test_direction_alignment_is_explicit():
 
 
 def test_odds_ratio_kept_apart_unless_baseline_risk_given():
-    frame = pd.DataFrame([
-        _row(measure="OR", estimate=1.5, ci_low=1.1, ci_high=2.0),
-        _row(measure="OR", estimate=1.5, ci_low=1.1, ci_high=2.0, baseline_risk=0.2),
-        _row(measure="OR", estimate=1.5, se=0.1, ci_low=np.nan, ci_high=np.nan,
-             baseline_risk=0.2),
-    ])
+    frame = pd.DataFrame(
+        [
+            _row(measure="OR", estimate=1.5, ci_low=1.1, ci_high=2.0),
+            _row(measure="OR", estimate=1.5, ci_low=1.1, ci_high=2.0, baseline_risk=0.2),
+            _row(
+                measure="OR", estimate=1.5, se=0.1, ci_low=np.nan, ci_high=np.nan, baseline_risk=0.2
+            ),
+        ]
+    )
     out = harmonise(frame)
     assert list(out["measure_group"]) == ["odds_ratio", "ratio", "ratio"]
     rr = hm.or_to_rr(1.5, 0.2)
@@ -249,8 +267,7 @@ def test_odds_ratio_kept_apart_unless_baseline_risk_given():
 
 
 def test_smd_conversion_option():
-    frame = pd.DataFrame([_row(measure="SMD", estimate=0.5, ci_low=np.nan, ci_high=np.nan,
-                               se=0.1)])
+    frame = pd.DataFrame([_row(measure="SMD", estimate=0.5, ci_low=np.nan, ci_high=np.nan, se=0.1)])
     assert harmonise(frame)["measure_group"].iloc[0] == "smd"
     conv = harmonise(frame, smd_as_log_or=True).iloc[0]
     assert conv["measure_group"] == "odds_ratio" and conv["scale"] == "log"
@@ -260,8 +277,15 @@ def test_smd_conversion_option():
 
 def test_per_unit_rescaling():
     def pu(inc, est, unit="ug/m3"):
-        return _row(estimate_kind="per-unit", per_unit=inc, change_unit=unit, estimate=est,
-                    ci_low=est / 1.05, ci_high=est * 1.05, change_direction=np.nan)
+        return _row(
+            estimate_kind="per-unit",
+            per_unit=inc,
+            change_unit=unit,
+            estimate=est,
+            ci_low=est / 1.05,
+            ci_high=est * 1.05,
+            change_direction=np.nan,
+        )
 
     frame = pd.DataFrame([pu(10, 1.1), pu(10, 1.2), pu(5, 1.05), pu(1, 1.01, "ppb")])
     out = harmonise(frame)
@@ -288,16 +312,19 @@ def test_asymmetric_ci_is_flagged():
 
 
 def test_problems_are_reported_together_and_name_rows():
-    frame = pd.DataFrame([
-        _row(estimate_uid="s1|e1", estimate=-1.0),
-        _row(estimate_uid="s2|e1", ci_level=95),
-        _row(estimate_uid="s3|e1", ci_low=np.nan, ci_high=np.nan),
-        _row(estimate_uid="s4|e1", change_direction="up"),
-        _row(estimate_uid="s5|e1", estimate=1.6),
-        _row(estimate_uid="s6|e1", measure="RRR"),
-        _row(estimate_uid="s7|e1", estimate_kind="per-unit"),
-        _row(estimate_uid="s8|e1", estimate="abc"),
-    ], index=[101, 102, 103, 104, 105, 106, 107, 108])
+    frame = pd.DataFrame(
+        [
+            _row(estimate_uid="s1|e1", estimate=-1.0),
+            _row(estimate_uid="s2|e1", ci_level=95),
+            _row(estimate_uid="s3|e1", ci_low=np.nan, ci_high=np.nan),
+            _row(estimate_uid="s4|e1", change_direction="up"),
+            _row(estimate_uid="s5|e1", estimate=1.6),
+            _row(estimate_uid="s6|e1", measure="RRR"),
+            _row(estimate_uid="s7|e1", estimate_kind="per-unit"),
+            _row(estimate_uid="s8|e1", estimate="abc"),
+        ],
+        index=[101, 102, 103, 104, 105, 106, 107, 108],
+    )
     with pytest.raises(AnalysisError) as err:
         harmonise(frame)
     msg = str(err.value)
@@ -312,19 +339,22 @@ def test_problems_are_reported_together_and_name_rows():
 
 
 def test_p_value_at_the_null_cannot_give_an_se():
-    frame = pd.DataFrame([_row(measure="MD", estimate=0.0, ci_low=np.nan, ci_high=np.nan,
-                               p_value=0.5)])
+    frame = pd.DataFrame(
+        [_row(measure="MD", estimate=0.0, ci_low=np.nan, ci_high=np.nan, p_value=0.5)]
+    )
     with pytest.raises(AnalysisError, match="row 0: an SE cannot come from a p value"):
         harmonise(frame)
 
 
 def test_large_frame_equals_small_frame_repeated_and_input_untouched():
-    small = pd.DataFrame([
-        _row(),
-        _row(measure="OR", baseline_risk=0.1, change_direction="decrease"),
-        _row(measure="MD", estimate=2.0, ci_low=np.nan, ci_high=np.nan, p_value=0.04),
-        _row(estimate_kind="per-unit", per_unit=5, change_unit="ug/m3"),
-    ])
+    small = pd.DataFrame(
+        [
+            _row(),
+            _row(measure="OR", baseline_risk=0.1, change_direction="decrease"),
+            _row(measure="MD", estimate=2.0, ci_low=np.nan, ci_high=np.nan, p_value=0.04),
+            _row(estimate_kind="per-unit", per_unit=5, change_unit="ug/m3"),
+        ]
+    )
     reps = 25_000  # 100,000 rows through the vectorised path
     big = pd.DataFrame({c: np.tile(small[c].to_numpy(dtype=object), reps) for c in small})
     before = big.copy()

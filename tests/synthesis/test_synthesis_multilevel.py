@@ -35,8 +35,13 @@ def _data(seed: int, m: int = 9, s_event: float = 0.3, s_within: float = 0.15, s
     n = cl.size
     v = rng.uniform(0.01, 0.2, n)
     x = rng.normal(size=n)
-    y = (0.2 + (0 if slope is None else slope) * x + rng.normal(0, s_event, m)[cl]
-         + rng.normal(0, s_within, n) + rng.normal(size=n) * np.sqrt(v))
+    y = (
+        0.2
+        + (0 if slope is None else slope) * x
+        + rng.normal(0, s_event, m)[cl]
+        + rng.normal(0, s_within, n)
+        + rng.normal(size=n) * np.sqrt(v)
+    )
     X = np.column_stack([np.ones(n), x]) if slope is not None else None
     return y, v, cl, X
 
@@ -54,8 +59,12 @@ def _dense_restricted_nll(theta, y, v, cl, X):
     beta = np.linalg.solve(xvx, X.T @ Vi @ y)
     r = y - X @ beta
     n, p = X.shape
-    return 0.5 * ((n - p) * np.log(2 * np.pi) + np.linalg.slogdet(V)[1]
-                  + np.linalg.slogdet(xvx)[1] + r @ Vi @ r)
+    return 0.5 * (
+        (n - p) * np.log(2 * np.pi)
+        + np.linalg.slogdet(V)[1]
+        + np.linalg.slogdet(xvx)[1]
+        + r @ Vi @ r
+    )
 
 
 def _dense_reml(y, v, cl, X):
@@ -64,14 +73,21 @@ def _dense_reml(y, v, cl, X):
     best = None
     for a in (0.01, 0.1, 0.5):
         for b in (0.01, 0.1, 0.5):
-            res = optimize.minimize(lambda s: _dense_restricted_nll(s**2, y, v, cl, X),
-                                    np.array([a, b]), method="Nelder-Mead",
-                                    options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 4000})
+            res = optimize.minimize(
+                lambda s: _dense_restricted_nll(s**2, y, v, cl, X),
+                np.array([a, b]),
+                method="Nelder-Mead",
+                options={"xatol": 1e-10, "fatol": 1e-14, "maxiter": 4000},
+            )
             if best is None or res.fun < best.fun:
                 best = res
-    res = optimize.minimize(lambda t: _dense_restricted_nll(t, y, v, cl, X), best.x**2,
-                            method="L-BFGS-B", bounds=[(0, None), (0, None)],
-                            options={"ftol": 1e-15, "gtol": 1e-12})
+    res = optimize.minimize(
+        lambda t: _dense_restricted_nll(t, y, v, cl, X),
+        best.x**2,
+        method="L-BFGS-B",
+        bounds=[(0, None), (0, None)],
+        options={"ftol": 1e-15, "gtol": 1e-12},
+    )
     theta = res.x if res.fun <= best.fun else best.x**2
     V = _dense_v(v, cl, *theta)
     Vi = np.linalg.inv(V)
@@ -189,19 +205,35 @@ def test_to_dict_is_plain():
     y, v, cl, _ = _data(51)
     d = fit_multilevel(y, v, cl).to_dict()
     assert d["k_events"] == 9 and isinstance(d["coef"], list) and isinstance(d["notes"], list)
-    assert set(d) >= {"names", "coef", "vcov_model", "se_model", "vcov_cr2", "se_cr2", "df_cr2",
-                      "sigma2_event", "sigma2_within", "k_estimates", "k_events", "converged",
-                      "iterations", "loglik_reml"}
+    assert set(d) >= {
+        "names",
+        "coef",
+        "vcov_model",
+        "se_model",
+        "vcov_cr2",
+        "se_cr2",
+        "df_cr2",
+        "sigma2_event",
+        "sigma2_within",
+        "k_estimates",
+        "k_events",
+        "converged",
+        "iterations",
+        "loglik_reml",
+    }
 
 
-@pytest.mark.parametrize("y,v,cl,match", [
-    ([0.1, 0.2], [0.01, 0.0], [1, 2], "zero, negative or not finite"),
-    ([0.1, np.nan], [0.01, 0.02], [1, 2], "not finite"),
-    ([0.1, 0.2, 0.3], [0.01, np.inf, 0.02], [1, 2, 2], "zero, negative or not finite"),
-    ([0.1, 0.2, 0.3], [0.01, 0.02, 0.02], [1, 1, 1], "at least 2 events"),
-    ([0.1, 0.2, 0.3], [0.01, 0.02, 0.02], [1, None, 2], "event label missing"),
-    ([0.1, 0.2, 0.3], [0.01, 0.02, 0.02], [1, 2], "one event label per estimate"),
-])
+@pytest.mark.parametrize(
+    "y,v,cl,match",
+    [
+        ([0.1, 0.2], [0.01, 0.0], [1, 2], "zero, negative or not finite"),
+        ([0.1, np.nan], [0.01, 0.02], [1, 2], "not finite"),
+        ([0.1, 0.2, 0.3], [0.01, np.inf, 0.02], [1, 2, 2], "zero, negative or not finite"),
+        ([0.1, 0.2, 0.3], [0.01, 0.02, 0.02], [1, 1, 1], "at least 2 events"),
+        ([0.1, 0.2, 0.3], [0.01, 0.02, 0.02], [1, None, 2], "event label missing"),
+        ([0.1, 0.2, 0.3], [0.01, 0.02, 0.02], [1, 2], "one event label per estimate"),
+    ],
+)
 def test_bad_inputs_raise_analysis_error(y, v, cl, match):
     with pytest.raises(AnalysisError, match=match):
         pool_multilevel(y, v, cl)
@@ -228,9 +260,13 @@ def test_collinear_moderators_and_too_few_events_raise():
 # properties (hypothesis)
 
 _sets = st.integers(min_value=0, max_value=10_000).map(
-    lambda s: _data(s, m=int(np.random.default_rng(s).integers(3, 10)),
-                    s_event=float(np.random.default_rng(s + 1).choice([0.0, 0.1, 0.4])),
-                    s_within=float(np.random.default_rng(s + 2).choice([0.0, 0.1, 0.3]))))
+    lambda s: _data(
+        s,
+        m=int(np.random.default_rng(s).integers(3, 10)),
+        s_event=float(np.random.default_rng(s + 1).choice([0.0, 0.1, 0.4])),
+        s_within=float(np.random.default_rng(s + 2).choice([0.0, 0.1, 0.3])),
+    )
+)
 
 
 @settings(max_examples=25, deadline=None)
@@ -289,12 +325,19 @@ def test_reml_does_not_stop_early_on_a_halved_step():
     # convergence, 3.7e-4 below the restricted-likelihood maximum; reference: a direct
     # L-BFGS-B maximisation of the dense restricted likelihood written in this file
     s = 448
-    y, v, cl, _ = _data(s, m=int(np.random.default_rng(s).integers(3, 10)),
-                        s_event=float(np.random.default_rng(s + 1).choice([0.0, 0.1, 0.4])),
-                        s_within=float(np.random.default_rng(s + 2).choice([0.0, 0.1, 0.3])))
+    y, v, cl, _ = _data(
+        s,
+        m=int(np.random.default_rng(s).integers(3, 10)),
+        s_event=float(np.random.default_rng(s + 1).choice([0.0, 0.1, 0.4])),
+        s_within=float(np.random.default_rng(s + 2).choice([0.0, 0.1, 0.3])),
+    )
     fit = fit_multilevel(y, v, cl)
     X = np.ones((y.size, 1))
-    ref = optimize.minimize(lambda t: _dense_restricted_nll(t, y, v, cl, X), [0.05, 0.05],
-                            bounds=[(0, 10), (0, 10)], method="L-BFGS-B")
+    ref = optimize.minimize(
+        lambda t: _dense_restricted_nll(t, y, v, cl, X),
+        [0.05, 0.05],
+        bounds=[(0, 10), (0, 10)],
+        method="L-BFGS-B",
+    )
     assert fit.converged
     assert fit.loglik_reml == pytest.approx(-ref.fun, abs=1e-8)

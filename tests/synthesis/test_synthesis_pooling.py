@@ -99,8 +99,12 @@ def test_paule_mandel_solves_its_estimating_equation():
 def _reml_by_scipy(y, v):
     """Direct numerical maximisation of the restricted likelihood (bounded Brent, scipy)."""
     upper = 10 * (np.var(y) + v.max())
-    res = optimize.minimize_scalar(lambda t: restricted_nll(y, v, t), bounds=(0.0, upper),
-                                   method="bounded", options={"xatol": 1e-13, "maxiter": 2000})
+    res = optimize.minimize_scalar(
+        lambda t: restricted_nll(y, v, t),
+        bounds=(0.0, upper),
+        method="bounded",
+        options={"xatol": 1e-13, "maxiter": 2000},
+    )
     # the maximiser may sit on the boundary 0
     return 0.0 if restricted_nll(y, v, 0.0) <= res.fun else res.x
 
@@ -168,8 +172,7 @@ def test_prediction_interval_formula():
     # interval, the (floored) HKSJ SE for an HKSJ interval
     wald = pool(KACKER_Y, KACKER_V, method="dl", ci="wald")
     half = stats.t.isf(0.025, 7) * np.sqrt(wald.tau2 + wald.se**2)
-    assert wald.pred_int() == pytest.approx((wald.estimate - half, wald.estimate + half),
-                                            rel=1e-12)
+    assert wald.pred_int() == pytest.approx((wald.estimate - half, wald.estimate + half), rel=1e-12)
     r = pool(KACKER_Y, KACKER_V, method="dl", ci="hksj")
     half = stats.t.isf(0.025, 7) * np.sqrt(r.tau2 + r.se**2)
     assert r.se >= wald.se

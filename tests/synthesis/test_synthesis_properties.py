@@ -19,7 +19,8 @@ estimates = st.lists(
         st.floats(-5, 5, allow_nan=False, allow_infinity=False),
         st.floats(1e-3, 10, allow_nan=False, allow_infinity=False),
     ),
-    min_size=1, max_size=15,
+    min_size=1,
+    max_size=15,
 )
 
 
@@ -30,8 +31,12 @@ def _arrays(pairs):
 
 
 @settings(max_examples=60, deadline=None)
-@given(pairs=estimates, method=st.sampled_from(METHODS), ci=st.sampled_from(["wald", "hksj"]),
-       seed=st.integers(0, 2**16))
+@given(
+    pairs=estimates,
+    method=st.sampled_from(METHODS),
+    ci=st.sampled_from(["wald", "hksj"]),
+    seed=st.integers(0, 2**16),
+)
 def test_permutation_invariance(pairs, method, ci, seed):
     y, v = _arrays(pairs)
     perm = np.random.default_rng(seed).permutation(y.size)
@@ -39,16 +44,22 @@ def test_permutation_invariance(pairs, method, ci, seed):
     scale = 1.0 + np.abs(y).max()
     for f in ("estimate", "se", "ci_lower", "ci_upper", "q", "i2", "pi_lower"):
         x1, x2 = getattr(a, f), getattr(b, f)
-        assert (np.isnan(x1) and np.isnan(x2)) or x1 == pytest.approx(x2, rel=1e-7,
-                                                                     abs=1e-9 * scale)
+        assert (np.isnan(x1) and np.isnan(x2)) or x1 == pytest.approx(
+            x2, rel=1e-7, abs=1e-9 * scale
+        )
     assert (np.isnan(a.tau2) and np.isnan(b.tau2)) or a.tau2 == pytest.approx(
-        b.tau2, rel=1e-6, abs=1e-10 * scale)
+        b.tau2, rel=1e-6, abs=1e-10 * scale
+    )
     assert b.weights == pytest.approx(a.weights[perm], rel=1e-6, abs=1e-12)
 
 
 @settings(max_examples=80, deadline=None)
-@given(pairs=estimates, method=st.sampled_from(METHODS), ci=st.sampled_from(["wald", "hksj"]),
-       floor=st.booleans())
+@given(
+    pairs=estimates,
+    method=st.sampled_from(METHODS),
+    ci=st.sampled_from(["wald", "hksj"]),
+    floor=st.booleans(),
+)
 def test_invariants(pairs, method, ci, floor):
     y, v = _arrays(pairs)
     r = pool(y, v, method, ci, hksj_floor=floor)
@@ -108,8 +119,9 @@ def test_pool_groups_equals_pool_on_generated_groups(gs, method, ci):
 
 @settings(max_examples=200, deadline=None)
 @given(
-    data=st.lists(st.tuples(st.floats(-3, 3, allow_nan=False), st.floats(1e-3, 2.0)),
-                  min_size=3, max_size=12),
+    data=st.lists(
+        st.tuples(st.floats(-3, 3, allow_nan=False), st.floats(1e-3, 2.0)), min_size=3, max_size=12
+    ),
     method=st.sampled_from(["dl", "pm", "reml"]),
     floor=st.booleans(),
 )
@@ -121,7 +133,8 @@ def test_prediction_interval_never_narrower_than_ci(data, method, floor):
     r = pool(y, v, method=method, ci="hksj", hksj_floor=floor)
     assert r.pi_lower <= r.ci_lower + 1e-12
     assert r.pi_upper >= r.ci_upper - 1e-12
-    g = pool_groups(pd.DataFrame({"g": 0, "y": y, "v": v}), ["g"], method=method, ci="hksj",
-                    hksj_floor=floor)
+    g = pool_groups(
+        pd.DataFrame({"g": 0, "y": y, "v": v}), ["g"], method=method, ci="hksj", hksj_floor=floor
+    )
     assert g["pi_lower"].iloc[0] <= g["ci_lower"].iloc[0] + 1e-12
     assert g["pi_upper"].iloc[0] >= g["ci_upper"].iloc[0] - 1e-12

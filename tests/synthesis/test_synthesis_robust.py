@@ -30,8 +30,9 @@ def test_cr2_intercept_only_ols_by_hand():
     y = np.array([0.0, 1.0, 3.0, 2.0, 4.0, 8.0])
     cl = np.array([1, 2, 2, 3, 3, 3])
     # the size-2 adjustment matrix written out: (I - J/6)^(-1/2) = I + (sqrt(3/2) - 1) J/2
-    a2 = np.array([[1.1123724356957945, 0.1123724356957945],
-                   [0.1123724356957945, 1.1123724356957945]])
+    a2 = np.array(
+        [[1.1123724356957945, 0.1123724356957945], [0.1123724356957945, 1.1123724356957945]]
+    )
     i_minus_h = np.eye(2) - np.full((2, 2), 1 / 6)
     assert a2 @ a2 @ i_minus_h == pytest.approx(np.eye(2), abs=1e-14)
     e2 = np.array([-2.0, 0.0])
@@ -86,7 +87,8 @@ def test_cr0_matches_statsmodels_wls_cluster_without_correction(seed):
     X, y, v, cl = _data(seed)
     ours = cr0_vcov(X, y, cl, working=v)
     res = sm.WLS(y, X, weights=1 / v).fit(
-        cov_type="cluster", cov_kwds={"groups": cl, "use_correction": False})
+        cov_type="cluster", cov_kwds={"groups": cl, "use_correction": False}
+    )
     assert ours.coef == pytest.approx(res.params, rel=1e-12)
     assert ours.vcov == pytest.approx(res.cov_params(), rel=1e-10)
 
@@ -123,7 +125,7 @@ def _dense_pieces(X, y, cl, blocks):
     idx = [np.flatnonzero(cl == lab) for lab in labels]
     A = []
     for r in idx:
-        D = linalg.cholesky(phi[np.ix_(r, r)], lower=False)   # D'D = Phi_j
+        D = linalg.cholesky(phi[np.ix_(r, r)], lower=False)  # D'D = Phi_j
         B = D @ IH[r] @ phi @ IH[r].T @ D.T
         A.append(D.T @ np.real(linalg.fractional_matrix_power(B, -0.5)) @ D)
     return X, y, phi, W, M, beta, IH, e, idx, A
@@ -208,8 +210,10 @@ def test_htz_eta_matches_dense_quadratic_form_variances():
     total = 0.0
     for s in range(2):
         for t in range(2):
-            a = sum(0.5 * (np.outer(ps[s][j], ps[t][j]) + np.outer(ps[t][j], ps[s][j]))
-                    for j in range(len(ps[s])))
+            a = sum(
+                0.5 * (np.outer(ps[s][j], ps[t][j]) + np.outer(ps[t][j], ps[s][j]))
+                for j in range(len(ps[s]))
+            )
             total += 2 * np.trace(a @ phi @ a @ phi)
     eta = 2 * 3 / total
     d = C @ ours.coef
@@ -245,5 +249,4 @@ def test_bad_inputs_raise_analysis_error():
     with pytest.raises(AnalysisError, match="finite"):
         cr2_vcov(X, [1.0, np.nan, 3, 4], [1, 1, 2, 2])
     with pytest.raises(AnalysisError, match="not positive definite"):
-        cr2_vcov(X, [1.0, 2, 3, 4], [1, 1, 2, 2],
-                 working=[np.array([[1.0, 2], [2, 1]]), np.eye(2)])
+        cr2_vcov(X, [1.0, 2, 3, 4], [1, 1, 2, 2], working=[np.array([[1.0, 2], [2, 1]]), np.eye(2)])

@@ -85,8 +85,10 @@ def test_bad_sets_raise_analysis_error(case, call):
 
 @pytest.mark.parametrize("method", METHODS)
 def test_pool_groups_names_the_rows_of_an_extreme_group(method):
-    frame = pd.DataFrame({"g": ["a", "a", "b", "b"], "y": [0.1, 0.2, 0.1, 0.3],
-                          "v": [0.01, 0.02, 1e-200, 1e200]}, index=[10, 11, 12, 13])
+    frame = pd.DataFrame(
+        {"g": ["a", "a", "b", "b"], "y": [0.1, 0.2, 0.1, 0.3], "v": [0.01, 0.02, 1e-200, 1e200]},
+        index=[10, 11, 12, 13],
+    )
     with pytest.raises(AnalysisError, match=r"rows 12, 13: the variances range"):
         pool_groups(frame, ["g"], method=method)
 
@@ -139,7 +141,9 @@ def test_sensitivity_and_metareg_at_variances_near_the_ends_of_the_range():
         assert np.isfinite(m.coefficients["se"].to_numpy()).all()
         assert m.tau2 / (c * c) == pytest.approx(
             meta_regression(y / c, v / (c * c), np.array([0.0, 1.0, 0.0, 2.0, 1.0])).tau2,
-            rel=1e-7, abs=1e-12)
+            rel=1e-7,
+            abs=1e-12,
+        )
 
 
 def test_metareg_exact_fit_with_knapp_hartung_raises():
@@ -148,11 +152,19 @@ def test_metareg_exact_fit_with_knapp_hartung_raises():
         meta_regression([0.1, 0.2, 0.3], [0.01, 0.01, 0.01], np.array([1.0, 2.0, 3.0]))
 
 
-@pytest.mark.parametrize("row", [
-    {"se": np.inf}, {"se": 1e300}, {"se": 1e-300}, {"estimate": np.inf}, {"estimate": np.nan},
-    {"ci_low": -np.inf, "ci_high": 2.0}, {"p_value": np.inf},
-    {"estimate_kind": "per-unit", "per_unit": 1e-300, "change_unit": "ug/m3"},
-])
+@pytest.mark.parametrize(
+    "row",
+    [
+        {"se": np.inf},
+        {"se": 1e300},
+        {"se": 1e-300},
+        {"estimate": np.inf},
+        {"estimate": np.nan},
+        {"ci_low": -np.inf, "ci_high": 2.0},
+        {"p_value": np.inf},
+        {"estimate_kind": "per-unit", "per_unit": 1e-300, "change_unit": "ug/m3"},
+    ],
+)
 def test_harmonise_non_finite_or_unrepresentable_raises(row):
     base = {"measure": "MD", "estimate": 1.0, "se": 0.1, "change_direction": "increase"}
     frame = pd.DataFrame([{**base, **row}, {**base, "per_unit": 10.0}])
@@ -209,13 +221,18 @@ def test_kacker_rescaled_matches_statsmodels_reference(power):
 
 pairs = st.lists(
     st.tuples(st.floats(-3, 3, allow_nan=False), st.floats(0.01, 1.0, allow_nan=False)),
-    min_size=2, max_size=12,
+    min_size=2,
+    max_size=12,
 )
 
 
 @settings(max_examples=80, deadline=None)
-@given(pairs=pairs, power=st.integers(-100, 100), shift=st.floats(-50, 50),
-       method=st.sampled_from(["dl", "pm", "reml"]))
+@given(
+    pairs=pairs,
+    power=st.integers(-100, 100),
+    shift=st.floats(-50, 50),
+    method=st.sampled_from(["dl", "pm", "reml"]),
+)
 def test_scale_equivariance_property(pairs, power, shift, method):
     """pool(a + c·y, c²·v): estimate a + c·μ, τ² c²·τ², I² and Q unchanged (definitions)."""
     y = np.array([p[0] for p in pairs])
@@ -225,13 +242,15 @@ def test_scale_equivariance_property(pairs, power, shift, method):
     a = shift * c
     r = pool(a + c * y, c * c * v, method=method, ci="wald")
     assert r.tau2 / (c * c) == pytest.approx(base.tau2, rel=1e-6, abs=1e-9)
-    assert (r.estimate - a) / c == pytest.approx(base.estimate, rel=1e-6,
-                                                 abs=1e-9 * (1 + abs(shift)))
+    assert (r.estimate - a) / c == pytest.approx(
+        base.estimate, rel=1e-6, abs=1e-9 * (1 + abs(shift))
+    )
     assert r.se / c == pytest.approx(base.se, rel=1e-9)
     assert r.q == pytest.approx(base.q, rel=1e-6, abs=1e-9)
     assert r.i2_tau2 == pytest.approx(base.i2_tau2, rel=1e-6, abs=1e-9)
-    g = pool_groups(pd.DataFrame({"g": 1, "y": a + c * y, "v": c * c * v}), ["g"],
-                    method=method, ci="wald")
+    g = pool_groups(
+        pd.DataFrame({"g": 1, "y": a + c * y, "v": c * c * v}), ["g"], method=method, ci="wald"
+    )
     assert g["tau2"].iloc[0] / (c * c) == pytest.approx(base.tau2, rel=1e-6, abs=1e-9)
 
 
@@ -241,9 +260,10 @@ def test_direct_tau2_functions_scale(pairs, power):
     y = np.array([p[0] for p in pairs])
     v = np.array([p[1] for p in pairs])
     c = 10.0**power
-    assert tau2_dl(y * c, v * c * c) / (c * c) == pytest.approx(tau2_dl(y, v), rel=1e-8,
-                                                                 abs=1e-12)
-    assert tau2_pm(y * c, v * c * c)[0] / (c * c) == pytest.approx(tau2_pm(y, v)[0], rel=1e-8,
-                                                                    abs=1e-12)
-    assert tau2_reml(y * c, v * c * c)[0] / (c * c) == pytest.approx(tau2_reml(y, v)[0],
-                                                                      rel=1e-7, abs=1e-10)
+    assert tau2_dl(y * c, v * c * c) / (c * c) == pytest.approx(tau2_dl(y, v), rel=1e-8, abs=1e-12)
+    assert tau2_pm(y * c, v * c * c)[0] / (c * c) == pytest.approx(
+        tau2_pm(y, v)[0], rel=1e-8, abs=1e-12
+    )
+    assert tau2_reml(y * c, v * c * c)[0] / (c * c) == pytest.approx(
+        tau2_reml(y, v)[0], rel=1e-7, abs=1e-10
+    )

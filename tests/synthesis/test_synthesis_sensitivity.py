@@ -27,10 +27,12 @@ def gen_q(y, v, tau2):
 def test_qprofile_bounds_solve_the_qprofile_equation():
     # Viechtbauer 2007: Q(tau2_lo) = chi2_{k-1, 0.975}, Q(tau2_hi) = chi2_{k-1, 0.025}
     ci = sens.tau2_ci_qprofile(KACKER_Y, KACKER_V)
-    assert gen_q(KACKER_Y, KACKER_V, ci.tau2_lower) == pytest.approx(stats.chi2.isf(0.025, 8),
-                                                                     rel=1e-10)
-    assert gen_q(KACKER_Y, KACKER_V, ci.tau2_upper) == pytest.approx(stats.chi2.ppf(0.025, 8),
-                                                                     rel=1e-10)
+    assert gen_q(KACKER_Y, KACKER_V, ci.tau2_lower) == pytest.approx(
+        stats.chi2.isf(0.025, 8), rel=1e-10
+    )
+    assert gen_q(KACKER_Y, KACKER_V, ci.tau2_upper) == pytest.approx(
+        stats.chi2.ppf(0.025, 8), rel=1e-10
+    )
     pm = pool(KACKER_Y, KACKER_V, method="pm").tau2  # solves Q = k - 1, between the quantiles
     assert ci.tau2_lower < pm < ci.tau2_upper
     assert ci.tau_upper == pytest.approx(np.sqrt(ci.tau2_upper))
@@ -137,8 +139,13 @@ def _reg_data(seed=7, k=25):
     dose = rng.uniform(0, 10, k)
     family = rng.choice(["common-trend", "trend-extrapolation", "weighted-fit"], k)
     v = rng.uniform(0.01, 0.2, k)
-    y = 0.1 + 0.03 * dose + (family == "weighted-fit") * 0.2 + rng.normal(0, 0.3, k) \
+    y = (
+        0.1
+        + 0.03 * dose
+        + (family == "weighted-fit") * 0.2
+        + rng.normal(0, 0.3, k)
         + rng.normal(0, 1, k) * np.sqrt(v)
+    )
     return y, v, pd.DataFrame({"dose": dose, "family": family})
 
 
@@ -164,7 +171,11 @@ def test_meta_regression_matches_statsmodels_wls(method):
     assert kh.omnibus_pvalue == pytest.approx(float(ftest.pvalue), rel=1e-8)
     assert kh.omnibus_df1 == 3 and kh.df_resid == 21
     assert list(kh.coefficients["term"]) == [
-        "intercept", "dose", "family[trend-extrapolation]", "family[weighted-fit]"]
+        "intercept",
+        "dose",
+        "family[trend-extrapolation]",
+        "family[weighted-fit]",
+    ]
 
 
 def test_meta_regression_reml_matches_direct_maximisation():
@@ -172,8 +183,12 @@ def test_meta_regression_reml_matches_direct_maximisation():
     y, v, mods = _reg_data(seed=8, k=30)
     res = sens.meta_regression(y, v, mods, method="reml")
     X = res.design.to_numpy()
-    opt = optimize.minimize_scalar(lambda t: restricted_nll(y, v, t, X), bounds=(0, 5),
-                                   method="bounded", options={"xatol": 1e-12})
+    opt = optimize.minimize_scalar(
+        lambda t: restricted_nll(y, v, t, X),
+        bounds=(0, 5),
+        method="bounded",
+        options={"xatol": 1e-12},
+    )
     ref = 0.0 if restricted_nll(y, v, 0.0, X) <= opt.fun else opt.x
     assert res.converged
     assert res.tau2 == pytest.approx(ref, rel=1e-6, abs=1e-9)
@@ -206,7 +221,8 @@ def test_binary_moderator_reproduces_the_subgroup_structure():
     w = 1 / (KACKER_V + t2)
     a = GROUPS == "a"
     assert common.coefficients["estimate"].iloc[0] == pytest.approx(
-        np.sum(w[a] * KACKER_Y[a]) / np.sum(w[a]), rel=1e-12)
+        np.sum(w[a] * KACKER_Y[a]) / np.sum(w[a]), rel=1e-12
+    )
     assert common.method == "fixed" and "tau2 fixed" in common.notes[0]
 
 
@@ -264,7 +280,9 @@ def test_funnel_data():
     z = stats.norm.isf(0.025)
     pts = fd.points.set_index("label")
     assert pts.loc["LNE", "outside"] and not pts.loc["NIST", "outside"]
-    assert pts["outside"].to_numpy().tolist() == (np.abs(KACKER_Y - fe) > z * np.sqrt(KACKER_V)
-                                                   ).tolist()
+    assert (
+        pts["outside"].to_numpy().tolist()
+        == (np.abs(KACKER_Y - fe) > z * np.sqrt(KACKER_V)).tolist()
+    )
     assert fd.lines["upper"].iloc[-1] - fe == pytest.approx(z * fd.lines["se"].iloc[-1])
     assert fd.lines["se"].max() >= np.sqrt(KACKER_V).max()

@@ -49,7 +49,8 @@ def test_pm_agrees_with_statsmodels_where_its_iteration_is_valid():
         w = 1 / (v + sm.tau2)
         mu = w @ y / w.sum()
         valid = abs(w @ (y - mu) ** 2 - (y.size - 1)) < 1e-8 or (
-            sm.tau2 == 0 and cochran_q(y, v)[1] <= y.size - 1)
+            sm.tau2 == 0 and cochran_q(y, v)[1] <= y.size - 1
+        )
         if not valid:
             continue
         ours = pool(y, v, method="pm", ci="wald")

@@ -39,8 +39,10 @@ from exposhift.errors import AnalysisError, ReviewError, RubricError
 
 WEIGHTS = ("linear", "quadratic", None)
 LONG_COLUMNS = ("study_id", "reviewer", "domain", "level")
-CAUTION = ("Kappa depends on how ratings spread over the levels: read it beside the table of "
-           "ratings, and compare values across domains or rubric versions with care.")
+CAUTION = (
+    "Kappa depends on how ratings spread over the levels: read it beside the table of "
+    "ratings, and compare values across domains or rubric versions with care."
+)
 #: the row that pools every study x domain pair, and the row of the overall level
 ALL_DOMAINS = "all domains"
 OVERALL_LEVEL = "overall level"
@@ -86,20 +88,23 @@ def _check_pair(a: object, b: object, categories: Sequence) -> tuple[np.ndarray,
     return ia, ib
 
 
-def kappa_details(a: object, b: object, weights: str | None = "linear",
-                  categories: Sequence = (0, 1, 2, 3)) -> KappaResult:
+def kappa_details(
+    a: object, b: object, weights: str | None = "linear", categories: Sequence = (0, 1, 2, 3)
+) -> KappaResult:
     """Weighted kappa with its observed and expected agreement, and why it is NaN if it is.
 
     Source: Cohen (1968), weighted kappa; Cohen (1960) for ``weights=None``.
     """
     if weights not in WEIGHTS:
-        raise AnalysisError(f"unknown weights {weights!r}; accepted: 'linear', 'quadratic' or "
-                            "None (unweighted)")
+        raise AnalysisError(
+            f"unknown weights {weights!r}; accepted: 'linear', 'quadratic' or None (unweighted)"
+        )
     ia, ib = _check_pair(a, b, categories)
     n, k = ia.size, len(categories)
     if n == 0:
-        return KappaResult(float("nan"), weights, 0, float("nan"), float("nan"),
-                           "no paired ratings")
+        return KappaResult(
+            float("nan"), weights, 0, float("nan"), float("nan"), "no paired ratings"
+        )
     table = np.zeros((k, k))
     np.add.at(table, (ia, ib), 1.0)
     p = table / n
@@ -112,15 +117,22 @@ def kappa_details(a: object, b: object, weights: str | None = "linear",
     disagree_e = float((v * expected).sum())
     if disagree_e == 0.0:
         level = categories[int(ia[0])]
-        return KappaResult(float("nan"), weights, n, p_o, p_e,
-                           f"undefined: both reviewers gave all {n} ratings the same level "
-                           f"({level}); agreement is complete but so is chance agreement")
+        return KappaResult(
+            float("nan"),
+            weights,
+            n,
+            p_o,
+            p_e,
+            f"undefined: both reviewers gave all {n} ratings the same level "
+            f"({level}); agreement is complete but so is chance agreement",
+        )
     kappa = 1.0 - float((v * p).sum()) / disagree_e
     return KappaResult(kappa, weights, n, p_o, p_e, None)
 
 
-def weighted_kappa(a: object, b: object, weights: str | None = "linear",
-                   categories: Sequence = (0, 1, 2, 3)) -> float:
+def weighted_kappa(
+    a: object, b: object, weights: str | None = "linear", categories: Sequence = (0, 1, 2, 3)
+) -> float:
     """Cohen's (1968) weighted kappa of two reviewers' ratings of the same items.
 
     ``weights``: "linear", "quadratic" or None (unweighted, Cohen 1960). Returns NaN when kappa
@@ -137,8 +149,10 @@ def percent_agreement(a: object, b: object) -> float:
     va = np.asarray(a, dtype=object).ravel()
     vb = np.asarray(b, dtype=object).ravel()
     if va.size != vb.size:
-        raise AnalysisError(f"the two reviewers have {va.size} and {vb.size} ratings; percent "
-                            "agreement needs one rating from each reviewer per item")
+        raise AnalysisError(
+            f"the two reviewers have {va.size} and {vb.size} ratings; percent "
+            "agreement needs one rating from each reviewer per item"
+        )
     if va.size == 0:
         return float("nan")
     return 100.0 * float(np.mean([x == y for x, y in zip(va, vb, strict=True)]))
@@ -151,33 +165,42 @@ def _show(value: object) -> str:
     return repr(value.item() if isinstance(value, np.generic) else value)
 
 
-def _pairs(frame: pd.DataFrame, rubric: Rubric, categories: Sequence
-           ) -> tuple[dict[str, tuple[list, list]], list[str]]:
+def _pairs(
+    frame: pd.DataFrame, rubric: Rubric, categories: Sequence
+) -> tuple[dict[str, tuple[list, list]], list[str]]:
     missing = [c for c in LONG_COLUMNS if c not in frame.columns]
     if missing:
-        raise AnalysisError(f"the appraisal table has no column {', '.join(missing)}; it needs "
-                            f"{', '.join(LONG_COLUMNS)} (one row per study, reviewer and domain)")
+        raise AnalysisError(
+            f"the appraisal table has no column {', '.join(missing)}; it needs "
+            f"{', '.join(LONG_COLUMNS)} (one row per study, reviewer and domain)"
+        )
     data = frame
     if "stage" in data.columns:
         data = data[data["stage"] == "independent"]
     data = data[data["level"].notna()]
     unknown = sorted(set(data["domain"]) - set(rubric.domain_keys), key=str)
     if unknown:
-        raise RubricError(f"unknown domain{'s' if len(unknown) > 1 else ''} "
-                          f"{', '.join(map(repr, unknown))}; accepted domains: "
-                          f"{', '.join(rubric.domain_keys)}")
+        raise RubricError(
+            f"unknown domain{'s' if len(unknown) > 1 else ''} "
+            f"{', '.join(map(repr, unknown))}; accepted domains: "
+            f"{', '.join(rubric.domain_keys)}"
+        )
     bad = data[~data["level"].isin(list(categories))]
     if len(bad):
         row = bad.iloc[0]
-        raise RubricError(f"level {_show(row['level'])} for study {row['study_id']!r}, reviewer "
-                          f"{row['reviewer']!r}, domain {row['domain']!r} is outside "
-                          f"{', '.join(map(str, categories))}")
+        raise RubricError(
+            f"level {_show(row['level'])} for study {row['study_id']!r}, reviewer "
+            f"{row['reviewer']!r}, domain {row['domain']!r} is outside "
+            f"{', '.join(map(str, categories))}"
+        )
     dup = data.duplicated(["study_id", "reviewer", "domain"], keep=False)
     if dup.any():
         row = data[dup].iloc[0]
-        raise ReviewError(f"reviewer {row['reviewer']!r} rated domain {row['domain']!r} of study "
-                          f"{row['study_id']!r} more than once at the independent stage; keep "
-                          "one independent appraisal per reviewer and study")
+        raise ReviewError(
+            f"reviewer {row['reviewer']!r} rated domain {row['domain']!r} of study "
+            f"{row['study_id']!r} more than once at the independent stage; keep "
+            "one independent appraisal per reviewer and study"
+        )
     notes: list[str] = []
     pairs: dict[str, tuple[list, list]] = {k: ([], []) for k in rubric.domain_keys}
     for study, rows in data.groupby("study_id", sort=True):
@@ -186,8 +209,10 @@ def _pairs(frame: pd.DataFrame, rubric: Rubric, categories: Sequence
             continue
         first, second = reviewers[:2]
         if len(reviewers) > 2:
-            notes.append(f"study {study!r} has {len(reviewers)} reviewers; the first two by "
-                         f"name ({first}, {second}) are compared")
+            notes.append(
+                f"study {study!r} has {len(reviewers)} reviewers; the first two by "
+                f"name ({first}, {second}) are compared"
+            )
         a = rows[rows["reviewer"] == first].set_index("domain")["level"]
         b = rows[rows["reviewer"] == second].set_index("domain")["level"]
         for key in rubric.domain_keys:
@@ -212,8 +237,9 @@ def _row(domain: str, a: list, b: list, categories: Sequence, note: str = "") ->
     }
 
 
-def agreement_table(frame: pd.DataFrame, rubric: Rubric | None = None,
-                    categories: Sequence = (0, 1, 2, 3)) -> pd.DataFrame:
+def agreement_table(
+    frame: pd.DataFrame, rubric: Rubric | None = None, categories: Sequence = (0, 1, 2, 3)
+) -> pd.DataFrame:
     """Per-domain agreement of independent appraisals, plus an ``overall`` row.
 
     ``frame`` is long: one row per study, reviewer and domain, columns ``study_id``,
@@ -235,9 +261,16 @@ def agreement_table(frame: pd.DataFrame, rubric: Rubric | None = None,
     rows = [_row(key, a, b, categories) for key, (a, b) in pairs.items()]
     all_a = [x for a, _ in pairs.values() for x in a]
     all_b = [x for _, b in pairs.values() for x in b]
-    rows.append(_row(ALL_DOMAINS, all_a, all_b, categories,
-                     note=f"pooled over {sum(1 for a, _ in pairs.values() if a)} domains "
-                          "(each study x domain pair once; n = pairs)"))
+    rows.append(
+        _row(
+            ALL_DOMAINS,
+            all_a,
+            all_b,
+            categories,
+            note=f"pooled over {sum(1 for a, _ in pairs.values() if a)} domains "
+            "(each study x domain pair once; n = pairs)",
+        )
+    )
     table = pd.DataFrame(rows, columns=list(TABLE_COLUMNS))
     table.attrs["notes"] = notes
     table.attrs["caution"] = CAUTION
@@ -263,5 +296,6 @@ def overall_level_row(frame: pd.DataFrame, categories: Sequence = (0, 1, 2, 3)) 
         by = rows.set_index("reviewer")["overall"]
         a.append(int(by[reviewers[0]]))
         b.append(int(by[reviewers[1]]))
-    return _row(OVERALL_LEVEL, a, b, categories,
-                note="the overall level of each study (n = studies)")
+    return _row(
+        OVERALL_LEVEL, a, b, categories, note="the overall level of each study (n = studies)"
+    )

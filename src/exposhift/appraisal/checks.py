@@ -31,13 +31,17 @@ CHECKS: dict[str, tuple[str, str]] = {
     "placebo-date": ("falsification", "effect estimated at a false change date, expected null"),
     "placebo-place": ("falsification", "effect estimated in units that were not exposed"),
     "negative-control-outcome": (
-        "falsification", "an outcome the exposure cannot plausibly affect (Lipsitch et al. 2010)"),
+        "falsification",
+        "an outcome the exposure cannot plausibly affect (Lipsitch et al. 2010)",
+    ),
     "negative-control-exposure": (
-        "falsification", "an exposure that cannot plausibly affect the outcome "
-        "(Lipsitch et al. 2010)"),
+        "falsification",
+        "an exposure that cannot plausibly affect the outcome (Lipsitch et al. 2010)",
+    ),
     "in-space-placebo": (
-        "falsification", "synthetic control refitted with each donor as if treated "
-        "(Abadie et al. 2010)"),
+        "falsification",
+        "synthetic control refitted with each donor as if treated (Abadie et al. 2010)",
+    ),
     # similarity of the comparison before the change
     "pre-trends": ("similarity", "exposed and comparison trends shown before the change"),
     "pre-period-fit": ("similarity", "synthetic control fit over the pre-change periods"),
@@ -45,22 +49,27 @@ CHECKS: dict[str, tuple[str, str]] = {
     "balance": ("similarity", "balance on prognostic covariates or pre-change outcomes"),
     # design-specific diagnostics
     "first-stage-f": ("diagnostic", "first-stage F statistic of the instrument reported"),
-    "weak-iv-robust": (
-        "diagnostic", "weak-instrument-robust inference (e.g. Anderson-Rubin, tF)"),
-    "density-test": ("diagnostic", "density of the running variable at the cutoff "
-                     "(McCrary 2008)"),
+    "weak-iv-robust": ("diagnostic", "weak-instrument-robust inference (e.g. Anderson-Rubin, tF)"),
+    "density-test": ("diagnostic", "density of the running variable at the cutoff (McCrary 2008)"),
     "bandwidth-sensitivity": ("diagnostic", "estimate repeated over several bandwidths"),
     "narrow-window": (
-        "diagnostic", "regression discontinuity in time re-estimated in a narrow window"),
+        "diagnostic",
+        "regression discontinuity in time re-estimated in a narrow window",
+    ),
     "robust-staggered-estimator": (
-        "diagnostic", "heterogeneity-robust estimator for staggered adoption "
-        "(Callaway & Sant'Anna 2021 or similar)"),
+        "diagnostic",
+        "heterogeneity-robust estimator for staggered adoption "
+        "(Callaway & Sant'Anna 2021 or similar)",
+    ),
     "bacon-decomposition": (
-        "diagnostic", "decomposition of the two-way fixed-effects estimate "
-        "(Goodman-Bacon 2021)"),
+        "diagnostic",
+        "decomposition of the two-way fixed-effects estimate (Goodman-Bacon 2021)",
+    ),
     "pre-trend-sensitivity": (
-        "diagnostic", "power of the pre-trend test or bounded-violation sensitivity "
-        "(Roth 2022; Rambachan & Roth 2023)"),
+        "diagnostic",
+        "power of the pre-trend test or bounded-violation sensitivity "
+        "(Roth 2022; Rambachan & Roth 2023)",
+    ),
     "leave-one-out": ("diagnostic", "synthetic control refitted leaving out each donor"),
     "exclusion-argued": ("diagnostic", "exclusion restriction argued with evidence"),
     # inference
@@ -68,7 +77,9 @@ CHECKS: dict[str, tuple[str, str]] = {
     "seasonality": ("inference", "seasonal pattern modelled"),
     "clustered-se": ("inference", "standard errors clustered at the level of assignment"),
     "few-treated-inference": (
-        "inference", "permutation, randomisation inference or small-cluster correction"),
+        "inference",
+        "permutation, randomisation inference or small-cluster correction",
+    ),
     "overdispersion": ("inference", "count model allowing over-dispersion"),
     # reporting
     "pre-specified": ("reporting", "analysis plan or impact model specified beforehand"),
@@ -141,8 +152,10 @@ class CheckList:
     def note(self) -> str | None:
         if not self.unknown:
             return None
-        return (f"unknown check{'s' if len(self.unknown) > 1 else ''} kept as written: "
-                f"{', '.join(self.unknown)} (known codes: {', '.join(CHECKS)})")
+        return (
+            f"unknown check{'s' if len(self.unknown) > 1 else ''} kept as written: "
+            f"{', '.join(self.unknown)} (known codes: {', '.join(CHECKS)})"
+        )
 
 
 def parse_checks(value: str | Iterable[str] | None, sep: str = ";") -> CheckList:

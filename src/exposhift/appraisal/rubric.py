@@ -67,6 +67,7 @@ __all__ = [
 
 WORKSPACE_RUBRIC = Path("evidence") / "rubric.toml"
 
+
 def normalise_bytes(data: bytes) -> bytes:
     """Drop a UTF-8 byte-order mark and make every line ending LF (see the module docstring)."""
     if data.startswith(b"\xef\xbb\xbf"):

@@ -122,7 +122,8 @@ class Rubric:
     def cap_domains(self) -> tuple[str, ...]:
         """Domains whose low rating caps the overall level: neither core nor apart."""
         return tuple(
-            d.key for d in self.domains
+            d.key
+            for d in self.domains
             if d.key not in self.core_domains and d.key not in self.apart_domains
         )
 
@@ -139,9 +140,11 @@ class Rubric:
     def summary_text(self) -> str:
         """The summary rule in words, for display beside an overall level."""
         name = self.level_name
-        text = (f"overall = lowest of {', '.join(self.core_domains)}; a rating of "
-                f"{self.cap_trigger} ({name(self.cap_trigger)}) or lower in "
-                f"{', '.join(self.cap_domains)} caps it at {self.cap_at} ({name(self.cap_at)})")
+        text = (
+            f"overall = lowest of {', '.join(self.core_domains)}; a rating of "
+            f"{self.cap_trigger} ({name(self.cap_trigger)}) or lower in "
+            f"{', '.join(self.cap_domains)} caps it at {self.cap_at} ({name(self.cap_at)})"
+        )
         if self.never_lifts:
             text += f"; {', '.join(self.never_lifts)} never lifts a weak core"
         if self.apart_domains:

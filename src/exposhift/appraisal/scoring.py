@@ -118,15 +118,19 @@ def check_ratings(ratings: Mapping[str, object], rubric: Rubric) -> dict[str, in
     problem and the accepted values. Blank values (``None``, NaN) are dropped.
     """
     if not isinstance(ratings, Mapping):
-        raise RubricError("ratings must be a mapping of domain key to level 0-3, e.g. "
-                          "{'origin': 2, 'counterfactual': 1, ...}")
+        raise RubricError(
+            "ratings must be a mapping of domain key to level 0-3, e.g. "
+            "{'origin': 2, 'counterfactual': 1, ...}"
+        )
     keys = rubric.domain_keys
     problems = []
     unknown = [k for k in ratings if k not in keys]
     if unknown:
-        problems.append(f"unknown domain{'s' if len(unknown) > 1 else ''} "
-                        f"{', '.join(repr(k) for k in unknown)}; accepted domains: "
-                        f"{', '.join(keys)}")
+        problems.append(
+            f"unknown domain{'s' if len(unknown) > 1 else ''} "
+            f"{', '.join(repr(k) for k in unknown)}; accepted domains: "
+            f"{', '.join(keys)}"
+        )
     out: dict[str, int] = {}
     bad = []
     for key in keys:
@@ -138,8 +142,7 @@ def check_ratings(ratings: Mapping[str, object], rubric: Rubric) -> dict[str, in
         else:
             out[key] = level
     if bad:
-        problems.append(f"level outside 0-3 for {', '.join(bad)}; accepted levels: "
-                        f"{_LEVEL_WORDS}")
+        problems.append(f"level outside 0-3 for {', '.join(bad)}; accepted levels: {_LEVEL_WORDS}")
     if problems:
         raise RubricError("; ".join(problems))
     return out
@@ -178,30 +181,36 @@ def score_appraisal(ratings: Mapping[str, object], rubric: Rubric | None = None)
         said = f"{first} = {rated[first]} ({name(rated[first])})"
         if core_min > rubric.cap_at:
             overall, capped_by, deciding = rubric.cap_at, first, first
-            reason = (f"capped at {rubric.cap_at} ({name(rubric.cap_at)}) by {said}; "
-                      f"{reason}")
+            reason = f"capped at {rubric.cap_at} ({name(rubric.cap_at)}) by {said}; {reason}"
         else:
-            notes.append(f"{said} would cap the overall level at {rubric.cap_at} "
-                         f"({name(rubric.cap_at)}); the core already sets it at {core_min}")
+            notes.append(
+                f"{said} would cap the overall level at {rubric.cap_at} "
+                f"({name(rubric.cap_at)}); the core already sets it at {core_min}"
+            )
         if len(hits) > 1:
-            notes.append(f"also rated {name(rubric.cap_trigger)} or lower: "
-                         f"{', '.join(hits[1:])}")
+            notes.append(f"also rated {name(rubric.cap_trigger)} or lower: {', '.join(hits[1:])}")
 
     for key in rubric.never_lifts:
         if key in rated and rated[key] > overall:
-            notes.append(f"{key} = {rated[key]} ({name(rated[key])}) is shown but does not lift "
-                         f"the overall level (summary rule)")
+            notes.append(
+                f"{key} = {rated[key]} ({name(rated[key])}) is shown but does not lift "
+                f"the overall level (summary rule)"
+            )
 
     missing = tuple(k for k in rubric.cap_domains if k not in rated)
     if missing:
-        notes.append(f"not rated: {', '.join(missing)}; a {name(rubric.cap_trigger)} rating "
-                     f"there would cap the overall level at {rubric.cap_at}")
+        notes.append(
+            f"not rated: {', '.join(missing)}; a {name(rubric.cap_trigger)} rating "
+            f"there would cap the overall level at {rubric.cap_at}"
+        )
 
     applicability = rated.get("applicability")
     excluded = overall in rubric.exclude_from_pooling
     if excluded:
-        notes.append(f"overall {overall} ({name(overall)}): left out of pooled estimates by "
-                     f"default; the study stays on the evidence map")
+        notes.append(
+            f"overall {overall} ({name(overall)}): left out of pooled estimates by "
+            f"default; the study stays on the evidence map"
+        )
 
     return ScoreResult(
         overall=overall,

@@ -42,8 +42,10 @@ def _whole(v: object) -> bool:
 
 def _check_level(level: object, what: str) -> int:
     if not _whole(level) or int(level) not in range(4):  # type: ignore[call-overload]
-        raise RubricError(f"level {level!r} for '{what}' is outside 0-3; accepted levels: "
-                          "0 (fatal), 1 (weak), 2 (adequate), 3 (strong)")
+        raise RubricError(
+            f"level {level!r} for '{what}' is outside 0-3; accepted levels: "
+            "0 (fatal), 1 (weak), 2 (adequate), 3 (strong)"
+        )
     return int(level)  # type: ignore[call-overload]
 
 
@@ -98,8 +100,10 @@ class StudyFacts:
     def checks_note(self) -> str | None:
         if not self.unknown_checks:
             return None
-        return (f"unknown check{'s' if len(self.unknown_checks) > 1 else ''} kept but not used "
-                f"by the suggestion rules: {', '.join(self.unknown_checks)}")
+        return (
+            f"unknown check{'s' if len(self.unknown_checks) > 1 else ''} kept but not used "
+            f"by the suggestion rules: {', '.join(self.unknown_checks)}"
+        )
 
 
 @dataclass(frozen=True)
@@ -145,10 +149,12 @@ def _fires(rule: SuggestRule, facts: StudyFacts) -> bool:
     if rule.fewest_points_below is not None and (few is None or few >= rule.fewest_points_below):
         return False
     if rule.fewest_points_at_least is not None and (
-            few is None or few < rule.fewest_points_at_least):
+        few is None or few < rule.fewest_points_at_least
+    ):
         return False
     if rule.fewest_pre_below is not None and (
-            facts.pre_points is None or facts.pre_points >= rule.fewest_pre_below):
+        facts.pre_points is None or facts.pre_points >= rule.fewest_pre_below
+    ):
         return False
     needs_checks = rule.lacks_all or rule.lacks_any or rule.fewer_than
     if needs_checks and facts.checks is None:
@@ -179,8 +185,9 @@ def _bound(rule: SuggestRule, facts: StudyFacts) -> tuple[int, bool, str]:
 
 def _join_reasons(items: list[tuple[int, bool, str, str]], top: int) -> str:
     binding = list(dict.fromkeys(r for limit, _, r, _ in items if limit == top))
-    others = [r for r in dict.fromkeys(r for limit, _, r, _ in items if limit != top)
-              if r not in binding]
+    others = [
+        r for r in dict.fromkeys(r for limit, _, r, _ in items if limit != top) if r not in binding
+    ]
     text = "; ".join(binding)
     return f"{text}; also: {'; '.join(others)}" if others else text
 
@@ -216,12 +223,14 @@ def suggest_levels(facts: StudyFacts, rubric: Rubric | None = None) -> dict[str,
 
 def confirm(suggestion: Suggestion, justification: str = "") -> Decision:
     """Accept a suggestion: its level, or for a limit the highest level it allows."""
-    return Decision(suggestion.domain, suggestion.max_level, suggestion, False,
-                    justification.strip())
+    return Decision(
+        suggestion.domain, suggestion.max_level, suggestion, False, justification.strip()
+    )
 
 
-def apply_override(suggestion: Suggestion | None, level: int, justification: str = "",
-                   domain: str | None = None) -> Decision:
+def apply_override(
+    suggestion: Suggestion | None, level: int, justification: str = "", domain: str | None = None
+) -> Decision:
     """Record the reviewer's ``level`` against ``suggestion`` (or against none).
 
     A level that departs from the suggestion needs a non-empty ``justification``; without one
@@ -242,10 +251,14 @@ def apply_override(suggestion: Suggestion | None, level: int, justification: str
     return Decision(key, level, suggestion, departs, why)
 
 
-def facts_from_record(design: str, pre_points: object = None, post_points: object = None,
-                      checks: str | Iterable[str] | None = None,
-                      assignment_grade: object = None,
-                      has_comparison: bool | None = None) -> StudyFacts:
+def facts_from_record(
+    design: str,
+    pre_points: object = None,
+    post_points: object = None,
+    checks: str | Iterable[str] | None = None,
+    assignment_grade: object = None,
+    has_comparison: bool | None = None,
+) -> StudyFacts:
     """Build :class:`StudyFacts` from loosely typed record values (blank cells as None/NaN)."""
 
     def whole(v: object) -> int | None:
@@ -257,6 +270,11 @@ def facts_from_record(design: str, pre_points: object = None, post_points: objec
 
     if isinstance(checks, float) and checks != checks:
         checks = None
-    return StudyFacts(design=design, pre_points=whole(pre_points), post_points=whole(post_points),
-                      checks=checks, assignment_grade=whole(assignment_grade),
-                      has_comparison=has_comparison)
+    return StudyFacts(
+        design=design,
+        pre_points=whole(pre_points),
+        post_points=whole(post_points),
+        checks=checks,
+        assignment_grade=whole(assignment_grade),
+        has_comparison=has_comparison,
+    )

@@ -10,9 +10,13 @@ import typer
 from exposhift.cli.common import print_json, settings, user_errors
 from exposhift.cli.helptext import Group
 
-appraise_app = typer.Typer(help="Record and read appraisals (two independent reviewers, "
-                                "then a consensus).\n\nExample: exposhift appraise import "
-                                "appraisals.csv", no_args_is_help=True, cls=Group)
+appraise_app = typer.Typer(
+    help="Record and read appraisals (two independent reviewers, "
+    "then a consensus).\n\nExample: exposhift appraise import "
+    "appraisals.csv",
+    no_args_is_help=True,
+    cls=Group,
+)
 
 LEVEL_NAMES = {3: "strong", 2: "adequate", 1: "weak", 0: "fatal"}
 
@@ -21,12 +25,17 @@ LEVEL_NAMES = {3: "strong", 2: "adequate", 1: "weak", 0: "fatal"}
 @user_errors
 def appraise_import(
     ctx: typer.Context,
-    file: Path = typer.Argument(..., help="CSV or XLSX: study_id, reviewer, stage, one column "
-                                "per domain (0-3), optional <domain>_why."),
-    encoding: str | None = typer.Option(None, "--encoding", help="Text encoding of a CSV file "
-                                        "(default UTF-8, with or without BOM)."),
-    rubric: Path | None = typer.Option(None, "--rubric", help="Rubric file (default "
-                                       "evidence/rubric.toml)."),
+    file: Path = typer.Argument(
+        ...,
+        help="CSV or XLSX: study_id, reviewer, stage, one column "
+        "per domain (0-3), optional <domain>_why.",
+    ),
+    encoding: str | None = typer.Option(
+        None, "--encoding", help="Text encoding of a CSV file (default UTF-8, with or without BOM)."
+    ),
+    rubric: Path | None = typer.Option(
+        None, "--rubric", help="Rubric file (default evidence/rubric.toml)."
+    ),
     dry_run: bool = typer.Option(False, "--dry-run", help="Check and report; write nothing."),
 ) -> None:
     """Import appraisals; every problem is reported at once and nothing is written on error.
@@ -39,14 +48,17 @@ def appraise_import(
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:
-        summary = import_appraisals(store, file, encoding=encoding, rubric_path=rubric,
-                                    dry_run=dry_run)
+        summary = import_appraisals(
+            store, file, encoding=encoding, rubric_path=rubric, dry_run=dry_run
+        )
     finally:
         store.dispose()
     verb = "would add" if dry_run else "added"
     stages = ", ".join(f"{n} {stage}" for stage, n in sorted(summary.by_stage.items()))
-    typer.echo(f"{verb} {summary.added} appraisals ({stages or 'none'}); "
-               f"{summary.unchanged} unchanged; rubric {summary.rubric}")
+    typer.echo(
+        f"{verb} {summary.added} appraisals ({stages or 'none'}); "
+        f"{summary.unchanged} unchanged; rubric {summary.rubric}"
+    )
 
 
 @appraise_app.command("show")
@@ -54,8 +66,9 @@ def appraise_import(
 def appraise_show(
     ctx: typer.Context,
     study_id: str = typer.Argument(..., help="The study's key."),
-    viewer: str | None = typer.Option(None, "--as", help="Reviewer name to view as (default: "
-                                      "--user / EXPOSHIFT_USER)."),
+    viewer: str | None = typer.Option(
+        None, "--as", help="Reviewer name to view as (default: --user / EXPOSHIFT_USER)."
+    ),
     rubric: Path | None = typer.Option(None, "--rubric", help="Rubric file."),
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
 ) -> None:
@@ -73,8 +86,13 @@ def appraise_show(
     finally:
         store.dispose()
     if as_json:
-        print_json({**data, "appraisals": [vars(v) for v in data["appraisals"]],
-                    "of_record": vars(data["of_record"]) if data["of_record"] else None})
+        print_json(
+            {
+                **data,
+                "appraisals": [vars(v) for v in data["appraisals"]],
+                "of_record": vars(data["of_record"]) if data["of_record"] else None,
+            }
+        )
         return
     typer.echo(f"{data['study_id']}  {data['citation']}  [{data['design']}]")
     if not data["appraisals"]:
@@ -131,13 +149,18 @@ def agreement_cmd(
     for rec in table.to_dict(orient="records"):
         if rec["domain"] in ("all domains", "overall level"):
             typer.echo("-" * 57)
-        typer.echo(f"{rec['domain']:<20} {rec['n']:>4} {pct(rec['percent_agreement']):>8} "
-                   f"{fmt(rec['kappa_linear']):>10} {fmt(rec['kappa_quadratic']):>11}")
-    typer.echo("n: studies rated by both reviewers; 'all domains' pools every study x domain "
-               "pair (n = pairs); 'overall level' compares the two reviewers' overall levels "
-               "(n = studies).")
-    typer.echo("kappa: Cohen's weighted kappa (1968); linear and quadratic weights over levels "
-               "0-3.")
+        typer.echo(
+            f"{rec['domain']:<20} {rec['n']:>4} {pct(rec['percent_agreement']):>8} "
+            f"{fmt(rec['kappa_linear']):>10} {fmt(rec['kappa_quadratic']):>11}"
+        )
+    typer.echo(
+        "n: studies rated by both reviewers; 'all domains' pools every study x domain "
+        "pair (n = pairs); 'overall level' compares the two reviewers' overall levels "
+        "(n = studies)."
+    )
+    typer.echo(
+        "kappa: Cohen's weighted kappa (1968); linear and quadratic weights over levels 0-3."
+    )
     typer.echo(f"note: {table.attrs.get('caution', '')}")
 
 

@@ -9,18 +9,27 @@ import typer
 from exposhift.cli.common import fail, print_json, settings, user_errors
 from exposhift.cli.helptext import Group
 
-audit_app = typer.Typer(help="The audit trail: verify its hash chain, show its entries.\n\n"
-                        "Example: exposhift audit verify", no_args_is_help=True, cls=Group)
+audit_app = typer.Typer(
+    help="The audit trail: verify its hash chain, show its entries.\n\n"
+    "Example: exposhift audit verify",
+    no_args_is_help=True,
+    cls=Group,
+)
 
 
 @audit_app.command("verify")
 @user_errors
 def verify(
     ctx: typer.Context,
-    entries: int | None = typer.Option(None, "--entries", help="Entry count of a chain head "
-                                       "recorded earlier (with --head)."),
-    head: str | None = typer.Option(None, "--head", help="A chain head recorded earlier "
-                                    "(e.g. in a dossier): the chain must still pass through it."),
+    entries: int | None = typer.Option(
+        None, "--entries", help="Entry count of a chain head recorded earlier (with --head)."
+    ),
+    head: str | None = typer.Option(
+        None,
+        "--head",
+        help="A chain head recorded earlier "
+        "(e.g. in a dossier): the chain must still pass through it.",
+    ),
     as_json: bool = typer.Option(False, "--json", help="Print the result as a JSON object."),
 ) -> None:
     """Recompute the audit trail's hash chain and name the first entry that was changed,
@@ -32,22 +41,31 @@ def verify(
 
     report = verify_audit(settings(ctx).db, entries=entries, head=head)
     if as_json:
-        print_json({"ok": report.ok, "checked": report.checked, "head": report.head.to_dict(),
-                    "bad_entry": report.bad_id, "problem": report.problem})
+        print_json(
+            {
+                "ok": report.ok,
+                "checked": report.checked,
+                "head": report.head.to_dict(),
+                "bad_entry": report.bad_id,
+                "problem": report.problem,
+            }
+        )
     elif report.ok:
-        typer.echo(f"audit trail intact: {report.checked:,} entries; chain head "
-                   f"{report.head.head} (keep it elsewhere to detect a rebuilt chain)")
+        typer.echo(
+            f"audit trail intact: {report.checked:,} entries; chain head "
+            f"{report.head.head} (keep it elsewhere to detect a rebuilt chain)"
+        )
     if not report.ok:
-        fail(f"audit trail broken after {report.checked:,} intact entries: {report.problem}",
-             7)
+        fail(f"audit trail broken after {report.checked:,} intact entries: {report.problem}", 7)
 
 
 def _change(e: dict) -> str:
     before = json.loads(e["before"]) if e["before"] else {}
     after = json.loads(e["after"]) if e["after"] else {}
     if e["action"] == "update":
-        parts = [f"{k}: {before.get(k)!r} -> {after.get(k)!r}" for k in sorted(after)
-                 if k != "version"]
+        parts = [
+            f"{k}: {before.get(k)!r} -> {after.get(k)!r}" for k in sorted(after) if k != "version"
+        ]
         return "; ".join(parts) or "(version only)"
     shown = after or before
     return ", ".join(f"{k}={v!r}" for k, v in sorted(shown.items()))[:160]
@@ -57,11 +75,17 @@ def _change(e: dict) -> str:
 @user_errors
 def show(
     ctx: typer.Context,
-    record: str | None = typer.Option(None, "--record", help="A record's key (study, event, "
-                                      "estimate key, exposure or outcome name)."),
+    record: str | None = typer.Option(
+        None,
+        "--record",
+        help="A record's key (study, event, estimate key, exposure or outcome name).",
+    ),
     user: str | None = typer.Option(None, "--user", help="Only entries written by this user."),
-    since: str | None = typer.Option(None, "--since", help="Only entries at or after this "
-                                     "date (YYYY-MM-DD, UTC) or ISO-8601 time."),
+    since: str | None = typer.Option(
+        None,
+        "--since",
+        help="Only entries at or after this date (YYYY-MM-DD, UTC) or ISO-8601 time.",
+    ),
     limit: int = typer.Option(200, "--limit", help="Show at most this many (the newest)."),
     as_json: bool = typer.Option(False, "--json", help="Print the entries as JSON."),
 ) -> None:
@@ -79,11 +103,15 @@ def show(
         typer.echo("no audit entries match")
         return
     if view.total_matching > len(view.entries):
-        typer.echo(f"showing the newest {len(view.entries):,} of {view.total_matching:,} "
-                   "matching entries (--limit)")
+        typer.echo(
+            f"showing the newest {len(view.entries):,} of {view.total_matching:,} "
+            "matching entries (--limit)"
+        )
     for e in view.entries:
-        typer.echo(f"{e['id']:>7}  {e['at']}  {e['user']}  {e['action']} {e['table_name']} "
-                   f"'{e['row_key']}'  {_change(e)}")
+        typer.echo(
+            f"{e['id']:>7}  {e['at']}  {e['user']}  {e['action']} {e['table_name']} "
+            f"'{e['row_key']}'  {_change(e)}"
+        )
 
 
 def register(app: typer.Typer) -> None:

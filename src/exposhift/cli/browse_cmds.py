@@ -27,10 +27,12 @@ def _cell(value: Any) -> str:
 @user_errors
 def list_cmd(
     ctx: typer.Context,
-    what: str = typer.Argument(..., help="exposures, outcomes, studies or events.",
-                               show_default=False),
-    exposure: str | None = typer.Option(None, "--exposure",
-                                        help="Only the records of this exposure."),
+    what: str = typer.Argument(
+        ..., help="exposures, outcomes, studies or events.", show_default=False
+    ),
+    exposure: str | None = typer.Option(
+        None, "--exposure", help="Only the records of this exposure."
+    ),
     as_json: bool = typer.Option(False, "--json", help="Print the listing as JSON."),
 ) -> None:
     """List the exposures, outcomes, studies or events of the evidence base, with counts: the
@@ -51,8 +53,10 @@ def list_cmd(
         print_json(table.to_dict(orient="records"))
         return
     if table.empty:
-        typer.echo(f"no {what.lower()} in the evidence base"
-                   + (f" for exposure {exposure}" if exposure else ""))
+        typer.echo(
+            f"no {what.lower()} in the evidence base"
+            + (f" for exposure {exposure}" if exposure else "")
+        )
         return
     rows = [[_cell(v) for v in r] for r in table.itertuples(index=False)]
     typer.echo(render(rows, [c.replace("_", " ") for c in table.columns], indent=""))
@@ -62,8 +66,9 @@ def list_cmd(
 @user_errors
 def show_cmd(
     ctx: typer.Context,
-    study_id: str = typer.Argument(..., help="The study's key (study_id in the sheet).",
-                                   show_default=False),
+    study_id: str = typer.Argument(
+        ..., help="The study's key (study_id in the sheet).", show_default=False
+    ),
     as_json: bool = typer.Option(False, "--json", help="Print the record as JSON."),
 ) -> None:
     """Show one study: its record, the exposure-change events it analyses, its estimates and
@@ -84,10 +89,21 @@ def show_cmd(
         print_json(rec.to_dict())
         return
     st = rec.study
-    typer.echo(f"{st['study_id']}  {st['citation']}  ({st['year']})"
-               + ("  [demo: invented]" if st["demo"] else ""))
-    for k in ("doi", "design", "comparison", "population", "data_source", "assignment_grade",
-              "pre_points", "post_points", "checks"):
+    typer.echo(
+        f"{st['study_id']}  {st['citation']}  ({st['year']})"
+        + ("  [demo: invented]" if st["demo"] else "")
+    )
+    for k in (
+        "doi",
+        "design",
+        "comparison",
+        "population",
+        "data_source",
+        "assignment_grade",
+        "pre_points",
+        "post_points",
+        "checks",
+    ):
         if st[k] not in (None, ""):
             typer.echo(f"  {k.replace('_', ' '):<17} {st[k]}")
     typer.echo(f"\nevents ({len(rec.events)})")
@@ -107,8 +123,10 @@ def show_cmd(
         typer.echo(f"  no consensus yet (appraisals: {states})")
     else:
         lvl = "-" if record.overall is None else f"{record.overall} {LEVEL_NAMES[record.overall]}"
-        typer.echo(f"  consensus by {record.reviewer}: overall {lvl} ({record.reason}; rubric "
-                   f"{record.rubric})")
+        typer.echo(
+            f"  consensus by {record.reviewer}: overall {lvl} ({record.reason}; rubric "
+            f"{record.rubric})"
+        )
         for d in ap["domains"]:
             if record.ratings and d in record.ratings:
                 typer.echo(f"    {d:<20} {record.ratings[d]}")

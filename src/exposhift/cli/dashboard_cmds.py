@@ -26,11 +26,25 @@ def streamlit_command(app: Path, port: int, address: str) -> list[str]:
     """The ``streamlit run`` command line: headless, no usage statistics, static files served
     (the vendored map shapes), viewer toolbar."""
     return [
-        sys.executable, "-m", "streamlit", "run", str(app),
-        "--server.port", str(port), "--server.address", address,
-        "--server.headless", "true", "--server.enableStaticServing", "true",
-        "--browser.gatherUsageStats", "false", "--client.toolbarMode", "viewer",
-        "--theme.base", "light",
+        sys.executable,
+        "-m",
+        "streamlit",
+        "run",
+        str(app),
+        "--server.port",
+        str(port),
+        "--server.address",
+        address,
+        "--server.headless",
+        "true",
+        "--server.enableStaticServing",
+        "true",
+        "--browser.gatherUsageStats",
+        "false",
+        "--client.toolbarMode",
+        "viewer",
+        "--theme.base",
+        "light",
     ]
 
 
@@ -39,10 +53,14 @@ def dashboard(
     ctx: typer.Context,
     port: int = typer.Option(8501, "--port", help="Port to serve on."),
     db: str | None = typer.Option(
-        None, "--db", help="Database URL or SQLite file (default: the global --db, "
-        "EXPOSHIFT_DB or evidence/evidence.db)."),
+        None,
+        "--db",
+        help="Database URL or SQLite file (default: the global --db, "
+        "EXPOSHIFT_DB or evidence/evidence.db).",
+    ),
     address: str = typer.Option(
-        "127.0.0.1", "--address", help="Address to listen on (127.0.0.1: this machine only)."),
+        "127.0.0.1", "--address", help="Address to listen on (127.0.0.1: this machine only)."
+    ),
 ) -> None:
     """Serve the dashboard (studies, pooling, replication across place and time, gap map) at
     http://ADDRESS:PORT. Needs no internet connection.
@@ -58,8 +76,10 @@ def dashboard(
         fail("the dashboard needs Streamlit and plotly: pip install 'exposhift[dashboard]'")
     app = app_path()
     if not app.is_file():
-        fail(f"dashboard files not found at {app}; run exposhift from a checkout of the "
-             "repository (app/ next to src/)")
+        fail(
+            f"dashboard files not found at {app}; run exposhift from a checkout of the "
+            "repository (app/ next to src/)"
+        )
     info = database_info(target)  # refuse a missing or outdated database before serving
     env = dict(os.environ)
     if target:

@@ -12,9 +12,10 @@ from exposhift.cli.tables import render
 
 direction_app = typer.Typer(
     help="Pre-specify, per exposure x outcome, whether an exposure increase is expected to "
-         "raise or lower the outcome (with a rationale; versioned and audited).\n\nExample: "
-         "exposhift direction list",
-    no_args_is_help=True, cls=Group,
+    "raise or lower the outcome (with a rationale; versioned and audited).\n\nExample: "
+    "exposhift direction list",
+    no_args_is_help=True,
+    cls=Group,
 )
 
 
@@ -35,16 +36,21 @@ def direction_set(
     ctx: typer.Context,
     exposure: str = typer.Option(..., "--exposure", help="Exposure name."),
     outcome: str = typer.Option(..., "--outcome", help="Outcome name."),
-    expect: str = typer.Option(..., "--expect", help="raises or lowers: what an exposure "
-                               "increase is expected to do to the outcome."),
-    why: str = typer.Option(..., "--why", help="Rationale (required): mechanism, prior "
-                            "evidence."),
+    expect: str = typer.Option(
+        ...,
+        "--expect",
+        help="raises or lowers: what an exposure increase is expected to do to the outcome.",
+    ),
+    why: str = typer.Option(..., "--why", help="Rationale (required): mechanism, prior evidence."),
     by: str | None = typer.Option(None, "--by", help="Who decided (default: --user)."),
-    at: str | None = typer.Option(None, "--at", help="When it was decided: YYYY-MM-DD or a "
-                                  "UTC date-time (default: now)."),
-    if_version: int | None = typer.Option(None, "--if-version", help="Apply only if the "
-                                          "record is still at this version (from 'direction "
-                                          "list')."),
+    at: str | None = typer.Option(
+        None, "--at", help="When it was decided: YYYY-MM-DD or a UTC date-time (default: now)."
+    ),
+    if_version: int | None = typer.Option(
+        None,
+        "--if-version",
+        help="Apply only if the record is still at this version (from 'direction list').",
+    ),
     as_json: bool = typer.Option(False, "--json", help="Print the result as JSON."),
 ) -> None:
     """Set or change the expected direction of one exposure x outcome.
@@ -55,15 +61,25 @@ def direction_set(
 
     store = _open(ctx)
     try:
-        result = set_direction(store, exposure, outcome, expect, why, decided_by=by,
-                               decided_at=at, expected_version=if_version)
+        result = set_direction(
+            store,
+            exposure,
+            outcome,
+            expect,
+            why,
+            decided_by=by,
+            decided_at=at,
+            expected_version=if_version,
+        )
     finally:
         store.dispose()
     if as_json:
         print_json(result.to_dict())
         return
-    typer.echo(f"{result.action}: {result.exposure} x {result.outcome} expected to "
-               f"{result.record['direction'][:-1]} (version {result.version})")
+    typer.echo(
+        f"{result.action}: {result.exposure} x {result.outcome} expected to "
+        f"{result.record['direction'][:-1]} (version {result.version})"
+    )
 
 
 @direction_app.command("clear")
@@ -72,8 +88,9 @@ def direction_clear(
     ctx: typer.Context,
     exposure: str = typer.Option(..., "--exposure", help="Exposure name."),
     outcome: str = typer.Option(..., "--outcome", help="Outcome name."),
-    if_version: int | None = typer.Option(None, "--if-version", help="Clear only if the "
-                                          "record is still at this version."),
+    if_version: int | None = typer.Option(
+        None, "--if-version", help="Clear only if the record is still at this version."
+    ),
 ) -> None:
     """Remove the expected direction of one exposure x outcome (the removal is audited).
 
@@ -86,8 +103,10 @@ def direction_clear(
         result = clear_direction(store, exposure, outcome, expected_version=if_version)
     finally:
         store.dispose()
-    typer.echo(f"cleared: {result.exposure} x {result.outcome} (was version {result.version}); "
-               "its direction will be inferred from the data and its status marked provisional")
+    typer.echo(
+        f"cleared: {result.exposure} x {result.outcome} (was version {result.version}); "
+        "its direction will be inferred from the data and its status marked provisional"
+    )
 
 
 @direction_app.command("list")
@@ -111,24 +130,44 @@ def direction_list(
         print_json(frame.to_dict("records"))
         return
     if frame.empty:
-        typer.echo("no expected directions are pre-specified; set one with 'exposhift "
-                   "direction set' or 'exposhift direction import FILE'")
+        typer.echo(
+            "no expected directions are pre-specified; set one with 'exposhift "
+            "direction set' or 'exposhift direction import FILE'"
+        )
         return
-    rows = [[r.exposure, r.outcome, r.direction, r.decided_by, r.decided_at, r.version,
-             r.rationale] for r in frame.itertuples(index=False)]
-    typer.echo(render([[str(c) for c in r] for r in rows],
-                      ["exposure", "outcome", "direction", "decided by", "decided at",
-                       "version", "rationale"], indent=""))
+    rows = [
+        [r.exposure, r.outcome, r.direction, r.decided_by, r.decided_at, r.version, r.rationale]
+        for r in frame.itertuples(index=False)
+    ]
+    typer.echo(
+        render(
+            [[str(c) for c in r] for r in rows],
+            [
+                "exposure",
+                "outcome",
+                "direction",
+                "decided by",
+                "decided at",
+                "version",
+                "rationale",
+            ],
+            indent="",
+        )
+    )
 
 
 @direction_app.command("import")
 @user_errors
 def direction_import(
     ctx: typer.Context,
-    file: Path = typer.Argument(..., help="CSV or XLSX with columns exposure, outcome, "
-                                "direction, rationale, optional decided_by, decided_at."),
-    encoding: str | None = typer.Option(None, "--encoding", help="Text encoding of a CSV file "
-                                        "(default UTF-8, with or without BOM)."),
+    file: Path = typer.Argument(
+        ...,
+        help="CSV or XLSX with columns exposure, outcome, "
+        "direction, rationale, optional decided_by, decided_at.",
+    ),
+    encoding: str | None = typer.Option(
+        None, "--encoding", help="Text encoding of a CSV file (default UTF-8, with or without BOM)."
+    ),
     dry_run: bool = typer.Option(False, "--dry-run", help="Check and report; write nothing."),
 ) -> None:
     """Import expected directions; every problem is reported at once, nothing written on error.
@@ -143,5 +182,7 @@ def direction_import(
     finally:
         store.dispose()
     add, upd = ("would add", "would update") if dry_run else ("added", "updated")
-    typer.echo(f"{add} {result.added} expected directions, {upd} {result.updated}, "
-               f"{result.unchanged} unchanged ({file})")
+    typer.echo(
+        f"{add} {result.added} expected directions, {upd} {result.updated}, "
+        f"{result.unchanged} unchanged ({file})"
+    )

@@ -16,8 +16,14 @@ import typer
 from typer.core import TyperArgument, TyperCommand, TyperGroup
 
 #: typer's type label -> the metavar shown
-_METAVARS = {"str": "TEXT", "int": "INTEGER", "float": "NUMBER", "path": "PATH",
-             "file": "FILE", "directory": "DIR"}
+_METAVARS = {
+    "str": "TEXT",
+    "int": "INTEGER",
+    "float": "NUMBER",
+    "path": "PATH",
+    "file": "FILE",
+    "directory": "DIR",
+}
 
 
 def join_paragraphs(text: str | None) -> str | None:

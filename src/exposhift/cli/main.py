@@ -49,11 +49,15 @@ def _version(value: bool) -> None:
 def main(
     ctx: typer.Context,
     db: str | None = typer.Option(
-        None, "--db", envvar="EXPOSHIFT_DB",
+        None,
+        "--db",
+        envvar="EXPOSHIFT_DB",
         help="Database URL or SQLite file (default: evidence/evidence.db).",
     ),
     user: str | None = typer.Option(
-        None, "--user", envvar="EXPOSHIFT_USER",
+        None,
+        "--user",
+        envvar="EXPOSHIFT_USER",
         help="Name recorded in the audit trail (default: the OS user).",
     ),
     version: bool = typer.Option(
@@ -69,8 +73,18 @@ app.command("init")(store_cmds.init)
 app.command("info")(store_cmds.info)
 
 
-for _module in (io_cmds, browse_cmds, synthesis_cmds, appraisal_cmds, replication_cmds,
-                dashboard_cmds, direction_cmds, audit_cmds, series_cmds, dossier_cmds):
+for _module in (
+    io_cmds,
+    browse_cmds,
+    synthesis_cmds,
+    appraisal_cmds,
+    replication_cmds,
+    dashboard_cmds,
+    direction_cmds,
+    audit_cmds,
+    series_cmds,
+    dossier_cmds,
+):
     _module.register(app)
 
 use_plain_help(app)

@@ -28,8 +28,11 @@ def init(ctx: typer.Context) -> None:
     typer.echo("method files in force here (they change results and are recorded with them):")
     for m in methods_in_force():
         where = m.path or "built-in defaults"
-        kind = "this workspace's copy" if m.workspace else (
-            "packaged default" if m.path else "no thresholds file here")
+        kind = (
+            "this workspace's copy"
+            if m.workspace
+            else ("packaged default" if m.path else "no thresholds file here")
+        )
         typer.echo(f"  {m.what:<10} {where} ({kind})")
         typer.echo(f"  {'':<10} to change: {m.how_to_change}")
 

@@ -7,8 +7,10 @@ import typer
 from exposhift.cli.common import print_json, settings, user_errors
 
 #: the --by choices (the keys of exposhift.services.pooling.STRATA; a test checks they agree)
-_BY_HELP = ("Stratify: design-family, level, design, country, outcome-group; adds the result "
-            "over all strata and the test of subgroup differences.")
+_BY_HELP = (
+    "Stratify: design-family, level, design, country, outcome-group; adds the result "
+    "over all strata and the test of subgroup differences."
+)
 #: the default within-event correlation (exposhift.synthesis.events.DEFAULT_RHO; a test checks)
 _DEFAULT_RHO = 0.8
 
@@ -33,25 +35,45 @@ def pool_cmd(
     exposure: str = typer.Option(..., "--exposure", help="Exposure agent."),
     outcome: str = typer.Option(..., "--outcome", help="Outcome."),
     method: str = typer.Option("reml", "--method", help="tau^2 estimator: reml, dl, pm or fe."),
-    ci: str = typer.Option("hksj", "--ci", help="Interval: hksj (t on events - 1 df, scale "
-                           "floored at 1) or wald (z)."),
+    ci: str = typer.Option(
+        "hksj", "--ci", help="Interval: hksj (t on events - 1 df, scale floored at 1) or wald (z)."
+    ),
     by: list[str] = typer.Option([], "--by", help=_BY_HELP),
-    include_fatal: bool = typer.Option(False, "--include-fatal",
-                                       help="Keep studies appraised fatal overall."),
-    min_level: int = typer.Option(None, "--min-level", help="Only studies appraised at this "
-                                  "overall level or above (0-3); leaves out unappraised ones."),
-    align: str = typer.Option("increase", "--align", help="Express every effect for an "
-                              "exposure 'increase' or 'decrease'."),
-    no_hksj_floor: bool = typer.Option(False, "--no-hksj-floor", help="Untruncated "
-                                       "Hartung-Knapp scale (can collapse to zero width)."),
-    within_event: str = typer.Option("aggregate", "--within-event", help="Several estimates "
-                                     "of one event: aggregate (one number per event, default), "
-                                     "multilevel (three-level model, CR2 robust) or "
-                                     "independent (counts the event more than once)."),
-    rho: float = typer.Option(_DEFAULT_RHO, "--rho", help="Within-event correlation used to "
-                              "aggregate estimates of one event (0-1)."),
-    details: bool = typer.Option(False, "--details", help="Add leave-one-event-out, "
-                                 "cumulative by date of change and the small-study test."),
+    include_fatal: bool = typer.Option(
+        False, "--include-fatal", help="Keep studies appraised fatal overall."
+    ),
+    min_level: int = typer.Option(
+        None,
+        "--min-level",
+        help="Only studies appraised at this "
+        "overall level or above (0-3); leaves out unappraised ones.",
+    ),
+    align: str = typer.Option(
+        "increase", "--align", help="Express every effect for an exposure 'increase' or 'decrease'."
+    ),
+    no_hksj_floor: bool = typer.Option(
+        False,
+        "--no-hksj-floor",
+        help="Untruncated Hartung-Knapp scale (can collapse to zero width).",
+    ),
+    within_event: str = typer.Option(
+        "aggregate",
+        "--within-event",
+        help="Several estimates "
+        "of one event: aggregate (one number per event, default), "
+        "multilevel (three-level model, CR2 robust) or "
+        "independent (counts the event more than once).",
+    ),
+    rho: float = typer.Option(
+        _DEFAULT_RHO,
+        "--rho",
+        help="Within-event correlation used to aggregate estimates of one event (0-1).",
+    ),
+    details: bool = typer.Option(
+        False,
+        "--details",
+        help="Add leave-one-event-out, cumulative by date of change and the small-study test.",
+    ),
     as_json: bool = typer.Option(False, "--json", help="Print JSON: one object per group."),
 ) -> None:
     """Pool comparable estimates of one exposure and one outcome, one number per event.
@@ -65,23 +87,44 @@ def pool_cmd(
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:
-        out = pool_evidence(store, exposure, outcome, method=method, ci=ci, by=by,
-                            include_fatal=include_fatal, min_level=min_level, align_to=align,
-                            hksj_floor=not no_hksj_floor, within_event=within_event, rho=rho,
-                            details=details)
+        out = pool_evidence(
+            store,
+            exposure,
+            outcome,
+            method=method,
+            ci=ci,
+            by=by,
+            include_fatal=include_fatal,
+            min_level=min_level,
+            align_to=align,
+            hksj_floor=not no_hksj_floor,
+            within_event=within_event,
+            rho=rho,
+            details=details,
+        )
     finally:
         store.dispose()
     if as_json:
-        print_json({"exposure": out.exposure, "outcome": out.outcome,
-                    "evidence_set": out.evidence_set, "options": out.options,
-                    "groups": out.groups, "overall": out.overall, "caution": out.caution})
+        print_json(
+            {
+                "exposure": out.exposure,
+                "outcome": out.outcome,
+                "evidence_set": out.evidence_set,
+                "options": out.options,
+                "groups": out.groups,
+                "overall": out.overall,
+                "caution": out.caution,
+            }
+        )
         return
     typer.echo(f"{out.exposure} -> {out.outcome}: effects of an exposure {out.align_to}")
     typer.echo(f"  evidence set: {out.evidence_set}")
-    typer.echo(f"  method: {method.upper()} tau^2, {ci.upper()} interval"
-               + (" (scale floored at 1)" if ci == "hksj" and not no_hksj_floor else "")
-               + f"; within events: {WITHIN_EVENT[within_event]}"
-               + (f", rho {rho:g}" if within_event == "aggregate" else ""))
+    typer.echo(
+        f"  method: {method.upper()} tau^2, {ci.upper()} interval"
+        + (" (scale floored at 1)" if ci == "hksj" and not no_hksj_floor else "")
+        + f"; within events: {WITHIN_EVENT[within_event]}"
+        + (f", rho {rho:g}" if within_event == "aggregate" else "")
+    )
     if not out.groups:
         typer.echo("  nothing left to pool")
     for g in out.groups:
@@ -98,46 +141,71 @@ def pool_cmd(
 def _print_group(g: dict) -> None:
     from exposhift.services.pooling import STRATA
 
-    strata = ", ".join(f"{k}={g[k]}" for k in g if g[k] != "" and k in (
-        "measure_group", "estimate_kind", "increment", *STRATA.values()))
+    strata = ", ".join(
+        f"{k}={g[k]}"
+        for k in g
+        if g[k] != "" and k in ("measure_group", "estimate_kind", "increment", *STRATA.values())
+    )
     word = _word(g["scale"])
     nat = g["natural"]
-    typer.echo(f"\n  [{strata}]  events {g['k_events']}, estimates {g['k_estimates']}  "
-               f"measure {g['measure']}")
+    typer.echo(
+        f"\n  [{strata}]  events {g['k_events']}, estimates {g['k_estimates']}  "
+        f"measure {g['measure']}"
+    )
     if g["headline"] == "single-event":
         e = g["event_estimates"][0]
-        typer.echo(f"    one event ({e['event_id']}): {word} {_fmt(e['natural']['estimate'])}  "
-                   f"95% CI {_interval(e['natural'], 'ci_lower', 'ci_upper')}  (nothing to pool)")
+        typer.echo(
+            f"    one event ({e['event_id']}): {word} {_fmt(e['natural']['estimate'])}  "
+            f"95% CI {_interval(e['natural'], 'ci_lower', 'ci_upper')}  (nothing to pool)"
+        )
     elif g["headline"] == "two-events":
-        typer.echo("    two events: shown side by side (a pooled t interval on 1 df is not a "
-                   "usable headline)")
+        typer.echo(
+            "    two events: shown side by side (a pooled t interval on 1 df is not a "
+            "usable headline)"
+        )
         for e in g["event_estimates"]:
-            typer.echo(f"      {e['event_id']}: {word} {_fmt(e['natural']['estimate'])}  95% CI "
-                       f"{_interval(e['natural'], 'ci_lower', 'ci_upper')}"
-                       + (f"  ({e['k_units']} estimates combined)" if e["k_units"] > 1 else ""))
+            typer.echo(
+                f"      {e['event_id']}: {word} {_fmt(e['natural']['estimate'])}  95% CI "
+                f"{_interval(e['natural'], 'ci_lower', 'ci_upper')}"
+                + (f"  ({e['k_units']} estimates combined)" if e["k_units"] > 1 else "")
+            )
         fe = g["fixed_effect"]["natural"]
-        typer.echo(f"    sensitivity, fixed effect: {word} {_fmt(fe['estimate'])}  95% CI "
-                   f"{_interval(fe, 'ci_lower', 'ci_upper')} (assumes one common effect)")
-        typer.echo(f"    random effects ({g['method'].upper()}, {g['ci_method'].upper()}, t on 1 "
-                   f"df): {word} {_fmt(nat['estimate'])}  95% CI "
-                   f"{_interval(nat, 'ci_lower', 'ci_upper')}")
+        typer.echo(
+            f"    sensitivity, fixed effect: {word} {_fmt(fe['estimate'])}  95% CI "
+            f"{_interval(fe, 'ci_lower', 'ci_upper')} (assumes one common effect)"
+        )
+        typer.echo(
+            f"    random effects ({g['method'].upper()}, {g['ci_method'].upper()}, t on 1 "
+            f"df): {word} {_fmt(nat['estimate'])}  95% CI "
+            f"{_interval(nat, 'ci_lower', 'ci_upper')}"
+        )
     else:
         df = "" if g.get("df") is None else f", t on {g['df']:.3g} df"
-        typer.echo(f"    pooled {word} {_fmt(nat['estimate'])}  95% CI "
-                   f"{_interval(nat, 'ci_lower', 'ci_upper')}{df}  prediction "
-                   f"{_interval(nat, 'pi_lower', 'pi_upper')}")
+        typer.echo(
+            f"    pooled {word} {_fmt(nat['estimate'])}  95% CI "
+            f"{_interval(nat, 'ci_lower', 'ci_upper')}{df}  prediction "
+            f"{_interval(nat, 'pi_lower', 'pi_upper')}"
+        )
     if g["k_events"] >= 2:
         i2 = "n/a" if g["i2"] is None else f"{100 * g['i2']:.0f}%"
         t2 = g.get("tau2_ci")
-        t2ci = "" if not t2 else f" (Q-profile 95% CI {_fmt(t2['lower'], 4)} to " \
-                                 f"{_fmt(t2['upper'], 4)})"
-        typer.echo(f"    tau^2 {_fmt(g['tau2'], 4)}{t2ci}, I^2 {i2}, Q {_fmt(g['q'], 2)} "
-                   f"(p {_fmt(g['q_pvalue'], 3)}); analysis scale {_fmt(g['estimate'], 4)} "
-                   f"(SE {_fmt(g['se'], 4)})")
+        t2ci = (
+            ""
+            if not t2
+            else f" (Q-profile 95% CI {_fmt(t2['lower'], 4)} to {_fmt(t2['upper'], 4)})"
+        )
+        typer.echo(
+            f"    tau^2 {_fmt(g['tau2'], 4)}{t2ci}, I^2 {i2}, Q {_fmt(g['q'], 2)} "
+            f"(p {_fmt(g['q_pvalue'], 3)}); analysis scale {_fmt(g['estimate'], 4)} "
+            f"(SE {_fmt(g['se'], 4)})"
+        )
     if g.get("rho_sensitivity"):
-        parts = [f"rho {r['rho']:g}: {_fmt(_back(g['scale'], r['estimate']))} "
-                 f"({_fmt(_back(g['scale'], r['ci_lower']))} to "
-                 f"{_fmt(_back(g['scale'], r['ci_upper']))})" for r in g["rho_sensitivity"]]
+        parts = [
+            f"rho {r['rho']:g}: {_fmt(_back(g['scale'], r['estimate']))} "
+            f"({_fmt(_back(g['scale'], r['ci_lower']))} to "
+            f"{_fmt(_back(g['scale'], r['ci_upper']))})"
+            for r in g["rho_sensitivity"]
+        ]
         typer.echo("    within-event correlation: " + "; ".join(parts))
     for n in g["notes"]:
         typer.echo(f"    note: {n}")
@@ -146,8 +214,10 @@ def _print_group(g: dict) -> None:
     if "sensitivity" in g:
         _print_sensitivity(g["sensitivity"], word)
     if g["sign_flipped"]:
-        typer.echo(f"    {g['sign_flipped']} estimate(s) from changes in the other "
-                   "direction had their sign flipped")
+        typer.echo(
+            f"    {g['sign_flipped']} estimate(s) from changes in the other "
+            "direction had their sign flipped"
+        )
 
 
 def _back(scale: str, x):
@@ -159,13 +229,17 @@ def _back(scale: str, x):
 def _print_overall(o: dict) -> None:
     word = _word(o["scale"])
     nat = o["natural"]
-    typer.echo(f"\n  over all strata [{o['measure_group']}, {o['estimate_kind']}]: events "
-               f"{o['k_events']}, estimates {o['k_estimates']}: {word} "
-               f"{_fmt(nat['estimate'])}  95% CI {_interval(nat, 'ci_lower', 'ci_upper')}")
+    typer.echo(
+        f"\n  over all strata [{o['measure_group']}, {o['estimate_kind']}]: events "
+        f"{o['k_events']}, estimates {o['k_estimates']}: {word} "
+        f"{_fmt(nat['estimate'])}  95% CI {_interval(nat, 'ci_lower', 'ci_upper')}"
+    )
     st = o["subgroup_test"]
     if st["run"]:
-        typer.echo(f"    subgroup differences: Q-between {st['q_between']:.2f} on {st['df']} df, "
-                   f"p {st['pvalue']:.3g} ({st['note']})")
+        typer.echo(
+            f"    subgroup differences: Q-between {st['q_between']:.2f} on {st['df']} df, "
+            f"p {st['pvalue']:.3g} ({st['note']})"
+        )
     else:
         typer.echo(f"    subgroup differences not tested: {st['reason']}")
 
@@ -177,14 +251,18 @@ def _print_sensitivity(sens: dict, word: str) -> None:
     loo = sens.get("leave_one_out")
     if loo:
         n = loo["natural"]
-        typer.echo(f"    leave one event out: pooled {word} {_fmt(n['lowest'])} to "
-                   f"{_fmt(n['highest'])}; most influential {loo['most_influential']} "
-                   f"(without it {_fmt(n['without_most_influential'])})")
+        typer.echo(
+            f"    leave one event out: pooled {word} {_fmt(n['lowest'])} to "
+            f"{_fmt(n['highest'])}; most influential {loo['most_influential']} "
+            f"(without it {_fmt(n['without_most_influential'])})"
+        )
     for c in sens.get("cumulative", []):
-        typer.echo(f"    cumulative, {c['date']} +{c['added']}: {word} "
-                   f"{_fmt(c['natural']['estimate'])} "
-                   f"({_interval(c['natural'], 'ci_lower', 'ci_upper')}), "
-                   f"{c['k_events']} event(s)")
+        typer.echo(
+            f"    cumulative, {c['date']} +{c['added']}: {word} "
+            f"{_fmt(c['natural']['estimate'])} "
+            f"({_interval(c['natural'], 'ci_lower', 'ci_upper')}), "
+            f"{c['k_events']} event(s)"
+        )
     eg = sens["small_study"]
     if eg["run"]:
         typer.echo(f"    Egger test: intercept {_fmt(eg['intercept'])}, p {_fmt(eg['pvalue'])}")

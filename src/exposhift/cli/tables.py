@@ -30,15 +30,21 @@ def summary_table(summary: pd.DataFrame) -> str:
     for r in summary.to_dict(orient="records"):
         kind = "ratio" if r["scale"] == "log" else "difference"
         if r["k_events"] >= 3:
-            effect = (f"{kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} to "
-                      f"{_num(r['ci_upper'])}), {r['k_events']} events, "
-                      f"{r['k_estimates']} estimates")
+            effect = (
+                f"{kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} to "
+                f"{_num(r['ci_upper'])}), {r['k_events']} events, "
+                f"{r['k_estimates']} estimates"
+            )
         elif r["k_events"] == 2:
-            effect = (f"2 events only: {kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} "
-                      f"to {_num(r['ci_upper'])}, t on 1 df)")
+            effect = (
+                f"2 events only: {kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} "
+                f"to {_num(r['ci_upper'])}, t on 1 df)"
+            )
         elif r["k_events"] == 1:
-            effect = (f"1 event: {kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} to "
-                      f"{_num(r['ci_upper'])})")
+            effect = (
+                f"1 event: {kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} to "
+                f"{_num(r['ci_upper'])})"
+            )
         else:
             effect = "no good event to pool"
         status = r["status"] + (" (provisional)" if r.get("provisional") else "")

@@ -44,8 +44,18 @@ from exposhift.demo_scenario.expectations import EXPECTED, Expectation
 from exposhift.demo_scenario.output import FILES, README, csv_text, readme_text, write
 from exposhift.demo_scenario.series import series_frame
 
-__all__ = ["EXPECTED", "FILES", "README", "Expectation", "build_scenario", "csv_text",
-           "default_out_dir", "main", "readme_text", "write_seed_records"]
+__all__ = [
+    "EXPECTED",
+    "FILES",
+    "README",
+    "Expectation",
+    "build_scenario",
+    "csv_text",
+    "default_out_dir",
+    "main",
+    "readme_text",
+    "write_seed_records",
+]
 
 
 def build_scenario() -> dict[str, pd.DataFrame]:
@@ -76,9 +86,11 @@ def write_seed_records(out_dir: Path | None = None) -> list[Path]:
 def main(argv: list[str] | None = None) -> int:
     args = sys.argv[1:] if argv is None else argv
     if len(args) > 1 or (args and args[0] in ("-h", "--help")):
-        print("usage: python -m exposhift.demo_scenario [OUT_DIR]\n"
-              "Write the INVENTED demo evidence base (CSV files and README) to OUT_DIR "
-              "(default: seed_records/).")
+        print(
+            "usage: python -m exposhift.demo_scenario [OUT_DIR]\n"
+            "Write the INVENTED demo evidence base (CSV files and README) to OUT_DIR "
+            "(default: seed_records/)."
+        )
         return 0 if args and args[0] in ("-h", "--help") else 2
     paths = write_seed_records(Path(args[0]) if args else None)
     for path in paths:

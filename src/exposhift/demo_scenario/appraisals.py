@@ -28,8 +28,16 @@ from exposhift.demo_scenario.events import EVENTS
 from exposhift.demo_scenario.model import CONSENSUS_REVIEWER, REVIEWERS, Study, keyed_rng
 
 DOMAINS: tuple[str, ...] = (
-    "origin", "counterfactual", "design_checks", "falsification", "timing",
-    "concurrent_changes", "exposure_shift", "outcome_data", "inference", "transparency",
+    "origin",
+    "counterfactual",
+    "design_checks",
+    "falsification",
+    "timing",
+    "concurrent_changes",
+    "exposure_shift",
+    "outcome_data",
+    "inference",
+    "transparency",
     "applicability",
 )
 CORE: tuple[str, ...] = ("origin", "counterfactual", "design_checks", "concurrent_changes")
@@ -37,10 +45,15 @@ WHY_COLUMNS: tuple[str, ...] = tuple(f"{d}_why" for d in DOMAINS)
 APPRAISAL_COLUMNS: tuple[str, ...] = ("study_id", "reviewer", "stage", *DOMAINS, *WHY_COLUMNS)
 
 #: checks that are falsification tests (a subset of exposhift.appraisal.checks)
-FALSIFICATION_CHECKS = frozenset({
-    "placebo-date", "placebo-place", "negative-control-outcome", "negative-control-exposure",
-    "in-space-placebo",
-})
+FALSIFICATION_CHECKS = frozenset(
+    {
+        "placebo-date",
+        "placebo-place",
+        "negative-control-outcome",
+        "negative-control-exposure",
+        "in-space-placebo",
+    }
+)
 #: designs with no concurrent comparison: the counterfactual can be at most adequate
 SINGLE_SERIES = frozenset({"its", "rd-time", "before-after"})
 #: time-series designs whose inference needs autocorrelation handled
@@ -165,10 +178,16 @@ def _why(study: Study, domain: str, level: int) -> str | None:
     return None
 
 
-def _row(study: Study, reviewer: str, stage: str, ratings: dict[str, int],
-         notes: dict[str, str | None]) -> dict[str, object]:
-    return {"study_id": study.study_id, "reviewer": reviewer, "stage": stage, **ratings,
-            **{f"{d}_why": notes.get(d) for d in DOMAINS}}
+def _row(
+    study: Study, reviewer: str, stage: str, ratings: dict[str, int], notes: dict[str, str | None]
+) -> dict[str, object]:
+    return {
+        "study_id": study.study_id,
+        "reviewer": reviewer,
+        "stage": stage,
+        **ratings,
+        **{f"{d}_why": notes.get(d) for d in DOMAINS},
+    }
 
 
 def study_appraisals(study: Study) -> list[dict[str, object]]:
@@ -188,8 +207,10 @@ def study_appraisals(study: Study) -> list[dict[str, object]]:
             lo, hi = sorted((a[d], b[d]))
             consensus[d] = min(hi, max(lo, intended[d]))
             if a[d] != b[d] and d not in study.firm:
-                notes[d] = (f"settled at {consensus[d]} after discussion "
-                            f"({REVIEWERS[0]} {a[d]}, {REVIEWERS[1]} {b[d]})")
+                notes[d] = (
+                    f"settled at {consensus[d]} after discussion "
+                    f"({REVIEWERS[0]} {a[d]}, {REVIEWERS[1]} {b[d]})"
+                )
             else:
                 notes[d] = _why(study, d, consensus[d])
         rows.append(_row(study, CONSENSUS_REVIEWER, "consensus", consensus, notes))
@@ -210,5 +231,7 @@ def appraisals_frame(studies: tuple[Study, ...] = STUDIES) -> pd.DataFrame:
 def consensus_levels(frame: pd.DataFrame) -> dict[str, int]:
     """study_id -> overall level of the consensus appraisal (studies with one)."""
     cons = frame[frame["stage"] == "consensus"]
-    return {row["study_id"]: overall_level({d: int(row[d]) for d in DOMAINS})
-            for _, row in cons.iterrows()}
+    return {
+        row["study_id"]: overall_level({d: int(row[d]) for d in DOMAINS})
+        for _, row in cons.iterrows()
+    }

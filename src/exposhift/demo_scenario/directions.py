@@ -16,15 +16,27 @@ DECIDED_AT = "2026-01-15T00:00:00Z"
 
 #: (exposure, outcome, direction, rationale)
 DIRECTIONS: tuple[tuple[str, str, str, str], ...] = (
-    ("corvane", "asthma emergency visits", "raises",
-     "DEMO, invented: corvane is an invented airway irritant; more of it is expected to bring "
-     "more asthma emergency visits"),
-    ("dravonil", "preterm birth", "raises",
-     "DEMO, invented: dravonil is an invented insecticide assumed to cross the placenta; more "
-     "exposure in pregnancy is expected to raise the risk of preterm birth"),
-    ("vellium", "child respiratory admissions", "raises",
-     "DEMO, invented: vellium is an invented smelter metal carried on fine particles; more of "
-     "it is expected to raise children's respiratory admissions"),
+    (
+        "corvane",
+        "asthma emergency visits",
+        "raises",
+        "DEMO, invented: corvane is an invented airway irritant; more of it is expected to bring "
+        "more asthma emergency visits",
+    ),
+    (
+        "dravonil",
+        "preterm birth",
+        "raises",
+        "DEMO, invented: dravonil is an invented insecticide assumed to cross the placenta; more "
+        "exposure in pregnancy is expected to raise the risk of preterm birth",
+    ),
+    (
+        "vellium",
+        "child respiratory admissions",
+        "raises",
+        "DEMO, invented: vellium is an invented smelter metal carried on fine particles; more of "
+        "it is expected to raise children's respiratory admissions",
+    ),
 )
 
 

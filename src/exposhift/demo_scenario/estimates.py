@@ -31,8 +31,15 @@ from exposhift.vocab import MEASURES
 SHEET_COLUMNS: tuple[str, ...] = tuple(c for c in COLUMN_NAMES if c != "same_population_as")
 
 FORMS = ("ci", "ci95", "ci90", "se", "p", "ci+se", "ci+p")
-_CI_LEVEL = {"ci": None, "ci95": 0.95, "ci90": 0.9, "se": None, "p": None,
-             "ci+se": None, "ci+p": 0.95}
+_CI_LEVEL = {
+    "ci": None,
+    "ci95": 0.95,
+    "ci90": 0.9,
+    "se": None,
+    "p": None,
+    "ci+se": None,
+    "ci+p": 0.95,
+}
 
 
 def _yes(flag: bool) -> str:
@@ -100,8 +107,15 @@ def estimate_fields(study: Study, est: Est) -> dict[str, object]:
     """Draw one reported estimate and write it in the study's reporting form."""
     if est.form not in FORMS:
         raise ValueError(f"unknown reporting form {est.form!r}; use one of {FORMS}")
-    rng = keyed_rng("estimate", study.study_id, est.event_id, est.outcome, est.kind,
-                    est.subgroup, est.time_window)
+    rng = keyed_rng(
+        "estimate",
+        study.study_id,
+        est.event_id,
+        est.outcome,
+        est.kind,
+        est.subgroup,
+        est.time_window,
+    )
     b = true_effect(study, est) + rng.normal(0.0, est.se)
     nd = _decimals(est.measure, est.se)
     row: dict[str, object] = {
@@ -160,8 +174,13 @@ def estimates_frame(studies: tuple[Study, ...] = STUDIES) -> pd.DataFrame:
     rows = []
     for study in studies:
         for est in study.estimates:
-            rows.append({**study_fields(study), **event_fields(EVENTS[est.event_id]),
-                         **estimate_fields(study, est)})
+            rows.append(
+                {
+                    **study_fields(study),
+                    **event_fields(EVENTS[est.event_id]),
+                    **estimate_fields(study, est),
+                }
+            )
     return _typed(pd.DataFrame(rows, columns=list(SHEET_COLUMNS)))
 
 

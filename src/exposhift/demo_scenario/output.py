@@ -50,8 +50,9 @@ def readme_text(frames: dict[str, pd.DataFrame]) -> str:
             forms["p value only"] += 1
     levels = Counter(consensus_levels(appr).values())
     designs = est.drop_duplicates("study_id")["design"].value_counts().sort_index()
-    shared = (est.drop_duplicates(["study_id", "event_id"])
-              .groupby("event_id")["study_id"].apply(list))
+    shared = (
+        est.drop_duplicates(["study_id", "event_id"]).groupby("event_id")["study_id"].apply(list)
+    )
     shared = shared[shared.map(len) > 1]
     lines = [
         "# Demo evidence base (INVENTED)",
@@ -67,17 +68,33 @@ def readme_text(frames: dict[str, pd.DataFrame]) -> str:
         "",
         "## Files",
         "",
-        *_table(("file", "rows", "holds"), [
-            (FILES["estimates"], len(est),
-             f"extraction sheet, one row per estimate ({n_studies} studies, "
-             f"{est['event_id'].nunique()} events)"),
-            (FILES["events"], len(events), "registered exposure changes that no study evaluated"),
-            (FILES["appraisals"], len(appr),
-             "two reviewers' independent appraisals and their consensus"),
-            (FILES["series"], len(frames["series"]),
-             f"points of {frames['series']['series_id'].nunique()} series extracted from "
-             "studies' tables and figures (one row per point)"),
-        ]),
+        *_table(
+            ("file", "rows", "holds"),
+            [
+                (
+                    FILES["estimates"],
+                    len(est),
+                    f"extraction sheet, one row per estimate ({n_studies} studies, "
+                    f"{est['event_id'].nunique()} events)",
+                ),
+                (
+                    FILES["events"],
+                    len(events),
+                    "registered exposure changes that no study evaluated",
+                ),
+                (
+                    FILES["appraisals"],
+                    len(appr),
+                    "two reviewers' independent appraisals and their consensus",
+                ),
+                (
+                    FILES["series"],
+                    len(frames["series"]),
+                    f"points of {frames['series']['series_id'].nunique()} series extracted from "
+                    "studies' tables and figures (one row per point)",
+                ),
+            ],
+        ),
         "",
         "## The scenario",
         "",
@@ -96,7 +113,8 @@ def readme_text(frames: dict[str, pd.DataFrame]) -> str:
         "",
         "Reported estimates are drawn around the invented true effects with noise matching "
         "their standard errors. Uncertainty is reported as "
-        + ", ".join(f"{k} ({v} rows)" for k, v in sorted(forms.items())) + ".",
+        + ", ".join(f"{k} ({v} rows)" for k, v in sorted(forms.items()))
+        + ".",
         "",
         "Designs (studies): " + ", ".join(f"{d} {n}" for d, n in designs.items()) + ".",
         "",
@@ -110,12 +128,17 @@ def readme_text(frames: dict[str, pd.DataFrame]) -> str:
         "",
         "## What it is built to show",
         "",
-        *_table(("exposure", "outcome", "intended status", "because"),
-                [(e.exposure, e.outcome, e.status, e.why) for e in EXPECTED]),
+        *_table(
+            ("exposure", "outcome", "intended status", "because"),
+            [(e.exposure, e.outcome, e.status, e.why) for e in EXPECTED],
+        ),
         "",
         "Opportunities (registered, never evaluated): "
-        + ", ".join(f"{e.event_id} ({e.exposure} {e.change_kind}, {e.country}, "
-                    f"{e.change_date})" for e in REGISTERED.values()) + ".",
+        + ", ".join(
+            f"{e.event_id} ({e.exposure} {e.change_kind}, {e.country}, {e.change_date})"
+            for e in REGISTERED.values()
+        )
+        + ".",
         "",
         f"{len(EVENTS)} events have studies; the gap map of exposures x outcome groups has "
         "many empty cells on purpose.",
@@ -126,9 +149,11 @@ def readme_text(frames: dict[str, pd.DataFrame]) -> str:
         "`exposhift demo`) let the tool re-estimate an effect in one standard form and test it "
         "with placebo dates and places:",
         "",
-        *[f"- `{k}` ({g['study_id'].iat[0]}, {g['event_id'].iat[0]}, {g['role'].iat[0]}): "
-          f"{len(g)} {g['time_unit'].iat[0]}ly points, {g['outcome'].iat[0]}"
-          for k, g in frames["series"].groupby("series_id", sort=True)],
+        *[
+            f"- `{k}` ({g['study_id'].iat[0]}, {g['event_id'].iat[0]}, {g['role'].iat[0]}): "
+            f"{len(g)} {g['time_unit'].iat[0]}ly points, {g['outcome'].iat[0]}"
+            for k, g in frames["series"].groupby("series_id", sort=True)
+        ],
         "",
         "Duarte1999 reported level and slope changes that do not pool with policy effects; "
         "`exposhift series estimate Duarte1999-asthma --horizon 12 --store` gives a rate ratio "

@@ -54,21 +54,112 @@ class SeriesSpec:
 
 
 SPECS: tuple[SeriesSpec, ...] = (
-    SeriesSpec("Duarte1999-asthma", "Duarte1999", "CRV-PRT-1996", ASTHMA, "exposed",
-               "Lisbon and Porto metropolitan areas", "month", 1992, 84, 48, 4.4e6, 3.0e-4,
-               -0.001, 0.0, 0.18, -0.085, -0.0005, 0.03, "Figure 2 (digitised)"),
-    SeriesSpec("Duarte1999-injury", "Duarte1999", "CRV-PRT-1996", "injury emergency visits",
-               "negative-control", "Lisbon and Porto metropolitan areas", "month", 1992, 84, 48,
-               4.4e6, 5.0e-4, -0.0005, 0.0, 0.05, 0.0, 0.0, 0.03, "Figure 4 (digitised)"),
-    SeriesSpec("Santos2009-mortality", "Santos2009", "CRV-PRT-2004", "all-cause mortality",
-               "exposed", "Portugal", "year", 1990, 21, 15, 1.0e7, 1.05e-2, -0.012, 0.0,
-               0.0, -0.01, 0.0, 0.01, "Table 1", change_at="2005"),
-    SeriesSpec("NagyFarkas2014-asthma", "NagyFarkas2014", "CRV-HUN-2008", ASTHMA, "exposed",
-               "Hungarian regions bordering Slovakia", "month", 2003, 108, 60, 2.1e6, 2.5e-4,
-               -0.0008, 0.0, 0.2, -0.07, 0.0, 0.03, "Figure 1, upper panel (digitised)"),
-    SeriesSpec("NagyFarkas2014-asthma-svk", "NagyFarkas2014", "CRV-HUN-2008", ASTHMA,
-               "comparison", "Slovak border regions", "month", 2003, 108, 60, 1.6e6, 2.4e-4,
-               -0.0008, 0.0, 0.2, 0.0, 0.0, 0.03, "Figure 1, lower panel (digitised)"),
+    SeriesSpec(
+        "Duarte1999-asthma",
+        "Duarte1999",
+        "CRV-PRT-1996",
+        ASTHMA,
+        "exposed",
+        "Lisbon and Porto metropolitan areas",
+        "month",
+        1992,
+        84,
+        48,
+        4.4e6,
+        3.0e-4,
+        -0.001,
+        0.0,
+        0.18,
+        -0.085,
+        -0.0005,
+        0.03,
+        "Figure 2 (digitised)",
+    ),
+    SeriesSpec(
+        "Duarte1999-injury",
+        "Duarte1999",
+        "CRV-PRT-1996",
+        "injury emergency visits",
+        "negative-control",
+        "Lisbon and Porto metropolitan areas",
+        "month",
+        1992,
+        84,
+        48,
+        4.4e6,
+        5.0e-4,
+        -0.0005,
+        0.0,
+        0.05,
+        0.0,
+        0.0,
+        0.03,
+        "Figure 4 (digitised)",
+    ),
+    SeriesSpec(
+        "Santos2009-mortality",
+        "Santos2009",
+        "CRV-PRT-2004",
+        "all-cause mortality",
+        "exposed",
+        "Portugal",
+        "year",
+        1990,
+        21,
+        15,
+        1.0e7,
+        1.05e-2,
+        -0.012,
+        0.0,
+        0.0,
+        -0.01,
+        0.0,
+        0.01,
+        "Table 1",
+        change_at="2005",
+    ),
+    SeriesSpec(
+        "NagyFarkas2014-asthma",
+        "NagyFarkas2014",
+        "CRV-HUN-2008",
+        ASTHMA,
+        "exposed",
+        "Hungarian regions bordering Slovakia",
+        "month",
+        2003,
+        108,
+        60,
+        2.1e6,
+        2.5e-4,
+        -0.0008,
+        0.0,
+        0.2,
+        -0.07,
+        0.0,
+        0.03,
+        "Figure 1, upper panel (digitised)",
+    ),
+    SeriesSpec(
+        "NagyFarkas2014-asthma-svk",
+        "NagyFarkas2014",
+        "CRV-HUN-2008",
+        ASTHMA,
+        "comparison",
+        "Slovak border regions",
+        "month",
+        2003,
+        108,
+        60,
+        1.6e6,
+        2.4e-4,
+        -0.0008,
+        0.0,
+        0.2,
+        0.0,
+        0.0,
+        0.03,
+        "Figure 1, lower panel (digitised)",
+    ),
 )
 
 
@@ -85,18 +176,35 @@ def series_rows(spec: SeriesSpec) -> pd.DataFrame:
     since = np.where(post, t - spec.cut, 0.0)
     month = t % 12 if spec.unit == "month" else np.zeros(spec.n)
     pop = np.round(spec.population * (1.0 + 0.0002 * t), -2)
-    log_rate = (np.log(spec.base_rate) + spec.trend * t + spec.curve * t**2
-                + spec.season * np.cos(2 * np.pi * month / 12)
-                + spec.level * post + spec.slope * since)
+    log_rate = (
+        np.log(spec.base_rate)
+        + spec.trend * t
+        + spec.curve * t**2
+        + spec.season * np.cos(2 * np.pi * month / 12)
+        + spec.level * post
+        + spec.slope * since
+    )
     mu = pop * np.exp(log_rate + rng.normal(0.0, spec.noise, spec.n))
     counts = rng.poisson(mu).astype(float)
-    return pd.DataFrame({
-        "series_id": spec.key, "study_id": spec.study, "event_id": spec.event,
-        "outcome": spec.outcome, "role": spec.role, "place": spec.place,
-        "time_unit": spec.unit, "value_kind": "count", "change_at": spec.change_at or "",
-        "extracted_by": "moreau", "demo": "yes", "period": _periods(spec), "value": counts,
-        "denominator": pop, "source": spec.source,
-    })[list(COLUMNS)]
+    return pd.DataFrame(
+        {
+            "series_id": spec.key,
+            "study_id": spec.study,
+            "event_id": spec.event,
+            "outcome": spec.outcome,
+            "role": spec.role,
+            "place": spec.place,
+            "time_unit": spec.unit,
+            "value_kind": "count",
+            "change_at": spec.change_at or "",
+            "extracted_by": "moreau",
+            "demo": "yes",
+            "period": _periods(spec),
+            "value": counts,
+            "denominator": pop,
+            "source": spec.source,
+        }
+    )[list(COLUMNS)]
 
 
 def series_frame() -> pd.DataFrame:

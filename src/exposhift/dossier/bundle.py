@@ -26,8 +26,9 @@ from exposhift.errors import ConfigError, ExposhiftError
 BUNDLE_DIR = "bundle"
 #: every name a dossier may write into its folder (the only files it ever replaces)
 OWN_NAMES = frozenset({"dossier.html", "dossier.docx", "dossier.pdf", "bundle.zip", BUNDLE_DIR})
-OWN_BUNDLE_NAMES = frozenset({MANIFEST, RECORDS, *(f"{t}.{e}" for t in TABLES
-                                                    for e in ("csv", "json"))})
+OWN_BUNDLE_NAMES = frozenset(
+    {MANIFEST, RECORDS, *(f"{t}.{e}" for t in TABLES for e in ("csv", "json"))}
+)
 ZIP_DATE = (1980, 1, 1, 0, 0, 0)
 
 
@@ -51,13 +52,16 @@ def check_out_dir(out: Path, force: bool) -> None:
     foreign = sorted(p.name for p in out.iterdir() if p.name not in OWN_NAMES)
     bundle = out / BUNDLE_DIR
     if bundle.is_dir():
-        foreign += sorted(f"{BUNDLE_DIR}/{p.name}" for p in bundle.iterdir()
-                          if p.name not in OWN_BUNDLE_NAMES)
+        foreign += sorted(
+            f"{BUNDLE_DIR}/{p.name}" for p in bundle.iterdir() if p.name not in OWN_BUNDLE_NAMES
+        )
     if foreign:
         shown = ", ".join(foreign[:5]) + (" ..." if len(foreign) > 5 else "")
-        raise ConfigError(f"{out} already holds files a dossier did not write ({shown}); name "
-                          "an empty or new --out folder, or add --force (files the dossier "
-                          "does not write are never deleted)")
+        raise ConfigError(
+            f"{out} already holds files a dossier did not write ({shown}); name "
+            "an empty or new --out folder, or add --force (files the dossier "
+            "does not write are never deleted)"
+        )
 
 
 @dataclass(frozen=True)
@@ -123,6 +127,7 @@ def _reader(path: Path):
                 if cand in names:
                     return z.read(cand).decode("utf-8")
             return None
+
         return read
     if path.is_dir():
         base = path / BUNDLE_DIR if (path / BUNDLE_DIR / MANIFEST).is_file() else path
@@ -130,9 +135,12 @@ def _reader(path: Path):
         def read(name: str) -> str | None:
             p = base / name
             return p.read_text(encoding="utf-8") if p.is_file() else None
+
         return read
-    raise BundleError(f"{path}: no such bundle; give the bundle folder (or bundle.zip) an "
-                      "earlier 'exposhift dossier' wrote")
+    raise BundleError(
+        f"{path}: no such bundle; give the bundle folder (or bundle.zip) an "
+        "earlier 'exposhift dossier' wrote"
+    )
 
 
 def read_bundle(path: str | Path) -> Bundle:
@@ -141,24 +149,36 @@ def read_bundle(path: str | Path) -> Bundle:
     read = _reader(path)
     text = read(MANIFEST)
     if text is None:
-        raise BundleError(f"{path}: no {MANIFEST}; give the bundle folder (or bundle.zip) an "
-                          "earlier 'exposhift dossier' wrote")
+        raise BundleError(
+            f"{path}: no {MANIFEST}; give the bundle folder (or bundle.zip) an "
+            "earlier 'exposhift dossier' wrote"
+        )
     try:
         manifest = json.loads(text)
     except json.JSONDecodeError as exc:
-        raise BundleError(f"{path}: {MANIFEST} is not valid JSON (line {exc.lineno}, column "
-                          f"{exc.colno}: {exc.msg}); the bundle is damaged, rebuild it") from exc
-    missing = [k for k in ("format", "fingerprint", "records", "made_at", "exposhift_version",
-                           "exposure") if not isinstance(manifest, dict) or k not in manifest]
+        raise BundleError(
+            f"{path}: {MANIFEST} is not valid JSON (line {exc.lineno}, column "
+            f"{exc.colno}: {exc.msg}); the bundle is damaged, rebuild it"
+        ) from exc
+    missing = [
+        k
+        for k in ("format", "fingerprint", "records", "made_at", "exposhift_version", "exposure")
+        if not isinstance(manifest, dict) or k not in manifest
+    ]
     if missing or manifest.get("format") != FORMAT:
-        what = (f"lacks {', '.join(missing)}" if missing
-                else f"has format {manifest.get('format')!r}, not {FORMAT!r}")
+        what = (
+            f"lacks {', '.join(missing)}"
+            if missing
+            else f"has format {manifest.get('format')!r}, not {FORMAT!r}"
+        )
         raise BundleError(f"{path}: {MANIFEST} {what}; it is not a dossier bundle manifest")
     records_text = read(RECORDS)
     try:
         records = json.loads(records_text) if records_text is not None else {}
         tables = {t: json.loads(read(f"{t}.json") or "[]") for t in TABLES}
     except json.JSONDecodeError as exc:
-        raise BundleError(f"{path}: a bundle table is not valid JSON ({exc.msg}); the bundle "
-                          "is damaged, rebuild it") from exc
+        raise BundleError(
+            f"{path}: a bundle table is not valid JSON ({exc.msg}); the bundle "
+            "is damaged, rebuild it"
+        ) from exc
     return Bundle(str(path), manifest, records, tables)

@@ -14,7 +14,10 @@ NOT_RATED = "not yet rated"
 
 def certainty_of(exposure: str, outcome: str) -> Certainty:
     """The certainty rating of ``exposure`` × ``outcome`` (not yet rated: no rating exists)."""
-    return Certainty(rated=False, rating=NOT_RATED,
-                     explanation="no certainty-of-evidence rating has been made for this "
-                                 "exposure and outcome; the pooled numbers and the replication "
-                                 "status above are not a rating of certainty")
+    return Certainty(
+        rated=False,
+        rating=NOT_RATED,
+        explanation="no certainty-of-evidence rating has been made for this "
+        "exposure and outcome; the pooled numbers and the replication "
+        "status above are not a rating of certainty",
+    )

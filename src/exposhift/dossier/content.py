@@ -213,9 +213,11 @@ class DossierDiff:
         return [c for c in self.changes if c.kind == kind]
 
     def to_dict(self) -> dict[str, Any]:
-        return {"old": {"fingerprint": self.old_fingerprint, "made_at": self.old_made_at},
-                "new": {"fingerprint": self.new_fingerprint, "made_at": self.new_made_at},
-                "changes": [c.__dict__ for c in self.changes]}
+        return {
+            "old": {"fingerprint": self.old_fingerprint, "made_at": self.old_made_at},
+            "new": {"fingerprint": self.new_fingerprint, "made_at": self.new_made_at},
+            "changes": [c.__dict__ for c in self.changes],
+        }
 
 
 @dataclass(frozen=True)

@@ -38,8 +38,10 @@ def _record_changes(old: dict[str, list[dict]], new: dict[str, list[dict]]) -> l
 
 
 def _ci(r: dict) -> str:
-    return (f"{number(r.get('estimate'))} ({number(r.get('ci_lower'))} to "
-            f"{number(r.get('ci_upper'))}), k = {r.get('k')}")
+    return (
+        f"{number(r.get('estimate'))} ({number(r.get('ci_lower'))} to "
+        f"{number(r.get('ci_upper'))}), k = {r.get('k')}"
+    )
 
 
 def _pooled_changes(old: list[dict], new: list[dict]) -> list[Change]:
@@ -70,9 +72,17 @@ def _status_changes(old: list[dict], new: list[dict]) -> list[Change]:
 
 def _opportunity_changes(old: list[dict], new: list[dict]) -> list[Change]:
     a = {r["event_id"] for r in old}
-    return [Change("opportunity-new", r["event_id"], "place and date", "",
-                   f"{r.get('country', '')} {r.get('change_date', '')}".strip())
-            for r in sorted(new, key=lambda r: r["event_id"]) if r["event_id"] not in a]
+    return [
+        Change(
+            "opportunity-new",
+            r["event_id"],
+            "place and date",
+            "",
+            f"{r.get('country', '')} {r.get('change_date', '')}".strip(),
+        )
+        for r in sorted(new, key=lambda r: r["event_id"])
+        if r["event_id"] not in a
+    ]
 
 
 def diff_bundles(old: Bundle, new: Bundle) -> DossierDiff:
@@ -80,9 +90,13 @@ def diff_bundles(old: Bundle, new: Bundle) -> DossierDiff:
     changes = _record_changes(old.records, new.records)
     changes += _pooled_changes(old.tables.get("pooled", []), new.tables.get("pooled", []))
     changes += _status_changes(old.tables.get("statuses", []), new.tables.get("statuses", []))
-    changes += _opportunity_changes(old.tables.get("opportunities", []),
-                                    new.tables.get("opportunities", []))
-    return DossierDiff(old_fingerprint=str(old.manifest.get("fingerprint", "")),
-                       new_fingerprint=str(new.manifest.get("fingerprint", "")),
-                       old_made_at=str(old.manifest.get("made_at", "")),
-                       new_made_at=str(new.manifest.get("made_at", "")), changes=changes)
+    changes += _opportunity_changes(
+        old.tables.get("opportunities", []), new.tables.get("opportunities", [])
+    )
+    return DossierDiff(
+        old_fingerprint=str(old.manifest.get("fingerprint", "")),
+        new_fingerprint=str(new.manifest.get("fingerprint", "")),
+        old_made_at=str(old.manifest.get("made_at", "")),
+        new_made_at=str(new.manifest.get("made_at", "")),
+        changes=changes,
+    )

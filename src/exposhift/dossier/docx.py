@@ -24,8 +24,14 @@ MAX_FIG_HEIGHT = Cm(23.0)
 A4_WIDTH, A4_HEIGHT = Cm(21.0), Cm(29.7)
 
 
-def _table(doc, header: list[str], rows: list[list[str]], *, size: float = 8.5,
-           widths: list[float] | None = None):
+def _table(
+    doc,
+    header: list[str],
+    rows: list[list[str]],
+    *,
+    size: float = 8.5,
+    widths: list[float] | None = None,
+):
     """A real Word table (style "Table Grid"), header row repeated on every page; ``widths``
     in cm per column."""
     t = doc.add_table(rows=1, cols=len(header))
@@ -80,15 +86,35 @@ def _keep_row(row) -> None:
 
 def _pooled_rows(groups: list[Pooled]) -> tuple[list[str], list[list[str]]]:
     extra = sorted({k for g in groups for k in g.extra})
-    header = ["stratum", "events", "measure", "pooled", "CI", "prediction interval", "τ²", "I²",
-              "method", *extra]
+    header = [
+        "stratum",
+        "events",
+        "measure",
+        "pooled",
+        "CI",
+        "prediction interval",
+        "τ²",
+        "I²",
+        "method",
+        *extra,
+    ]
     rows = []
     for g in groups:
         pi = "-" if g.pi_lower is None else f"{number(g.pi_lower)} to {number(g.pi_upper)}"
-        rows.append([g.label, str(g.k), g.measure + (" (ratio)" if g.scale == "log" else ""),
-                     number(g.estimate), f"{number(g.ci_lower)} to {number(g.ci_upper)}", pi,
-                     number(g.tau2), percent(g.i2), f"{g.method.upper()}, {g.ci_method.upper()}",
-                     *[str(g.extra.get(k, "")) for k in extra]])
+        rows.append(
+            [
+                g.label,
+                str(g.k),
+                g.measure + (" (ratio)" if g.scale == "log" else ""),
+                number(g.estimate),
+                f"{number(g.ci_lower)} to {number(g.ci_upper)}",
+                pi,
+                number(g.tau2),
+                percent(g.i2),
+                f"{g.method.upper()}, {g.ci_method.upper()}",
+                *[str(g.extra.get(k, "")) for k in extra],
+            ]
+        )
     return header, rows
 
 
@@ -98,8 +124,10 @@ def _figure(doc, images: dict[str, bytes | None], name: str, what: str, width=FI
         return
     png = images[name]
     if png is None:
-        p = doc.add_paragraph(f"[{what} not rendered: no image renderer (Chromium) was "
-                              "available; see the HTML dossier for this figure]")
+        p = doc.add_paragraph(
+            f"[{what} not rendered: no image renderer (Chromium) was "
+            "available; see the HTML dossier for this figure]"
+        )
         p.runs[0].italic = True
         return
     w_px, h_px = struct.unpack(">II", png[16:24])  # PNG IHDR: width, height
@@ -113,8 +141,7 @@ def _demo_header(doc, d: Dossier) -> None:
     for section in doc.sections:
         p = section.header.paragraphs[0]
         p.text = ""
-        run = p.add_run(f"DEMO — {d.demo_note}" if d.demo else
-                        f"Evidence dossier: {d.exposure}")
+        run = p.add_run(f"DEMO — {d.demo_note}" if d.demo else f"Evidence dossier: {d.exposure}")
         run.bold = d.demo
         run.font.size = Pt(8)
         if d.demo:
@@ -136,45 +163,62 @@ def render_docx(d: Dossier, images: dict[str, bytes | None]) -> bytes:
     cp.created = cp.modified = made.replace(tzinfo=None)
 
     doc.add_heading(f"Evidence dossier: {d.exposure}", level=0)
-    doc.add_paragraph(f"Outcomes: {', '.join(d.outcomes) or 'none recorded'} · made "
-                      f"{d.provenance.made_at} · fingerprint {d.provenance.fingerprint}")
+    doc.add_paragraph(
+        f"Outcomes: {', '.join(d.outcomes) or 'none recorded'} · made "
+        f"{d.provenance.made_at} · fingerprint {d.provenance.fingerprint}"
+    )
     doc.add_paragraph(d.cautions[0], style="Intense Quote")
     for w in d.warnings:
         doc.add_paragraph(f"warning: {w}")
 
     if d.changes is not None:
         doc.add_heading("What changed since the previous dossier", level=1)
-        doc.add_paragraph(f"Previous dossier made {d.changes.old_made_at} (fingerprint "
-                          f"{d.changes.old_fingerprint[:16]}).")
+        doc.add_paragraph(
+            f"Previous dossier made {d.changes.old_made_at} (fingerprint "
+            f"{d.changes.old_fingerprint[:16]})."
+        )
         if d.changes.changes:
-            _table(doc, ["change", "record or result", "field", "before", "now"],
-                   [[c.kind, c.key, c.field, c.old, c.new] for c in d.changes.changes])
+            _table(
+                doc,
+                ["change", "record or result", "field", "before", "now"],
+                [[c.kind, c.key, c.field, c.old, c.new] for c in d.changes.changes],
+            )
         else:
             doc.add_paragraph("Nothing changed.")
 
     doc.add_heading("The question, framed as the trial one would have run", level=1)
-    doc.add_paragraph("Each part as the studies recorded it (target-trial framing: Hernán & "
-                      "Robins 2016).")
+    doc.add_paragraph(
+        "Each part as the studies recorded it (target-trial framing: Hernán & Robins 2016)."
+    )
     for s in d.sections:
         doc.add_heading(f"{d.exposure} and {s.outcome}", level=2)
         q = s.question
-        _table(doc, ["part", "as recorded"], [
-            ["Population", "; ".join(q.population) or "not recorded"],
-            ["Exposure change", "; ".join(q.exposure_change) or "not recorded"],
-            ["Comparison", "; ".join(q.comparison) or "not recorded"],
-            ["Outcome", q.outcome + (f" ({s.outcome_group})" if s.outcome_group else "")],
-            ["Time zero", "; ".join(q.time_zero) or "not recorded"],
-            ["Follow-up", "; ".join(q.follow_up) or "not recorded"]], size=9,
-            widths=[3.5, 13.5])
+        _table(
+            doc,
+            ["part", "as recorded"],
+            [
+                ["Population", "; ".join(q.population) or "not recorded"],
+                ["Exposure change", "; ".join(q.exposure_change) or "not recorded"],
+                ["Comparison", "; ".join(q.comparison) or "not recorded"],
+                ["Outcome", q.outcome + (f" ({s.outcome_group})" if s.outcome_group else "")],
+                ["Time zero", "; ".join(q.time_zero) or "not recorded"],
+                ["Follow-up", "; ".join(q.follow_up) or "not recorded"],
+            ],
+            size=9,
+            widths=[3.5, 13.5],
+        )
 
     doc.add_heading("Summary per outcome", level=1)
-    doc.add_paragraph("Effects of an exposure increase, on the natural scale (ratios "
-                      "back-transformed).")
+    doc.add_paragraph(
+        "Effects of an exposure increase, on the natural scale (ratios back-transformed)."
+    )
     for s in d.sections:
         rep = s.replication
         doc.add_heading(s.outcome, level=2)
-        doc.add_paragraph(f"Independent events: {rep.independent_events} · replication status "
-                          f"{rep.status}" + (f" ({rep.meaning})" if rep.meaning else ""))
+        doc.add_paragraph(
+            f"Independent events: {rep.independent_events} · replication status "
+            f"{rep.status}" + (f" ({rep.meaning})" if rep.meaning else "")
+        )
         doc.add_paragraph(f"Rule: {rep.rule}")
         if rep.triangulation:
             doc.add_paragraph(f"Across designs: {rep.triangulation}")
@@ -206,23 +250,50 @@ def _studies(doc, d: Dossier) -> None:
     sec.orientation = WD_ORIENT.LANDSCAPE
     sec.page_width, sec.page_height = A4_HEIGHT, A4_WIDTH
     doc.add_heading("The studies", level=1)
-    doc.add_paragraph("Consensus appraisal levels per domain (0 = fatal … 3 = strong); the "
-                      "overall level decides pooling.")
+    doc.add_paragraph(
+        "Consensus appraisal levels per domain (0 = fatal … 3 = strong); the "
+        "overall level decides pooling."
+    )
     keys = [k for k, _ in d.domains]
     rows = []
     for st in d.studies:
-        rows.append([f"{st.study_id}\n{st.citation}", f"{st.design} ({st.design_family})",
-                     st.places, st.change_dates, st.assignment_grade,
-                     *[st.domains.get(k, "-") for k in keys], st.overall, str(len(st.used)),
-                     str(len(st.left_out))])
+        rows.append(
+            [
+                f"{st.study_id}\n{st.citation}",
+                f"{st.design} ({st.design_family})",
+                st.places,
+                st.change_dates,
+                st.assignment_grade,
+                *[st.domains.get(k, "-") for k in keys],
+                st.overall,
+                str(len(st.used)),
+                str(len(st.left_out)),
+            ]
+        )
     codes = [f"D{i}" for i in range(1, len(keys) + 1)]
-    _table(doc, ["study", "design (family)", "place", "date of change", "grade", *codes,
-                 "overall", "used", "left out"], rows, size=7,
-           widths=[4.6, 2.8, 1.4, 1.8, 1.2, *[0.85] * len(keys), 1.5, 1.1, 1.3])
-    doc.add_paragraph("Domains: " + "; ".join(f"{c} {k}" for c, k in zip(codes, keys,
-                                                                          strict=True))
-                      + f". Levels: {', '.join(d.level_names)}; n/a = no consensus appraisal; "
-                      "- = no rating in that domain. Grade = assignment grade.")
+    _table(
+        doc,
+        [
+            "study",
+            "design (family)",
+            "place",
+            "date of change",
+            "grade",
+            *codes,
+            "overall",
+            "used",
+            "left out",
+        ],
+        rows,
+        size=7,
+        widths=[4.6, 2.8, 1.4, 1.8, 1.2, *[0.85] * len(keys), 1.5, 1.1, 1.3],
+    )
+    doc.add_paragraph(
+        "Domains: "
+        + "; ".join(f"{c} {k}" for c, k in zip(codes, keys, strict=True))
+        + f". Levels: {', '.join(d.level_names)}; n/a = no consensus appraisal; "
+        "- = no rating in that domain. Grade = assignment grade."
+    )
     doc.add_heading("Estimates used and left out", level=2)
     est = []
     for st in d.studies:
@@ -256,15 +327,31 @@ def _figures(doc, d: Dossier, images: dict[str, bytes | None]) -> None:
 def _gaps(doc, d: Dossier) -> None:
     doc.add_heading("Gaps and opportunities", level=1)
     if d.gaps:
-        _table(doc, ["outcome group", "state", "events", "studies", "unevaluated events",
-                     "rule"],
-               [[c.outcome_group, c.state, str(c.events), str(c.studies),
-                 str(c.unevaluated_events), c.state_rule] for c in d.gaps])
+        _table(
+            doc,
+            ["outcome group", "state", "events", "studies", "unevaluated events", "rule"],
+            [
+                [
+                    c.outcome_group,
+                    c.state,
+                    str(c.events),
+                    str(c.studies),
+                    str(c.unevaluated_events),
+                    c.state_rule,
+                ]
+                for c in d.gaps
+            ],
+        )
     doc.add_heading("Registered exposure changes nobody has evaluated yet", level=2)
     if d.opportunities:
-        _table(doc, ["event", "place", "date", "change", "family", "what an evaluation would "
-                     "need"], [[o.event_id, o.country, o.change_date, o.change, o.family,
-                                o.needs] for o in d.opportunities])
+        _table(
+            doc,
+            ["event", "place", "date", "change", "family", "what an evaluation would need"],
+            [
+                [o.event_id, o.country, o.change_date, o.change, o.family, o.needs]
+                for o in d.opportunities
+            ],
+        )
     else:
         doc.add_paragraph("None registered for this exposure.")
 
@@ -272,14 +359,22 @@ def _gaps(doc, d: Dossier) -> None:
 def _provenance(doc, d: Dossier) -> None:
     p = d.provenance
     doc.add_heading("Methods and provenance", level=1)
-    rows = [["rubric", f"{p.rubric_id} {p.rubric_version}, content hash {p.rubric_hash}"],
-            ["overall level rule", p.rubric_rule]]
+    rows = [
+        ["rubric", f"{p.rubric_id} {p.rubric_version}, content hash {p.rubric_hash}"],
+        ["overall level rule", p.rubric_rule],
+    ]
     rows += [[k, str(v)] for k, v in p.estimators.items()]
     rows += [[k, str(v)] for k, v in p.thresholds.items()]
-    rows += [["software", f"exposhift {p.software_version}"], ["records used", str(p.records)],
-             ["fingerprint (SHA-256)", p.fingerprint],
-             ["audit chain head", p.audit_head or "not recorded"], ["made", p.made_at]]
+    rows += [
+        ["software", f"exposhift {p.software_version}"],
+        ["records used", str(p.records)],
+        ["fingerprint (SHA-256)", p.fingerprint],
+        ["audit chain head", p.audit_head or "not recorded"],
+        ["made", p.made_at],
+    ]
     _table(doc, ["item", "value"], rows, size=9, widths=[5.0, 12.0])
-    doc.add_paragraph("The fingerprint is a SHA-256 hash over exactly the records used (each "
-                      "with its version), the rubric hash, the settings above and the software "
-                      "version: the same evidence base gives the same fingerprint.")
+    doc.add_paragraph(
+        "The fingerprint is a SHA-256 hash over exactly the records used (each "
+        "with its version), the rubric hash, the settings above and the software "
+        "version: the same evidence base gives the same fingerprint."
+    )

@@ -28,15 +28,49 @@ from exposhift.dossier.content import (
 from exposhift.synthesis.conversions import from_analysis_scale
 
 #: pooled-group keys read into :class:`Pooled` fields (the rest goes to ``extra``)
-_GROUP_KNOWN = frozenset({
-    "k", "method", "ci_method", "measure", "scale", "estimate", "se", "ci_lower", "ci_upper",
-    "pi_lower", "pi_upper", "tau2", "i2", "q", "q_pvalue", "sign_flipped", "estimates",
-    "back_transformed", "excluded", "sensitivity", "measure_group", "estimate_kind",
-    "increment", "design_family", "level", "design", "country", "outcome_group",
-})
+_GROUP_KNOWN = frozenset(
+    {
+        "k",
+        "method",
+        "ci_method",
+        "measure",
+        "scale",
+        "estimate",
+        "se",
+        "ci_lower",
+        "ci_upper",
+        "pi_lower",
+        "pi_upper",
+        "tau2",
+        "i2",
+        "q",
+        "q_pvalue",
+        "sign_flipped",
+        "estimates",
+        "back_transformed",
+        "excluded",
+        "sensitivity",
+        "measure_group",
+        "estimate_kind",
+        "increment",
+        "design_family",
+        "level",
+        "design",
+        "country",
+        "outcome_group",
+    }
+)
 #: group keys that name the stratum (shown in the label)
-_STRATUM_KEYS = ("design_family", "level", "design", "country", "outcome_group",
-                 "measure_group", "estimate_kind", "increment")
+_STRATUM_KEYS = (
+    "design_family",
+    "level",
+    "design",
+    "country",
+    "outcome_group",
+    "measure_group",
+    "estimate_kind",
+    "increment",
+)
 
 
 def _num(x: Any) -> float | None:
@@ -91,15 +125,27 @@ def pooled_groups(groups: list[dict[str, Any]]) -> list[Pooled]:
             return _natural(scale, g.get(name))
 
         extra = _group_extra(g)
-        out.append(Pooled(
-            label=group_label(g), k=int(g.get("k_events", g.get("k")) or 0),
-            measure=_text(g.get("measure")),
-            scale=scale, estimate=nat("estimate"), ci_lower=nat("ci_lower"),
-            ci_upper=nat("ci_upper"), pi_lower=nat("pi_lower"), pi_upper=nat("pi_upper"),
-            tau2=_num(g.get("tau2")), i2=_num(g.get("i2")), q=_num(g.get("q")),
-            q_pvalue=_num(g.get("q_pvalue")), method=_text(g.get("method")),
-            ci_method=_text(g.get("ci_method")),
-            estimates=tuple(str(e) for e in g.get("estimates") or ()), extra=extra))
+        out.append(
+            Pooled(
+                label=group_label(g),
+                k=int(g.get("k_events", g.get("k")) or 0),
+                measure=_text(g.get("measure")),
+                scale=scale,
+                estimate=nat("estimate"),
+                ci_lower=nat("ci_lower"),
+                ci_upper=nat("ci_upper"),
+                pi_lower=nat("pi_lower"),
+                pi_upper=nat("pi_upper"),
+                tau2=_num(g.get("tau2")),
+                i2=_num(g.get("i2")),
+                q=_num(g.get("q")),
+                q_pvalue=_num(g.get("q_pvalue")),
+                method=_text(g.get("method")),
+                ci_method=_text(g.get("ci_method")),
+                estimates=tuple(str(e) for e in g.get("estimates") or ()),
+                extra=extra,
+            )
+        )
     return out
 
 
@@ -117,8 +163,9 @@ def _group_extra(g: dict[str, Any]) -> dict[str, Any]:
     if g.get("headline") == "two-events" and g.get("fixed_effect"):
         fe = g["fixed_effect"].get("natural") or {}
         if fe.get("estimate") is not None:
-            out["fixed effect (2 events)"] = (f"{fe['estimate']:.3g} ({fe['ci_lower']:.3g} to "
-                                              f"{fe['ci_upper']:.3g})")
+            out["fixed effect (2 events)"] = (
+                f"{fe['estimate']:.3g} ({fe['ci_lower']:.3g} to {fe['ci_upper']:.3g})"
+            )
     if g.get("notes"):
         out["notes"] = "; ".join(map(str, g["notes"]))
     if g.get("provenance"):
@@ -128,9 +175,15 @@ def _group_extra(g: dict[str, Any]) -> dict[str, Any]:
 
 def excluded_rows(excluded: list[dict[str, Any]]) -> list[dict[str, str]]:
     """Left-out estimates (estimate, study, event, reason) of a pool output."""
-    rows = [{"estimate": _text(e.get("estimate_uid")), "study": _text(e.get("study_id")),
-             "event": _text(e.get("event_id")), "reason": _text(e.get("reason"))}
-            for e in excluded]
+    rows = [
+        {
+            "estimate": _text(e.get("estimate_uid")),
+            "study": _text(e.get("study_id")),
+            "event": _text(e.get("event_id")),
+            "reason": _text(e.get("reason")),
+        }
+        for e in excluded
+    ]
     return sorted(rows, key=lambda r: r["estimate"])
 
 
@@ -140,19 +193,24 @@ def replication(report: Any, meanings: dict[str, str]) -> Replication:
     events = report.events
     n = int(events["event_id"].nunique()) if len(events) else 0
     return Replication(
-        status=str(d["status"]), meaning=meanings.get(str(d["status"]), ""),
-        rule=str(d["rule"]), expected=str(d["expected_direction"].get("meaning", "")),
+        status=str(d["status"]),
+        meaning=meanings.get(str(d["status"]), ""),
+        rule=str(d["rule"]),
+        expected=str(d["expected_direction"].get("meaning", "")),
         independent_events=n,
         triangulation=_text((d.get("triangulation") or {}).get("statement")),
-        extra=_replication_extra(d))
+        extra=_replication_extra(d),
+    )
 
 
 def _replication_extra(d: dict[str, Any]) -> dict[str, Any]:
     """The headline pooled number and the provisional flag of a replication report, as text."""
     out: dict[str, Any] = {}
     if d.get("provisional"):
-        out["provisional"] = ("yes: the expected direction was inferred from these same events, "
-                              "not pre-specified by the committee")
+        out["provisional"] = (
+            "yes: the expected direction was inferred from these same events, "
+            "not pre-specified by the committee"
+        )
     basis = (d.get("expected_direction") or {}).get("basis")
     if basis:
         out["expected direction"] = basis
@@ -162,7 +220,8 @@ def _replication_extra(d: dict[str, Any]) -> dict[str, Any]:
         out["pooled (same evidence as the status)"] = (
             f"{word} {h['estimate']:.3g} (95% CI {h['ci_lower']:.3g} to {h['ci_upper']:.3g}) "
             f"from {h['k_events']} event(s), {h['k_estimates']} estimate(s): "
-            f"{h.get('evidence_set', '')}")
+            f"{h.get('evidence_set', '')}"
+        )
     return out
 
 
@@ -178,13 +237,20 @@ def timeline(report: Any, scale_of: dict[str, str]) -> list[TimelinePoint]:
         est = _natural(scale, r.get("estimate"))
         if est is None:
             continue
-        out.append(TimelinePoint(
-            scale=scale, event_id=_text(r.get("event_id")), study_id=_text(r.get("study_id")),
-            country=_text(r.get("country")), change_date=_text(r.get("change_date")),
-            design_family=_text(r.get("design_family")), estimate=est,
-            ci_lower=_natural(scale, r.get("ci_lower")) or est,
-            ci_upper=_natural(scale, r.get("ci_upper")) or est,
-            concordant=None if r.get("concordant") is None else bool(r.get("concordant"))))
+        out.append(
+            TimelinePoint(
+                scale=scale,
+                event_id=_text(r.get("event_id")),
+                study_id=_text(r.get("study_id")),
+                country=_text(r.get("country")),
+                change_date=_text(r.get("change_date")),
+                design_family=_text(r.get("design_family")),
+                estimate=est,
+                ci_lower=_natural(scale, r.get("ci_lower")) or est,
+                ci_upper=_natural(scale, r.get("ci_upper")) or est,
+                concordant=None if r.get("concordant") is None else bool(r.get("concordant")),
+            )
+        )
     return out
 
 
@@ -194,23 +260,38 @@ def forest_rows(view: Any) -> list[EstimateRow]:
     out = []
     for r in rows.to_dict("records"):
         scale = _text(r.get("scale")) or "identity"
-        out.append(EstimateRow(
-            estimate_uid=_text(r.get("estimate_uid")), scale=scale,
-            group=_text(r.get("group_label")), study_id=_text(r.get("study_id")),
-            event_id=_text(r.get("event_id")), country=_text(r.get("country")),
-            change_date=_text(r.get("change_date")),
-            design_family=_text(r.get("design_family")), level=level_text(r.get("level")),
-            estimate=_natural(scale, r.get("y")), ci_lower=_natural(scale, r.get("ci_lower")),
-            ci_upper=_natural(scale, r.get("ci_upper")), weight=_num(r.get("weight"))))
+        out.append(
+            EstimateRow(
+                estimate_uid=_text(r.get("estimate_uid")),
+                scale=scale,
+                group=_text(r.get("group_label")),
+                study_id=_text(r.get("study_id")),
+                event_id=_text(r.get("event_id")),
+                country=_text(r.get("country")),
+                change_date=_text(r.get("change_date")),
+                design_family=_text(r.get("design_family")),
+                level=level_text(r.get("level")),
+                estimate=_natural(scale, r.get("y")),
+                ci_lower=_natural(scale, r.get("ci_lower")),
+                ci_upper=_natural(scale, r.get("ci_upper")),
+                weight=_num(r.get("weight")),
+            )
+        )
     return out
 
 
 def steps(frame: pd.DataFrame, label: str, scale: str) -> list[SensitivityStep]:
     """Rows of a leave-one-out or cumulative table (:mod:`exposhift.synthesis.sensitivity`)."""
-    return [SensitivityStep(label=_text(r[label]), estimate=_natural(scale, r["estimate"]),
-                            ci_lower=_natural(scale, r["ci_lower"]),
-                            ci_upper=_natural(scale, r["ci_upper"]), k=int(r["k"]))
-            for r in frame.to_dict("records")]
+    return [
+        SensitivityStep(
+            label=_text(r[label]),
+            estimate=_natural(scale, r["estimate"]),
+            ci_lower=_natural(scale, r["ci_lower"]),
+            ci_upper=_natural(scale, r["ci_upper"]),
+            k=int(r["k"]),
+        )
+        for r in frame.to_dict("records")
+    ]
 
 
 def level_steps(groups: list[Pooled]) -> list[SensitivityStep]:
@@ -222,11 +303,17 @@ def gap_cells(report: Any, exposure: str) -> list[GapCell]:
     if cells is None or cells.empty:
         return []
     cells = cells[cells["exposure"] == exposure]
-    return [GapCell(outcome_group=_text(r.get("outcome_group")), state=_text(r.get("state")),
-                    state_rule=_text(r.get("state_rule")), events=int(r.get("events") or 0),
-                    studies=int(r.get("studies") or 0),
-                    unevaluated_events=int(r.get("unevaluated_events") or 0))
-            for r in cells.to_dict("records")]
+    return [
+        GapCell(
+            outcome_group=_text(r.get("outcome_group")),
+            state=_text(r.get("state")),
+            state_rule=_text(r.get("state_rule")),
+            events=int(r.get("events") or 0),
+            studies=int(r.get("studies") or 0),
+            unevaluated_events=int(r.get("unevaluated_events") or 0),
+        )
+        for r in cells.to_dict("records")
+    ]
 
 
 def opportunities(report: Any, exposure: str) -> list[Opportunity]:
@@ -236,13 +323,20 @@ def opportunities(report: Any, exposure: str) -> list[Opportunity]:
     opps = opps[opps["exposure"] == exposure]
     out = []
     for r in opps.to_dict("records"):
-        change = " ".join(x for x in (_text(r.get("change_kind")),
-                                      _text(r.get("change_direction"))) if x)
-        out.append(Opportunity(
-            event_id=_text(r.get("event_id")), country=_text(r.get("country"))
-            + (f" ({_text(r.get('area'))})" if _text(r.get("area")) else ""),
-            change_date=_text(r.get("change_date")), change=change,
-            family=_text(r.get("family")), needs=_text(r.get("needs"))))
+        change = " ".join(
+            x for x in (_text(r.get("change_kind")), _text(r.get("change_direction"))) if x
+        )
+        out.append(
+            Opportunity(
+                event_id=_text(r.get("event_id")),
+                country=_text(r.get("country"))
+                + (f" ({_text(r.get('area'))})" if _text(r.get("area")) else ""),
+                change_date=_text(r.get("change_date")),
+                change=change,
+                family=_text(r.get("family")),
+                needs=_text(r.get("needs")),
+            )
+        )
     return out
 
 

@@ -22,7 +22,9 @@ from exposhift.dossier.content import Dossier
 _ENV = jinja2.Environment(
     loader=jinja2.PackageLoader("exposhift.dossier", "templates"),
     autoescape=jinja2.select_autoescape(default=True, default_for_string=True),
-    undefined=jinja2.StrictUndefined, trim_blocks=True, lstrip_blocks=True,
+    undefined=jinja2.StrictUndefined,
+    trim_blocks=True,
+    lstrip_blocks=True,
     keep_trailing_newline=True,
 )
 
@@ -78,5 +80,9 @@ def figure_json(figures: dict[str, go.Figure]) -> dict[str, str]:
 def render_html(d: Dossier, figures: dict[str, go.Figure]) -> str:
     """The whole HTML page of a dossier."""
     template = _ENV.get_template("dossier.html.j2")
-    return template.render(d=d, figs=figure_json(figures), plotly_js=plotly_js(),
-                           css=_ENV.loader.get_source(_ENV, "dossier.css")[0])
+    return template.render(
+        d=d,
+        figs=figure_json(figures),
+        plotly_js=plotly_js(),
+        css=_ENV.loader.get_source(_ENV, "dossier.css")[0],
+    )

@@ -49,14 +49,16 @@ def render_png(figures: dict[str, go.Figure]) -> Rendered:
     if browser is None:
         out.warnings.append(
             f"figures not rendered for Word: no Chromium found (install chromium or set "
-            f"{CHROMIUM_ENV}); the Word file has a line in place of each figure")
+            f"{CHROMIUM_ENV}); the Word file has a line in place of each figure"
+        )
         out.images = dict.fromkeys(figures)
         return out
     try:
         import kaleido
     except ImportError:
-        out.warnings.append("figures not rendered for Word: the kaleido package is missing "
-                            "(pip install kaleido)")
+        out.warnings.append(
+            "figures not rendered for Word: the kaleido package is missing (pip install kaleido)"
+        )
         out.images = dict.fromkeys(figures)
         return out
     previous = os.environ.get("BROWSER_PATH")
@@ -67,17 +69,24 @@ def render_png(figures: dict[str, go.Figure]) -> Rendered:
         started = True
         for name, fig in figures.items():
             layout = fig.layout
-            opts = {"format": "png", "width": layout.width or 900,
-                    "height": layout.height or 500, "scale": SCALE}
+            opts = {
+                "format": "png",
+                "width": layout.width or 900,
+                "height": layout.height or 500,
+                "scale": SCALE,
+            }
             try:
                 out.images[name] = kaleido.calc_fig_sync(fig, opts=opts)
             except Exception as exc:  # noqa: BLE001 - any renderer failure becomes a warning
                 out.images[name] = None
-                out.warnings.append(f"figure '{name}' not rendered: {type(exc).__name__}: "
-                                    f"{str(exc)[:200]}")
+                out.warnings.append(
+                    f"figure '{name}' not rendered: {type(exc).__name__}: {str(exc)[:200]}"
+                )
     except Exception as exc:  # noqa: BLE001 - the browser could not be started
-        out.warnings.append(f"figures not rendered for Word: Chromium at {browser} could not "
-                            f"be started ({type(exc).__name__}: {str(exc)[:200]})")
+        out.warnings.append(
+            f"figures not rendered for Word: Chromium at {browser} could not "
+            f"be started ({type(exc).__name__}: {str(exc)[:200]})"
+        )
         for name in figures:
             out.images.setdefault(name, None)
     finally:

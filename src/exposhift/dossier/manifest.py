@@ -34,8 +34,14 @@ RECORDS = "records.json"
 #: the data tables of a bundle, each written as CSV and JSON
 TABLES = ("estimates_used", "exclusions", "pooled", "statuses", "appraisals", "opportunities")
 #: natural-key column of each kind of record
-KEY_OF = {"exposure": "name", "outcome": "name", "event": "key", "study": "key",
-          "estimate": "key", "appraisal": "study"}
+KEY_OF = {
+    "exposure": "name",
+    "outcome": "name",
+    "event": "key",
+    "study": "key",
+    "estimate": "key",
+    "appraisal": "study",
+}
 
 
 def _plain(value: Any) -> Any:
@@ -52,14 +58,17 @@ def _plain(value: Any) -> Any:
 
 def canonical_json(value: Any) -> str:
     """The canonical serialisation (sorted keys, no whitespace, NaN as null)."""
-    return json.dumps(_plain(value), sort_keys=True, separators=(",", ":"), ensure_ascii=False,
-                      allow_nan=False)
+    return json.dumps(
+        _plain(value), sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False
+    )
 
 
 def pretty_json(value: Any) -> str:
     """Deterministic, readable JSON (sorted keys, 1-space indent, final newline)."""
-    return json.dumps(_plain(value), sort_keys=True, indent=1, ensure_ascii=False,
-                      allow_nan=False) + "\n"
+    return (
+        json.dumps(_plain(value), sort_keys=True, indent=1, ensure_ascii=False, allow_nan=False)
+        + "\n"
+    )
 
 
 def record_key(kind: str, record: dict[str, Any]) -> str:
@@ -76,10 +85,18 @@ def record_versions(records: dict[str, list[dict]]) -> dict[str, int]:
     return {k: int(r.get("version") or 0) for k, r in sorted(record_index(records).items())}
 
 
-def fingerprint(records: dict[str, list[dict]], rubric_hash: str, settings: dict[str, Any],
-                software_version: str) -> str:
-    payload = {"records": records, "rubric_hash": rubric_hash, "settings": settings,
-               "exposhift_version": software_version}
+def fingerprint(
+    records: dict[str, list[dict]],
+    rubric_hash: str,
+    settings: dict[str, Any],
+    software_version: str,
+) -> str:
+    payload = {
+        "records": records,
+        "rubric_hash": rubric_hash,
+        "settings": settings,
+        "exposhift_version": software_version,
+    }
     return hashlib.sha256(canonical_json(payload).encode("utf-8")).hexdigest()
 
 
@@ -89,32 +106,68 @@ def bundle_tables(d: Dossier) -> dict[str, list[dict[str, Any]]]:
     used, pooled, statuses, excl = [], [], [], []
     for s in d.sections:
         for r in s.forest:
-            used.append({"outcome": s.outcome, "group": r.group, "study": r.study_id,
-                         "event": r.event_id, "country": r.country,
-                         "change_date": r.change_date, "design_family": r.design_family,
-                         "level": r.level, "estimate": r.estimate, "ci_lower": r.ci_lower,
-                         "ci_upper": r.ci_upper, "weight": r.weight})
+            used.append(
+                {
+                    "outcome": s.outcome,
+                    "group": r.group,
+                    "study": r.study_id,
+                    "event": r.event_id,
+                    "country": r.country,
+                    "change_date": r.change_date,
+                    "design_family": r.design_family,
+                    "level": r.level,
+                    "estimate": r.estimate,
+                    "ci_lower": r.ci_lower,
+                    "ci_upper": r.ci_upper,
+                    "weight": r.weight,
+                }
+            )
         for kind, groups in (("overall", s.pooled), ("design family", s.by_design_family)):
             for g in groups:
-                pooled.append({"outcome": s.outcome, "pooling": kind, "group": g.label,
-                               "k": g.k, "measure": g.measure, "scale": g.scale,
-                               "estimate": g.estimate, "ci_lower": g.ci_lower,
-                               "ci_upper": g.ci_upper, "pi_lower": g.pi_lower,
-                               "pi_upper": g.pi_upper, "tau2": g.tau2, "i2": g.i2,
-                               "q": g.q, "q_pvalue": g.q_pvalue, "method": g.method,
-                               "ci_method": g.ci_method, **{f"extra_{k}": _plain(v) for k, v
-                                                           in sorted(g.extra.items())}})
+                pooled.append(
+                    {
+                        "outcome": s.outcome,
+                        "pooling": kind,
+                        "group": g.label,
+                        "k": g.k,
+                        "measure": g.measure,
+                        "scale": g.scale,
+                        "estimate": g.estimate,
+                        "ci_lower": g.ci_lower,
+                        "ci_upper": g.ci_upper,
+                        "pi_lower": g.pi_lower,
+                        "pi_upper": g.pi_upper,
+                        "tau2": g.tau2,
+                        "i2": g.i2,
+                        "q": g.q,
+                        "q_pvalue": g.q_pvalue,
+                        "method": g.method,
+                        "ci_method": g.ci_method,
+                        **{f"extra_{k}": _plain(v) for k, v in sorted(g.extra.items())},
+                    }
+                )
         rep = s.replication
-        statuses.append({"outcome": s.outcome, "status": rep.status, "rule": rep.rule,
-                         "independent_events": rep.independent_events,
-                         "certainty": s.certainty.rating})
+        statuses.append(
+            {
+                "outcome": s.outcome,
+                "status": rep.status,
+                "rule": rep.rule,
+                "independent_events": rep.independent_events,
+                "certainty": s.certainty.rating,
+            }
+        )
         for e in s.excluded:
             excl.append({"outcome": s.outcome, **e})
-    appraisals = [{"study": st.study_id, "overall": st.overall, **st.domains}
-                  for st in d.studies]
+    appraisals = [{"study": st.study_id, "overall": st.overall, **st.domains} for st in d.studies]
     opps = [o.__dict__.copy() for o in d.opportunities]
-    return {"estimates_used": used, "exclusions": excl, "pooled": pooled,
-            "statuses": statuses, "appraisals": appraisals, "opportunities": opps}
+    return {
+        "estimates_used": used,
+        "exclusions": excl,
+        "pooled": pooled,
+        "statuses": statuses,
+        "appraisals": appraisals,
+        "opportunities": opps,
+    }
 
 
 def _cell(value: Any) -> str:
@@ -143,13 +196,16 @@ def table_csv(rows: list[dict[str, Any]]) -> str:
     return buf.getvalue()
 
 
-def manifest(d: Dossier, records: dict[str, list[dict]], settings: dict[str, Any],
-             files: dict[str, str]) -> dict[str, Any]:
+def manifest(
+    d: Dossier, records: dict[str, list[dict]], settings: dict[str, Any], files: dict[str, str]
+) -> dict[str, Any]:
     """The bundle's ``manifest.json`` content."""
     p = d.provenance
     return {
-        "format": FORMAT, "format_version": FORMAT_VERSION,
-        "exposure": d.exposure, "outcomes": list(d.outcomes),
+        "format": FORMAT,
+        "format_version": FORMAT_VERSION,
+        "exposure": d.exposure,
+        "outcomes": list(d.outcomes),
         "fingerprint": p.fingerprint,
         "records": record_versions(records),
         "made_at": p.made_at,

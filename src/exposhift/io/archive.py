@@ -100,13 +100,13 @@ def _sorted(frame: pd.DataFrame, fields: list[str], key: tuple[str, ...]) -> lis
 def code_lists() -> dict[str, list]:
     """The controlled vocabularies of this exposhift, as written into archives."""
     return {
-        "designs": [{"code": c, "family": f, "description": d}
-                    for c, (f, d) in vocab.DESIGNS.items()],
+        "designs": [
+            {"code": c, "family": f, "description": d} for c, (f, d) in vocab.DESIGNS.items()
+        ],
         "change_kinds": [{"code": c, "description": d} for c, d in vocab.CHANGE_KINDS.items()],
         "change_directions": [{"code": c} for c in vocab.DIRECTIONS],
         "measures": [{"code": c, "scale": s} for c, s in vocab.MEASURES.items()],
-        "estimate_kinds": [{"code": c, "description": d}
-                           for c, d in vocab.ESTIMATE_KINDS.items()],
+        "estimate_kinds": [{"code": c, "description": d} for c, d in vocab.ESTIMATE_KINDS.items()],
         "review_stages": [{"code": c} for c in vocab.REVIEW_STAGES],
     }
 
@@ -117,26 +117,32 @@ def archive_text(frames: EvidenceFrames) -> str:
     lists["exposures"] = _sorted(frames.exposures, ARCHIVE_FIELDS["exposure"], ("name",))
     lists["outcomes"] = _sorted(frames.outcomes, ARCHIVE_FIELDS["outcome"], ("name",))
     ratings: dict[tuple, list[dict]] = {}
-    for r in _sorted(frames.ratings, list(RATING_FIELDS), ("study", "reviewer", "stage",
-                                                            "domain")):
+    for r in _sorted(frames.ratings, list(RATING_FIELDS), ("study", "reviewer", "stage", "domain")):
         ratings.setdefault((r["study"], r["reviewer"], r["stage"]), []).append(
-            {f: r[f] for f in ARCHIVE_FIELDS["rating"]})
-    appraisals = _sorted(frames.appraisals, ARCHIVE_FIELDS["appraisal"],
-                         ("study", "reviewer", "stage"))
+            {f: r[f] for f in ARCHIVE_FIELDS["rating"]}
+        )
+    appraisals = _sorted(
+        frames.appraisals, ARCHIVE_FIELDS["appraisal"], ("study", "reviewer", "stage")
+    )
     for a in appraisals:
         a["ratings"] = ratings.get((a["study"], a["reviewer"], a["stage"]), [])
-    lines = ["{", f'  "format": "{FORMAT}",', f'  "format_version": {FORMAT_VERSION},',
-             '  "vocabularies": {']
+    lines = [
+        "{",
+        f'  "format": "{FORMAT}",',
+        f'  "format_version": {FORMAT_VERSION},',
+        '  "vocabularies": {',
+    ]
     names = list(lists)
     for i, name in enumerate(names):
         lines += _list(name, lists[name], "    ", i == len(names) - 1)
     lines.append("  },")
-    lines += _list("events", _sorted(frames.events, ARCHIVE_FIELDS["event"], ("key",)),
-                   "  ", False)
-    lines += _list("studies", _sorted(frames.studies, ARCHIVE_FIELDS["study"], ("key",)),
-                   "  ", False)
-    lines += _list("estimates", _sorted(frames.estimates, ARCHIVE_FIELDS["estimate"], ("key",)),
-                   "  ", False)
+    lines += _list("events", _sorted(frames.events, ARCHIVE_FIELDS["event"], ("key",)), "  ", False)
+    lines += _list(
+        "studies", _sorted(frames.studies, ARCHIVE_FIELDS["study"], ("key",)), "  ", False
+    )
+    lines += _list(
+        "estimates", _sorted(frames.estimates, ARCHIVE_FIELDS["estimate"], ("key",)), "  ", False
+    )
     lines += _direction_lines(frames)
     lines += _list("appraisals", appraisals, "  ", False)
     lines += series_lines(frames.series, _list)
@@ -145,8 +151,12 @@ def archive_text(frames: EvidenceFrames) -> str:
 
 
 # ---------------------------------------------------------------------------------- reading
-_KIND_NAMES = {"text": "text", "int": "a whole number", "float": "a number",
-               "bool": "true or false"}
+_KIND_NAMES = {
+    "text": "text",
+    "int": "a whole number",
+    "float": "a number",
+    "bool": "true or false",
+}
 
 
 def _as_text(value, kind: str) -> str | None:
@@ -215,19 +225,22 @@ def _duplicates(keys: pd.Series, log: ProblemLog, column: str) -> None:
     log.flag(dup, column, lambda i: f"{quote(vals[i])} appears twice; keep one record")
 
 
-def _entity_section(doc: dict, name: str, entity: str, required: tuple[str, ...],
-                    log: ProblemLog, file: str) -> pd.DataFrame:
+def _entity_section(
+    doc: dict, name: str, entity: str, required: tuple[str, ...], log: ProblemLog, file: str
+) -> pd.DataFrame:
     records = doc.get(name, [])
-    sec = log.at(f"{file}: {name}", np.arange(1, (len(records) if isinstance(records, list)
-                                                   else 0) + 1))
+    sec = log.at(
+        f"{file}: {name}", np.arange(1, (len(records) if isinstance(records, list) else 0) + 1)
+    )
     fields = {f: FIELDS[entity][f] for f in ARCHIVE_FIELDS[entity]}
     raw = _to_sheet_names(_section(records, fields, sec, name), entity)
     _required(raw, required, sec)
     typed = parse_cells(raw, sec, verbatim=True)
     if entity == "estimate":
         bad = unreadable_cells(raw, typed)
-        rules.check_estimates(typed, sec, np.any([bad[c] for c in ("ci_low", "ci_high", "se",
-                                                                     "p_value")], axis=0))
+        rules.check_estimates(
+            typed, sec, np.any([bad[c] for c in ("ci_low", "ci_high", "se", "p_value")], axis=0)
+        )
     rules.check_key_text(typed, sec)
     rules.check_ranges(typed, sec)
     out = typed.rename(columns=RENAME.get(entity, {}))
@@ -257,17 +270,27 @@ def _appraisals(doc: dict, studies: set[str], log: ProblemLog, file: str):
     _required(raw, ("study", "reviewer", "stage", "rubric_id", "rubric_hash"), sec)
     frame = coerce(raw.mask(raw == ""), {**APPRAISAL_FIELDS, "overall": "text"})
     overall = pd.to_numeric(frame["overall"], errors="coerce")
-    sec.flag(overall.notna().to_numpy() & ~overall.isin(LEVELS).to_numpy(), "overall",
-             "an overall level is 0, 1, 2 or 3 (or null)")
-    frame["overall"] = pd.array(overall.astype(object).where(overall.notna(), None).tolist(),
-                                dtype="Int64")
-    stage_bad = frame["stage"].notna().to_numpy() & ~frame["stage"].isin(
-        vocab.REVIEW_STAGES).to_numpy()
+    sec.flag(
+        overall.notna().to_numpy() & ~overall.isin(LEVELS).to_numpy(),
+        "overall",
+        "an overall level is 0, 1, 2 or 3 (or null)",
+    )
+    frame["overall"] = pd.array(
+        overall.astype(object).where(overall.notna(), None).tolist(), dtype="Int64"
+    )
+    stage_bad = (
+        frame["stage"].notna().to_numpy() & ~frame["stage"].isin(vocab.REVIEW_STAGES).to_numpy()
+    )
     sec.flag(stage_bad, "stage", f"unknown stage; accepted: {', '.join(vocab.REVIEW_STAGES)}")
     unknown = frame["study"].notna().to_numpy() & ~frame["study"].isin(studies).to_numpy()
     sec.flag(unknown, "study", "no study with this key in the archive's studies")
-    key = frame["study"].fillna("") + "|" + frame["reviewer"].fillna("") + "|" + \
-        frame["stage"].fillna("")
+    key = (
+        frame["study"].fillna("")
+        + "|"
+        + frame["reviewer"].fillna("")
+        + "|"
+        + frame["stage"].fillna("")
+    )
     _duplicates(key, sec, "reviewer")
     rating_rows = []
     limits = current_limits()
@@ -282,8 +305,11 @@ def _appraisals(doc: dict, studies: set[str], log: ProblemLog, file: str):
             if not isinstance(r, dict):
                 sec.add(i + 1, where, "each rating must be a JSON object")
                 continue
-            row = {"study": frame["study"].iat[i], "reviewer": frame["reviewer"].iat[i],
-                   "stage": frame["stage"].iat[i]}
+            row = {
+                "study": frame["study"].iat[i],
+                "reviewer": frame["reviewer"].iat[i],
+                "stage": frame["stage"].iat[i],
+            }
             for f in ARCHIVE_FIELDS["rating"]:
                 kind = RATING_FIELDS[f]
                 v = r.get(f)
@@ -309,8 +335,9 @@ def _appraisals(doc: dict, studies: set[str], log: ProblemLog, file: str):
     return frame, coerce(ratings, RATING_FIELDS)
 
 
-def read_archive(path: str | Path, encoding: str | None = None,
-                 study_events: overlap.StudyEvents | None = None) -> EvidenceFrames:
+def read_archive(
+    path: str | Path, encoding: str | None = None, study_events: overlap.StudyEvents | None = None
+) -> EvidenceFrames:
     """Read and validate a JSON archive written by :func:`archive_text`.
 
     ``study_events`` looks up evidence-base studies that ``same_population_as`` names.
@@ -323,33 +350,75 @@ def read_archive(path: str | Path, encoding: str | None = None,
     try:
         doc = json.loads(text)
     except RecursionError:
-        raise InputFileError([Problem(file, None, None, "the JSON is nested too deeply to "
-                                      "read; this is not an exposhift export")]) from None
+        raise InputFileError(
+            [
+                Problem(
+                    file,
+                    None,
+                    None,
+                    "the JSON is nested too deeply to read; this is not an exposhift export",
+                )
+            ]
+        ) from None
     except json.JSONDecodeError as exc:
-        raise InputFileError([Problem(file, exc.lineno, None,
-                                      f"not valid JSON ({exc.msg} at column {exc.colno}); "
-                                      "export the evidence base again or repair the file")]) \
-            from None
+        raise InputFileError(
+            [
+                Problem(
+                    file,
+                    exc.lineno,
+                    None,
+                    f"not valid JSON ({exc.msg} at column {exc.colno}); "
+                    "export the evidence base again or repair the file",
+                )
+            ]
+        ) from None
     if not isinstance(doc, dict) or doc.get("format") != FORMAT:
-        raise InputFileError([Problem(file, None, None,
-                                      f"not an exposhift archive (no \"format\": \"{FORMAT}\"); "
-                                      "import sheets as .csv or .xlsx")])
+        raise InputFileError(
+            [
+                Problem(
+                    file,
+                    None,
+                    None,
+                    f'not an exposhift archive (no "format": "{FORMAT}"); '
+                    "import sheets as .csv or .xlsx",
+                )
+            ]
+        )
     if doc.get("format_version") != FORMAT_VERSION:
-        raise InputFileError([Problem(file, None, "format_version",
-                                      f"archive format version {doc.get('format_version')!r} "
-                                      f"is not {FORMAT_VERSION}; use the exposhift that wrote it")])
+        raise InputFileError(
+            [
+                Problem(
+                    file,
+                    None,
+                    "format_version",
+                    f"archive format version {doc.get('format_version')!r} "
+                    f"is not {FORMAT_VERSION}; use the exposhift that wrote it",
+                )
+            ]
+        )
     log = ProblemLog(file)
     _section_types(doc, log)
     exposures = _vocab_section(doc, "exposures", "exposure", log, file)
     outcomes = _vocab_section(doc, "outcomes", "outcome", log, file)
-    ev = _entity_section(doc, "events", "event", ("event_id", "exposure", "change_kind",
-                                                  "change_direction", "country", "change_date"),
-                         log, file)
-    st = _entity_section(doc, "studies", "study", ("study_id", "citation", "year", "design"),
-                         log, file)
-    es = _entity_section(doc, "estimates", "estimate", ("key", "study_id", "event_id",
-                                                       "outcome", "measure", "estimate"),
-                         log, file)
+    ev = _entity_section(
+        doc,
+        "events",
+        "event",
+        ("event_id", "exposure", "change_kind", "change_direction", "country", "change_date"),
+        log,
+        file,
+    )
+    st = _entity_section(
+        doc, "studies", "study", ("study_id", "citation", "year", "design"), log, file
+    )
+    es = _entity_section(
+        doc,
+        "estimates",
+        "estimate",
+        ("key", "study_id", "event_id", "outcome", "measure", "estimate"),
+        log,
+        file,
+    )
     for frame in (ev, st):
         _duplicates(frame["key"], frame.attrs["log"], "key")
     es_log = es.attrs["log"]
@@ -357,19 +426,31 @@ def read_archive(path: str | Path, encoding: str | None = None,
         es["estimate_kind"] = es["estimate_kind"].fillna("change")
     recomputed = estimate_keys(es)
     given_key = es["_given_key"].astype("str")
-    es_log.flag((given_key != "").to_numpy() & (recomputed != given_key).to_numpy(), "key",
-                lambda i: f"key {quote(given_key.iat[i])} does not match the estimate's parts "
-                f"({quote(recomputed.iat[i])}); correct it")
+    es_log.flag(
+        (given_key != "").to_numpy() & (recomputed != given_key).to_numpy(),
+        "key",
+        lambda i: (
+            f"key {quote(given_key.iat[i])} does not match the estimate's parts "
+            f"({quote(recomputed.iat[i])}); correct it"
+        ),
+    )
     es["key"] = recomputed
     _duplicates(es["key"], es_log, "key")
-    es_log.flag(es["study"].notna().to_numpy() & ~es["study"].isin(st["key"]).to_numpy(),
-                "study", "no study with this key in the archive's studies")
-    es_log.flag(es["event"].notna().to_numpy() & ~es["event"].isin(ev["key"]).to_numpy(),
-                "event", "no event with this key in the archive's events")
+    es_log.flag(
+        es["study"].notna().to_numpy() & ~es["study"].isin(st["key"]).to_numpy(),
+        "study",
+        "no study with this key in the archive's studies",
+    )
+    es_log.flag(
+        es["event"].notna().to_numpy() & ~es["event"].isin(ev["key"]).to_numpy(),
+        "event",
+        "no event with this key in the archive's events",
+    )
     appraisals, ratings = _appraisals(doc, set(st["key"].dropna()), log, file)
     overlap.check_same_population(st, st.attrs["log"].rows, es, st.attrs["log"], study_events)
-    directions = _directions_section(doc, log, file, ev["exposure"], es["outcome"], exposures,
-                                     outcomes)
+    directions = _directions_section(
+        doc, log, file, ev["exposure"], es["outcome"], exposures, outcomes
+    )
     series = _series(doc, log, file, ev, st, es)
     if log.problems:
         raise InputFileError(sorted_problems(log.problems))
@@ -382,11 +463,18 @@ def read_archive(path: str | Path, encoding: str | None = None,
     studies = coerce(st[list(STUDY_FIELDS)], STUDY_FIELDS)
     estimates = es[list(ESTIMATE_FIELDS)].reset_index(drop=True)
     return EvidenceFrames(
-        exposures=exposures, outcomes=outcomes, events=events, studies=studies,
-        estimates=estimates, appraisals=appraisals, ratings=ratings, directions=directions,
+        exposures=exposures,
+        outcomes=outcomes,
+        events=events,
+        studies=studies,
+        estimates=estimates,
+        appraisals=appraisals,
+        ratings=ratings,
+        directions=directions,
         given={e: frozenset(FIELDS[e]) for e in FIELDS},
         rows=len(events) + len(studies) + len(estimates) + len(appraisals) + len(series),
-        warnings=sorted_problems(warn.problems), series=series,
+        warnings=sorted_problems(warn.problems),
+        series=series,
     )
 
 
@@ -399,32 +487,55 @@ _READ_VOCABULARIES = ("exposures", "outcomes")
 
 
 def _json_type(value) -> str:
-    return {dict: "an object", list: "a list", str: "text", bool: "true/false",
-            type(None): "null", int: "a number", float: "a number"}.get(type(value), "a value")
+    return {
+        dict: "an object",
+        list: "a list",
+        str: "text",
+        bool: "true/false",
+        type(None): "null",
+        int: "a number",
+        float: "a number",
+    }.get(type(value), "a value")
 
 
 def _section_types(doc: dict, log: ProblemLog) -> None:
     """Every known section of the right JSON type (a wrong one is reported, not crashed on)."""
     for name, kind in SECTION_TYPES.items():
         if name in doc and not isinstance(doc[name], kind):
-            log.add(None, name, f"'{name}' must be {_TYPE_NAMES[kind]}, not "
-                    f"{_json_type(doc[name])}; export the evidence base again or repair it")
+            log.add(
+                None,
+                name,
+                f"'{name}' must be {_TYPE_NAMES[kind]}, not "
+                f"{_json_type(doc[name])}; export the evidence base again or repair it",
+            )
     vocabularies = doc.get("vocabularies")
     if isinstance(vocabularies, dict):
         for name, value in vocabularies.items():
             if name not in _READ_VOCABULARIES and not isinstance(value, list):
-                log.add(None, f"vocabularies.{name}", f"'vocabularies.{name}' must be a list "
-                        f"([...]), not {_json_type(value)}")
+                log.add(
+                    None,
+                    f"vocabularies.{name}",
+                    f"'vocabularies.{name}' must be a list ([...]), not {_json_type(value)}",
+                )
 
 
-def _series(doc: dict, log: ProblemLog, file: str, ev: pd.DataFrame, st: pd.DataFrame,
-            es: pd.DataFrame):
+def _series(
+    doc: dict, log: ProblemLog, file: str, ev: pd.DataFrame, st: pd.DataFrame, es: pd.DataFrame
+):
     """The series sections (:mod:`exposhift.io.series_archive`)."""
-    dates = {k: d for k, d in zip(ev["key"], ev["change_date"], strict=True)
-             if isinstance(k, str) and isinstance(d, str)}
-    return read_series_sections(doc, log, file, event_dates=dates,
-                                studies=set(st["key"].dropna()),
-                                estimates=set(es["key"].dropna()))
+    dates = {
+        k: d
+        for k, d in zip(ev["key"], ev["change_date"], strict=True)
+        if isinstance(k, str) and isinstance(d, str)
+    }
+    return read_series_sections(
+        doc,
+        log,
+        file,
+        event_dates=dates,
+        studies=set(st["key"].dropna()),
+        estimates=set(es["key"].dropna()),
+    )
 
 
 def _merge_names(vocab_frame: pd.DataFrame, used: pd.Series, extra: str) -> pd.DataFrame:
@@ -443,14 +554,21 @@ DIRECTIONS_SECTION = "expected_directions"
 def _direction_lines(frames: EvidenceFrames) -> list[str]:
     """The ``expected_directions`` section: sorted by exposure, outcome; no versions."""
     d = frames.directions
-    records = [] if d is None or d.empty else _sorted(d, list(expected.FIELDS),
-                                                      ("exposure", "outcome"))
+    records = (
+        [] if d is None or d.empty else _sorted(d, list(expected.FIELDS), ("exposure", "outcome"))
+    )
     return _list(DIRECTIONS_SECTION, records, "  ", False)
 
 
-def _directions_section(doc: dict, log: ProblemLog, file: str, used_exposures: pd.Series,
-                        used_outcomes: pd.Series, exposures: pd.DataFrame,
-                        outcomes: pd.DataFrame) -> pd.DataFrame | None:
+def _directions_section(
+    doc: dict,
+    log: ProblemLog,
+    file: str,
+    used_exposures: pd.Series,
+    used_outcomes: pd.Series,
+    exposures: pd.DataFrame,
+    outcomes: pd.DataFrame,
+) -> pd.DataFrame | None:
     """The archive's directions (None when the section is absent: an older archive)."""
     if DIRECTIONS_SECTION not in doc:
         return None
@@ -459,7 +577,13 @@ def _directions_section(doc: dict, log: ProblemLog, file: str, used_exposures: p
     sec = log.at(f"{file}: {DIRECTIONS_SECTION}", np.arange(1, n + 1))
     raw = _section(records, dict.fromkeys(expected.FIELDS, "text"), sec, DIRECTIONS_SECTION)
     names = lambda frame, used: sorted(set(frame["name"].dropna()) | set(used.dropna()))  # noqa: E731
-    return expected.check_records(raw, sec, names(exposures, used_exposures),
-                                  names(outcomes, used_outcomes),
-                                  where="the archive's exposures and outcomes")
+    return expected.check_records(
+        raw,
+        sec,
+        names(exposures, used_exposures),
+        names(outcomes, used_outcomes),
+        where="the archive's exposures and outcomes",
+    )
+
+
 # --------------------------------------------------------- end expected directions section

@@ -59,13 +59,24 @@ def parse_float(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     bad = given & ~ok
     if bad.any():
         vals = s.to_numpy()
-        comma = (pd.Series(vals, dtype="str").str.fullmatch(r"[+-]?[0-9]*,[0-9]+")
-                 .fillna(False).to_numpy(dtype=bool))
-        log.flag(bad & comma, column,
-                 lambda i: f"{quote(vals[i])} is not a number; use a decimal point, not a comma")
-        log.flag(bad & ~comma, column,
-                 lambda i: f"{quote(vals[i])} is not a number; write a plain number such as "
-                 "0.85 or 1.2e-3")
+        comma = (
+            pd.Series(vals, dtype="str")
+            .str.fullmatch(r"[+-]?[0-9]*,[0-9]+")
+            .fillna(False)
+            .to_numpy(dtype=bool)
+        )
+        log.flag(
+            bad & comma,
+            column,
+            lambda i: f"{quote(vals[i])} is not a number; use a decimal point, not a comma",
+        )
+        log.flag(
+            bad & ~comma,
+            column,
+            lambda i: (
+                f"{quote(vals[i])} is not a number; write a plain number such as 0.85 or 1.2e-3"
+            ),
+        )
     inf = ok & ~np.isfinite(out)
     if inf.any():
         log.flag(inf, column, "number too large; write a finite number")
@@ -101,8 +112,11 @@ def parse_int(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     if ok.any():
         out[ok] = digits[ok].astype("int64").to_numpy()
     vals = s.to_numpy()
-    log.flag(given & ~shaped, column,
-             lambda i: f"{quote(vals[i])} is not a whole number; write e.g. 2005 or 12")
+    log.flag(
+        given & ~shaped,
+        column,
+        lambda i: f"{quote(vals[i])} is not a whole number; write e.g. 2005 or 12",
+    )
     log.flag(too_long, column, "number too large; write a smaller whole number")
     return out
 
@@ -113,9 +127,14 @@ def parse_bool(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     bad = ((low != "") & ~low.isin(list(_BOOL))).to_numpy()
     if bad.any():
         vals = s.to_numpy()
-        log.flag(bad, column,
-                 lambda i: f"{quote(vals[i])} is not yes or no; write yes, no, true, false, 1, "
-                 "0 or leave it blank (= no)")
+        log.flag(
+            bad,
+            column,
+            lambda i: (
+                f"{quote(vals[i])} is not yes or no; write yes, no, true, false, 1, "
+                "0 or leave it blank (= no)"
+            ),
+        )
     return pd.Series(low.isin(TRUE_WORDS).to_numpy(), index=s.index, dtype=bool)
 
 
@@ -138,8 +157,15 @@ def _spread(values, codes: np.ndarray, index: pd.Index) -> pd.Series:
     return out
 
 
-def parse_code(s: pd.Series, column: str, log: ProblemLog, accepted: Iterable[str],
-               what: str, *, default: str | None = None) -> pd.Series:
+def parse_code(
+    s: pd.Series,
+    column: str,
+    log: ProblemLog,
+    accepted: Iterable[str],
+    what: str,
+    *,
+    default: str | None = None,
+) -> pd.Series:
     """A controlled-vocabulary code; case, spaces and underscores are forgiven.
 
     Unknown codes are flagged with the list of accepted ones.
@@ -147,14 +173,18 @@ def parse_code(s: pd.Series, column: str, log: ProblemLog, accepted: Iterable[st
     accepted = list(accepted)
     lookup = {_code_key(c): c for c in accepted}
     codes, uniq = _factorize(s)
-    mapped = np.array([lookup.get(_code_key(v)) if v else (default or None)
-                       for v in uniq.tolist()], dtype=object)
+    mapped = np.array(
+        [lookup.get(_code_key(v)) if v else (default or None) for v in uniq.tolist()], dtype=object
+    )
     bad_u = np.array([bool(v) for v in uniq.tolist()], dtype=bool) & (mapped == None)  # noqa: E711
     bad = bad_u[codes]
     if bad.any():
         vals = uniq.to_numpy(dtype=object)[codes]
-        log.flag(bad, column,
-                 lambda i: f"unknown {what} {quote(vals[i])}; accepted: {', '.join(accepted)}")
+        log.flag(
+            bad,
+            column,
+            lambda i: f"unknown {what} {quote(vals[i])}; accepted: {', '.join(accepted)}",
+        )
     return _spread(mapped, codes, s.index)
 
 
@@ -185,9 +215,11 @@ def parse_country(s: pd.Series, column: str, log: ProblemLog) -> pd.Series:
     if bad.any():
         vals = uniq.to_numpy(dtype=object)[codes]
         hints = {v: _country_hint(v) for v in uniq[bad_u]}
-        log.flag(bad, column,
-                 lambda i: f"unknown ISO 3166-1 alpha-3 country code {quote(vals[i])}; "
-                 f"{hints[vals[i]]}")
+        log.flag(
+            bad,
+            column,
+            lambda i: f"unknown ISO 3166-1 alpha-3 country code {quote(vals[i])}; {hints[vals[i]]}",
+        )
     return _spread(up.where(pd.Series(known_u), None).to_numpy(dtype=object), codes, s.index)
 
 
@@ -217,12 +249,19 @@ def parse_date(s: pd.Series, column: str, log: ProblemLog) -> tuple[pd.Series, p
     impossible = shaped & (bad_month | bad_day | bad_year)
     ok = shaped & ~impossible
     texts = raw.to_numpy(dtype=object)
-    log.flag((given & ~shaped)[codes], column,
-             lambda i: f"{quote(texts[codes[i]])} is not a date; write YYYY, YYYY-MM or "
-             "YYYY-MM-DD (e.g. 2004, 2004-07 or 2004-07-01)")
-    log.flag(impossible[codes], column,
-             lambda i: f"{quote(texts[codes[i]])} is not a real calendar date; check the month "
-             "and day")
+    log.flag(
+        (given & ~shaped)[codes],
+        column,
+        lambda i: (
+            f"{quote(texts[codes[i]])} is not a date; write YYYY, YYYY-MM or "
+            "YYYY-MM-DD (e.g. 2004, 2004-07 or 2004-07-01)"
+        ),
+    )
+    log.flag(
+        impossible[codes],
+        column,
+        lambda i: f"{quote(texts[codes[i]])} is not a real calendar date; check the month and day",
+    )
     date = np.where(ok, raw.to_numpy(dtype=object), None)
     precision = np.where(ok, np.where(has_d, "day", np.where(has_m, "month", "year")), None)
     return _spread(date, codes, s.index), _spread(precision.astype(object), codes, s.index)

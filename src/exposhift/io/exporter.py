@@ -55,9 +55,11 @@ def sheet_frame(frames: EvidenceFrames) -> pd.DataFrame:
     studies = frames.studies.rename(columns={"key": "study"})
     events = frames.events.rename(columns={"key": "event"}).drop(columns=["demo"])
     outcomes = frames.outcomes[["name", "outcome_group"]].rename(columns={"name": "outcome"})
-    out = (est.merge(studies, on="study", how="left", validate="many_to_one")
-              .merge(events, on="event", how="left", validate="many_to_one")
-              .merge(outcomes, on="outcome", how="left", validate="many_to_one"))
+    out = (
+        est.merge(studies, on="study", how="left", validate="many_to_one")
+        .merge(events, on="event", how="left", validate="many_to_one")
+        .merge(outcomes, on="outcome", how="left", validate="many_to_one")
+    )
     out = out.rename(columns={"study": "study_id", "event": "event_id", "point": "estimate"})
     return out[list(COLUMN_NAMES)]
 
@@ -72,8 +74,10 @@ def _text_cells(s: pd.Series, kind: str) -> list[str]:
     if kind == "float":
         return ["" if v != v else repr(v) for v in s.astype("float64").to_numpy().tolist()]
     if kind == "int":
-        return [str(int(v)) if v is not None else "" for v in
-                s.astype(object).where(s.notna(), None).tolist()]
+        return [
+            str(int(v)) if v is not None else ""
+            for v in s.astype(object).where(s.notna(), None).tolist()
+        ]
     if kind == "bool":
         return ["yes" if v else "no" for v in s.fillna(False).astype(bool).tolist()]
     return neutralise(s).tolist()
@@ -109,8 +113,10 @@ def _xlsx_cells(s: pd.Series, kind: str) -> list:
     if kind == "float":
         return [None if v != v else v for v in s.astype("float64").to_numpy().tolist()]
     if kind == "int":
-        return [int(v) if v is not None else None for v in
-                s.astype(object).where(s.notna(), None).tolist()]
+        return [
+            int(v) if v is not None else None
+            for v in s.astype(object).where(s.notna(), None).tolist()
+        ]
     if kind == "bool":
         return ["yes" if v else "no" for v in s.fillna(False).astype(bool).tolist()]
     return [v if v != "" else None for v in neutralise(s).tolist()]
@@ -129,7 +135,8 @@ def _refuse_control_characters(frame: pd.DataFrame, path: Path) -> None:
             n = int(np.flatnonzero(bad.to_numpy(dtype=bool))[0]) + 2
             raise ExposhiftError(
                 f"cannot write {path.name}: row {n}, column '{name}' holds a control character "
-                "that Excel does not allow; export .csv or .json instead, or correct the record")
+                "that Excel does not allow; export .csv or .json instead, or correct the record"
+            )
 
 
 def write_xlsx(frame: pd.DataFrame, path: Path, title: str = "estimates") -> None:

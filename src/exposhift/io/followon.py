@@ -17,9 +17,14 @@ from exposhift.io.problems import ProblemLog, quote
 SHOW_FIELDS = 8
 
 
-def report_inconsistent(log: ProblemLog, what: str, key_col: str, keys: np.ndarray,
-                        first: np.ndarray, diffs: dict[str, tuple[np.ndarray, dict[int, str]]]
-                        ) -> int:
+def report_inconsistent(
+    log: ProblemLog,
+    what: str,
+    key_col: str,
+    keys: np.ndarray,
+    first: np.ndarray,
+    diffs: dict[str, tuple[np.ndarray, dict[int, str]]],
+) -> int:
     """Report every repeated ``what`` (study, event) whose rows disagree, as one problem per key.
 
     ``diffs`` maps a field to (mask of differing rows, per-row text "X here but Y"). ``first``
@@ -38,10 +43,12 @@ def report_inconsistent(log: ProblemLog, what: str, key_col: str, keys: np.ndarr
         fields = list(dict.fromkeys(f for p in positions for f, _ in rows[p]))
         shown_rows = ", ".join(str(int(log.rows[p])) for p in positions)
         plural = "s" if len(positions) > 1 else ""
-        lines = [f"{what} {quote(key)} in row{plural} {shown_rows} differs from its first row "
-                 f"({ref_row}) in {', '.join(fields)}; every row of {article} {what} must give "
-                 f"the same {what} fields. If this is another {what}, give it its own "
-                 f"{key_col}; otherwise copy the values of row {ref_row}:"]
+        lines = [
+            f"{what} {quote(key)} in row{plural} {shown_rows} differs from its first row "
+            f"({ref_row}) in {', '.join(fields)}; every row of {article} {what} must give "
+            f"the same {what} fields. If this is another {what}, give it its own "
+            f"{key_col}; otherwise copy the values of row {ref_row}:"
+        ]
         details = [f"row {int(log.rows[p])}, {f}: {text}" for p in positions for f, text in rows[p]]
         lines += [f"      {d}" for d in details[:SHOW_FIELDS]]
         if len(details) > SHOW_FIELDS:

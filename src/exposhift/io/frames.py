@@ -19,31 +19,72 @@ from exposhift.errors import Problem
 EXPOSURE_FIELDS = {"name": "text", "agent_class": "text"}
 OUTCOME_FIELDS = {"name": "text", "outcome_group": "text"}
 EVENT_FIELDS = {
-    "key": "text", "exposure": "text", "change_kind": "text", "change_direction": "text",
-    "change_size": "float", "change_unit": "text", "country": "text", "area": "text",
-    "change_date": "text", "date_precision": "text", "family": "text", "demo": "bool",
+    "key": "text",
+    "exposure": "text",
+    "change_kind": "text",
+    "change_direction": "text",
+    "change_size": "float",
+    "change_unit": "text",
+    "country": "text",
+    "area": "text",
+    "change_date": "text",
+    "date_precision": "text",
+    "family": "text",
+    "demo": "bool",
 }
 STUDY_FIELDS = {
-    "key": "text", "citation": "text", "year": "int", "doi": "text", "design": "text",
-    "comparison": "text", "population": "text", "data_source": "text",
-    "same_population_as": "text", "assignment_grade": "int", "pre_points": "int",
-    "post_points": "int", "checks": "text",
+    "key": "text",
+    "citation": "text",
+    "year": "int",
+    "doi": "text",
+    "design": "text",
+    "comparison": "text",
+    "population": "text",
+    "data_source": "text",
+    "same_population_as": "text",
+    "assignment_grade": "int",
+    "pre_points": "int",
+    "post_points": "int",
+    "checks": "text",
     "demo": "bool",
 }
 ESTIMATE_FIELDS = {
-    "key": "text", "study": "text", "event": "text", "outcome": "text", "measure": "text",
-    "estimate_kind": "text", "per_unit": "float", "point": "float", "ci_low": "float",
-    "ci_high": "float", "ci_level": "float", "se": "float", "p_value": "float",
-    "p_bound": "bool", "baseline_risk": "float", "subgroup": "text", "time_window": "text",
+    "key": "text",
+    "study": "text",
+    "event": "text",
+    "outcome": "text",
+    "measure": "text",
+    "estimate_kind": "text",
+    "per_unit": "float",
+    "point": "float",
+    "ci_low": "float",
+    "ci_high": "float",
+    "ci_level": "float",
+    "se": "float",
+    "p_value": "float",
+    "p_bound": "bool",
+    "baseline_risk": "float",
+    "subgroup": "text",
+    "time_window": "text",
     "primary": "bool",
 }
 APPRAISAL_FIELDS = {
-    "study": "text", "reviewer": "text", "stage": "text", "rubric_id": "text",
-    "rubric_hash": "text", "overall": "int",
+    "study": "text",
+    "reviewer": "text",
+    "stage": "text",
+    "rubric_id": "text",
+    "rubric_hash": "text",
+    "overall": "int",
 }
 RATING_FIELDS = {
-    "study": "text", "reviewer": "text", "stage": "text", "domain": "text", "level": "int",
-    "reporting": "text", "justification": "text", "suggested_level": "int",
+    "study": "text",
+    "reviewer": "text",
+    "stage": "text",
+    "domain": "text",
+    "level": "int",
+    "reporting": "text",
+    "justification": "text",
+    "suggested_level": "int",
     "suggestion_reason": "text",
 }
 
@@ -69,21 +110,35 @@ KEYS: dict[str, tuple[str, ...]] = {
 }
 
 #: the parts of an estimate's natural key, in order
-ESTIMATE_KEY_PARTS = ("study", "event", "outcome", "measure", "estimate_kind", "subgroup",
-                      "time_window")
+ESTIMATE_KEY_PARTS = (
+    "study",
+    "event",
+    "outcome",
+    "measure",
+    "estimate_kind",
+    "subgroup",
+    "time_window",
+)
 
 #: entity name -> plural used in reports
 PLURAL = {
-    "exposure": "exposures", "outcome": "outcomes", "event": "events", "study": "studies",
-    "estimate": "estimates", "appraisal": "appraisals", "rating": "ratings",
+    "exposure": "exposures",
+    "outcome": "outcomes",
+    "event": "events",
+    "study": "studies",
+    "estimate": "estimates",
+    "appraisal": "appraisals",
+    "rating": "ratings",
 }
 
 
 def estimate_keys(frame: pd.DataFrame) -> pd.Series:
     """``study|event|outcome|measure|estimate_kind|subgroup|time_window`` (blank when missing)."""
     blank = pd.Series("", index=frame.index, dtype="str")
-    parts = [frame[p].fillna("").astype("str") if p in frame.columns else blank
-             for p in ESTIMATE_KEY_PARTS]
+    parts = [
+        frame[p].fillna("").astype("str") if p in frame.columns else blank
+        for p in ESTIMATE_KEY_PARTS
+    ]
     key = parts[0]
     for p in parts[1:]:
         key = key + "|" + p

@@ -77,8 +77,10 @@ def current_limits() -> Limits:
         except ValueError:
             n = 0
         if n < 1:
-            raise ConfigError(f"{env}={raw!r} is not a positive whole number; unset it to use "
-                              f"the default ({default:,}) or give e.g. {env}={default}")
+            raise ConfigError(
+                f"{env}={raw!r} is not a positive whole number; unset it to use "
+                f"the default ({default:,}) or give e.g. {env}={default}"
+            )
         values[attr] = n
     return Limits(**values)
 
@@ -92,8 +94,11 @@ def check_file_size(path: Path, limits: Limits | None = None) -> None:
     limits = limits or current_limits()
     size = path.stat().st_size
     if size > limits.max_file_bytes:
-        _refuse(path.name, f"the file is {size / (1 << 20):,.1f} MB, over the limit of "
-                f"{limits.max_file_mb:,} MB; split it, or raise EXPOSHIFT_MAX_FILE_MB")
+        _refuse(
+            path.name,
+            f"the file is {size / (1 << 20):,.1f} MB, over the limit of "
+            f"{limits.max_file_mb:,} MB; split it, or raise EXPOSHIFT_MAX_FILE_MB",
+        )
 
 
 def _first_line(path: Path, limit_bytes: int) -> bytes:
@@ -140,14 +145,21 @@ def check_csv_shape(path: Path, limits: Limits | None = None) -> None:
     check_file_size(path, limits)
     columns = header_columns(_first_line(path, limits.max_file_bytes))
     if columns > limits.max_columns:
-        _refuse(path.name, f"the header has {columns:,} columns, over the limit of "
-                f"{limits.max_columns:,}; an extraction sheet has fewer than 60 (see "
-                "docs/extraction-sheet.md). Remove the extra columns, or raise "
-                "EXPOSHIFT_MAX_COLUMNS", row=1)
+        _refuse(
+            path.name,
+            f"the header has {columns:,} columns, over the limit of "
+            f"{limits.max_columns:,}; an extraction sheet has fewer than 60 (see "
+            "docs/extraction-sheet.md). Remove the extra columns, or raise "
+            "EXPOSHIFT_MAX_COLUMNS",
+            row=1,
+        )
     cells = columns * _line_count(path)
     if cells > limits.max_cells:
-        _refuse(path.name, f"the file has about {cells:,} cells, over the limit of "
-                f"{limits.max_cells:,}; split it, or raise EXPOSHIFT_MAX_CELLS")
+        _refuse(
+            path.name,
+            f"the file has about {cells:,} cells, over the limit of "
+            f"{limits.max_cells:,}; split it, or raise EXPOSHIFT_MAX_CELLS",
+        )
 
 
 def check_xlsx_size(path: Path, limits: Limits | None = None) -> None:
@@ -160,8 +172,11 @@ def check_xlsx_size(path: Path, limits: Limits | None = None) -> None:
     except (zipfile.BadZipFile, OSError):
         return  # the workbook reader reports what is wrong with the file
     if inflated > limits.max_file_bytes:
-        _refuse(path.name, f"the workbook unpacks to {inflated / (1 << 20):,.1f} MB, over the "
-                f"limit of {limits.max_file_mb:,} MB; split it, or raise EXPOSHIFT_MAX_FILE_MB")
+        _refuse(
+            path.name,
+            f"the workbook unpacks to {inflated / (1 << 20):,.1f} MB, over the "
+            f"limit of {limits.max_file_mb:,} MB; split it, or raise EXPOSHIFT_MAX_FILE_MB",
+        )
 
 
 class RowCounter:
@@ -174,13 +189,21 @@ class RowCounter:
 
     def check(self, row_number: int, width: int) -> None:
         if width > self.limits.max_columns:
-            _refuse(self.file, f"row {row_number} has {width:,} cells, over the limit of "
-                    f"{self.limits.max_columns:,} columns; remove the extra columns, or raise "
-                    "EXPOSHIFT_MAX_COLUMNS", row=row_number)
+            _refuse(
+                self.file,
+                f"row {row_number} has {width:,} cells, over the limit of "
+                f"{self.limits.max_columns:,} columns; remove the extra columns, or raise "
+                "EXPOSHIFT_MAX_COLUMNS",
+                row=row_number,
+            )
         self.cells += width
         if self.cells > self.limits.max_cells:
-            _refuse(self.file, f"the worksheet has over {self.limits.max_cells:,} cells; split "
-                    "it, or raise EXPOSHIFT_MAX_CELLS", row=row_number)
+            _refuse(
+                self.file,
+                f"the worksheet has over {self.limits.max_cells:,} cells; split "
+                "it, or raise EXPOSHIFT_MAX_CELLS",
+                row=row_number,
+            )
 
 
 _STRINGS = re.compile(rb'"(?:[^"\\]|\\.)*"')
@@ -194,8 +217,9 @@ def json_depth(data: bytes) -> int:
     bare = _STRINGS.sub(b"", data)
     depth = best = 0
     for start in range(0, len(bare), 4 * _BLOCK):
-        arr = np.frombuffer(bare, dtype=np.uint8, count=min(4 * _BLOCK, len(bare) - start),
-                            offset=start)
+        arr = np.frombuffer(
+            bare, dtype=np.uint8, count=min(4 * _BLOCK, len(bare) - start), offset=start
+        )
         step = np.isin(arr, _OPEN).astype(np.int32) - np.isin(arr, _CLOSE).astype(np.int32)
         if not step.any():
             continue
@@ -209,22 +233,29 @@ def check_json_depth(data: bytes, file: str, limits: Limits | None = None) -> No
     limits = limits or current_limits()
     depth = json_depth(data)
     if depth > limits.max_json_depth:
-        _refuse(file, f"the JSON is nested {depth:,} levels deep, over the limit of "
-                f"{limits.max_json_depth:,} (an exposhift archive needs 5); this is not an "
-                "exposhift export. Export the evidence base again, or raise "
-                "EXPOSHIFT_MAX_JSON_DEPTH")
+        _refuse(
+            file,
+            f"the JSON is nested {depth:,} levels deep, over the limit of "
+            f"{limits.max_json_depth:,} (an exposhift archive needs 5); this is not an "
+            "exposhift export. Export the evidence base again, or raise "
+            "EXPOSHIFT_MAX_JSON_DEPTH",
+        )
 
 
 # ---------------------------------------------------------------------------- text cells
 def text_problem(value: str, limits: Limits) -> str | None:
     """Why one text value may not be stored (None when it may)."""
     if len(value) > limits.max_cell_chars:
-        return (f"the cell holds {len(value):,} characters, over the limit of "
-                f"{limits.max_cell_chars:,}; shorten it, or raise EXPOSHIFT_MAX_CELL_CHARS")
+        return (
+            f"the cell holds {len(value):,} characters, over the limit of "
+            f"{limits.max_cell_chars:,}; shorten it, or raise EXPOSHIFT_MAX_CELL_CHARS"
+        )
     m = CONTROL.search(value)
     if m:
-        return (f"the cell holds the control character U+{ord(m.group()):04X} at position "
-                f"{m.start() + 1}; remove it (spreadsheets and XML cannot hold it)")
+        return (
+            f"the cell holds the control character U+{ord(m.group()):04X} at position "
+            f"{m.start() + 1}; remove it (spreadsheets and XML cannot hold it)"
+        )
     return None
 
 
@@ -241,8 +272,9 @@ def check_text_cells(frame: pd.DataFrame, log, limits: Limits | None = None) -> 
         text = s.fillna("").astype("str")
         lengths = text.str.len()
         # one search over the whole column first: most columns are clean
-        if not len(text) or (lengths.max() <= limits.max_cell_chars
-                             and not CONTROL.search("\n".join(text.tolist()))):
+        if not len(text) or (
+            lengths.max() <= limits.max_cell_chars and not CONTROL.search("\n".join(text.tolist()))
+        ):
             continue
         vals = text.tolist()  # Python's re: pyarrow's regex cannot hold lone surrogates
         bad = np.array([text_problem(v, limits) is not None for v in vals], dtype=bool)

@@ -64,9 +64,13 @@ def _names(events: set[str]) -> str:
     return ", ".join(quote(e) for e in sorted(events)) if events else "none"
 
 
-def check_same_population(studies: pd.DataFrame, rows: np.ndarray | list[int],
-                          estimates: pd.DataFrame, log: ProblemLog,
-                          stored: StudyEvents | None = None) -> None:
+def check_same_population(
+    studies: pd.DataFrame,
+    rows: np.ndarray | list[int],
+    estimates: pd.DataFrame,
+    log: ProblemLog,
+    stored: StudyEvents | None = None,
+) -> None:
     """Flag every bad id in ``studies[COLUMN]`` (``studies`` has ``key``; one row per study).
 
     ``rows`` are the row numbers shown for each study (its first sheet row or its position in
@@ -79,11 +83,18 @@ def check_same_population(studies: pd.DataFrame, rows: np.ndarray | list[int],
     refs = [split_ids(v) for v in studies[COLUMN].astype(object).tolist()]
     if not any(refs):
         return
-    in_file = _events_of(zip(estimates["study"].astype(object).tolist(),
-                             estimates["event"].astype(object).tolist(), strict=True))
+    in_file = _events_of(
+        zip(
+            estimates["study"].astype(object).tolist(),
+            estimates["event"].astype(object).tolist(),
+            strict=True,
+        )
+    )
     file_keys = {str(k) for k in keys if k is not None and k == k}
-    wanted = sorted({r for ids in refs for r in ids} | {str(k) for k, ids in
-                                                         zip(keys, refs, strict=True) if ids})
+    wanted = sorted(
+        {r for ids in refs for r in ids}
+        | {str(k) for k, ids in zip(keys, refs, strict=True) if ids}
+    )
     in_base = stored(wanted) if stored is not None and wanted else {}
     for key, ids, row in zip(keys, refs, list(rows), strict=True):
         if not ids or key is None or key != key:
@@ -91,20 +102,31 @@ def check_same_population(studies: pd.DataFrame, rows: np.ndarray | list[int],
         own = in_file.get(key, set()) | in_base.get(key, set())
         for other in ids:
             if other == key:
-                log.add(int(row), COLUMN, f"study {quote(key)} names itself; list only the "
-                        "other studies whose population overlaps this one's")
+                log.add(
+                    int(row),
+                    COLUMN,
+                    f"study {quote(key)} names itself; list only the "
+                    "other studies whose population overlaps this one's",
+                )
                 continue
             if other not in file_keys and other not in in_base:
                 close = difflib.get_close_matches(other, sorted(file_keys), n=2)
-                hint = (f"did you mean {' or '.join(quote(c) for c in close)}? " if close
-                        else "")
-                log.add(int(row), COLUMN, f"no study {quote(other)} in this file or in the "
-                        f"evidence base; {hint}give the study_id of an existing study, or "
-                        "remove it")
+                hint = f"did you mean {' or '.join(quote(c) for c in close)}? " if close else ""
+                log.add(
+                    int(row),
+                    COLUMN,
+                    f"no study {quote(other)} in this file or in the "
+                    f"evidence base; {hint}give the study_id of an existing study, or "
+                    "remove it",
+                )
                 continue
             theirs = in_file.get(other, set()) | in_base.get(other, set())
             if not own & theirs:
-                log.add(int(row), COLUMN, f"study {quote(other)} shares no event with study "
-                        f"{quote(key)} (its events: {_names(theirs)}; this study's: "
-                        f"{_names(own)}); same_population_as names studies of the same event "
-                        "only; correct the id or remove it")
+                log.add(
+                    int(row),
+                    COLUMN,
+                    f"study {quote(other)} shares no event with study "
+                    f"{quote(key)} (its events: {_names(theirs)}; this study's: "
+                    f"{_names(own)}); same_population_as names studies of the same event "
+                    "only; correct the id or remove it",
+                )

@@ -70,20 +70,27 @@ def check_plausible(t: pd.DataFrame, log: ProblemLog) -> int:
     with np.errstate(invalid="ignore"):
         wild_ratio = ratio & (se > MAX_LOG_SE_RATIO)
         wild_pct = pct & (se > MAX_LOG_SE_PCT)
-    count += log.flag(wild_ratio, "se", lambda i: (
-        f"SE {_g(se[i])} is implausibly large for the SE of log({measure[i]}) (a 95% CI wider "
-        f"than a factor of {_g(_exp(2 * 1.96 * se[i]))}); the se column takes the SE on the "
-        "log scale: if the paper gives the SE of the ratio itself or a percent, leave se blank "
-        "and give the confidence limits instead. The value was imported as entered"))
+    count += log.flag(
+        wild_ratio,
+        "se",
+        lambda i: (
+            f"SE {_g(se[i])} is implausibly large for the SE of log({measure[i]}) (a 95% CI wider "
+            f"than a factor of {_g(_exp(2 * 1.96 * se[i]))}); the se column takes the SE on the "
+            "log scale: if the paper gives the SE of the ratio itself or a percent, leave se blank "
+            "and give the confidence limits instead. The value was imported as entered"
+        ),
+    )
 
     def pct_message(i: int) -> str:
         fix = se[i] / (100.0 + est[i]) if np.isfinite(est[i]) and est[i] > -100 else np.nan
         hint = f", or enter {_g(fix)} = SE/(100 + p)" if np.isfinite(fix) else ""
-        return (f"SE {_g(se[i])} for a percent change is read on the log scale (the SE of "
-                f"log(1 + p/100)), where it means a 95% CI from {_g(100 * _expm1(-1.96 * se[i]))}"
-                f"% to +{_g(100 * _expm1(1.96 * se[i]))}%: it looks like an SE in percent "
-                "points. Leave se blank and give the confidence limits (p ± 1.96·SE)"
-                f"{hint}. The value was imported as entered")
+        return (
+            f"SE {_g(se[i])} for a percent change is read on the log scale (the SE of "
+            f"log(1 + p/100)), where it means a 95% CI from {_g(100 * _expm1(-1.96 * se[i]))}"
+            f"% to +{_g(100 * _expm1(1.96 * se[i]))}%: it looks like an SE in percent "
+            "points. Leave se blank and give the confidence limits (p ± 1.96·SE)"
+            f"{hint}. The value was imported as entered"
+        )
 
     count += log.flag(wild_pct, "se", pct_message)
 
@@ -101,9 +108,14 @@ def check_plausible(t: pd.DataFrame, log: ProblemLog) -> int:
             se_ci = (h_high - h_low) / (2.0 * z)
             factor = np.where(usable, np.maximum(se / se_ci, se_ci / se), 1.0)
         off = usable & ~wild_ratio & ~wild_pct & (factor > SE_CI_FACTOR)
-        count += log.flag(off, "se", lambda i: (
-            f"SE {_g(se[i])} disagrees with the confidence interval on this row, which implies "
-            f"an SE of {_g(se_ci[i])} on the analysis scale (a factor of {_g(factor[i])}); the "
-            "interval is used and the SE ignored: check that the SE is on the analysis scale "
-            "(log scale for ratios and percent changes)"))
+        count += log.flag(
+            off,
+            "se",
+            lambda i: (
+                f"SE {_g(se[i])} disagrees with the confidence interval on this row, which implies "
+                f"an SE of {_g(se_ci[i])} on the analysis scale (a factor of {_g(factor[i])}); the "
+                "interval is used and the SE ignored: check that the SE is on the analysis scale "
+                "(log scale for ratios and percent changes)"
+            ),
+        )
     return count

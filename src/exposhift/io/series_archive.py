@@ -47,8 +47,7 @@ def _py(v):
 def series_lines(frames: SeriesFrames | None, list_lines) -> list[str]:
     """The archive lines of the two sections (``list_lines`` writes one JSON list)."""
     series, fits = series_records(frames if frames is not None else SeriesFrames())
-    return list_lines("series", series, "  ", False) + list_lines("series_fits", fits, "  ",
-                                                                    True)
+    return list_lines("series", series, "  ", False) + list_lines("series_fits", fits, "  ", True)
 
 
 def series_records(frames: SeriesFrames) -> tuple[list[dict], list[dict]]:
@@ -61,12 +60,14 @@ def series_records(frames: SeriesFrames) -> tuple[list[dict], list[dict]]:
         rec = {k: _py(s[k]) for k in SERIES_FIELDS}
         rec["demo"] = bool(rec["demo"])
         unit = rec["time_unit"]
-        rec["points"] = sorted(pts.get(s["key"], []),
-                               key=lambda p: period_index(p["period"], unit) or 0)
+        rec["points"] = sorted(
+            pts.get(s["key"], []), key=lambda p: period_index(p["period"], unit) or 0
+        )
         out.append(rec)
-    fits = sorted(({k: _py(f[k]) for k in FIT_FIELDS}
-                   for f in frames.fits.to_dict(orient="records")),
-                  key=lambda r: r["estimate"])
+    fits = sorted(
+        ({k: _py(f[k]) for k in FIT_FIELDS} for f in frames.fits.to_dict(orient="records")),
+        key=lambda r: r["estimate"],
+    )
     return out, fits
 
 
@@ -83,8 +84,15 @@ def _text(v) -> str | None:
     return None
 
 
-def read_series_sections(doc: dict, log: ProblemLog, file: str, *, event_dates: dict,
-                         studies: set[str], estimates: set[str]) -> SeriesFrames:
+def read_series_sections(
+    doc: dict,
+    log: ProblemLog,
+    file: str,
+    *,
+    event_dates: dict,
+    studies: set[str],
+    estimates: set[str],
+) -> SeriesFrames:
     """Validate the series sections of an archive (problems go to ``log``)."""
     records = doc.get("series", [])
     if not isinstance(records, list):
@@ -110,8 +118,10 @@ def read_series_sections(doc: dict, log: ProblemLog, file: str, *, event_dates: 
                 continue
             for extra in sorted(set(p) - set(_POINT_KEYS)):
                 sec.add(i + 1, f"points[{j}].{extra}", "unknown field; remove it")
-            cells = {**{back.get(f, f): rec.get(f) for f in SERIES_FIELDS},
-                     **{k: p.get(k) for k in _POINT_KEYS}}
+            cells = {
+                **{back.get(f, f): rec.get(f) for f in SERIES_FIELDS},
+                **{k: p.get(k) for k in _POINT_KEYS},
+            }
             for c in COLUMNS:
                 t = _text(cells.get(c))
                 if t is None:
@@ -120,11 +130,15 @@ def read_series_sections(doc: dict, log: ProblemLog, file: str, *, event_dates: 
                 rows[c].append(t)
             where.append(i + 1)
     raw = pd.DataFrame({c: pd.Series(v, dtype="str") for c, v in rows.items()})
-    frames = validate_long(raw, sec.at(f"{file}: series", np.array(where, dtype=np.int64)),
-                           Context(event_dates=event_dates, studies=frozenset(studies)))
+    frames = validate_long(
+        raw,
+        sec.at(f"{file}: series", np.array(where, dtype=np.int64)),
+        Context(event_dates=event_dates, studies=frozenset(studies)),
+    )
     fits = doc.get("series_fits", [])
-    fsec = log.at(f"{file}: series_fits", np.arange(1, (len(fits) if isinstance(fits, list)
-                                                        else 0) + 1))
+    fsec = log.at(
+        f"{file}: series_fits", np.arange(1, (len(fits) if isinstance(fits, list) else 0) + 1)
+    )
     fit_rows = []
     keys = set(frames.series["key"])
     for i, f in enumerate(fits if isinstance(fits, list) else []):
@@ -147,6 +161,7 @@ def read_series_sections(doc: dict, log: ProblemLog, file: str, *, event_dates: 
             except json.JSONDecodeError:
                 fsec.add(i + 1, k, "not valid JSON text; export the evidence base again")
         fit_rows.append(row)
-    frames.fits = pd.DataFrame(fit_rows, columns=list(FIT_FIELDS)).astype("str") \
-        if fit_rows else frames.fits
+    frames.fits = (
+        pd.DataFrame(fit_rows, columns=list(FIT_FIELDS)).astype("str") if fit_rows else frames.fits
+    )
     return frames

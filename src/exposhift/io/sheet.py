@@ -57,9 +57,17 @@ def read_text(path: Path, encoding: str | None) -> str:
     try:
         codecs.lookup(enc)
     except LookupError:
-        raise InputFileError([Problem(path.name, None, None,
-                                      f"unknown encoding '{enc}' given with --encoding; use "
-                                      "e.g. utf-8, latin-1, cp1252 or utf-16")]) from None
+        raise InputFileError(
+            [
+                Problem(
+                    path.name,
+                    None,
+                    None,
+                    f"unknown encoding '{enc}' given with --encoding; use "
+                    "e.g. utf-8, latin-1, cp1252 or utf-16",
+                )
+            ]
+        ) from None
     data = path.read_bytes()
     if enc.lower().replace("_", "-") in ("utf-8", "utf8"):
         enc = DEFAULT_ENCODING  # a BOM is never part of the first header name
@@ -68,11 +76,18 @@ def read_text(path: Path, encoding: str | None) -> str:
     except UnicodeDecodeError as exc:
         line = data.count(b"\n", 0, exc.start) + 1
         shown = "UTF-8 (with or without BOM)" if encoding is None else f"'{enc}'"
-        raise InputFileError([Problem(
-            path.name, line, None,
-            f"the file is not valid {shown} text (byte 0x{data[exc.start]:02x} at position "
-            f"{exc.start}); save it as UTF-8, or name its encoding with --encoding (e.g. "
-            "--encoding latin-1 or --encoding cp1252)")]) from None
+        raise InputFileError(
+            [
+                Problem(
+                    path.name,
+                    line,
+                    None,
+                    f"the file is not valid {shown} text (byte 0x{data[exc.start]:02x} at position "
+                    f"{exc.start}); save it as UTF-8, or name its encoding with --encoding (e.g. "
+                    "--encoding latin-1 or --encoding cp1252)",
+                )
+            ]
+        ) from None
 
 
 def _frame_from_rows(name: str, header: list[str], body: pd.DataFrame) -> RawSheet:
@@ -87,15 +102,23 @@ def _frame_from_rows(name: str, header: list[str], body: pd.DataFrame) -> RawShe
         if h:
             keep_cols.append(i)
         elif (body.iloc[:, i] != "").any():
-            problems.append(Problem(name, 1, None,
-                                    f"column {i + 1} has values but no header; name it or "
-                                    "delete it"))
+            problems.append(
+                Problem(
+                    name, 1, None, f"column {i + 1} has values but no header; name it or delete it"
+                )
+            )
     seen: dict[str, int] = {}
     for i in keep_cols:
         if header[i] in seen:
-            problems.append(Problem(name, 1, header[i],
-                                    f"the column appears twice (columns {seen[header[i]] + 1} "
-                                    f"and {i + 1}); keep one"))
+            problems.append(
+                Problem(
+                    name,
+                    1,
+                    header[i],
+                    f"the column appears twice (columns {seen[header[i]] + 1} "
+                    f"and {i + 1}); keep one",
+                )
+            )
         else:
             seen[header[i]] = i
     if problems:
@@ -129,21 +152,32 @@ def detect_delimiter(text: str, given: str | None, file: str) -> tuple[str, str 
     if given is not None:
         sep = DELIMITERS.get(given.lower() if len(given) > 1 else given)
         if sep is None:
-            raise InputFileError([Problem(file, None, None,
-                                          f"unknown delimiter {given!r} given with --delimiter; "
-                                          "use one of: ',' ';' '|' or tab")])
+            raise InputFileError(
+                [
+                    Problem(
+                        file,
+                        None,
+                        None,
+                        f"unknown delimiter {given!r} given with --delimiter; "
+                        "use one of: ',' ';' '|' or tab",
+                    )
+                ]
+            )
         return sep, f"read with the delimiter given: {DELIMITER_NAMES[sep]} ({sep!r})"
     header = re.sub(r'"[^"]*"', "", _header_line(text))
     counts = {d: header.count(d) for d in DELIMITER_NAMES}
     sep = max(counts, key=lambda d: (counts[d], d == ","))
     if counts[sep] == 0 or sep == ",":
         return ",", None
-    return sep, (f"read as {DELIMITER_NAMES[sep]}-separated ({sep!r} detected in the header "
-                 "row); use --delimiter to choose another")
+    return sep, (
+        f"read as {DELIMITER_NAMES[sep]}-separated ({sep!r} detected in the header "
+        "row); use --delimiter to choose another"
+    )
 
 
-def read_csv_sheet(path: Path, encoding: str | None = None,
-                   delimiter: str | None = None) -> RawSheet:
+def read_csv_sheet(
+    path: Path, encoding: str | None = None, delimiter: str | None = None
+) -> RawSheet:
     check_csv_shape(path)  # size, columns and cells, before the file is parsed
     notes: list[str] = []
     if encoding is None and sniff(path) == "utf-16":
@@ -151,25 +185,48 @@ def read_csv_sheet(path: Path, encoding: str | None = None,
         notes.append("read as UTF-16 text (the file starts with a UTF-16 byte-order mark)")
     text = read_text(path, encoding)
     if not text.strip():
-        raise InputFileError([Problem(path.name, None, None,
-                                      "the file is empty; it needs a header row and one row per "
-                                      "estimate (see docs/extraction-sheet.md)")])
+        raise InputFileError(
+            [
+                Problem(
+                    path.name,
+                    None,
+                    None,
+                    "the file is empty; it needs a header row and one row per "
+                    "estimate (see docs/extraction-sheet.md)",
+                )
+            ]
+        )
     sep, note = detect_delimiter(text, delimiter, path.name)
     if note:
         notes.append(note)
     try:
-        raw = pd.read_csv(io.StringIO(text), header=None, dtype=str, keep_default_na=False,
-                          na_filter=False, skip_blank_lines=False, engine="c", sep=sep)
+        raw = pd.read_csv(
+            io.StringIO(text),
+            header=None,
+            dtype=str,
+            keep_default_na=False,
+            na_filter=False,
+            skip_blank_lines=False,
+            engine="c",
+            sep=sep,
+        )
     except pd.errors.ParserError as exc:
         m = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", str(exc))
         if m:
-            raise InputFileError([Problem(
-                path.name, int(m.group(2)), None,
-                f"this row has {m.group(3)} cells but the header has {m.group(1)}; remove the "
-                "extra cells (or quote text that contains commas)")]) from None
-        raise InputFileError([Problem(path.name, None, None,
-                                      f"cannot read the file as CSV ({exc}); check quoting")]) \
-            from None
+            raise InputFileError(
+                [
+                    Problem(
+                        path.name,
+                        int(m.group(2)),
+                        None,
+                        f"this row has {m.group(3)} cells but the header has {m.group(1)}; "
+                        "remove the extra cells (or quote text that contains commas)",
+                    )
+                ]
+            ) from None
+        raise InputFileError(
+            [Problem(path.name, None, None, f"cannot read the file as CSV ({exc}); check quoting")]
+        ) from None
     header = raw.iloc[0].tolist()
     sheet = _frame_from_rows(path.name, header, raw.iloc[1:].reset_index(drop=True))
     sheet.notes.extend(notes)
@@ -212,17 +269,27 @@ def select_worksheet(wb, name: str | None, file: str) -> tuple[object, str | Non
     if name is not None:
         match = [n for n in names if n.strip().lower() == name.strip().lower()]
         if not match:
-            raise InputFileError([Problem(file, None, None,
-                                          f"no worksheet {name!r} in the workbook; its "
-                                          f"worksheets are: {', '.join(names)}")])
+            raise InputFileError(
+                [
+                    Problem(
+                        file,
+                        None,
+                        None,
+                        f"no worksheet {name!r} in the workbook; its "
+                        f"worksheets are: {', '.join(names)}",
+                    )
+                ]
+            )
         ws = wb[match[0]]
     else:
         ws = next((w for w in wb.worksheets if _looks_like_sheet(w)), wb.worksheets[0])
     if len(names) == 1:
         return ws, None
     others = ", ".join(repr(n) for n in names if n != ws.title)
-    return ws, (f"read worksheet {ws.title!r}; the workbook also has {others} "
-                "(choose one with --sheet NAME)")
+    return ws, (
+        f"read worksheet {ws.title!r}; the workbook also has {others} "
+        "(choose one with --sheet NAME)"
+    )
 
 
 def read_xlsx_sheet(path: Path, sheet: str | None = None) -> RawSheet:
@@ -233,9 +300,17 @@ def read_xlsx_sheet(path: Path, sheet: str | None = None) -> RawSheet:
     try:
         wb = load_workbook(path, read_only=True, data_only=False)
     except (InvalidFileException, zipfile.BadZipFile, OSError, KeyError, ValueError) as exc:
-        raise InputFileError([Problem(path.name, None, None,
-                                      f"cannot read the file as an Excel workbook ({exc}); save "
-                                      "it as .xlsx or as CSV")]) from None
+        raise InputFileError(
+            [
+                Problem(
+                    path.name,
+                    None,
+                    None,
+                    f"cannot read the file as an Excel workbook ({exc}); save "
+                    "it as .xlsx or as CSV",
+                )
+            ]
+        ) from None
     counter = RowCounter(path.name)
     try:
         ws, note = select_worksheet(wb, sheet, path.name)
@@ -243,14 +318,29 @@ def read_xlsx_sheet(path: Path, sheet: str | None = None) -> RawSheet:
     finally:
         wb.close()
     if formulas:
-        raise InputFileError([Problem(path.name, r, h or f"column {c}",
-                                      "the cell holds a formula; paste its value (Paste "
-                                      "Special > Values) and save again")
-                              for r, c, h in _formula_places(formulas, rows)])
+        raise InputFileError(
+            [
+                Problem(
+                    path.name,
+                    r,
+                    h or f"column {c}",
+                    "the cell holds a formula; paste its value (Paste "
+                    "Special > Values) and save again",
+                )
+                for r, c, h in _formula_places(formulas, rows)
+            ]
+        )
     if not rows:
-        raise InputFileError([Problem(path.name, None, None,
-                                      f"the worksheet {ws.title!r} is empty; it needs a header "
-                                      "row")])
+        raise InputFileError(
+            [
+                Problem(
+                    path.name,
+                    None,
+                    None,
+                    f"the worksheet {ws.title!r} is empty; it needs a header row",
+                )
+            ]
+        )
     width = max(len(r) for r in rows)
     rows = [r + [""] * (width - len(r)) for r in rows]
     body = pd.DataFrame(rows[1:], columns=range(width), dtype="str")
@@ -279,8 +369,9 @@ def _xlsx_rows(ws, counter: RowCounter) -> tuple[list[list[str]], list[tuple[int
 
 def _formula_places(formulas, rows) -> list[tuple[int, int, str]]:
     header = [re.sub(r"\s+", " ", h).strip().lower() for h in rows[0]] if rows else []
-    return [(r, c, header[c - 1] if c - 1 < len(header) and r > 1 else "")
-            for r, c in formulas[:50]]
+    return [
+        (r, c, header[c - 1] if c - 1 < len(header) and r > 1 else "") for r, c in formulas[:50]
+    ]
 
 
 def check_signature(path: Path, suffix: str) -> None:
@@ -288,34 +379,51 @@ def check_signature(path: Path, suffix: str) -> None:
     kind = sniff(path)
     expected = "csv" if suffix == ".csv" else "xlsx"
     if suffix == ".csv" and kind in KINDS:
-        raise InputFileError([Problem(path.name, None, None,
-                                      wrong_kind_message(path, kind, expected))])
+        raise InputFileError(
+            [Problem(path.name, None, None, wrong_kind_message(path, kind, expected))]
+        )
     if suffix == ".xlsx" and kind != "xlsx":
         if kind in KINDS:
             msg = wrong_kind_message(path, kind, expected)
         else:
-            msg = ("cannot read the file as an Excel workbook: it is not an .xlsx workbook (it "
-                   "looks like text, perhaps CSV); rename it to .csv and import it again")
+            msg = (
+                "cannot read the file as an Excel workbook: it is not an .xlsx workbook (it "
+                "looks like text, perhaps CSV); rename it to .csv and import it again"
+            )
         raise InputFileError([Problem(path.name, None, None, msg)])
 
 
 def require_data_rows(sheet: RawSheet) -> RawSheet:
     """Refuse a sheet with a header row and no data rows: there is nothing to import."""
     if len(sheet) == 0:
-        raise InputFileError([Problem(sheet.file, None, None,
-                                      "the file has a header row but no data rows; add one row "
-                                      "per estimate (see docs/extraction-sheet.md)")])
+        raise InputFileError(
+            [
+                Problem(
+                    sheet.file,
+                    None,
+                    None,
+                    "the file has a header row but no data rows; add one row "
+                    "per estimate (see docs/extraction-sheet.md)",
+                )
+            ]
+        )
     return sheet
 
 
-def read_sheet(path: str | Path, encoding: str | None = None, *, delimiter: str | None = None,
-               sheet: str | None = None) -> RawSheet:
+def read_sheet(
+    path: str | Path,
+    encoding: str | None = None,
+    *,
+    delimiter: str | None = None,
+    sheet: str | None = None,
+) -> RawSheet:
     """Read a ``.csv`` or ``.xlsx`` extraction sheet (``delimiter``: CSV only; ``sheet``: the
     worksheet of a workbook)."""
     path = Path(path)
     if not path.is_file():
-        raise InputFileError([Problem(path.name, None, None,
-                                      f"no such file: {path}; check the path")])
+        raise InputFileError(
+            [Problem(path.name, None, None, f"no such file: {path}; check the path")]
+        )
     suffix = path.suffix.lower()
     if suffix in SHEET_SUFFIXES:
         check_signature(path, suffix)
@@ -324,7 +432,11 @@ def read_sheet(path: str | Path, encoding: str | None = None, *, delimiter: str 
     if suffix == ".xlsx":
         return require_data_rows(read_xlsx_sheet(path, sheet))
     kind = sniff(path)
-    what = f"this file is {KINDS[kind][0]}; {KINDS[kind][1]}" if kind in KINDS else (
-        f"cannot import '{suffix or path.name}' files")
-    raise InputFileError([Problem(path.name, None, None,
-                                  f"{what}; use .csv, .xlsx or an exposhift .json export")])
+    what = (
+        f"this file is {KINDS[kind][0]}; {KINDS[kind][1]}"
+        if kind in KINDS
+        else (f"cannot import '{suffix or path.name}' files")
+    )
+    raise InputFileError(
+        [Problem(path.name, None, None, f"{what}; use .csv, .xlsx or an exposhift .json export")]
+    )

@@ -22,14 +22,23 @@ ODS_MIME = b"application/vnd.oasis.opendocument.spreadsheet"
 
 #: kind -> (what the file is, what to do)
 KINDS = {
-    "xlsx": ("an Excel workbook (.xlsx)", "rename it to .xlsx and import it again, or save it "
-             "from Excel as 'CSV UTF-8'"),
-    "ods": ("an OpenDocument spreadsheet (.ods)", "save it as .xlsx or as CSV (UTF-8) and "
-            "import that"),
-    "xls": ("an old-format Excel workbook (.xls)", "open it and save it as .xlsx or as CSV "
-            "(UTF-8), then import that"),
-    "pdf": ("a PDF document", "exposhift reads extraction sheets: copy the table into the "
-            "template (docs/example-sheet.csv) and save it as .csv or .xlsx"),
+    "xlsx": (
+        "an Excel workbook (.xlsx)",
+        "rename it to .xlsx and import it again, or save it from Excel as 'CSV UTF-8'",
+    ),
+    "ods": (
+        "an OpenDocument spreadsheet (.ods)",
+        "save it as .xlsx or as CSV (UTF-8) and import that",
+    ),
+    "xls": (
+        "an old-format Excel workbook (.xls)",
+        "open it and save it as .xlsx or as CSV (UTF-8), then import that",
+    ),
+    "pdf": (
+        "a PDF document",
+        "exposhift reads extraction sheets: copy the table into the "
+        "template (docs/example-sheet.csv) and save it as .csv or .xlsx",
+    ),
     "zip": ("a ZIP archive", "unpack it and import the sheet inside"),
 }
 
@@ -60,5 +69,7 @@ def wrong_kind_message(path: Path, kind: str, expected: str) -> str:
     """The message for a file whose signature is not the ``expected`` kind (csv or xlsx)."""
     what, todo = KINDS[kind]
     wanted = "a CSV text file" if expected == "csv" else "an .xlsx workbook"
-    return (f"this file is {what}, not {wanted}, although its name ends in "
-            f"{path.suffix or '(nothing)'}; {todo}")
+    return (
+        f"this file is {what}, not {wanted}, although its name ends in "
+        f"{path.suffix or '(nothing)'}; {todo}"
+    )

@@ -42,9 +42,25 @@ RENAME = {
     "event": {"event_id": "key"},
     "estimate": {"study_id": "study", "event_id": "event", "estimate": "point"},
 }
-ESTIMATE_SHEET = ("study_id", "event_id", "outcome", "measure", "estimate_kind", "per_unit",
-                  "estimate", "ci_low", "ci_high", "ci_level", "se", "p_value",
-                  "p_bound", "baseline_risk", "subgroup", "time_window", "primary")
+ESTIMATE_SHEET = (
+    "study_id",
+    "event_id",
+    "outcome",
+    "measure",
+    "estimate_kind",
+    "per_unit",
+    "estimate",
+    "ci_low",
+    "ci_high",
+    "ci_level",
+    "se",
+    "p_value",
+    "p_bound",
+    "baseline_risk",
+    "subgroup",
+    "time_window",
+    "primary",
+)
 UNCERTAINTY = ("ci_low", "ci_high", "se", "p_value")
 EVENTS_SHEET_COLUMNS = (*EVENT_COLUMNS, "demo")
 
@@ -85,15 +101,26 @@ def parse_cells(raw: pd.DataFrame, log: ProblemLog, *, verbatim: bool = False) -
     return pd.DataFrame(out, index=raw.index)
 
 
-def check_header(columns: list[str], allowed: tuple[str, ...], required: tuple[str, ...],
-                 log: ProblemLog, *, ignore_extra: bool, ignored: tuple[str, ...] = (),
-                 notes: list[str] | None = None) -> list[str]:
+def check_header(
+    columns: list[str],
+    allowed: tuple[str, ...],
+    required: tuple[str, ...],
+    log: ProblemLog,
+    *,
+    ignore_extra: bool,
+    ignored: tuple[str, ...] = (),
+    notes: list[str] | None = None,
+) -> list[str]:
     """Report missing required and unknown columns; returns the columns that were missing."""
     missing = [c for c in required if c not in columns]
     if len(missing) > 2:  # one mistake (wrong sheet, delimiter or file), one problem
-        log.add(1, None, f"{len(missing)} required columns are missing: {', '.join(missing)}; "
-                "is this the extraction sheet? Its columns are listed in "
-                "docs/extraction-sheet.md (template: docs/example-sheet.csv)")
+        log.add(
+            1,
+            None,
+            f"{len(missing)} required columns are missing: {', '.join(missing)}; "
+            "is this the extraction sheet? Its columns are listed in "
+            "docs/extraction-sheet.md (template: docs/example-sheet.csv)",
+        )
     for c in missing if len(missing) <= 2 else []:
         log.add(1, c, f"required column '{c}' is missing; add it ({BY_NAME[c].help})")
     unknown = [c for c in columns if c not in allowed and c not in ignored]
@@ -101,8 +128,12 @@ def check_header(columns: list[str], allowed: tuple[str, ...], required: tuple[s
         for c in unknown:
             close = difflib.get_close_matches(c, COLUMN_NAMES, n=1)
             hint = f"did you mean '{close[0]}'? " if close else ""
-            log.add(1, c, f"unknown column; {hint}rename or delete it, or import with "
-                    "--ignore-extra-columns to skip columns exposhift does not use")
+            log.add(
+                1,
+                c,
+                f"unknown column; {hint}rename or delete it, or import with "
+                "--ignore-extra-columns to skip columns exposhift does not use",
+            )
     if notes is not None:
         skipped = [c for c in columns if c in ignored or (ignore_extra and c in unknown)]
         if skipped:
@@ -127,8 +158,9 @@ def unreadable_cells(raw: pd.DataFrame, typed: pd.DataFrame) -> dict[str, np.nda
     return out
 
 
-def with_blank_required(bad: dict[str, np.ndarray], raw: pd.DataFrame,
-                        required: tuple[str, ...]) -> dict[str, np.ndarray]:
+def with_blank_required(
+    bad: dict[str, np.ndarray], raw: pd.DataFrame, required: tuple[str, ...]
+) -> dict[str, np.ndarray]:
     """``bad`` plus the blank cells of required columns: both are reported already, so the
     consistency checks leave them out (a missing citation is one problem, not two)."""
     out = dict(bad)
@@ -160,17 +192,26 @@ def _outcomes(est: pd.DataFrame, log: ProblemLog) -> pd.DataFrame:
     grouped = est[["outcome", "outcome_group"]].copy()
     pos = np.arange(len(grouped), dtype=float)
     with_group = grouped["outcome_group"].notna().to_numpy()
-    first = pd.Series(np.where(with_group, pos, np.inf)).groupby(
-        grouped["outcome"].to_numpy(), sort=False).transform("min").to_numpy()
+    first = (
+        pd.Series(np.where(with_group, pos, np.inf))
+        .groupby(grouped["outcome"].to_numpy(), sort=False)
+        .transform("min")
+        .to_numpy()
+    )
     ok = np.isfinite(first)
     ref = np.full(len(grouped), None, dtype=object)
     ref[ok] = grouped["outcome_group"].to_numpy()[first[ok].astype(int)]
     own = grouped["outcome_group"].to_numpy(dtype=object)
     bad = with_group & ok & (own != ref)
     names = grouped["outcome"].to_numpy()
-    log.flag(bad, "outcome_group", lambda i: (
-        f"outcome {quote(names[i])} has outcome_group {quote(own[i])} here but "
-        f"{quote(ref[i])} in row {log.rows[int(first[i])]}; give each outcome one group"))
+    log.flag(
+        bad,
+        "outcome_group",
+        lambda i: (
+            f"outcome {quote(names[i])} has outcome_group {quote(own[i])} here but "
+            f"{quote(ref[i])} in row {log.rows[int(first[i])]}; give each outcome one group"
+        ),
+    )
     out = pd.DataFrame({"name": names, "outcome_group": ref})
     out = out[out["name"].notna()].drop_duplicates("name")
     return coerce(out.reset_index(drop=True), {"name": "text", "outcome_group": "text"})
@@ -181,14 +222,20 @@ def _check_duplicates(keys: pd.Series, log: ProblemLog) -> None:
     first = pos.groupby(keys.to_numpy(), sort=False).transform("min")
     first = first.fillna(pos).astype(np.int64).to_numpy()
     dup = first != np.arange(len(keys))
-    log.flag(dup, None, lambda i: (
-        f"duplicate estimate: same study_id, event_id, outcome, measure, estimate_kind, "
-        f"subgroup and time_window as row {log.rows[first[i]]}; delete one, or tell them "
-        "apart with subgroup or time_window"))
+    log.flag(
+        dup,
+        None,
+        lambda i: (
+            f"duplicate estimate: same study_id, event_id, outcome, measure, estimate_kind, "
+            f"subgroup and time_window as row {log.rows[first[i]]}; delete one, or tell them "
+            "apart with subgroup or time_window"
+        ),
+    )
 
 
-def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False,
-                   study_events: overlap.StudyEvents | None = None) -> EvidenceFrames:
+def validate_sheet(
+    sheet: RawSheet, *, ignore_extra: bool = False, study_events: overlap.StudyEvents | None = None
+) -> EvidenceFrames:
     """Validate a full extraction sheet (one row per estimate).
 
     ``study_events`` looks up studies of the evidence base that ``same_population_as`` names
@@ -198,8 +245,9 @@ def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False,
     notes: list[str] = []
     raw = sheet.frame
     required = tuple(c.name for c in BY_NAME.values() if c.required)
-    missing = check_header(list(raw.columns), COLUMN_NAMES, required, log,
-                           ignore_extra=ignore_extra, notes=notes)
+    missing = check_header(
+        list(raw.columns), COLUMN_NAMES, required, log, ignore_extra=ignore_extra, notes=notes
+    )
     if len(missing) > 2:  # not an extraction sheet: the row checks would only repeat that
         log.raise_if_any()
     raw = raw[[c for c in raw.columns if c in BY_NAME]]
@@ -213,10 +261,12 @@ def validate_sheet(sheet: RawSheet, *, ignore_extra: bool = False,
     rules.check_ranges(typed, log)
     bad = with_blank_required(unreadable_cells(raw, typed), raw, required)
     rules.check_estimates(typed, log, _any_unreadable(bad, UNCERTAINTY, len(typed)))
-    study_rows = rules.check_consistent(typed, "study_id", list(STUDY_COLUMNS[1:]), log, "study",
-                                        bad)
-    event_rows = rules.check_consistent(typed, "event_id", list(EVENT_COLUMNS[1:]), log, "event",
-                                        bad)
+    study_rows = rules.check_consistent(
+        typed, "study_id", list(STUDY_COLUMNS[1:]), log, "study", bad
+    )
+    event_rows = rules.check_consistent(
+        typed, "event_id", list(EVENT_COLUMNS[1:]), log, "event", bad
+    )
     est = _entity(typed, ESTIMATE_SHEET, "estimate")
     if "estimate_kind" not in est.columns:
         est["estimate_kind"] = pd.Series("change", index=est.index, dtype="str")
@@ -263,8 +313,15 @@ def validate_events_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> Evi
     raw = sheet.frame
     required = tuple(c for c in EVENT_COLUMNS if BY_NAME[c].required)
     others = tuple(c for c in COLUMN_NAMES if c not in EVENTS_SHEET_COLUMNS)
-    missing = check_header(list(raw.columns), EVENTS_SHEET_COLUMNS, required, log,
-                           ignore_extra=ignore_extra, ignored=others, notes=notes)
+    missing = check_header(
+        list(raw.columns),
+        EVENTS_SHEET_COLUMNS,
+        required,
+        log,
+        ignore_extra=ignore_extra,
+        ignored=others,
+        notes=notes,
+    )
     if len(missing) > 2:  # not an events sheet: the row checks would only repeat that
         log.raise_if_any()
     raw = raw[[c for c in raw.columns if c in EVENTS_SHEET_COLUMNS]]
@@ -274,8 +331,11 @@ def validate_events_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> Evi
     rules.check_ranges(typed, log)
     fields = [*EVENT_COLUMNS[1:], "demo"]
     skip = with_blank_required(unreadable_cells(raw, typed), raw, required)
-    event_rows = (rules.check_consistent(typed, "event_id", fields, log, "event", skip)
-                  if "event_id" in typed.columns else np.array([], dtype=int))
+    event_rows = (
+        rules.check_consistent(typed, "event_id", fields, log, "event", skip)
+        if "event_id" in typed.columns
+        else np.array([], dtype=int)
+    )
     log.raise_if_any()
     events = _entity(typed.iloc[event_rows], (*EVENT_COLUMNS, "date_precision", "demo"), "event")
     exposures = pd.DataFrame({"name": events["exposure"].drop_duplicates().to_numpy()})
@@ -289,7 +349,23 @@ def validate_events_sheet(sheet: RawSheet, *, ignore_extra: bool = False) -> Evi
 
 
 _BLANK_DTYPE = {"text": "str", "code": "str", "date": "str", "int": "Int64", "float": "float64"}
-_ESTIMATE_ORDER = ("key", "study", "event", "outcome", "measure", "estimate_kind", "per_unit",
-                   "point", "ci_low", "ci_high", "ci_level", "se", "p_value", "p_bound",
-                   "baseline_risk",
-                   "subgroup", "time_window", "primary")
+_ESTIMATE_ORDER = (
+    "key",
+    "study",
+    "event",
+    "outcome",
+    "measure",
+    "estimate_kind",
+    "per_unit",
+    "point",
+    "ci_low",
+    "ci_high",
+    "ci_level",
+    "se",
+    "p_value",
+    "p_bound",
+    "baseline_risk",
+    "subgroup",
+    "time_window",
+    "primary",
+)

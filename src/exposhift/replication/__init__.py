@@ -17,7 +17,16 @@ from exposhift.replication.settings import DEFAULTS, ReplicationSettings, load_s
 from exposhift.replication.status import STATUSES, analyse, replication_statuses
 
 __all__ = [
-    "DEFAULTS", "GAP_STATES", "STATUSES", "ReplicationReport", "ReplicationSettings", "analyse",
-    "filter_frame", "gap_map", "load_settings", "opportunities", "replication_report",
+    "DEFAULTS",
+    "GAP_STATES",
+    "STATUSES",
+    "ReplicationReport",
+    "ReplicationSettings",
+    "analyse",
+    "filter_frame",
+    "gap_map",
+    "load_settings",
+    "opportunities",
+    "replication_report",
     "replication_statuses",
 ]

@@ -55,7 +55,8 @@ class DoseResponse:
 
 
 def dose_response(
-    units: pd.DataFrame, main: dict[str, str] | None,
+    units: pd.DataFrame,
+    main: dict[str, str] | None,
     settings: ReplicationSettings = DEFAULTS,
 ) -> DoseResponse:
     """Dose-response meta-regression for ONE exposure × outcome.
@@ -66,10 +67,15 @@ def dose_response(
     """
     need = settings.dose_min_events
     if main is None:
-        return DoseResponse(False, f"not run: no estimate at level ≥ {settings.min_level} with "
-                                   "a variance to regress")
-    u = units[units["good"].to_numpy(bool) & np.isfinite(units["y"].to_numpy(float))
-              & (units["v"].to_numpy(float) > 0)]
+        return DoseResponse(
+            False,
+            f"not run: no estimate at level ≥ {settings.min_level} with a variance to regress",
+        )
+    u = units[
+        units["good"].to_numpy(bool)
+        & np.isfinite(units["y"].to_numpy(float))
+        & (units["v"].to_numpy(float) > 0)
+    ]
     for col in STRATA:
         u = u[u[col].fillna("").astype(str) == str(main[col])]
     size = pd.to_numeric(u.get("change_size"), errors="coerce") if "change_size" in u else None
@@ -78,8 +84,11 @@ def dose_response(
     u = u.assign(_size=size.abs()).dropna(subset=["_size"])
     u = u.sort_values(["event_id", "level", "v"], ascending=[True, False, True], kind="stable")
     u = u.drop_duplicates("event_id", keep="first")
-    units_col = (u["change_unit"].fillna("").astype(str) if "change_unit" in u
-                 else pd.Series("", index=u.index))
+    units_col = (
+        u["change_unit"].fillna("").astype(str)
+        if "change_unit" in u
+        else pd.Series("", index=u.index)
+    )
     note = ""
     if units_col.nunique() > 1:
         counts = units_col.value_counts()
@@ -92,19 +101,33 @@ def dose_response(
     k = len(u)
     ids = tuple(u["event_id"].astype(str))
     if k < need:
-        return DoseResponse(False, f"not run: {k} independent event(s) at level ≥ "
-                                   f"{settings.min_level} report the size of the change in the "
-                                   f"main stratum; needs ≥ {need}{note}", k=k, unit=unit,
-                            events=ids)
+        return DoseResponse(
+            False,
+            f"not run: {k} independent event(s) at level ≥ "
+            f"{settings.min_level} report the size of the change in the "
+            f"main stratum; needs ≥ {need}{note}",
+            k=k,
+            unit=unit,
+            events=ids,
+        )
     if u["_size"].nunique() < 2:
-        return DoseResponse(False, "not run: every event reports the same size of change, so "
-                                   f"there is no variation to regress on{note}", k=k, unit=unit,
-                            events=ids)
+        return DoseResponse(
+            False,
+            "not run: every event reports the same size of change, so "
+            f"there is no variation to regress on{note}",
+            k=k,
+            unit=unit,
+            events=ids,
+        )
     try:
-        res = meta_regression(u["y"].to_numpy(float), u["v"].to_numpy(float),
-                              pd.DataFrame({"change_size": u["_size"].to_numpy(float)}),
-                              method=settings.pool_method, knapp_hartung=True,
-                              alpha=settings.alpha)
+        res = meta_regression(
+            u["y"].to_numpy(float),
+            u["v"].to_numpy(float),
+            pd.DataFrame({"change_size": u["_size"].to_numpy(float)}),
+            method=settings.pool_method,
+            knapp_hartung=True,
+            alpha=settings.alpha,
+        )
     except AnalysisError as exc:
         return DoseResponse(False, f"not run: {exc}", k=k, unit=unit, events=ids)
     row = res.coefficients.set_index("term")
@@ -115,19 +138,31 @@ def dose_response(
     if GROUP_SCALES.get(group) == "log":
         # a slope on the log scale is a ratio of ratios per unit of change
         f = np.exp([b["estimate"], b["ci_lower"], b["ci_upper"]])
-        interp = (f"each additional {unit or 'unit'} of change multiplies the ratio for an "
-                  f"exposure increase by {f[0]:.3g} ({level} {f[1]:.3g} to {f[2]:.3g}, {kh})"
-                  f"{note}")
+        interp = (
+            f"each additional {unit or 'unit'} of change multiplies the ratio for an "
+            f"exposure increase by {f[0]:.3g} ({level} {f[1]:.3g} to {f[2]:.3g}, {kh})"
+            f"{note}"
+        )
     else:
         verb = "raises" if b["estimate"] > 0 else "lowers"
-        interp = (f"each additional {unit or 'unit'} of change {verb} the difference for an "
-                  f"exposure increase by {abs(b['estimate']):.3g} ({level} "
-                  f"{b['ci_lower']:.3g} to {b['ci_upper']:.3g}, {kh}){note}")
+        interp = (
+            f"each additional {unit or 'unit'} of change {verb} the difference for an "
+            f"exposure increase by {abs(b['estimate']):.3g} ({level} "
+            f"{b['ci_lower']:.3g} to {b['ci_upper']:.3g}, {kh}){note}"
+        )
     return DoseResponse(
-        True, f"run on {k} independent events with a reported size of change{note}", k=k,
-        unit=unit, events=ids, intercept=float(row.loc["intercept", "estimate"]),
-        slope=float(b["estimate"]), slope_se=float(b["se"]),
-        slope_ci_lower=float(b["ci_lower"]), slope_ci_upper=float(b["ci_upper"]),
-        slope_pvalue=float(b["pvalue"]), tau2=float(res.tau2), r2=float(res.r2),
+        True,
+        f"run on {k} independent events with a reported size of change{note}",
+        k=k,
+        unit=unit,
+        events=ids,
+        intercept=float(row.loc["intercept", "estimate"]),
+        slope=float(b["estimate"]),
+        slope_se=float(b["se"]),
+        slope_ci_lower=float(b["ci_lower"]),
+        slope_ci_upper=float(b["ci_upper"]),
+        slope_pvalue=float(b["pvalue"]),
+        tau2=float(res.tau2),
+        r2=float(res.r2),
         interpretation=interp,
     )

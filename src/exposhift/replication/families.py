@@ -45,8 +45,17 @@ DEFAULT_BY: tuple[str, ...] = ("exposure", "outcome")
 
 #: columns the replication modules read from the harmonised, independent frame
 REQUIRED: tuple[str, ...] = (
-    "event_id", "exposure", "outcome", "country", "change_date", "change_direction",
-    "design_family", "level", "y", "v", "study_id",
+    "event_id",
+    "exposure",
+    "outcome",
+    "country",
+    "change_date",
+    "change_direction",
+    "design_family",
+    "level",
+    "y",
+    "v",
+    "study_id",
 )
 #: order in which an event's units are preferred as its representative
 KIND_ORDER: dict[str, int] = {"change": 0, "level": 1, "per-unit": 2, "slope": 3}
@@ -63,7 +72,8 @@ def check_columns(frame: pd.DataFrame, by: Sequence[str] = DEFAULT_BY) -> None:
 
 
 def prepare_units(
-    frame: pd.DataFrame, settings: ReplicationSettings = DEFAULTS,
+    frame: pd.DataFrame,
+    settings: ReplicationSettings = DEFAULTS,
     by: Sequence[str] = DEFAULT_BY,
 ) -> pd.DataFrame:
     """The independent units with the columns the replication rules use.
@@ -77,8 +87,7 @@ def prepare_units(
     check_columns(frame, by)
     out = frame.copy()
     if "change_year" not in out.columns:
-        out["change_year"] = pd.to_numeric(out["change_date"].astype(str).str[:4],
-                                           errors="coerce")
+        out["change_year"] = pd.to_numeric(out["change_date"].astype(str).str[:4], errors="coerce")
     if "estimate_kind" not in out.columns:
         out["estimate_kind"] = "change"
     out["estimate_kind"] = out["estimate_kind"].fillna("change").replace("", "change")
@@ -112,7 +121,8 @@ def month_interval(dates: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     text = dates.astype(str).str.strip()
     year = pd.to_numeric(text.str[:4], errors="coerce").to_numpy(dtype=float)
     month = pd.to_numeric(text.str[5:7].where(text.str.len() >= 7), errors="coerce").to_numpy(
-        dtype=float)
+        dtype=float
+    )
     first = year * 12 + np.where(np.isnan(month), 0.0, month - 1)
     last = year * 12 + np.where(np.isnan(month), 11.0, month - 1)
     return first, last
@@ -121,8 +131,9 @@ def month_interval(dates: pd.Series) -> tuple[np.ndarray, np.ndarray]:
 STRATUM: tuple[str, ...] = ("measure_group", "estimate_kind", "increment")
 
 
-def event_table(units: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
-                settings: ReplicationSettings = DEFAULTS) -> pd.DataFrame:
+def event_table(
+    units: pd.DataFrame, by: Sequence[str] = DEFAULT_BY, settings: ReplicationSettings = DEFAULTS
+) -> pd.DataFrame:
     """One row per key × event: the event-level estimate (see the module docstring).
 
     Adds ``n_units`` (independent units of the event for this key), ``k_combined`` (units
@@ -133,13 +144,18 @@ def event_table(units: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
     keys = [*list(by), "event_id"]
     pick = rep[[*keys, *STRATUM, "good"]].rename(columns={"good": "_rep_good"})
     cand = units.merge(pick, on=[*keys, *STRATUM], how="inner")
-    cand = cand[(cand["good"] | ~cand["_rep_good"]) & np.isfinite(cand["y"])
-                & np.isfinite(cand["v"]) & (cand["v"] > 0)]
+    cand = cand[
+        (cand["good"] | ~cand["_rep_good"])
+        & np.isfinite(cand["y"])
+        & np.isfinite(cand["v"])
+        & (cand["v"] > 0)
+    ]
     if cand.empty:
         return rep.assign(k_combined=np.where(np.isfinite(rep["y"]), 1, 0))
     comb = aggregate_within_event(cand, [*list(by), *STRATUM], rho=settings.within_event_rho)
     comb = comb[[*keys, "y", "v", "k_units"]].rename(
-        columns={"y": "_y", "v": "_v", "k_units": "k_combined"})
+        columns={"y": "_y", "v": "_v", "k_units": "k_combined"}
+    )
     out = rep.merge(comb, on=keys, how="left")
     has = out["_y"].notna().to_numpy()
     y = np.where(has, out["_y"].to_numpy(dtype=float), out["y"].to_numpy(dtype=float))
@@ -149,8 +165,9 @@ def event_table(units: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
     return _with_z(out, y, v, settings)
 
 
-def _with_z(out: pd.DataFrame, y: np.ndarray, v: np.ndarray,
-            settings: ReplicationSettings) -> pd.DataFrame:
+def _with_z(
+    out: pd.DataFrame, y: np.ndarray, v: np.ndarray, settings: ReplicationSettings
+) -> pd.DataFrame:
     with np.errstate(invalid="ignore"):
         se = np.where(v > 0, np.sqrt(np.where(v > 0, v, 1.0)), np.nan)
         z = y / se
@@ -166,17 +183,23 @@ def _representatives(units: pd.DataFrame, by: Sequence[str]) -> pd.DataFrame:
     by = list(by)
     keys = [*by, "event_id"]
     order = units.assign(
-        _lvl=units["level"].fillna(-1.0), _v=units["v"].fillna(np.inf),
+        _lvl=units["level"].fillna(-1.0),
+        _v=units["v"].fillna(np.inf),
         _has_y=np.isfinite(units["y"].to_numpy(dtype=float)),
-    ).sort_values([*keys, "_has_y", "_lvl", "kind_rank", "_v"],
-                  ascending=[True] * len(keys) + [False, False, True, True], kind="stable")
+    ).sort_values(
+        [*keys, "_has_y", "_lvl", "kind_rank", "_v"],
+        ascending=[True] * len(keys) + [False, False, True, True],
+        kind="stable",
+    )
     n_units = order.groupby(keys, sort=False, observed=True)["event_id"].transform("size")
     rep = order.assign(n_units=n_units.to_numpy()).drop_duplicates(keys, keep="first")
     return rep.drop(columns=["_lvl", "_v", "_has_y"]).reset_index(drop=True)
 
 
 def expected_sign(
-    events: pd.DataFrame, by: Sequence[str] = DEFAULT_BY, settings: ReplicationSettings = DEFAULTS,
+    events: pd.DataFrame,
+    by: Sequence[str] = DEFAULT_BY,
+    settings: ReplicationSettings = DEFAULTS,
     directions: pd.DataFrame | None = None,
 ) -> pd.DataFrame:
     """Expected direction per key: +1 (exposure increase raises the outcome), −1, or 0.
@@ -214,18 +237,20 @@ def expected_sign(
         agg["expected_source"] = "inferred"
     if directions is not None and len(directions) and {"exposure", "outcome"} <= set(by):
         d = directions[["exposure", "outcome", "direction"]].drop_duplicates(
-            ["exposure", "outcome"])
+            ["exposure", "outcome"]
+        )
         m = agg[["exposure", "outcome"]].merge(d, on=["exposure", "outcome"], how="left")
         pre = m["direction"].isin(["raises", "lowers"]).to_numpy()
-        agg.loc[pre, "expected"] = np.where(m["direction"][pre] == "raises", 1, -1).astype(
-            np.int8)
+        agg.loc[pre, "expected"] = np.where(m["direction"][pre] == "raises", 1, -1).astype(np.int8)
         agg.loc[pre, "expected_source"] = "pre-specified"
     agg["expected"] = agg["expected"].astype(np.int8)
     return agg[[*by, "expected", "expected_source", "stouffer_z"]]
 
 
 def mark_concordance(
-    events: pd.DataFrame, expected: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
+    events: pd.DataFrame,
+    expected: pd.DataFrame,
+    by: Sequence[str] = DEFAULT_BY,
     settings: ReplicationSettings = DEFAULTS,
 ) -> pd.DataFrame:
     """Add ``expected`` and ``concordant`` (the estimate points in the expected direction) to an
@@ -258,7 +283,11 @@ def independent_units(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
 
 
 def grouped_join(
-    frame: pd.DataFrame, by: Sequence[str], col: str, sep: str = ", ", limit: int | None = None,
+    frame: pd.DataFrame,
+    by: Sequence[str],
+    col: str,
+    sep: str = ", ",
+    limit: int | None = None,
 ) -> pd.DataFrame:
     """Per group of ``by``, the values of ``col`` in row order joined with ``sep`` (the first
     ``limit`` only), without a Python call per group. Returns ``by`` + ``col``, one row per

@@ -50,23 +50,41 @@ GAP_STATES: dict[str, str] = {
     "weak-only": "all evidence weak or not yet appraised",
     "single-event": "good evidence from one event only",
     "conflicting": "good events or design families disagree, or the effect replicates "
-                   "against the expected direction",
+    "against the expected direction",
     "not-replicated": "two or more good events, but no replication rule is met",
     "replicated-in-part": "replicated in place or in time, not yet in every dimension",
     "replicated": "replicated in place, in time and across design families",
 }
 #: the gap state that explains each status
 STATE_OF_STATUS: dict[str, str] = {
-    "none": "no-study", "weak-only": "weak-only", "single-event": "single-event",
-    "discordant": "conflicting", "replicated-against": "conflicting",
-    "not-replicated": "not-replicated", "replicated-place": "replicated-in-part",
-    "replicated-time": "replicated-in-part", "convergent": "replicated",
+    "none": "no-study",
+    "weak-only": "weak-only",
+    "single-event": "single-event",
+    "discordant": "conflicting",
+    "replicated-against": "conflicting",
+    "not-replicated": "not-replicated",
+    "replicated-place": "replicated-in-part",
+    "replicated-time": "replicated-in-part",
+    "convergent": "replicated",
 }
 UNSPECIFIED_GROUP = "(no outcome group)"
 CELL_COLUMNS: tuple[str, ...] = (
-    "exposure", "outcome_group", "events", "studies", "best_level", "status", "state",
-    "status_outcome", "outcomes", "good_events", "newest_year", "not_yet",
-    "ready_for_synthesis", "provisional", "unevaluated_events", "state_rule",
+    "exposure",
+    "outcome_group",
+    "events",
+    "studies",
+    "best_level",
+    "status",
+    "state",
+    "status_outcome",
+    "outcomes",
+    "good_events",
+    "newest_year",
+    "not_yet",
+    "ready_for_synthesis",
+    "provisional",
+    "unevaluated_events",
+    "state_rule",
 )
 
 
@@ -89,9 +107,13 @@ def region_countries(names: Iterable[str], settings: ReplicationSettings = DEFAU
 
 
 def filter_frame(
-    frame: pd.DataFrame, *, design_families: Sequence[str] | None = None,
-    countries: Iterable[str] | None = None, year_from: int | None = None,
-    year_to: int | None = None, min_level: int | None = None,
+    frame: pd.DataFrame,
+    *,
+    design_families: Sequence[str] | None = None,
+    countries: Iterable[str] | None = None,
+    year_from: int | None = None,
+    year_to: int | None = None,
+    min_level: int | None = None,
 ) -> pd.DataFrame:
     """Rows of an analysis frame within the filters (design family, country, change-year range,
     minimum appraisal level; unappraised rows fail a level filter)."""
@@ -102,9 +124,9 @@ def filter_frame(
         keep &= frame["country"].isin({c.upper() for c in countries}).to_numpy()
     year = _change_year(frame)
     if year_from is not None:
-        keep &= (year >= year_from)
+        keep &= year >= year_from
     if year_to is not None:
-        keep &= (year <= year_to)
+        keep &= year <= year_to
     if min_level is not None:
         keep &= (pd.to_numeric(frame["level"], errors="coerce") >= min_level).to_numpy()
     return frame.loc[keep]
@@ -113,8 +135,9 @@ def filter_frame(
 def _change_year(frame: pd.DataFrame) -> np.ndarray:
     if "change_year" in frame.columns:
         return pd.to_numeric(frame["change_year"], errors="coerce").to_numpy(dtype=float)
-    return pd.to_numeric(frame["change_date"].astype(str).str[:4],
-                         errors="coerce").to_numpy(dtype=float)
+    return pd.to_numeric(frame["change_date"].astype(str).str[:4], errors="coerce").to_numpy(
+        dtype=float
+    )
 
 
 # --------------------------------------------------------------------------------------------
@@ -127,9 +150,13 @@ def _nunique(frame: pd.DataFrame, keys: list[str], col: str, name: str) -> pd.Da
 
 
 def gap_map(
-    units: pd.DataFrame, *, settings: ReplicationSettings = DEFAULTS,
-    stale_after: int | None = None, all_estimates: pd.DataFrame | None = None,
-    registry: pd.DataFrame | None = None, analysis: Analysis | None = None,
+    units: pd.DataFrame,
+    *,
+    settings: ReplicationSettings = DEFAULTS,
+    stale_after: int | None = None,
+    all_estimates: pd.DataFrame | None = None,
+    registry: pd.DataFrame | None = None,
+    analysis: Analysis | None = None,
     directions: pd.DataFrame | None = None,
 ) -> pd.DataFrame:
     """The gap map: one row per exposure × outcome group (columns :data:`CELL_COLUMNS`).
@@ -141,37 +168,49 @@ def gap_map(
     counted per exposure. ``analysis``: a ready :func:`analyse` result of ``units``.
     """
     units = _with_group(units)
-    a = analysis if analysis is not None else analyse(units, ("exposure", "outcome"), settings,
-                                                      directions)
+    a = (
+        analysis
+        if analysis is not None
+        else analyse(units, ("exposure", "outcome"), settings, directions)
+    )
     st = a.statuses.merge(
         units[["exposure", "outcome", "outcome_group"]].drop_duplicates(["exposure", "outcome"]),
-        on=["exposure", "outcome"], how="left",
+        on=["exposure", "outcome"],
+        how="left",
     )
     cell = ["exposure", "outcome_group"]
     st = st.assign(_rank=st["status"].map(STATUS_RANK))
-    best = st.sort_values([*cell, "_rank", "n_good", "outcome"],
-                          ascending=[True, True, True, False, True], kind="stable")
+    best = st.sort_values(
+        [*cell, "_rank", "n_good", "outcome"],
+        ascending=[True, True, True, False, True],
+        kind="stable",
+    )
     best = best.drop_duplicates(cell, keep="first")
     not_yet = np.where(~best["replicated_place"], "place", "")
     for flag, word in (("replicated_time", "time"), ("triangulated", "designs")):
-        not_yet = np.where(~best[flag], np.where(not_yet == "", word, not_yet + ", " + word),
-                           not_yet)
+        not_yet = np.where(
+            ~best[flag], np.where(not_yet == "", word, not_yet + ", " + word), not_yet
+        )
     best = best.assign(not_yet=np.where(best["n_good"] > 0, not_yet, ""))
     best = best[[*cell, "status", "outcome", "not_yet", "provisional"]].rename(
-        columns={"outcome": "status_outcome"})
+        columns={"outcome": "status_outcome"}
+    )
     per_outcome = st.groupby(cell, sort=False, observed=True).agg(
-        outcomes=("outcome", "size"), good_events=("n_good", "max"))
+        outcomes=("outcome", "size"), good_events=("n_good", "max")
+    )
 
     studies_src = _with_group(all_estimates) if all_estimates is not None else units
     cells = _nunique(units, cell, "event_id", "events").merge(
-        _nunique(studies_src, cell, "study_id", "studies"), on=cell, how="outer")
-    lv = units.assign(_lvl=pd.to_numeric(units["level"], errors="coerce"),
-                      _yr=_change_year(units))
-    extra = lv.groupby(cell, sort=False, observed=True).agg(best_level=("_lvl", "max"),
-                                                            newest_year=("_yr", "max"))
+        _nunique(studies_src, cell, "study_id", "studies"), on=cell, how="outer"
+    )
+    lv = units.assign(_lvl=pd.to_numeric(units["level"], errors="coerce"), _yr=_change_year(units))
+    extra = lv.groupby(cell, sort=False, observed=True).agg(
+        best_level=("_lvl", "max"), newest_year=("_yr", "max")
+    )
     cells = cells.merge(extra.reset_index(), on=cell, how="left")
     cells = cells.merge(per_outcome.reset_index(), on=cell, how="left").merge(
-        best, on=cell, how="left")
+        best, on=cell, how="left"
+    )
 
     grid = _grid(units, registry)
     out = grid.merge(cells, on=cell, how="left")
@@ -182,8 +221,9 @@ def gap_map(
     out["not_yet"] = out["not_yet"].fillna("")
     out["provisional"] = out["provisional"].fillna(False).astype(bool)
     out["ready_for_synthesis"] = out["good_events"] >= settings.ready_min_events
-    out["unevaluated_events"] = out["exposure"].map(_unevaluated_counts(registry)).fillna(0) \
-        .astype(np.int64)
+    out["unevaluated_events"] = (
+        out["exposure"].map(_unevaluated_counts(registry)).fillna(0).astype(np.int64)
+    )
     out["state"], out["state_rule"] = _states(out, settings, stale_after)
     return out[list(CELL_COLUMNS)].sort_values(cell, kind="stable").reset_index(drop=True)
 
@@ -193,8 +233,7 @@ def _with_group(frame: pd.DataFrame) -> pd.DataFrame:
         grp = frame["outcome_group"]
         if not (grp.isna() | (grp == "")).any():
             return frame
-        return frame.assign(outcome_group=grp.where(grp.notna() & (grp != ""),
-                                                    UNSPECIFIED_GROUP))
+        return frame.assign(outcome_group=grp.where(grp.notna() & (grp != ""), UNSPECIFIED_GROUP))
     return frame.assign(outcome_group=UNSPECIFIED_GROUP)
 
 
@@ -205,8 +244,9 @@ def _grid(units: pd.DataFrame, registry: pd.DataFrame | None) -> pd.DataFrame:
     groups = sorted(set(units["outcome_group"].dropna().unique().tolist()))
     if not groups:
         groups = [UNSPECIFIED_GROUP]
-    idx = pd.MultiIndex.from_product([sorted(exposures), groups],
-                                     names=["exposure", "outcome_group"])
+    idx = pd.MultiIndex.from_product(
+        [sorted(exposures), groups], names=["exposure", "outcome_group"]
+    )
     return idx.to_frame(index=False)
 
 
@@ -216,19 +256,29 @@ def _unevaluated_counts(registry: pd.DataFrame | None) -> pd.Series:
     return registry.loc[registry["studies"] == 0].groupby("exposure").size()
 
 
-def _states(out: pd.DataFrame, s: ReplicationSettings,
-            stale_after: int | None) -> tuple[np.ndarray, list[str]]:
+def _states(
+    out: pd.DataFrame, s: ReplicationSettings, stale_after: int | None
+) -> tuple[np.ndarray, list[str]]:
     events = out["events"].to_numpy()
     newest = out["newest_year"].to_numpy(dtype=float)
-    stale = (np.zeros(len(out), dtype=bool) if stale_after is None
-             else np.nan_to_num(newest, nan=-np.inf) <= stale_after)
+    stale = (
+        np.zeros(len(out), dtype=bool)
+        if stale_after is None
+        else np.nan_to_num(newest, nan=-np.inf) <= stale_after
+    )
     state = out["status"].map(STATE_OF_STATUS).fillna("no-study").to_numpy(dtype=object)
     state = np.where((events > 0) & stale, "stale", state).astype(object)
     rules = []
     for st, status, outcome, good, ready, yr, not_yet in zip(
-            state.tolist(), out["status"].tolist(), out["status_outcome"].tolist(),
-            out["good_events"].tolist(), out["ready_for_synthesis"].tolist(), newest.tolist(),
-            out["not_yet"].tolist(), strict=True):
+        state.tolist(),
+        out["status"].tolist(),
+        out["status_outcome"].tolist(),
+        out["good_events"].tolist(),
+        out["ready_for_synthesis"].tolist(),
+        newest.tolist(),
+        out["not_yet"].tolist(),
+        strict=True,
+    ):
         if st == "stale":
             rules.append(f"newest evaluated change in {int(yr)}, not after {stale_after}")
             continue
@@ -238,9 +288,11 @@ def _states(out: pd.DataFrame, s: ReplicationSettings,
         text = f"status of {outcome}: {status} ({STATUSES[status]})"
         if not_yet and st != "replicated":
             text += f"; not yet replicated in: {not_yet}"
-        text += (f"; {int(good)} independent event(s) at level ≥ {s.min_level} on the "
-                 f"best-covered outcome" + (f", enough to pool (≥ {s.ready_min_events})"
-                                            if ready else ""))
+        text += (
+            f"; {int(good)} independent event(s) at level ≥ {s.min_level} on the "
+            f"best-covered outcome"
+            + (f", enough to pool (≥ {s.ready_min_events})" if ready else "")
+        )
         rules.append(text)
     return state, rules
 
@@ -249,15 +301,27 @@ def _states(out: pd.DataFrame, s: ReplicationSettings,
 # opportunities
 
 OPPORTUNITY_COLUMNS: tuple[str, ...] = (
-    "event_id", "exposure", "country", "change_date", "change_kind", "change_direction",
-    "area", "family", "family_events_evaluated", "outcomes_studied_elsewhere",
-    "designs_used_elsewhere", "needs",
+    "event_id",
+    "exposure",
+    "country",
+    "change_date",
+    "change_kind",
+    "change_direction",
+    "area",
+    "family",
+    "family_events_evaluated",
+    "outcomes_studied_elsewhere",
+    "designs_used_elsewhere",
+    "needs",
 )
 
 
 def opportunities(
-    registry: pd.DataFrame, units: pd.DataFrame | None = None, *,
-    countries: Iterable[str] | None = None, year_from: int | None = None,
+    registry: pd.DataFrame,
+    units: pd.DataFrame | None = None,
+    *,
+    countries: Iterable[str] | None = None,
+    year_from: int | None = None,
     year_to: int | None = None,
 ) -> pd.DataFrame:
     """Registered events that no study evaluated, with what an evaluation would need.
@@ -269,8 +333,12 @@ def opportunities(
     if registry is None or registry.empty:
         return pd.DataFrame(columns=list(OPPORTUNITY_COLUMNS))
     reg = registry.loc[registry["studies"] == 0].copy()
-    reg = filter_frame(reg.assign(design_family=None, level=np.nan), countries=countries,
-                       year_from=year_from, year_to=year_to)
+    reg = filter_frame(
+        reg.assign(design_family=None, level=np.nan),
+        countries=countries,
+        year_from=year_from,
+        year_to=year_to,
+    )
     reg = reg.assign(family=_family(reg))
     fam = _family_summary(units)
     reg = reg.merge(fam, on="family", how="left")
@@ -305,8 +373,12 @@ def _top(frame: pd.DataFrame, col: str, n: int = 3) -> pd.Series:
     top = c.groupby("family", sort=False).cumcount().to_numpy() < n
     rest = c[~top]
     c = c[top]
-    c = c.assign(_label=c[col].astype(str) + " (" + c["_n"].astype(str)
-                 + np.where(c["_n"] == 1, " event)", " events)"))
+    c = c.assign(
+        _label=c[col].astype(str)
+        + " ("
+        + c["_n"].astype(str)
+        + np.where(c["_n"] == 1, " event)", " events)")
+    )
     out = grouped_join(c, ["family"], "_label", sep="; ").set_index("family")["_label"]
     if len(rest):
         more = grouped_join(rest.assign(_label=rest[col].astype(str)), ["family"], "_label")
@@ -318,8 +390,12 @@ def _top(frame: pd.DataFrame, col: str, n: int = 3) -> pd.Series:
 
 
 def _family_summary(units: pd.DataFrame | None) -> pd.DataFrame:
-    cols = ["family", "family_events_evaluated", "outcomes_studied_elsewhere",
-            "designs_used_elsewhere"]
+    cols = [
+        "family",
+        "family_events_evaluated",
+        "outcomes_studied_elsewhere",
+        "designs_used_elsewhere",
+    ]
     if units is None or units.empty:
         return pd.DataFrame(columns=cols)
     u = units.assign(family=_family(units))
@@ -338,8 +414,12 @@ def _needs(reg: pd.DataFrame) -> list[str]:
     out = []
     for r in reg.itertuples(index=False):
         where = r.country + (f" ({r.area})" if isinstance(r.area, str) and r.area else "")
-        outcomes = (f" for the outcomes studied for other events of this family: "
-                    f"{r.outcomes_studied_elsewhere}" if r.outcomes_studied_elsewhere else "")
+        outcomes = (
+            f" for the outcomes studied for other events of this family: "
+            f"{r.outcomes_studied_elsewhere}"
+            if r.outcomes_studied_elsewhere
+            else ""
+        )
         parts = [
             f"outcome data for {where} before and after {r.change_date}{outcomes}, with at "
             "least 3 time points on each side and 12 preferred for an interrupted time series "
@@ -351,7 +431,8 @@ def _needs(reg: pd.DataFrame) -> list[str]:
         ]
         size = getattr(r, "change_size", None)
         if size is None or pd.isna(size):
-            parts.append("the size of the exposure change (not recorded), for a dose-response "
-                         "analysis")
+            parts.append(
+                "the size of the exposure change (not recorded), for a dose-response analysis"
+            )
         out.append("; ".join(parts))
     return out

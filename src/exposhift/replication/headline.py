@@ -26,15 +26,33 @@ from exposhift.synthesis.grouped import pool_groups
 from exposhift.synthesis.harmonise import GROUP_SCALES
 
 HEADLINE_COLUMNS: tuple[str, ...] = (
-    "pooled_k_events", "pooled_k_estimates", "pooled_estimate", "pooled_se",
-    "pooled_ci_lower", "pooled_ci_upper", "pooled_pi_lower", "pooled_pi_upper",
-    "pooled_pvalue", "pooled_tau2", "pooled_i2", "pooled_stratum", "pooled_scale",
-    "pooled_supports", "pooled_against", "_main_mg", "_main_kind", "_main_inc",
+    "pooled_k_events",
+    "pooled_k_estimates",
+    "pooled_estimate",
+    "pooled_se",
+    "pooled_ci_lower",
+    "pooled_ci_upper",
+    "pooled_pi_lower",
+    "pooled_pi_upper",
+    "pooled_pvalue",
+    "pooled_tau2",
+    "pooled_i2",
+    "pooled_stratum",
+    "pooled_scale",
+    "pooled_supports",
+    "pooled_against",
+    "_main_mg",
+    "_main_kind",
+    "_main_inc",
 )
 
 
-def cell_pools(events: pd.DataFrame, expected: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
-               settings: ReplicationSettings = DEFAULTS) -> pd.DataFrame:
+def cell_pools(
+    events: pd.DataFrame,
+    expected: pd.DataFrame,
+    by: Sequence[str] = DEFAULT_BY,
+    settings: ReplicationSettings = DEFAULTS,
+) -> pd.DataFrame:
     """Per key: the headline pool (columns :data:`HEADLINE_COLUMNS`); keys without a good
     event with an estimate are absent."""
     by = list(by)
@@ -45,15 +63,25 @@ def cell_pools(events: pd.DataFrame, expected: pd.DataFrame, by: Sequence[str] =
     if sub.empty:
         return pd.DataFrame(columns=[*by, *HEADLINE_COLUMNS])
     sub["increment"] = sub["increment"].fillna("")
-    size = sub.groupby([*by, *STRATUM], sort=True, observed=True, dropna=False).size() \
-        .rename("_n").reset_index()
-    main = size.sort_values([*by, "_n"], ascending=[True] * len(by) + [False],
-                            kind="stable").drop_duplicates(by, keep="first")
+    size = (
+        sub.groupby([*by, *STRATUM], sort=True, observed=True, dropna=False)
+        .size()
+        .rename("_n")
+        .reset_index()
+    )
+    main = size.sort_values(
+        [*by, "_n"], ascending=[True] * len(by) + [False], kind="stable"
+    ).drop_duplicates(by, keep="first")
     sub = sub.merge(main[[*by, *STRATUM]], on=[*by, *STRATUM], how="inner")
-    pooled = pool_groups(sub, [*by, *STRATUM], method=settings.pool_method,
-                         ci=settings.pool_ci, alpha=settings.alpha)
-    est = sub.groupby([*by, *STRATUM], sort=True, observed=True, dropna=False)[
-        "k_combined"].sum().rename("pooled_k_estimates").reset_index()
+    pooled = pool_groups(
+        sub, [*by, *STRATUM], method=settings.pool_method, ci=settings.pool_ci, alpha=settings.alpha
+    )
+    est = (
+        sub.groupby([*by, *STRATUM], sort=True, observed=True, dropna=False)["k_combined"]
+        .sum()
+        .rename("pooled_k_estimates")
+        .reset_index()
+    )
     pooled = pooled.merge(est, on=[*by, *STRATUM], how="left")
     pooled = pooled.merge(expected[[*by, "expected"]], on=by, how="left")
     exp = pooled["expected"].fillna(0).to_numpy()
@@ -63,13 +91,25 @@ def cell_pools(events: pd.DataFrame, expected: pd.DataFrame, by: Sequence[str] =
     out = pooled[by].copy()
     out["pooled_k_events"] = pooled["k"].astype(np.int64)
     out["pooled_k_estimates"] = pooled["pooled_k_estimates"].astype(np.int64)
-    for f in ("estimate", "se", "ci_lower", "ci_upper", "pi_lower", "pi_upper", "pvalue",
-              "tau2", "i2"):
+    for f in (
+        "estimate",
+        "se",
+        "ci_lower",
+        "ci_upper",
+        "pi_lower",
+        "pi_upper",
+        "pvalue",
+        "tau2",
+        "i2",
+    ):
         out[f"pooled_{f}"] = pooled[f].astype("float64")
     inc = pooled["increment"].astype(str)
-    out["pooled_stratum"] = (pooled["measure_group"].astype(str) + "/"
-                             + pooled["estimate_kind"].astype(str)
-                             + np.where(inc != "", " " + inc, ""))
+    out["pooled_stratum"] = (
+        pooled["measure_group"].astype(str)
+        + "/"
+        + pooled["estimate_kind"].astype(str)
+        + np.where(inc != "", " " + inc, "")
+    )
     out["pooled_scale"] = pooled["measure_group"].map(GROUP_SCALES).fillna("identity")
     out["pooled_supports"] = many & (((exp > 0) & (lo > 0)) | ((exp < 0) & (hi < 0)))
     out["pooled_against"] = many & (((exp > 0) & (hi < 0)) | ((exp < 0) & (lo > 0)))
@@ -79,18 +119,20 @@ def cell_pools(events: pd.DataFrame, expected: pd.DataFrame, by: Sequence[str] =
     return out.reset_index(drop=True)
 
 
-def mark_counts(events: pd.DataFrame, headline: pd.DataFrame,
-                by: Sequence[str] = DEFAULT_BY) -> pd.DataFrame:
+def mark_counts(
+    events: pd.DataFrame, headline: pd.DataFrame, by: Sequence[str] = DEFAULT_BY
+) -> pd.DataFrame:
     """Add ``counts``, ``counts_rev`` and ``in_headline`` (the event is in its key's main
     stratum) to an event table marked with ``expected`` and ``concordant``."""
     by = list(by)
-    h = headline[[*by, "pooled_supports", "pooled_against", "_main_mg", "_main_kind",
-                  "_main_inc"]]
+    h = headline[[*by, "pooled_supports", "pooled_against", "_main_mg", "_main_kind", "_main_inc"]]
     out = events.merge(h, on=by, how="left")
     inc = out["increment"].fillna("").astype(str)
-    in_main = ((out["measure_group"] == out["_main_mg"])
-               & (out["estimate_kind"] == out["_main_kind"])
-               & (inc == out["_main_inc"].fillna(""))).to_numpy(dtype=bool)
+    in_main = (
+        (out["measure_group"] == out["_main_mg"])
+        & (out["estimate_kind"] == out["_main_kind"])
+        & (inc == out["_main_inc"].fillna(""))
+    ).to_numpy(dtype=bool)
     sup = out["pooled_supports"].fillna(False).to_numpy(dtype=bool) & in_main
     against = out["pooled_against"].fillna(False).to_numpy(dtype=bool) & in_main
     good = out["good"].to_numpy(dtype=bool)
@@ -100,5 +142,6 @@ def mark_counts(events: pd.DataFrame, headline: pd.DataFrame,
     out["counts"] = good & (exp != 0) & (sign == exp) & (sig | sup)
     out["counts_rev"] = good & (exp != 0) & (sign == -exp) & (sig | against)
     out["in_headline"] = in_main & good
-    return out.drop(columns=["pooled_supports", "pooled_against", "_main_mg", "_main_kind",
-                             "_main_inc"])
+    return out.drop(
+        columns=["pooled_supports", "pooled_against", "_main_mg", "_main_kind", "_main_inc"]
+    )

@@ -79,26 +79,41 @@ class ReplicationSettings:
 
     def __post_init__(self) -> None:
         problems = []
-        for name in ("min_level", "min_places", "min_periods", "min_design_families",
-                     "ready_min_events", "dose_min_events"):
+        for name in (
+            "min_level",
+            "min_places",
+            "min_periods",
+            "min_design_families",
+            "ready_min_events",
+            "dose_min_events",
+        ):
             value = getattr(self, name)
             if not isinstance(value, int) or isinstance(value, bool) or value < 0:
                 problems.append(f"{name} must be a whole number >= 0 (got {value!r})")
-        if (not isinstance(self.min_months_apart, int) or isinstance(self.min_months_apart, bool)
-                or self.min_months_apart < 0):
-            problems.append(f"min_months_apart must be a whole number >= 0 "
-                            f"(got {self.min_months_apart!r})")
-        if (not isinstance(self.within_event_rho, float | int)
-                or not 0.0 <= float(self.within_event_rho) <= 1.0):
-            problems.append(f"within_event_rho must be between 0 and 1 "
-                            f"(got {self.within_event_rho!r})")
+        if (
+            not isinstance(self.min_months_apart, int)
+            or isinstance(self.min_months_apart, bool)
+            or self.min_months_apart < 0
+        ):
+            problems.append(
+                f"min_months_apart must be a whole number >= 0 (got {self.min_months_apart!r})"
+            )
+        if (
+            not isinstance(self.within_event_rho, float | int)
+            or not 0.0 <= float(self.within_event_rho) <= 1.0
+        ):
+            problems.append(
+                f"within_event_rho must be between 0 and 1 (got {self.within_event_rho!r})"
+            )
         for name in ("alpha", "alpha_between"):
             value = getattr(self, name)
             if not isinstance(value, float | int) or not 0.0 < float(value) < 1.0:
                 problems.append(f"{name} must be between 0 and 1 (got {value!r})")
         if self.expected_direction not in EXPECTED_CHOICES:
-            problems.append(f"expected_direction must be one of {', '.join(EXPECTED_CHOICES)} "
-                            f"(got {self.expected_direction!r})")
+            problems.append(
+                f"expected_direction must be one of {', '.join(EXPECTED_CHOICES)} "
+                f"(got {self.expected_direction!r})"
+            )
         if self.pool_method not in POOL_METHODS:
             problems.append(f"pool_method must be one of {', '.join(POOL_METHODS)}")
         if self.pool_ci not in POOL_CIS:
@@ -119,14 +134,18 @@ def settings_from_mapping(data: dict[str, Any], source: str = "settings") -> Rep
     known = {f.name for f in fields(ReplicationSettings)} - {"regions"}
     thresholds = dict(data.get("thresholds", {}))
     unknown = sorted(set(thresholds) - known)
-    renamed = {"min_years_apart": "min_months_apart (months, e.g. 12)",
-               "concordance_needs_significance": "nothing: an event now always counts only "
-               "when significant, or when the pooled estimate of the good events excludes no "
-               "effect (docs/replication.md)"}
+    renamed = {
+        "min_years_apart": "min_months_apart (months, e.g. 12)",
+        "concordance_needs_significance": "nothing: an event now always counts only "
+        "when significant, or when the pooled estimate of the good events excludes no "
+        "effect (docs/replication.md)",
+    }
     old = [k for k in unknown if k in renamed]
     if old:
-        raise ConfigError(f"{source}: setting(s) {', '.join(old)} replaced; use "
-                          + "; ".join(f"{k} -> {renamed[k]}" for k in old))
+        raise ConfigError(
+            f"{source}: setting(s) {', '.join(old)} replaced; use "
+            + "; ".join(f"{k} -> {renamed[k]}" for k in old)
+        )
     if unknown:
         raise ConfigError(
             f"{source}: unknown setting(s) {', '.join(unknown)} in [thresholds]; "
@@ -153,8 +172,10 @@ def load_settings(path: str | Path | None = None) -> ReplicationSettings:
         path = WORKSPACE_SETTINGS
     p = Path(path)
     if not p.is_file():
-        raise ConfigError(f"replication settings file not found: {p}; give an existing TOML "
-                          "file or none to use the defaults")
+        raise ConfigError(
+            f"replication settings file not found: {p}; give an existing TOML "
+            "file or none to use the defaults"
+        )
     try:
         data = tomllib.loads(p.read_text(encoding="utf-8"))
     except tomllib.TOMLDecodeError as exc:

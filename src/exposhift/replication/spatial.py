@@ -58,18 +58,19 @@ def _place_lists(events: pd.DataFrame, mask: np.ndarray, by: list[str]) -> pd.Da
     if pl.empty:
         return pd.DataFrame(columns=[*by, "places_count", "places_list"])
     n = pl.groupby(by, sort=False, observed=True, dropna=False)["place"].transform("size")
-    out = grouped_join(pl, by, "place", limit=PLACES_SHOWN).rename(
-        columns={"place": "places_list"})
+    out = grouped_join(pl, by, "place", limit=PLACES_SHOWN).rename(columns={"place": "places_list"})
     counts = pl.assign(_n=n.to_numpy()).drop_duplicates(by)[[*by, "_n"]]
     out = out.merge(counts, on=by, how="left").rename(columns={"_n": "places_count"})
     extra = out["places_count"] - PLACES_SHOWN
-    out["places_list"] = np.where(extra > 0, out["places_list"] + " and " + extra.astype(str)
-                                  + " more", out["places_list"])
+    out["places_list"] = np.where(
+        extra > 0, out["places_list"] + " and " + extra.astype(str) + " more", out["places_list"]
+    )
     return out
 
 
 def spatial_summary(
-    events: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
+    events: pd.DataFrame,
+    by: Sequence[str] = DEFAULT_BY,
     settings: ReplicationSettings = DEFAULTS,
 ) -> pd.DataFrame:
     """Per key: event counts, concordant places, sign test and significant-direction flags.
@@ -105,14 +106,17 @@ def spatial_summary(
     tmp["sig_pos"] = (good & sig & (sign > 0)).astype(np.int64)
     tmp["sig_neg"] = (good & sig & (sign < 0)).astype(np.int64)
     tmp["newest_year"] = events["change_year"].to_numpy(dtype=float)
-    agg = tmp.groupby(by, sort=True, observed=True, dropna=False).agg(
-        {c: ("max" if c == "newest_year" else "sum") for c in tmp.columns if c not in by}
-    ).reset_index()
+    agg = (
+        tmp.groupby(by, sort=True, observed=True, dropna=False)
+        .agg({c: ("max" if c == "newest_year" else "sum") for c in tmp.columns if c not in by})
+        .reset_index()
+    )
     agg["sig_pos"] = agg["sig_pos"] > 0
     agg["sig_neg"] = agg["sig_neg"] > 0
     majority = np.sign(agg["_pos"] - agg["_neg"]).to_numpy()
-    agg["sig_against_majority"] = (((majority > 0) & agg["sig_neg"])
-                                   | ((majority < 0) & agg["sig_pos"])).to_numpy(dtype=bool)
+    agg["sig_against_majority"] = (
+        ((majority > 0) & agg["sig_neg"]) | ((majority < 0) & agg["sig_pos"])
+    ).to_numpy(dtype=bool)
     agg = agg.drop(columns=["_pos", "_neg"])
     with np.errstate(invalid="ignore", divide="ignore"):
         agg["sign_share"] = np.where(agg["sign_n"] > 0, agg["sign_k"] / agg["sign_n"], np.nan)
@@ -123,7 +127,8 @@ def spatial_summary(
     agg["places_count"] = agg["places_count"].fillna(0).astype(np.int64)
     agg["places_list"] = agg["places_list"].fillna("")
     rev = _place_lists(events, events["counts_rev"].to_numpy(dtype=bool), by).rename(
-        columns={"places_count": "places_rev_count", "places_list": "places_rev_list"})
+        columns={"places_count": "places_rev_count", "places_list": "places_rev_list"}
+    )
     agg = agg.merge(rev, on=by, how="left")
     agg["places_rev_count"] = agg["places_rev_count"].fillna(0).astype(np.int64)
     agg["places_rev_list"] = agg["places_rev_list"].fillna("")

@@ -69,8 +69,7 @@ from exposhift.synthesis.pooling import CAUTION as POOLING_CAUTION
 STATUSES: dict[str, str] = {
     "convergent": "replicated in place and in time, and design families agree",
     "replicated-place": "the effect was found, in the expected direction, in two or more places",
-    "replicated-time": "the effect was found again, in the expected direction, later in one "
-                       "place",
+    "replicated-time": "the effect was found again, in the expected direction, later in one place",
     "replicated-against": "the effect replicates, but against the expected direction",
     "discordant": "good events or design families point in opposite directions",
     "not-replicated": "two or more good events, but no replication rule is met",
@@ -96,23 +95,51 @@ class Analysis:
 
 
 _FILL = {
-    "n_events": 0, "n_good": 0, "n_weak": 0, "n_unappraised": 0, "n_good_concordant": 0,
-    "n_counting": 0, "places_count": 0, "places_list": "", "places_rev_count": 0,
-    "places_rev_list": "", "sign_n": 0, "sign_k": 0, "sig_pos": False, "sig_neg": False,
-    "sig_against_majority": False, "time_periods": 0, "time_place": "",
-    "replicated_time": False, "reversal": False, "reversal_place": "", "time_rev_periods": 0,
-    "time_rev_place": "", "replicated_time_rev": False, "n_families": 0,
-    "families_concordant": 0, "q_between_df": 0, "families_disagree": False,
-    "triangulated": False, "families_list": "", "families_test_note": "",
-    "pooled_k_events": 0, "pooled_k_estimates": 0,
-    "pooled_supports": False, "pooled_against": False, "pooled_stratum": "",
-    "pooled_scale": "", "expected_source": "inferred",
+    "n_events": 0,
+    "n_good": 0,
+    "n_weak": 0,
+    "n_unappraised": 0,
+    "n_good_concordant": 0,
+    "n_counting": 0,
+    "places_count": 0,
+    "places_list": "",
+    "places_rev_count": 0,
+    "places_rev_list": "",
+    "sign_n": 0,
+    "sign_k": 0,
+    "sig_pos": False,
+    "sig_neg": False,
+    "sig_against_majority": False,
+    "time_periods": 0,
+    "time_place": "",
+    "replicated_time": False,
+    "reversal": False,
+    "reversal_place": "",
+    "time_rev_periods": 0,
+    "time_rev_place": "",
+    "replicated_time_rev": False,
+    "n_families": 0,
+    "families_concordant": 0,
+    "q_between_df": 0,
+    "families_disagree": False,
+    "triangulated": False,
+    "families_list": "",
+    "families_test_note": "",
+    "pooled_k_events": 0,
+    "pooled_k_estimates": 0,
+    "pooled_supports": False,
+    "pooled_against": False,
+    "pooled_stratum": "",
+    "pooled_scale": "",
+    "expected_source": "inferred",
 }
 
 
 def analyse(
-    frame: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
-    settings: ReplicationSettings = DEFAULTS, directions: pd.DataFrame | None = None,
+    frame: pd.DataFrame,
+    by: Sequence[str] = DEFAULT_BY,
+    settings: ReplicationSettings = DEFAULTS,
+    directions: pd.DataFrame | None = None,
 ) -> Analysis:
     """Replication analysis of every key of a harmonised, independent frame at once.
 
@@ -130,44 +157,58 @@ def analyse(
     pools = family_pools(units, by, settings)
     out = spatial_summary(events, by, settings).merge(expected, on=by, how="left")
     out = out.merge(temporal_summary(events, by, settings), on=by, how="left")
-    rev = temporal_summary(events, by, settings, counts="counts_rev").rename(columns={
-        "time_periods": "time_rev_periods", "time_place": "time_rev_place",
-        "replicated_time": "replicated_time_rev"})
-    out = out.merge(rev[[*by, "time_rev_periods", "time_rev_place", "replicated_time_rev"]],
-                    on=by, how="left")
-    out = out.merge(triangulation_summary(pools, expected, by, settings, units), on=by,
-                    how="left")
-    out = out.merge(headline.drop(columns=["_main_mg", "_main_kind", "_main_inc"]), on=by,
-                    how="left")
+    rev = temporal_summary(events, by, settings, counts="counts_rev").rename(
+        columns={
+            "time_periods": "time_rev_periods",
+            "time_place": "time_rev_place",
+            "replicated_time": "replicated_time_rev",
+        }
+    )
+    out = out.merge(
+        rev[[*by, "time_rev_periods", "time_rev_place", "replicated_time_rev"]], on=by, how="left"
+    )
+    out = out.merge(triangulation_summary(pools, expected, by, settings, units), on=by, how="left")
+    out = out.merge(
+        headline.drop(columns=["_main_mg", "_main_kind", "_main_inc"]), on=by, how="left"
+    )
     for col, value in _FILL.items():
         if col in out.columns:
             out[col] = out[col].where(out[col].notna(), value).astype(type(value))
-    for col in ("q_between", "q_between_p", "sign_test_p", "sign_min_p", "sign_share",
-                "stouffer_z"):
+    for col in (
+        "q_between",
+        "q_between_p",
+        "sign_test_p",
+        "sign_min_p",
+        "sign_share",
+        "stouffer_z",
+    ):
         out[col] = out[col].astype("float64")
     out["replicated_place"] = out["places_count"] >= settings.min_places
-    out["replicated_against"] = ((out["places_rev_count"] >= settings.min_places)
-                                 | out["replicated_time_rev"])
+    out["replicated_against"] = (out["places_rev_count"] >= settings.min_places) | out[
+        "replicated_time_rev"
+    ]
     out["provisional"] = False  # set below, once the status is known
     out["status"] = _status(out)
     # a direction inferred from the same data makes every label that uses it provisional
-    out["provisional"] = ((out["expected_source"] == "inferred")
-                          & ~out["status"].isin(["none", "weak-only", "single-event"]))
+    out["provisional"] = (out["expected_source"] == "inferred") & ~out["status"].isin(
+        ["none", "weak-only", "single-event"]
+    )
     out["rule"] = rule_texts(out, settings)
     return Analysis(units=units, events=events, expected=expected, pools=pools, statuses=out)
 
 
 def replication_statuses(
-    frame: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
-    settings: ReplicationSettings = DEFAULTS, directions: pd.DataFrame | None = None,
+    frame: pd.DataFrame,
+    by: Sequence[str] = DEFAULT_BY,
+    settings: ReplicationSettings = DEFAULTS,
+    directions: pd.DataFrame | None = None,
 ) -> pd.DataFrame:
     """One row per key with ``status``, ``rule`` and the counts behind them."""
     return analyse(frame, by, settings, directions).statuses
 
 
 def _status(t: pd.DataFrame) -> np.ndarray:
-    discordant = (t["sig_pos"] & t["sig_neg"]) | t["sig_against_majority"] \
-        | t["families_disagree"]
+    discordant = (t["sig_pos"] & t["sig_neg"]) | t["sig_against_majority"] | t["families_disagree"]
     conditions = [
         t["n_events"].to_numpy() == 0,
         t["n_good"].to_numpy() == 0,
@@ -178,8 +219,16 @@ def _status(t: pd.DataFrame) -> np.ndarray:
         t["replicated_time"].to_numpy(dtype=bool),
         t["replicated_against"].to_numpy(dtype=bool),
     ]
-    choices = ["none", "weak-only", "single-event", "discordant", "convergent",
-               "replicated-place", "replicated-time", "replicated-against"]
+    choices = [
+        "none",
+        "weak-only",
+        "single-event",
+        "discordant",
+        "convergent",
+        "replicated-place",
+        "replicated-time",
+        "replicated-against",
+    ]
     return np.select(conditions, choices, default="not-replicated").astype(object)
 
 
@@ -191,16 +240,52 @@ def rule_texts(t: pd.DataFrame, s: ReplicationSettings) -> list[str]:
     """The rule that produced each row's status, in words, with the numbers behind it."""
     lv = f"level ≥ {s.min_level}"
     out = []
-    cols = ["status", "n_events", "n_good", "n_weak", "n_unappraised", "n_good_concordant",
-            "n_counting", "places_count", "places_list", "places_rev_count", "places_rev_list",
-            "time_periods", "time_place", "reversal", "reversal_place", "time_rev_periods",
-            "time_rev_place", "families_concordant", "families_list", "q_between",
-            "q_between_df", "q_between_p", "sig_pos", "sig_neg", "sig_against_majority",
-            "families_disagree", "replicated_place", "replicated_time", "triangulated",
-            "sign_n", "sign_k", "sign_test_p", "sign_min_p", "expected", "provisional",
-            "pooled_k_events", "pooled_k_estimates", "pooled_estimate", "pooled_ci_lower",
-            "pooled_ci_upper", "pooled_scale", "pooled_stratum", "pooled_supports",
-            "pooled_against"]
+    cols = [
+        "status",
+        "n_events",
+        "n_good",
+        "n_weak",
+        "n_unappraised",
+        "n_good_concordant",
+        "n_counting",
+        "places_count",
+        "places_list",
+        "places_rev_count",
+        "places_rev_list",
+        "time_periods",
+        "time_place",
+        "reversal",
+        "reversal_place",
+        "time_rev_periods",
+        "time_rev_place",
+        "families_concordant",
+        "families_list",
+        "q_between",
+        "q_between_df",
+        "q_between_p",
+        "sig_pos",
+        "sig_neg",
+        "sig_against_majority",
+        "families_disagree",
+        "replicated_place",
+        "replicated_time",
+        "triangulated",
+        "sign_n",
+        "sign_k",
+        "sign_test_p",
+        "sign_min_p",
+        "expected",
+        "provisional",
+        "pooled_k_events",
+        "pooled_k_estimates",
+        "pooled_estimate",
+        "pooled_ci_lower",
+        "pooled_ci_upper",
+        "pooled_scale",
+        "pooled_stratum",
+        "pooled_supports",
+        "pooled_against",
+    ]
     Row = namedtuple("Row", cols)
     data = [t[c].tolist() for c in cols]  # plain Python values: fast to format
     for r in map(Row._make, zip(*data, strict=True)):
@@ -211,94 +296,135 @@ def rule_texts(t: pd.DataFrame, s: ReplicationSettings) -> list[str]:
 def _route(r: tuple, against: bool = False) -> str:
     backed = r.pooled_against if against else r.pooled_supports
     if backed:
-        return ("an event pointing that way, significant or backed by the pooled estimate of "
-                "the good events (which excludes no effect)")
-    return "an event significant in that direction (the pooled estimate alone does not "\
+        return (
+            "an event pointing that way, significant or backed by the pooled estimate of "
+            "the good events (which excludes no effect)"
+        )
+    return (
+        "an event significant in that direction (the pooled estimate alone does not "
         "exclude no effect)"
+    )
 
 
 def _rule(r: tuple, s: ReplicationSettings, lv: str) -> str:
     rev = f", including a reversal in {r.reversal_place}" if r.reversal else ""
     place = f"{_n(r.places_count, 'place')} ({r.places_list})" if r.places_count else "no place"
-    time = (f"{_n(r.time_periods, 'separate period')} in {r.time_place}{rev}"
-            if r.time_periods else "no period")
-    prov = ("provisional, the expected direction was inferred from these same events (set it "
-            "in advance with 'exposhift direction set'); " if r.provisional else "")
+    time = (
+        f"{_n(r.time_periods, 'separate period')} in {r.time_place}{rev}"
+        if r.time_periods
+        else "no period"
+    )
+    prov = (
+        "provisional, the expected direction was inferred from these same events (set it "
+        "in advance with 'exposhift direction set'); "
+        if r.provisional
+        else ""
+    )
     if r.status == "none":
         return "no independent natural-experiment estimate for this exposure and outcome"
     if r.status == "weak-only":
-        return (f"none of the {_n(r.n_events, 'independent event')} has evidence at {lv} "
-                f"({r.n_weak} weaker, {r.n_unappraised} not appraised)")
+        return (
+            f"none of the {_n(r.n_events, 'independent event')} has evidence at {lv} "
+            f"({r.n_weak} weaker, {r.n_unappraised} not appraised)"
+        )
     if r.status == "single-event":
-        return (f"one independent event at {lv} ({r.n_events - 1} more below it or not "
-                "appraised): nothing to replicate it")
+        return (
+            f"one independent event at {lv} ({r.n_events - 1} more below it or not "
+            "appraised): nothing to replicate it"
+        )
     if r.status == "discordant":
         parts = []
         if r.sig_pos and r.sig_neg:
-            parts.append(f"events at {lv} have significant effects in opposite directions "
-                         f"(alpha {s.alpha:g})")
+            parts.append(
+                f"events at {lv} have significant effects in opposite directions "
+                f"(alpha {s.alpha:g})"
+            )
         elif r.sig_against_majority:
-            parts.append(f"an event at {lv} has a significant effect against the direction "
-                         f"most good events point in (alpha {s.alpha:g})")
+            parts.append(
+                f"an event at {lv} has a significant effect against the direction "
+                f"most good events point in (alpha {s.alpha:g})"
+            )
         if r.families_disagree:
-            parts.append(f"design families ({r.families_list}) point in opposite directions "
-                         f"and their effects differ: test of equal family effects "
-                         f"{r.q_between:.2f} on {r.q_between_df} df, p = {r.q_between_p:.3g} "
-                         f"< {s.alpha_between:g}")
+            parts.append(
+                f"design families ({r.families_list}) point in opposite directions "
+                f"and their effects differ: test of equal family effects "
+                f"{r.q_between:.2f} on {r.q_between_df} df, p = {r.q_between_p:.3g} "
+                f"< {s.alpha_between:g}"
+            )
         return "; ".join(parts)
     if r.status == "convergent":
-        return (f"{prov}replicated in place ({place}), in time ({time}) and across "
-                f"{r.families_concordant} design families agreeing in direction "
-                f"({r.families_list}); each place and period has {_route(r)}; rule: "
-                f"≥ {s.min_places} places, ≥ {s.min_periods} periods in one place, "
-                f"≥ {s.min_design_families} design families")
+        return (
+            f"{prov}replicated in place ({place}), in time ({time}) and across "
+            f"{r.families_concordant} design families agreeing in direction "
+            f"({r.families_list}); each place and period has {_route(r)}; rule: "
+            f"≥ {s.min_places} places, ≥ {s.min_periods} periods in one place, "
+            f"≥ {s.min_design_families} design families"
+        )
     if r.status == "replicated-place":
         also = f"; also replicated in time ({time})" if r.replicated_time else ""
-        return (f"{prov}{place} each have {_route(r)} (rule: ≥ {s.min_places} places){also}"
-                + _tri(r, s))
+        return f"{prov}{place} each have {_route(r)} (rule: ≥ {s.min_places} places){also}" + _tri(
+            r, s
+        )
     if r.status == "replicated-time":
-        return (f"{prov}in {r.time_place}, {r.time_periods} separate periods each have "
-                f"{_route(r)}{rev} (rule: ≥ {s.min_periods} periods in one place, change "
-                f"dates ≥ {s.min_months_apart} months apart); places with an event that "
-                f"counts: {r.places_count}" + _tri(r, s))
+        return (
+            f"{prov}in {r.time_place}, {r.time_periods} separate periods each have "
+            f"{_route(r)}{rev} (rule: ≥ {s.min_periods} periods in one place, change "
+            f"dates ≥ {s.min_months_apart} months apart); places with an event that "
+            f"counts: {r.places_count}" + _tri(r, s)
+        )
     if r.status == "replicated-against":
-        where = (f"{_n(r.places_rev_count, 'place')} ({r.places_rev_list})"
-                 if r.places_rev_count >= s.min_places else
-                 f"{_n(r.time_rev_periods, 'period')} in {r.time_rev_place}")
+        where = (
+            f"{_n(r.places_rev_count, 'place')} ({r.places_rev_list})"
+            if r.places_rev_count >= s.min_places
+            else f"{_n(r.time_rev_periods, 'period')} in {r.time_rev_place}"
+        )
         exp = "raise" if r.expected > 0 else "lower"
-        return (f"{prov}an exposure increase was expected to {exp} the outcome, but {where} "
-                f"each have {_route(r, against=True).replace('that way', 'the other way')}")
+        return (
+            f"{prov}an exposure increase was expected to {exp} the outcome, but {where} "
+            f"each have {_route(r, against=True).replace('that way', 'the other way')}"
+        )
     if r.expected == 0:
-        return (f"{_n(r.n_good, 'event')} at {lv}, but no expected direction: the events' "
-                "z statistics cancel out")
-    return (f"{prov}{_n(r.n_good, 'event')} at {lv}, {r.n_good_concordant} pointing in the "
-            f"expected direction, {r.n_counting} of them significant or backed by a pooled "
-            "estimate that excludes no effect; no replication rule is met (needs "
-            f"≥ {s.min_places} places or ≥ {s.min_periods} periods in one place with such "
-            "an event)" + _tri(r, s))
+        return (
+            f"{_n(r.n_good, 'event')} at {lv}, but no expected direction: the events' "
+            "z statistics cancel out"
+        )
+    return (
+        f"{prov}{_n(r.n_good, 'event')} at {lv}, {r.n_good_concordant} pointing in the "
+        f"expected direction, {r.n_counting} of them significant or backed by a pooled "
+        "estimate that excludes no effect; no replication rule is met (needs "
+        f"≥ {s.min_places} places or ≥ {s.min_periods} periods in one place with such "
+        "an event)" + _tri(r, s)
+    )
 
 
 def _tri(r: tuple, s: ReplicationSettings) -> str:
     if r.triangulated:
         return f"; design families agree ({r.families_list})"
     if r.families_concordant:
-        return (f"; {_n(r.families_concordant, 'design family')} in the expected direction "
-                f"(triangulation needs ≥ {s.min_design_families})")
+        return (
+            f"; {_n(r.families_concordant, 'design family')} in the expected direction "
+            f"(triangulation needs ≥ {s.min_design_families})"
+        )
     return ""
 
 
 def _numbers(r: tuple, lv: str) -> str:
     if r.n_events == 0:
         return ""
-    sign = (f"sign test {r.sign_k} of {r.sign_n} in the expected direction, p = "
-            f"{r.sign_test_p:.3g} (smallest possible with {r.sign_n}: {r.sign_min_p:.3g})"
-            if r.sign_n else "no sign test (no good event with an estimate)")
+    sign = (
+        f"sign test {r.sign_k} of {r.sign_n} in the expected direction, p = "
+        f"{r.sign_test_p:.3g} (smallest possible with {r.sign_n}: {r.sign_min_p:.3g})"
+        if r.sign_n
+        else "no sign test (no good event with an estimate)"
+    )
     pooled = ""
     if r.pooled_k_events:
         word = "ratio" if r.pooled_scale == "log" else "difference"
         f = (lambda x: math.exp(x)) if r.pooled_scale == "log" else (lambda x: x)
-        pooled = (f"; pooled {word} of the good events (one per event, {r.pooled_stratum}) "
-                  f"{f(r.pooled_estimate):.3g} (95% CI {f(r.pooled_ci_lower):.3g} to "
-                  f"{f(r.pooled_ci_upper):.3g}), {_n(r.pooled_k_events, 'event')}, "
-                  f"{_n(r.pooled_k_estimates, 'estimate')}")
+        pooled = (
+            f"; pooled {word} of the good events (one per event, {r.pooled_stratum}) "
+            f"{f(r.pooled_estimate):.3g} (95% CI {f(r.pooled_ci_lower):.3g} to "
+            f"{f(r.pooled_ci_upper):.3g}), {_n(r.pooled_k_events, 'event')}, "
+            f"{_n(r.pooled_k_estimates, 'estimate')}"
+        )
     return f" [good events (at {lv}): {r.n_good}; {sign}{pooled}]"

@@ -49,8 +49,10 @@ def _period_starts(frame: pd.DataFrame, group: list[str], min_months_apart: int)
 
 
 def temporal_summary(
-    events: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
-    settings: ReplicationSettings = DEFAULTS, counts: str = "counts",
+    events: pd.DataFrame,
+    by: Sequence[str] = DEFAULT_BY,
+    settings: ReplicationSettings = DEFAULTS,
+    counts: str = "counts",
 ) -> pd.DataFrame:
     """Per key: ``time_periods`` (most periods with an event that counts, in one place),
     ``time_place`` (that place), ``replicated_time``, ``reversal`` and ``reversal_place``.
@@ -59,10 +61,12 @@ def temporal_summary(
     replication). Keys without qualifying events are absent; callers fill them with 0 / False.
     """
     by = list(by)
-    ok = (events[counts].to_numpy(dtype=bool)
-          & np.isfinite(events["month_first"].to_numpy(dtype=float)))
-    ce = events.loc[ok, [*by, "place", "change_year", "month_first", "month_last",
-                         "change_direction"]]
+    ok = events[counts].to_numpy(dtype=bool) & np.isfinite(
+        events["month_first"].to_numpy(dtype=float)
+    )
+    ce = events.loc[
+        ok, [*by, "place", "change_year", "month_first", "month_last", "change_direction"]
+    ]
     cols = [*by, "time_periods", "time_place", "replicated_time", "reversal", "reversal_place"]
     if ce.empty:
         return pd.DataFrame(columns=cols)
@@ -73,18 +77,28 @@ def temporal_summary(
     inc = (ce["change_direction"] == "increase").to_numpy()
     # a reversal: an increase whose first possible month follows the last possible month of an
     # earlier decrease in the same place
-    ce = ce.assign(_dec_first=np.where(dec, ce["month_last"].to_numpy(float), np.inf),
-                   _inc_last=np.where(inc, ce["month_first"].to_numpy(float), -np.inf))
-    per_place = ce.groupby(grp, sort=True, observed=True, dropna=False).agg(
-        periods=("_new", "sum"), dec_first=("_dec_first", "min"), inc_last=("_inc_last", "max"),
-    ).reset_index()
+    ce = ce.assign(
+        _dec_first=np.where(dec, ce["month_last"].to_numpy(float), np.inf),
+        _inc_last=np.where(inc, ce["month_first"].to_numpy(float), -np.inf),
+    )
+    per_place = (
+        ce.groupby(grp, sort=True, observed=True, dropna=False)
+        .agg(
+            periods=("_new", "sum"),
+            dec_first=("_dec_first", "min"),
+            inc_last=("_inc_last", "max"),
+        )
+        .reset_index()
+    )
     per_place["rev"] = per_place["inc_last"] > per_place["dec_first"]
     # the place with most periods (ties: first place in sort order)
-    best = per_place.sort_values([*by, "periods"], ascending=[True] * len(by) + [False],
-                                 kind="stable").drop_duplicates(by, keep="first")
+    best = per_place.sort_values(
+        [*by, "periods"], ascending=[True] * len(by) + [False], kind="stable"
+    ).drop_duplicates(by, keep="first")
     rev = per_place[per_place["rev"]].drop_duplicates(by, keep="first")[[*by, "place"]]
     out = best[[*by, "periods", "place"]].rename(
-        columns={"periods": "time_periods", "place": "time_place"})
+        columns={"periods": "time_periods", "place": "time_place"}
+    )
     out["time_periods"] = out["time_periods"].astype(np.int64)
     out["replicated_time"] = out["time_periods"] >= settings.min_periods
     out = out.merge(rev.rename(columns={"place": "reversal_place"}), on=by, how="left")
@@ -93,7 +107,8 @@ def temporal_summary(
 
 
 def place_sequences(
-    events: pd.DataFrame, settings: ReplicationSettings = DEFAULTS,
+    events: pd.DataFrame,
+    settings: ReplicationSettings = DEFAULTS,
 ) -> list[dict]:
     """For one exposure × outcome: each place with two or more events, its events in order,
     whether each counts (see :func:`temporal_summary`) and, for those that count, their period
@@ -103,8 +118,7 @@ def place_sequences(
     for place, grp in ev.groupby("place", sort=True):
         if len(grp) < 2:
             continue
-        counts = (grp["counts"].to_numpy(bool)
-                  & np.isfinite(grp["month_first"].to_numpy(float)))
+        counts = grp["counts"].to_numpy(bool) & np.isfinite(grp["month_first"].to_numpy(float))
         # periods are formed by the counting events only, as in temporal_summary
         period: list[int | None] = [None] * len(grp)
         if counts.any():
@@ -112,17 +126,26 @@ def place_sequences(
             for pos, p in zip(np.flatnonzero(counts), np.cumsum(new), strict=True):
                 period[pos] = int(p)
         counted_periods = len({p for p in period if p is not None})
-        out.append({
-            "place": place,
-            "periods_with_counting_event": counted_periods,
-            "replicated": counted_periods >= settings.min_periods,
-            "events": [
-                {"event_id": r.event_id, "change_date": str(r.change_date),
-                 "direction": r.change_direction, "period": p, "level": _lvl(r.level),
-                 "sign": int(r.sign), "concordant": bool(r.concordant), "counts": bool(c)}
-                for r, p, c in zip(grp.itertuples(index=False), period, counts, strict=True)
-            ],
-        })
+        out.append(
+            {
+                "place": place,
+                "periods_with_counting_event": counted_periods,
+                "replicated": counted_periods >= settings.min_periods,
+                "events": [
+                    {
+                        "event_id": r.event_id,
+                        "change_date": str(r.change_date),
+                        "direction": r.change_direction,
+                        "period": p,
+                        "level": _lvl(r.level),
+                        "sign": int(r.sign),
+                        "concordant": bool(r.concordant),
+                        "counts": bool(c),
+                    }
+                    for r, p, c in zip(grp.itertuples(index=False), period, counts, strict=True)
+                ],
+            }
+        )
     return out
 
 
@@ -138,20 +161,28 @@ def reversals(events: pd.DataFrame, settings: ReplicationSettings = DEFAULTS) ->
         for j, up in enumerate(rows):
             if up.change_direction != "increase":
                 continue
-            before = [r for r in rows[:j] if r.change_direction == "decrease"
-                      and r.month_last < up.month_first]
+            before = [
+                r
+                for r in rows[:j]
+                if r.change_direction == "decrease" and r.month_last < up.month_first
+            ]
             if not before:
                 continue
             strong = [r for r in before if r.counts]
             down = (strong or before)[-1]
             moved_back = bool(up.sign != 0 and up.sign == down.sign)
             counts = bool(moved_back and up.counts and down.counts)
-            out.append({
-                "place": place, "decrease_event": down.event_id,
-                "decrease_date": str(down.change_date), "increase_event": up.event_id,
-                "increase_date": str(up.change_date), "outcome_moved_back": moved_back,
-                "counts": counts,
-            })
+            out.append(
+                {
+                    "place": place,
+                    "decrease_event": down.event_id,
+                    "decrease_date": str(down.change_date),
+                    "increase_event": up.event_id,
+                    "increase_date": str(up.change_date),
+                    "outcome_moved_back": moved_back,
+                    "counts": counts,
+                }
+            )
     return out
 
 

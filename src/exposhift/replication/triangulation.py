@@ -44,13 +44,25 @@ from exposhift.synthesis.multilevel import fit_multilevel, wald_test
 
 STRATA: tuple[str, ...] = ("measure_group", "estimate_kind", "increment")
 POOL_COLUMNS: tuple[str, ...] = (
-    "k", "estimate", "se", "ci_lower", "ci_upper", "pvalue", "tau2", "q", "q_pvalue", "i2",
-    "pi_lower", "pi_upper", "notes",
+    "k",
+    "estimate",
+    "se",
+    "ci_lower",
+    "ci_upper",
+    "pvalue",
+    "tau2",
+    "q",
+    "q_pvalue",
+    "i2",
+    "pi_lower",
+    "pi_upper",
+    "notes",
 )
 
 
 def family_pools(
-    units: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
+    units: pd.DataFrame,
+    by: Sequence[str] = DEFAULT_BY,
     settings: ReplicationSettings = DEFAULTS,
 ) -> pd.DataFrame:
     """Pooled result per key × stratum × design family over good events (one number per
@@ -64,17 +76,18 @@ def family_pools(
     sub = units.loc[ok, [*keys, "event_id", "y", "v"]]
     if not sub.empty:
         sub = aggregate_within_event(sub, keys, rho=settings.within_event_rho)[
-            [*keys, "event_id", "y", "v"]]
+            [*keys, "event_id", "y", "v"]
+        ]
     if sub.empty:
         return pd.DataFrame(columns=[*keys, *POOL_COLUMNS, "se_wald", "main", "supporting"])
-    pooled = pool_groups(sub, keys, y="y", v="v", method=settings.pool_method,
-                         ci=settings.pool_ci)
+    pooled = pool_groups(sub, keys, y="y", v="v", method=settings.pool_method, ci=settings.pool_ci)
     pooled = pooled[[*keys, *POOL_COLUMNS]].copy()
     pooled["se_wald"] = _wald_se(sub, pooled, keys)
     strat = [*by, *STRATA]
     size = pooled.groupby(strat, sort=True, observed=True, dropna=False)["k"].sum().reset_index()
-    main = size.sort_values([*by, "k"], ascending=[True] * len(by) + [False],
-                            kind="stable").drop_duplicates(by, keep="first")[strat]
+    main = size.sort_values(
+        [*by, "k"], ascending=[True] * len(by) + [False], kind="stable"
+    ).drop_duplicates(by, keep="first")[strat]
     main = main.assign(main=True)
     pooled = pooled.merge(main, on=strat, how="left")
     pooled["main"] = pooled["main"].fillna(False).astype(bool)
@@ -94,8 +107,11 @@ def _wald_se(sub: pd.DataFrame, pooled: pd.DataFrame, keys: list[str]) -> np.nda
 
 
 def triangulation_summary(
-    pools: pd.DataFrame, expected: pd.DataFrame, by: Sequence[str] = DEFAULT_BY,
-    settings: ReplicationSettings = DEFAULTS, units: pd.DataFrame | None = None,
+    pools: pd.DataFrame,
+    expected: pd.DataFrame,
+    by: Sequence[str] = DEFAULT_BY,
+    settings: ReplicationSettings = DEFAULTS,
+    units: pd.DataFrame | None = None,
 ) -> pd.DataFrame:
     """Per key: ``n_families`` (counted non-supporting families of the main stratum),
     ``families_concordant``, ``q_between`` / ``q_between_df`` / ``q_between_p`` (the test of
@@ -103,9 +119,18 @@ def triangulation_summary(
     ``triangulated``, ``families_list`` and ``families_test_note``. ``units`` (the good units,
     for the meta-regression) defaults to none: then no test is run."""
     by = list(by)
-    cols = [*by, "n_families", "families_concordant", "q_between", "q_between_df",
-            "q_between_p", "families_disagree", "triangulated", "families_list",
-            "families_test_note"]
+    cols = [
+        *by,
+        "n_families",
+        "families_concordant",
+        "q_between",
+        "q_between_df",
+        "q_between_p",
+        "families_disagree",
+        "triangulated",
+        "families_list",
+        "families_test_note",
+    ]
     counted = (pools["k"] >= 2) | (pools["pvalue"] < settings.alpha)
     fam = pools[pools["main"] & ~pools["supporting"] & counted]
     if fam.empty:
@@ -123,42 +148,52 @@ def triangulation_summary(
             try:
                 coef, qb, qp = _family_test(units, g, by, rec, names)
                 sign = dict(zip(names, np.sign(coef), strict=True))
-                note = ("three-level REML meta-regression on family indicators (estimates "
-                        "within events), model-based Wald test of equal family effects")
+                note = (
+                    "three-level REML meta-regression on family indicators (estimates "
+                    "within events), model-based Wald test of equal family effects"
+                )
             except AnalysisError as exc:
                 note = f"test of equal family effects not possible: {exc}"
         s_ = np.array([sign[n] for n in names])
         opposite = bool((s_ > 0).any() and (s_ < 0).any())
         disagree = bool(opposite and np.isfinite(qp) and qp < settings.alpha_between)
         concordant = int(((s_ == exp) & (exp != 0)).sum())
-        rec.update({
-            "n_families": len(names), "families_concordant": concordant, "q_between": qb,
-            "q_between_df": df, "q_between_p": qp, "families_disagree": disagree,
-            "triangulated": concordant >= settings.min_design_families and not disagree,
-            "families_list": ", ".join(names), "families_test_note": note,
-        })
+        rec.update(
+            {
+                "n_families": len(names),
+                "families_concordant": concordant,
+                "q_between": qb,
+                "q_between_df": df,
+                "q_between_p": qp,
+                "families_disagree": disagree,
+                "triangulated": concordant >= settings.min_design_families and not disagree,
+                "families_list": ", ".join(names),
+                "families_test_note": note,
+            }
+        )
         rows.append(rec)
     return pd.DataFrame(rows, columns=cols)
 
 
-def _family_test(units: pd.DataFrame, fam: pd.DataFrame, by: list[str], key: dict,
-                 names: list[str]) -> tuple[np.ndarray, float, float]:
+def _family_test(
+    units: pd.DataFrame, fam: pd.DataFrame, by: list[str], key: dict, names: list[str]
+) -> tuple[np.ndarray, float, float]:
     """Family coefficients and the Wald test of their equality for one key."""
     m = np.ones(len(units), dtype=bool)
     for k, val in key.items():
         m &= (units[k] == val).to_numpy()
     first = fam.iloc[0]
     for k in STRATA:
-        m &= (units[k].fillna("").astype(str) == str(first[k] if pd.notna(first[k]) else "")
-              ).to_numpy()
+        m &= (
+            units[k].fillna("").astype(str) == str(first[k] if pd.notna(first[k]) else "")
+        ).to_numpy()
     m &= units["design_family"].isin(names).to_numpy() & units["good"].to_numpy(dtype=bool)
     u = units.loc[m]
     y, v = u["y"].to_numpy(float), u["v"].to_numpy(float)
     ok = np.isfinite(y) & np.isfinite(v) & (v > 0)
     u, y, v = u[ok], y[ok], v[ok]
-    X = (u["design_family"].astype(str).to_numpy()[:, None] == np.array(names)[None, :])
-    fit = fit_multilevel(y, v, u["event_id"].astype(str).to_numpy(), X=X.astype(float),
-                         names=names)
+    X = u["design_family"].astype(str).to_numpy()[:, None] == np.array(names)[None, :]
+    fit = fit_multilevel(y, v, u["event_id"].astype(str).to_numpy(), X=X.astype(float), names=names)
     R = np.zeros((len(names) - 1, len(names)))
     R[:, 0] = 1.0
     R[np.arange(len(names) - 1), np.arange(1, len(names))] = -1.0

@@ -11,6 +11,17 @@ from exposhift.series.controlled import ControlledResult, estimate_controlled
 from exposhift.series.its import ITSResult, TooFewPoints, estimate_its
 from exposhift.series.placebo import PlaceboResult, placebo_dates, placebo_places
 
-__all__ = ["ControlledResult", "ITSResult", "PlaceboResult", "SeriesAnalysis", "SeriesFigure",
-           "TooFewPoints", "analyse_series", "choose_model", "estimate_controlled",
-           "estimate_its", "placebo_dates", "placebo_places"]
+__all__ = [
+    "ControlledResult",
+    "ITSResult",
+    "PlaceboResult",
+    "SeriesAnalysis",
+    "SeriesFigure",
+    "TooFewPoints",
+    "analyse_series",
+    "choose_model",
+    "estimate_controlled",
+    "estimate_its",
+    "placebo_dates",
+    "placebo_places",
+]

@@ -69,12 +69,13 @@ class ControlledResult:
 
 def _common(tl_e: Timeline, tl_c: Timeline) -> tuple[np.ndarray, np.ndarray]:
     if tl_e.unit != tl_c.unit:
-        raise AnalysisError(f"the comparison series is in {tl_c.unit}s, the exposed series in "
-                            f"{tl_e.unit}s; use one time unit")
+        raise AnalysisError(
+            f"the comparison series is in {tl_c.unit}s, the exposed series in "
+            f"{tl_e.unit}s; use one time unit"
+        )
     common, ie, ic = np.intersect1d(tl_e.index, tl_c.index, return_indices=True)
     if len(common) == 0:
-        raise AnalysisError("the comparison series has no period in common with the exposed "
-                            "series")
+        raise AnalysisError("the comparison series has no period in common with the exposed series")
     return ie, ic
 
 
@@ -91,20 +92,28 @@ def _did(y_e, y_c, d_e, d_c, post, model: str) -> tuple[float, float]:
     for y, d, m in cells:
         total = y[m].sum()
         if total <= 0:
-            raise AnalysisError("a segment of the series has no events: the aggregate rate "
-                                "ratio is undefined")
+            raise AnalysisError(
+                "a segment of the series has no events: the aggregate rate ratio is undefined"
+            )
         logs.append(np.log(total / d[m].sum()))
         var += 1.0 / total
     return (logs[0] - logs[1]) - (logs[2] - logs[3]), float(np.sqrt(var))
 
 
-def estimate_controlled(periods: Sequence, values: Sequence[float], comp_periods: Sequence,
-                        comp_values: Sequence[float], change_at, *,
-                        denominators: Sequence[float] | None = None,
-                        comp_denominators: Sequence[float] | None = None,
-                        model: str = "gaussian", seasonal: str | None = None,
-                        horizon: int | None = None,
-                        hac_lag: int | None = None) -> ControlledResult:
+def estimate_controlled(
+    periods: Sequence,
+    values: Sequence[float],
+    comp_periods: Sequence,
+    comp_values: Sequence[float],
+    change_at,
+    *,
+    denominators: Sequence[float] | None = None,
+    comp_denominators: Sequence[float] | None = None,
+    model: str = "gaussian",
+    seasonal: str | None = None,
+    horizon: int | None = None,
+    hac_lag: int | None = None,
+) -> ControlledResult:
     """Controlled ITS and two-period DiD of an exposed and a comparison series (module doc)."""
     tl_e, tl_c = timeline(periods), timeline(comp_periods)
     y_e, off_e = _arrays(values, denominators, model)
@@ -115,8 +124,9 @@ def estimate_controlled(periods: Sequence, values: Sequence[float], comp_periods
     n = len(ie)
     check_points(cut, n - cut, seasonal)
     if horizon is not None and not 1 <= horizon <= n - cut:
-        raise AnalysisError(f"horizon {horizon} is outside 1..{n - cut} (the common points "
-                            "after the change)")
+        raise AnalysisError(
+            f"horizon {horizon} is outside 1..{n - cut} (the common points after the change)"
+        )
     d_e = np.ones(n) if off_e is None else np.exp(off_e[ie])
     d_c = np.ones(n) if off_c is None else np.exp(off_c[ic])
     ye, yc = y_e[ie], y_c[ic]
@@ -125,8 +135,7 @@ def estimate_controlled(periods: Sequence, values: Sequence[float], comp_periods
     since = np.where(post, time - time[cut], 0.0)
     seas, _ = seasonal_terms(tl, seasonal)
     base = np.column_stack([np.ones(n), time, post.astype(float), since])
-    x = np.vstack([np.hstack([base, base, seas]),
-                   np.hstack([base, np.zeros_like(base), seas])])
+    x = np.vstack([np.hstack([base, base, seas]), np.hstack([base, np.zeros_like(base), seas])])
     groups = np.r_[np.arange(n), np.arange(n)]
     if model == "gaussian":
         fit = F.fit_ols(x, np.r_[ye / d_e, yc / d_c])
@@ -144,12 +153,21 @@ def estimate_controlled(periods: Sequence, values: Sequence[float], comp_periods
     did, did_se = _did(ye, yc, d_e, d_c, post, model)
     b = fit.params
     return ControlledResult(
-        model=model, hac_lag=lag, n_common=n,
-        level_change_diff=float(b[6]), level_change_diff_se=float(se[6]),
-        slope_change_diff=float(b[7]), slope_change_diff_se=float(se[7]),
-        pre_slope_diff=float(b[5]), pre_slope_diff_se=float(se[5]),
+        model=model,
+        hac_lag=lag,
+        n_common=n,
+        level_change_diff=float(b[6]),
+        level_change_diff_se=float(se[6]),
+        slope_change_diff=float(b[7]),
+        slope_change_diff_se=float(se[7]),
+        pre_slope_diff=float(b[5]),
+        pre_slope_diff_se=float(se[5]),
         pre_slope_diff_ci=(float(b[5] - crit * se[5]), float(b[5] + crit * se[5])),
-        effect=eff, effect_se=eff_se, effect_ci=(eff - crit * eff_se, eff + crit * eff_se),
-        did=did, did_se=did_se, did_ci=(did - Z95 * did_se, did + Z95 * did_se),
+        effect=eff,
+        effect_se=eff_se,
+        effect_ci=(eff - crit * eff_se, eff + crit * eff_se),
+        did=did,
+        did_se=did_se,
+        did_ci=(did - Z95 * did_se, did + Z95 * did_se),
         effect_scale="identity" if model == "gaussian" else "log",
     )

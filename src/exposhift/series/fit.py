@@ -81,10 +81,14 @@ def choose_lag(fit: Fit, given: int | None) -> tuple[int | None, str]:
     _, p, m = ljung_box(fit.pearson)
     if p < LB_ALPHA:
         lag = default_lag(n)
-        return lag, (f"Newey-West, lag {lag}: residual autocorrelation (Ljung-Box p {p:.3f} < "
-                     f"{LB_ALPHA}, {m} lags); lag floor(4 (n/100)^(2/9)), Newey & West 1994")
-    return None, (f"model-based: no residual autocorrelation detected (Ljung-Box p {p:.3f} >= "
-                  f"{LB_ALPHA}, {m} lags)")
+        return lag, (
+            f"Newey-West, lag {lag}: residual autocorrelation (Ljung-Box p {p:.3f} < "
+            f"{LB_ALPHA}, {m} lags); lag floor(4 (n/100)^(2/9)), Newey & West 1994"
+        )
+    return None, (
+        f"model-based: no residual autocorrelation detected (Ljung-Box p {p:.3f} >= "
+        f"{LB_ALPHA}, {m} lags)"
+    )
 
 
 def model_cov(fit: Fit, glm: bool) -> np.ndarray:
@@ -117,16 +121,21 @@ class Covariance:
         return self.rows(np.eye(len(self.cov)))
 
 
-def covariance(fit: Fit, given: int | None, glm: bool,
-               groups: np.ndarray | None = None) -> Covariance:
+def covariance(
+    fit: Fit, given: int | None, glm: bool, groups: np.ndarray | None = None
+) -> Covariance:
     """The covariance of ``fit.params`` by the rule of the module doc."""
     lag, rule = choose_lag(fit, given)
     if lag is None:
         return Covariance(model_cov(fit, glm), None, None, rule)
     if given is not None:
         return Covariance(hac_cov(fit, lag, groups), None, lag, rule)
-    return Covariance(hac_cov(fit, lag, groups), model_cov(fit, glm), lag,
-                      rule + "; never below the model-based variance")
+    return Covariance(
+        hac_cov(fit, lag, groups),
+        model_cov(fit, glm),
+        lag,
+        rule + "; never below the model-based variance",
+    )
 
 
 def t_crit(df: int, level: float = 0.95) -> float:
@@ -135,8 +144,10 @@ def t_crit(df: int, level: float = 0.95) -> float:
 
 def _inv(xtx: np.ndarray) -> np.ndarray:
     if np.linalg.cond(xtx) > 1e12:
-        raise AnalysisError("the model's design is singular (too few distinct periods for the "
-                            "terms asked for); drop the seasonal terms or add points")
+        raise AnalysisError(
+            "the model's design is singular (too few distinct periods for the "
+            "terms asked for); drop the seasonal terms or add points"
+        )
     return np.linalg.inv(xtx)
 
 
@@ -172,12 +183,20 @@ def _irls(x, y, offset, alpha, start=None) -> tuple[np.ndarray, int]:
         if abs(dev - dev_old) <= TOL * (abs(dev) + 0.1):
             return b, it
         dev_old = dev
-    raise NotConverged(f"the count model did not converge in {MAX_ITER} iterations; "
-                       "no estimate (try --model gaussian or fewer terms)")
+    raise NotConverged(
+        f"the count model did not converge in {MAX_ITER} iterations; "
+        "no estimate (try --model gaussian or fewer terms)"
+    )
 
 
-def fit_glm(x: np.ndarray, y: np.ndarray, offset: np.ndarray, *, negbin: bool = False,
-            start: np.ndarray | None = None) -> Fit:
+def fit_glm(
+    x: np.ndarray,
+    y: np.ndarray,
+    offset: np.ndarray,
+    *,
+    negbin: bool = False,
+    start: np.ndarray | None = None,
+) -> Fit:
     """Poisson (or NB2 with ``negbin``) log-link GLM by IRLS."""
     if np.any(y < 0):
         raise AnalysisError("count models need counts of 0 or more")
@@ -210,8 +229,9 @@ def fit_model(model: str, x, y, offset=None, start=None) -> Fit:
     raise AnalysisError(f"unknown model {model!r}; accepted: {', '.join(MODELS)}")
 
 
-def hac_cov(fit: Fit, lag: int, groups: np.ndarray | None = None, *,
-            correction: bool = True) -> np.ndarray:
+def hac_cov(
+    fit: Fit, lag: int, groups: np.ndarray | None = None, *, correction: bool = True
+) -> np.ndarray:
     """Newey-West covariance of ``fit.params`` with ``lag`` lags (Bartlett kernel), times
     ``n / (n - k)`` with ``correction``.
 

@@ -52,16 +52,20 @@ def seasonal_terms(tl: Timeline, seasonal: str | None) -> tuple[np.ndarray, list
     if seasonal is None:
         return np.zeros((n, 0)), []
     if seasonal not in SEASONAL:
-        raise AnalysisError(f"unknown seasonal option {seasonal!r}; accepted: "
-                            f"{', '.join(SEASONAL)} or none")
+        raise AnalysisError(
+            f"unknown seasonal option {seasonal!r}; accepted: {', '.join(SEASONAL)} or none"
+        )
     length = tl.season_length
     if length is None:
-        raise AnalysisError(f"seasonal terms need a sub-annual unit (quarter, month, week), "
-                            f"not {tl.unit}")
+        raise AnalysisError(
+            f"seasonal terms need a sub-annual unit (quarter, month, week), not {tl.unit}"
+        )
     if seasonal == "month":
         if tl.unit == "week":
-            raise AnalysisError("one indicator per week of the year is too many; use "
-                                "seasonal='fourier' for weekly series")
+            raise AnalysisError(
+                "one indicator per week of the year is too many; use "
+                "seasonal='fourier' for weekly series"
+            )
         cols = [(tl.season == s).astype(float) for s in range(1, length)]
         return np.column_stack(cols), [f"season_{s + 1}" for s in range(1, length)]
     cols, names = [], []
@@ -131,14 +135,36 @@ class ITSResult:
         """``(rate ratio, low, high)`` for count models, else None."""
         if self.effect_scale != "log":
             return None
-        return (float(np.exp(self.effect)), float(np.exp(self.effect_ci[0])),
-                float(np.exp(self.effect_ci[1])))
+        return (
+            float(np.exp(self.effect)),
+            float(np.exp(self.effect_ci[0])),
+            float(np.exp(self.effect_ci[1])),
+        )
 
     def to_dict(self) -> dict[str, Any]:
-        out = {k: getattr(self, k) for k in (
-            "model", "seasonal", "horizon", "hac_lag", "n_pre", "n_post", "level_change",
-            "level_change_se", "slope_change", "slope_change_se", "pre_slope", "pre_slope_se",
-            "effect", "effect_se", "effect_scale", "measure", "estimate_kind", "change_at")}
+        out = {
+            k: getattr(self, k)
+            for k in (
+                "model",
+                "seasonal",
+                "horizon",
+                "hac_lag",
+                "n_pre",
+                "n_post",
+                "level_change",
+                "level_change_se",
+                "slope_change",
+                "slope_change_se",
+                "pre_slope",
+                "pre_slope_se",
+                "effect",
+                "effect_se",
+                "effect_scale",
+                "measure",
+                "estimate_kind",
+                "change_at",
+            )
+        }
         out["effect_ci"] = list(self.effect_ci)
         r = self.ratio
         out["rate_ratio"] = None if r is None else {"estimate": r[0], "low": r[1], "high": r[2]}
@@ -146,8 +172,10 @@ class ITSResult:
         out["params"] = dict(self.params)
         out["notes"] = list(self.notes)
         out["points"] = {
-            "periods": list(self.periods), "observed": self.observed.tolist(),
-            "fitted": self.fitted.tolist(), "counterfactual": self.counterfactual.tolist(),
+            "periods": list(self.periods),
+            "observed": self.observed.tolist(),
+            "fitted": self.fitted.tolist(),
+            "counterfactual": self.counterfactual.tolist(),
             "counterfactual_low": self.counterfactual_low.tolist(),
             "counterfactual_high": self.counterfactual_high.tolist(),
         }
@@ -177,15 +205,27 @@ def check_points(n_pre: int, n_post: int, seasonal: str | None) -> list[str]:
     if min(n_pre, n_post) < MIN_POINTS:
         raise TooFewPoints(
             f"{n_pre} point(s) before and {n_post} from the change: segmented regression needs "
-            f"at least {MIN_POINTS} on each side (Wagner et al. 2002); no estimate")
+            f"at least {MIN_POINTS} on each side (Wagner et al. 2002); no estimate"
+        )
     if seasonal and min(n_pre, n_post) < SEASONAL_MIN_POINTS:
-        return [f"fewer than {SEASONAL_MIN_POINTS} points on a side with seasonal terms "
-                "(8 or more recommended, common practice)"]
+        return [
+            f"fewer than {SEASONAL_MIN_POINTS} points on a side with seasonal terms "
+            "(8 or more recommended, common practice)"
+        ]
     return []
 
 
-def fit_its(tl: Timeline, y, offset, cut: int, model: str, seas: np.ndarray, lag: int | None,
-            horizon: int | None, start=None) -> tuple[F.Fit, F.Covariance, float, float]:
+def fit_its(
+    tl: Timeline,
+    y,
+    offset,
+    cut: int,
+    model: str,
+    seas: np.ndarray,
+    lag: int | None,
+    horizon: int | None,
+    start=None,
+) -> tuple[F.Fit, F.Covariance, float, float]:
     """Fit at change position ``cut``; returns (fit, covariance, effect, effect SE).
     ``lag=None`` chooses it (:func:`exposhift.series.fit.covariance`)."""
     x = design(tl, cut, seas)
@@ -198,10 +238,17 @@ def fit_its(tl: Timeline, y, offset, cut: int, model: str, seas: np.ndarray, lag
     return fit, cov, float(c @ fit.params), float(np.sqrt(max(cov.var(c), 0.0)))
 
 
-def estimate_its(periods: Sequence, values: Sequence[float], change_at, *,
-                 denominators: Sequence[float] | None = None, model: str = "gaussian",
-                 seasonal: str | None = None, horizon: int | None = None,
-                 hac_lag: int | None = None) -> ITSResult:
+def estimate_its(
+    periods: Sequence,
+    values: Sequence[float],
+    change_at,
+    *,
+    denominators: Sequence[float] | None = None,
+    model: str = "gaussian",
+    seasonal: str | None = None,
+    horizon: int | None = None,
+    hac_lag: int | None = None,
+) -> ITSResult:
     """Segmented regression of one series with a change at ``change_at`` (see module doc).
 
     With ``denominators`` the gaussian model fits the rate ``value / denominator``; count models
@@ -215,8 +262,10 @@ def estimate_its(periods: Sequence, values: Sequence[float], change_at, *,
     n_pre, n_post = cut, len(y) - cut
     notes = check_points(n_pre, n_post, seasonal)
     if horizon is not None and not 1 <= int(horizon) <= n_post:
-        raise AnalysisError(f"horizon {horizon} is outside 1..{n_post} (the points after the "
-                            "change); the effect is never extrapolated")
+        raise AnalysisError(
+            f"horizon {horizon} is outside 1..{n_post} (the points after the "
+            "change); the effect is never extrapolated"
+        )
     seas, seas_names = seasonal_terms(tl, seasonal)
     fit, cov, eff, eff_se = fit_its(tl, y, offset, cut, model, seas, hac_lag, horizon)
     lag, rule = cov.lag, cov.rule
@@ -226,12 +275,20 @@ def estimate_its(periods: Sequence, values: Sequence[float], change_at, *,
     names = ["intercept", "time", "level_change", "slope_change", *seas_names]
     dw = F.durbin_watson(fit.pearson)
     q, q_p, q_lags = F.ljung_box(fit.pearson)
-    diagnostics = {"durbin_watson": dw, "ljung_box_q": q, "ljung_box_p": q_p,
-                   "ljung_box_lags": q_lags, "hac_lag": lag, "se_method": rule,
-                   "df": df, "interval": f"Student t, {df} df",
-                   "dispersion": fit.scale if model != "gaussian" else None,
-                   "negbin_alpha": fit.alpha if model == "negbin" else None,
-                   "iterations": fit.iterations, "n": len(y)}
+    diagnostics = {
+        "durbin_watson": dw,
+        "ljung_box_q": q,
+        "ljung_box_p": q_p,
+        "ljung_box_lags": q_lags,
+        "hac_lag": lag,
+        "se_method": rule,
+        "df": df,
+        "interval": f"Student t, {df} df",
+        "dispersion": fit.scale if model != "gaussian" else None,
+        "negbin_alpha": fit.alpha if model == "negbin" else None,
+        "iterations": fit.iterations,
+        "n": len(y),
+    }
     # counterfactual: the pre-change segment continued (post = since = 0)
     x = design(tl, cut, seas)
     xcf = x.copy()
@@ -249,15 +306,32 @@ def estimate_its(periods: Sequence, values: Sequence[float], change_at, *,
         observed = y / np.exp(offset)
     log = model != "gaussian"
     return ITSResult(
-        model=model, seasonal=seasonal, horizon=None if horizon is None else int(horizon),
-        hac_lag=lag, n_pre=n_pre, n_post=n_post,
-        level_change=float(fit.params[2]), level_change_se=float(se[2]),
-        slope_change=float(fit.params[3]), slope_change_se=float(se[3]),
-        pre_slope=float(fit.params[1]), pre_slope_se=float(se[1]),
-        effect=eff, effect_se=eff_se, effect_ci=(eff - crit * eff_se, eff + crit * eff_se),
-        effect_scale="log" if log else "identity", measure="IRR" if log else "MD",
-        estimate_kind="level" if horizon is None else "change", diagnostics=diagnostics,
-        change_at=tl.labels[cut], periods=tl.labels, observed=observed, fitted=fitted,
-        counterfactual=eta, counterfactual_low=lo, counterfactual_high=hi,
-        params=dict(zip(names, map(float, fit.params), strict=True)), notes=tuple(notes),
+        model=model,
+        seasonal=seasonal,
+        horizon=None if horizon is None else int(horizon),
+        hac_lag=lag,
+        n_pre=n_pre,
+        n_post=n_post,
+        level_change=float(fit.params[2]),
+        level_change_se=float(se[2]),
+        slope_change=float(fit.params[3]),
+        slope_change_se=float(se[3]),
+        pre_slope=float(fit.params[1]),
+        pre_slope_se=float(se[1]),
+        effect=eff,
+        effect_se=eff_se,
+        effect_ci=(eff - crit * eff_se, eff + crit * eff_se),
+        effect_scale="log" if log else "identity",
+        measure="IRR" if log else "MD",
+        estimate_kind="level" if horizon is None else "change",
+        diagnostics=diagnostics,
+        change_at=tl.labels[cut],
+        periods=tl.labels,
+        observed=observed,
+        fitted=fitted,
+        counterfactual=eta,
+        counterfactual_low=lo,
+        counterfactual_high=hi,
+        params=dict(zip(names, map(float, fit.params), strict=True)),
+        notes=tuple(notes),
     )

@@ -112,12 +112,15 @@ class Timeline:
         else:
             target = period_index(str(change_at), self.unit)
             if target is None:
-                raise AnalysisError(f"change period {change_at!r} is not a {self.unit} "
-                                    f"period like the series' ({self.labels[0]!r})")
+                raise AnalysisError(
+                    f"change period {change_at!r} is not a {self.unit} "
+                    f"period like the series' ({self.labels[0]!r})"
+                )
         if target <= self.index[0] or target > self.index[-1]:
             raise AnalysisError(
                 f"change period {change_at!r} is outside the series ({self.labels[0]} to "
-                f"{self.labels[-1]}): there must be points before it and from it on")
+                f"{self.labels[-1]}): there must be points before it and from it on"
+            )
         return int(np.searchsorted(self.index, target))
 
 
@@ -132,11 +135,14 @@ def timeline(periods: Sequence, unit: str | None = None) -> Timeline:
         units = {period_unit(p) for p in labels}
         if None in units:
             bad = next(p for p in labels if period_unit(p) is None)
-            raise AnalysisError(f"period {bad!r} is not a year, quarter, month or week "
-                                "(2015, 2015-Q2, 2015-03, 2015-W07)")
+            raise AnalysisError(
+                f"period {bad!r} is not a year, quarter, month or week "
+                "(2015, 2015-Q2, 2015-03, 2015-W07)"
+            )
         if len(units) > 1:
-            raise AnalysisError(f"periods mix time units ({', '.join(sorted(units))}); "
-                                "use one unit per series")
+            raise AnalysisError(
+                f"periods mix time units ({', '.join(sorted(units))}); use one unit per series"
+            )
         found = units.pop() if units else "year"
         if unit is not None and found != unit and labels:
             raise AnalysisError(f"periods are {found}s but the series says {unit}")
@@ -146,6 +152,8 @@ def timeline(periods: Sequence, unit: str | None = None) -> Timeline:
     if len(idx) > 1 and np.any(np.diff(idx) <= 0):
         i = int(np.flatnonzero(np.diff(idx) <= 0)[0]) + 1
         what = "repeats" if idx[i] == idx[i - 1] else "comes before"
-        raise AnalysisError(f"period {labels[i]!r} {what} the previous one ({labels[i - 1]!r}); "
-                            "points must be in increasing order with no duplicates")
+        raise AnalysisError(
+            f"period {labels[i]!r} {what} the previous one ({labels[i - 1]!r}); "
+            "points must be in increasing order with no duplicates"
+        )
     return Timeline(labels, idx, season, unit)

@@ -85,13 +85,22 @@ class PlaceboResult:
         return float(np.mean(np.abs(self.effects) > 1.959963984540054 * self.ses))
 
     def to_dict(self) -> dict[str, Any]:
-        return {"kind": self.kind, "real_effect": self.real_effect, "labels": list(self.labels),
-                "effects": self.effects.tolist(), "ses": self.ses.tolist(), "rank": self.rank,
-                "n_placebos": len(self.effects), "p_value": self.p_value, "alpha": self.alpha,
-                "status": self.status, "share_significant": self.share_significant,
-                "notes": list(self.notes), "naive_real": self.naive_real,
-                "naive_effects": None if self.naive_effects is None
-                else self.naive_effects.tolist()}
+        return {
+            "kind": self.kind,
+            "real_effect": self.real_effect,
+            "labels": list(self.labels),
+            "effects": self.effects.tolist(),
+            "ses": self.ses.tolist(),
+            "rank": self.rank,
+            "n_placebos": len(self.effects),
+            "p_value": self.p_value,
+            "alpha": self.alpha,
+            "status": self.status,
+            "share_significant": self.share_significant,
+            "notes": list(self.notes),
+            "naive_real": self.naive_real,
+            "naive_effects": None if self.naive_effects is None else self.naive_effects.tolist(),
+        }
 
 
 def naive_before_after(y: np.ndarray, offset, cut: int, model: str) -> float:
@@ -118,11 +127,20 @@ def _placebo_fits(tl: Timeline, y, offset, model, seas, lag, horizon, min_points
     return cuts, np.array(effects), np.array(ses)
 
 
-def placebo_dates(periods: Sequence, values: Sequence[float], change_at, *,
-                  denominators: Sequence[float] | None = None, model: str = "gaussian",
-                  seasonal: str | None = None, horizon: int | None = None,
-                  hac_lag: int | None = None, min_points: int | None = None,
-                  alpha: float = ALPHA, real: ITSResult | None = None) -> PlaceboResult:
+def placebo_dates(
+    periods: Sequence,
+    values: Sequence[float],
+    change_at,
+    *,
+    denominators: Sequence[float] | None = None,
+    model: str = "gaussian",
+    seasonal: str | None = None,
+    horizon: int | None = None,
+    hac_lag: int | None = None,
+    min_points: int | None = None,
+    alpha: float = ALPHA,
+    real: ITSResult | None = None,
+) -> PlaceboResult:
     """Refit at every admissible false change date in the pre-change period (module doc).
 
     ``min_points`` on each side of a placebo date: 3 (Wagner et al. 2002), or 8 with seasonal
@@ -134,8 +152,16 @@ def placebo_dates(periods: Sequence, values: Sequence[float], change_at, *,
     if min_points is None:
         min_points = SEASONAL_MIN_POINTS if seasonal else MIN_POINTS
     if real is None:
-        real = estimate_its(periods, values, change_at, denominators=denominators, model=model,
-                            seasonal=seasonal, horizon=horizon, hac_lag=hac_lag)
+        real = estimate_its(
+            periods,
+            values,
+            change_at,
+            denominators=denominators,
+            model=model,
+            seasonal=seasonal,
+            horizon=horizon,
+            hac_lag=hac_lag,
+        )
     tl = timeline(periods)
     y, offset = _arrays(values, denominators, model)
     cut = tl.position(change_at)
@@ -145,33 +171,58 @@ def placebo_dates(periods: Sequence, values: Sequence[float], change_at, *,
     seas, _ = seasonal_terms(pre, seasonal) if seasonal else (np.zeros((cut, 0)), [])
     notes = []
     try:
-        cuts, effects, ses = _placebo_fits(pre, y_pre, off_pre, model, seas, real.hac_lag,
-                                           horizon, min_points)
+        cuts, effects, ses = _placebo_fits(
+            pre, y_pre, off_pre, model, seas, real.hac_lag, horizon, min_points
+        )
     except F.NotConverged:
         raise
     except AnalysisError as exc:  # e.g. too short a pre-period for the seasonal terms
         cuts, effects, ses = [], np.array([]), np.array([])
         notes.append(f"no placebo date could be fitted: {exc}")
     if not cuts and not notes:
-        notes.append(f"the pre-change period ({cut} points) is too short for any placebo date "
-                     f"({min_points} points on each side needed)")
+        notes.append(
+            f"the pre-change period ({cut} points) is too short for any placebo date "
+            f"({min_points} points on each side needed)"
+        )
     rank, p = rank_and_p(real.effect, effects)
     naive = np.array([naive_before_after(y_pre, off_pre, c, model) for c in cuts])
-    return PlaceboResult("dates", real.effect, tuple(pre.labels[c] for c in cuts), effects, ses,
-                         rank, p, alpha, verdict(p, len(effects), alpha), tuple(notes),
-                         naive_before_after(y, offset, cut, model), naive)
+    return PlaceboResult(
+        "dates",
+        real.effect,
+        tuple(pre.labels[c] for c in cuts),
+        effects,
+        ses,
+        rank,
+        p,
+        alpha,
+        verdict(p, len(effects), alpha),
+        tuple(notes),
+        naive_before_after(y, offset, cut, model),
+        naive,
+    )
 
 
-def placebo_places(real: ITSResult, comparisons: dict[str, ITSResult],
-                   alpha: float = ALPHA) -> PlaceboResult:
+def placebo_places(
+    real: ITSResult, comparisons: dict[str, ITSResult], alpha: float = ALPHA
+) -> PlaceboResult:
     """Rank the real effect among the comparison series fitted as if exposed."""
     labels = tuple(sorted(comparisons))
     effects = np.array([comparisons[k].effect for k in labels])
     ses = np.array([comparisons[k].effect_se for k in labels])
     rank, p = rank_and_p(real.effect, effects)
     notes = () if labels else ("no comparison series: no placebo places",)
-    return PlaceboResult("places", real.effect, labels, effects, ses, rank, p, alpha,
-                         verdict(p, len(effects), alpha), notes)
+    return PlaceboResult(
+        "places",
+        real.effect,
+        labels,
+        effects,
+        ses,
+        rank,
+        p,
+        alpha,
+        verdict(p, len(effects), alpha),
+        notes,
+    )
 
 
 def negative_control_status(result: ITSResult) -> str:
@@ -182,5 +233,6 @@ def negative_control_status(result: ITSResult) -> str:
 
 def require_same_options(a: ITSResult, b: ITSResult) -> None:
     if (a.model, a.seasonal, a.horizon) != (b.model, b.seasonal, b.horizon):
-        raise AnalysisError("placebo fits must use the model, seasonal terms and horizon of the "
-                            "real fit")
+        raise AnalysisError(
+            "placebo fits must use the model, seasonal terms and horizon of the real fit"
+        )

@@ -65,8 +65,11 @@ def _int_level(text: str) -> int | None:
 def facts_of(study: dict[str, Any]) -> StudyFacts:
     """The recorded facts of a study that appraisal suggestions are made from."""
     return facts_from_record(
-        study["design"], study.get("pre_points"), study.get("post_points"),
-        study.get("checks") or None, study.get("assignment_grade"),
+        study["design"],
+        study.get("pre_points"),
+        study.get("post_points"),
+        study.get("checks") or None,
+        study.get("assignment_grade"),
         has_comparison=bool(study.get("comparison")) or None,
     )
 
@@ -75,17 +78,26 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
     """Every problem in one pass; returns parsed appraisals in file order."""
     problems: list[Problem] = []
     domains = rubric.domain_keys
-    known = set(META_COLUMNS) | set(domains) | {f"{d}_why" for d in domains} | {
-        f"{d}_reporting" for d in domains}
+    known = (
+        set(META_COLUMNS)
+        | set(domains)
+        | {f"{d}_why" for d in domains}
+        | {f"{d}_reporting" for d in domains}
+    )
     for col in META_COLUMNS:
         if col not in frame.columns:
             problems.append(Problem(label, 1, col, "required column is missing"))
     unknown = [c for c in frame.columns if c not in known]
     for col in unknown:
-        problems.append(Problem(
-            label, 1, col,
-            f"unknown column; accepted domain keys: {', '.join(domains)} (with optional "
-            "'<domain>_why' and '<domain>_reporting' columns)"))
+        problems.append(
+            Problem(
+                label,
+                1,
+                col,
+                f"unknown column; accepted domain keys: {', '.join(domains)} (with optional "
+                "'<domain>_why' and '<domain>_reporting' columns)",
+            )
+        )
     if problems:
         raise InputFileError(problems)
     reporting_keys = {r.key for r in rubric.reporting}
@@ -105,16 +117,27 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
             problems.append(Problem(label, row, "study_id", "empty; name the study"))
             bad = True
         elif study not in studies:
-            problems.append(Problem(label, row, "study_id",
-                                    f"no study '{study}' in the evidence base; import it first"))
+            problems.append(
+                Problem(
+                    label,
+                    row,
+                    "study_id",
+                    f"no study '{study}' in the evidence base; import it first",
+                )
+            )
             bad = True
         if not reviewer:
             problems.append(Problem(label, row, "reviewer", "empty; name the reviewer"))
             bad = True
         if stage not in REVIEW_STAGES:
-            problems.append(Problem(label, row, "stage",
-                                    f"'{stage}' is not a stage; accepted: "
-                                    f"{', '.join(REVIEW_STAGES)}"))
+            problems.append(
+                Problem(
+                    label,
+                    row,
+                    "stage",
+                    f"'{stage}' is not a stage; accepted: {', '.join(REVIEW_STAGES)}",
+                )
+            )
             bad = True
         ratings: dict[str, int] = {}
         why: dict[str, str] = {}
@@ -123,16 +146,23 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
             text = rec.get(d, "")
             if text == "":
                 if d in rubric.core_domains:
-                    problems.append(Problem(label, row, d,
-                                            "core domain not rated; give a level 0-3"))
+                    problems.append(
+                        Problem(label, row, d, "core domain not rated; give a level 0-3")
+                    )
                     bad = True
                 continue
             level = _int_level(text)
             if level is None or level not in (0, 1, 2, 3):
                 what = "is not one of the levels" if level is None else "is outside 0-3"
-                problems.append(Problem(label, row, d,
-                                        f"level '{text}' {what}; accepted: 0 (fatal), 1 (weak), "
-                                        "2 (adequate), 3 (strong)"))
+                problems.append(
+                    Problem(
+                        label,
+                        row,
+                        d,
+                        f"level '{text}' {what}; accepted: 0 (fatal), 1 (weak), "
+                        "2 (adequate), 3 (strong)",
+                    )
+                )
                 bad = True
                 continue
             ratings[d] = level
@@ -141,9 +171,15 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
             rep = rec.get(f"{d}_reporting", "")
             if rep:
                 if rep not in reporting_keys:
-                    problems.append(Problem(label, row, f"{d}_reporting",
-                                            f"'{rep}' is not a reporting value; accepted: "
-                                            f"{', '.join(sorted(reporting_keys))}"))
+                    problems.append(
+                        Problem(
+                            label,
+                            row,
+                            f"{d}_reporting",
+                            f"'{rep}' is not a reporting value; accepted: "
+                            f"{', '.join(sorted(reporting_keys))}",
+                        )
+                    )
                     bad = True
                 else:
                     reporting[d] = rep
@@ -151,9 +187,15 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
             continue
         key = (study, reviewer, stage)
         if key in seen:
-            problems.append(Problem(label, row, "reviewer",
-                                    f"'{reviewer}' already appraises study '{study}' at stage "
-                                    f"'{stage}' in row {seen[key]}; keep one row"))
+            problems.append(
+                Problem(
+                    label,
+                    row,
+                    "reviewer",
+                    f"'{reviewer}' already appraises study '{study}' at stage "
+                    f"'{stage}' in row {seen[key]}; keep one row",
+                )
+            )
             continue
         seen[key] = row
         suggestions = suggest_levels(facts_of(studies[study]), rubric)
@@ -162,10 +204,15 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
             if s is None or s.allows(level) or d in why:
                 continue
             wanted = f"{s.level}" if s.level is not None else f"at most {s.max_level}"
-            problems.append(Problem(
-                label, row, d,
-                f"level {level} departs from the suggested {wanted} ({s.reason}); use the "
-                f"suggested level or give the reason for overriding in '{d}_why'"))
+            problems.append(
+                Problem(
+                    label,
+                    row,
+                    d,
+                    f"level {level} departs from the suggested {wanted} ({s.reason}); use the "
+                    f"suggested level or give the reason for overriding in '{d}_why'",
+                )
+            )
             bad = True
         if bad:
             continue
@@ -173,23 +220,42 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
             if existing[key]["ratings"] == ratings:
                 parsed.append({"key": key, "row": row, "unchanged": True})
                 continue
-            problems.append(Problem(
-                label, row, "reviewer",
-                f"'{reviewer}' has already appraised study '{study}' at stage '{stage}' with "
-                "other ratings; an appraisal is not overwritten. Settle differences in the "
-                "consensus appraisal"))
+            problems.append(
+                Problem(
+                    label,
+                    row,
+                    "reviewer",
+                    f"'{reviewer}' has already appraised study '{study}' at stage '{stage}' with "
+                    "other ratings; an appraisal is not overwritten. Settle differences in the "
+                    "consensus appraisal",
+                )
+            )
             continue
         if stage == "independent":
             independents.setdefault(study, set()).add(reviewer)
         elif len(independents.get(study, set())) < 2:
             n = len(independents.get(study, set()))
-            problems.append(Problem(
-                label, row, "stage",
-                f"a consensus for study '{study}' needs two independent appraisals first "
-                f"(it has {n}); import the independent appraisals before the consensus"))
+            problems.append(
+                Problem(
+                    label,
+                    row,
+                    "stage",
+                    f"a consensus for study '{study}' needs two independent appraisals first "
+                    f"(it has {n}); import the independent appraisals before the consensus",
+                )
+            )
             continue
-        parsed.append({"key": key, "row": row, "ratings": ratings, "why": why,
-                       "reporting": reporting, "suggestions": suggestions, "unchanged": False})
+        parsed.append(
+            {
+                "key": key,
+                "row": row,
+                "ratings": ratings,
+                "why": why,
+                "reporting": reporting,
+                "suggestions": suggestions,
+                "unchanged": False,
+            }
+        )
     if problems:
         raise InputFileError(sorted(problems, key=lambda p: (p.row or 0, p.column or "")))
     return parsed
@@ -223,23 +289,37 @@ def import_appraisals(
             summary.by_stage[stage] = summary.by_stage.get(stage, 0) + 1
             if dry_run:
                 continue
-            ap_id = w.insert(APPRAISAL_TABLE, {
-                "study_id": studies[study]["id"], "reviewer": reviewer, "stage": stage,
-                "rubric_id": rubric.rubric_id, "rubric_hash": rubric.content_hash,
-                "overall": score.overall,
-            }, row_key=f"{study}|{reviewer}|{stage}")
+            ap_id = w.insert(
+                APPRAISAL_TABLE,
+                {
+                    "study_id": studies[study]["id"],
+                    "reviewer": reviewer,
+                    "stage": stage,
+                    "rubric_id": rubric.rubric_id,
+                    "rubric_hash": rubric.content_hash,
+                    "overall": score.overall,
+                },
+                row_key=f"{study}|{reviewer}|{stage}",
+            )
             rows = []
             for d, level in item["ratings"].items():
                 s = item["suggestions"].get(d)
-                rows.append({
-                    "appraisal_id": ap_id, "domain": d, "level": level,
-                    "reporting": item["reporting"].get(d),
-                    "justification": item["why"].get(d),
-                    "suggested_level": None if s is None else s.max_level,
-                    "suggestion_reason": None if s is None else s.reason,
-                })
-            w.insert_many(RATING_TABLE, rows, row_keys=[f"{study}|{reviewer}|{stage}|{r['domain']}"
-                                              for r in rows])
+                rows.append(
+                    {
+                        "appraisal_id": ap_id,
+                        "domain": d,
+                        "level": level,
+                        "reporting": item["reporting"].get(d),
+                        "justification": item["why"].get(d),
+                        "suggested_level": None if s is None else s.max_level,
+                        "suggestion_reason": None if s is None else s.reason,
+                    }
+                )
+            w.insert_many(
+                RATING_TABLE,
+                rows,
+                row_keys=[f"{study}|{reviewer}|{stage}|{r['domain']}" for r in rows],
+            )
         w.flush()
         if dry_run:
             conn.rollback()
@@ -261,8 +341,9 @@ class AppraisalView:
     blinded: bool
 
 
-def show_appraisals(store: Store, study_key: str, viewer: str | None = None,
-                    rubric_path: str | Path | None = None) -> dict[str, Any]:
+def show_appraisals(
+    store: Store, study_key: str, viewer: str | None = None, rubric_path: str | Path | None = None
+) -> dict[str, Any]:
     """A study's appraisals as ``viewer`` may see them (blinding applied)."""
     rubric = load_rubric(rubric_path)
     with store.read() as conn:
@@ -280,22 +361,55 @@ def show_appraisals(store: Store, study_key: str, viewer: str | None = None,
         hidden = a["stage"] == "independent" and not unblinded and a["reviewer"] != viewer
         label = a["rubric_id"] + " (" + a["rubric_hash"][:12] + ")"
         if hidden:
-            views.append(AppraisalView(a["reviewer"], a["stage"], label, None, None,
-                                       "hidden until both independent appraisals are in",
-                                       None, {}, {}, True))
+            views.append(
+                AppraisalView(
+                    a["reviewer"],
+                    a["stage"],
+                    label,
+                    None,
+                    None,
+                    "hidden until both independent appraisals are in",
+                    None,
+                    {},
+                    {},
+                    True,
+                )
+            )
             continue
         score = score_appraisal(rs, rubric)
-        views.append(AppraisalView(
-            a["reviewer"], a["stage"], label, a["overall"], score.deciding_domain, score.reason,
-            rs, {r["domain"]: r["justification"] for r in by_ap.get(a["id"], [])
-                 if r["justification"]},
-            {r["domain"]: (r["suggested_level"], r["suggestion_reason"])
-             for r in by_ap.get(a["id"], []) if r["suggestion_reason"]},
-            False))
+        views.append(
+            AppraisalView(
+                a["reviewer"],
+                a["stage"],
+                label,
+                a["overall"],
+                score.deciding_domain,
+                score.reason,
+                rs,
+                {
+                    r["domain"]: r["justification"]
+                    for r in by_ap.get(a["id"], [])
+                    if r["justification"]
+                },
+                {
+                    r["domain"]: (r["suggested_level"], r["suggestion_reason"])
+                    for r in by_ap.get(a["id"], [])
+                    if r["suggestion_reason"]
+                },
+                False,
+            )
+        )
     record = next((v for v in views if v.stage == "consensus"), None)
-    return {"study_id": study_key, "citation": study["citation"], "design": study["design"],
-            "appraisals": views, "of_record": record, "independent": n_indep,
-            "domains": rubric.domain_keys, "caution": rubric.caution}
+    return {
+        "study_id": study_key,
+        "citation": study["citation"],
+        "design": study["design"],
+        "appraisals": views,
+        "of_record": record,
+        "independent": n_indep,
+        "domains": rubric.domain_keys,
+        "caution": rubric.caution,
+    }
 
 
 def agreement(store: Store) -> pd.DataFrame:

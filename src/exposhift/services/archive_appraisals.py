@@ -33,8 +33,7 @@ from exposhift.services.appraising import _validate
 from exposhift.store.appraisals import existing_appraisals, rubrics_held, studies_by_key
 from exposhift.store.writer import Writer
 
-STUDY_FACTS = ("design", "pre_points", "post_points", "checks", "assignment_grade",
-               "comparison")
+STUDY_FACTS = ("design", "pre_points", "post_points", "checks", "assignment_grade", "comparison")
 
 
 def _none(v: Any) -> Any:
@@ -62,8 +61,11 @@ def _wide(frames: EvidenceFrames, domains: tuple[str, ...]) -> pd.DataFrame:
     for r in to_records(frames.ratings):
         by_key.setdefault((r["study"], r["reviewer"], r["stage"]), []).append(r)
     for a in apps:
-        row = {"study_id": a["study"] or "", "reviewer": a["reviewer"] or "",
-               "stage": a["stage"] or ""}
+        row = {
+            "study_id": a["study"] or "",
+            "reviewer": a["reviewer"] or "",
+            "stage": a["stage"] or "",
+        }
         for d in domains:
             row[d] = ""
         for r in by_key.get((a["study"], a["reviewer"], a["stage"]), []):
@@ -97,30 +99,46 @@ def _archive_column(column: str | None, domains: tuple[str, ...]) -> str | None:
 def _message(msg: str, domains: tuple[str, ...]) -> str:
     for d in domains:
         msg = msg.replace(f"in '{d}_why'", "in the rating's justification")
-    return msg.replace("import the independent appraisals before the consensus",
-                       "add the independent appraisals to the archive or the evidence base")
+    return msg.replace(
+        "import the independent appraisals before the consensus",
+        "add the independent appraisals to the archive or the evidence base",
+    )
 
 
 def _rule_problems(frames, wide, label, rubric, studies, existing) -> list[Problem]:
     try:
         _validate(wide, label, rubric, studies, existing)
     except InputFileError as exc:
-        return [Problem(p.file, p.row, _archive_column(p.column, rubric.domain_keys),
-                        _message(p.message, rubric.domain_keys)) for p in exc.problems]
+        return [
+            Problem(
+                p.file,
+                p.row,
+                _archive_column(p.column, rubric.domain_keys),
+                _message(p.message, rubric.domain_keys),
+            )
+            for p in exc.problems
+        ]
     return []
 
 
 def _unknown_domains(frames, label, rubric) -> list[Problem]:
     known = set(rubric.domain_keys)
     out = []
-    index = {(a["study"], a["reviewer"], a["stage"]): i + 1
-             for i, a in enumerate(to_records(frames.appraisals))}
+    index = {
+        (a["study"], a["reviewer"], a["stage"]): i + 1
+        for i, a in enumerate(to_records(frames.appraisals))
+    }
     for r in to_records(frames.ratings):
         if r["domain"] not in known:
-            out.append(Problem(label, index.get((r["study"], r["reviewer"], r["stage"])),
-                               f"ratings[{r['domain']}]",
-                               f"unknown domain; the rubric {rubric.label} has: "
-                               f"{', '.join(rubric.domain_keys)}"))
+            out.append(
+                Problem(
+                    label,
+                    index.get((r["study"], r["reviewer"], r["stage"])),
+                    f"ratings[{r['domain']}]",
+                    f"unknown domain; the rubric {rubric.label} has: "
+                    f"{', '.join(rubric.domain_keys)}",
+                )
+            )
     return out
 
 
@@ -131,35 +149,51 @@ def _rubric_problems(conn, frames, label, rubric) -> list[Problem]:
     ratings: dict[tuple, dict[str, int]] = {}
     for r in to_records(frames.ratings):
         if _none(r["level"]) is not None:
-            ratings.setdefault((r["study"], r["reviewer"], r["stage"]), {})[r["domain"]] = \
-                int(r["level"])
+            ratings.setdefault((r["study"], r["reviewer"], r["stage"]), {})[r["domain"]] = int(
+                r["level"]
+            )
     for i, a in enumerate(to_records(frames.appraisals)):
         pair = (a["rubric_id"], a["rubric_hash"])
         if pair not in held:
             hashes = sorted(h[:12] for j, h in held if j == a["rubric_id"])
-            why = (f"this evidence base holds rubric '{a['rubric_id']}' only with hash "
-                   f"{', '.join(hashes)}" if a["rubric_id"] in ids else
-                   f"this evidence base holds no rubric '{a['rubric_id']}' (it holds "
-                   f"{', '.join(sorted(ids))})")
-            out.append(Problem(label, i + 1, "rubric_hash" if a["rubric_id"] in ids
-                               else "rubric_id",
-                               f"{why}; appraisals are restored only with a rubric the base "
-                               "holds, so re-appraise with the rubric in use"))
+            why = (
+                f"this evidence base holds rubric '{a['rubric_id']}' only with hash "
+                f"{', '.join(hashes)}"
+                if a["rubric_id"] in ids
+                else f"this evidence base holds no rubric '{a['rubric_id']}' (it holds "
+                f"{', '.join(sorted(ids))})"
+            )
+            out.append(
+                Problem(
+                    label,
+                    i + 1,
+                    "rubric_hash" if a["rubric_id"] in ids else "rubric_id",
+                    f"{why}; appraisals are restored only with a rubric the base "
+                    "holds, so re-appraise with the rubric in use",
+                )
+            )
             continue
         if pair == (rubric.rubric_id, rubric.content_hash):
             levels = ratings.get((a["study"], a["reviewer"], a["stage"]), {})
             if set(levels) <= set(rubric.domain_keys) and set(rubric.core_domains) <= set(levels):
                 want = score_appraisal(levels, rubric).overall
                 if _none(a["overall"]) != want:
-                    out.append(Problem(label, i + 1, "overall",
-                                       f"overall {_none(a['overall'])} is not what the rubric "
-                                       f"gives for these ratings ({want}); an archive does not "
-                                       "set derived values, correct or remove it"))
+                    out.append(
+                        Problem(
+                            label,
+                            i + 1,
+                            "overall",
+                            f"overall {_none(a['overall'])} is not what the rubric "
+                            f"gives for these ratings ({want}); an archive does not "
+                            "set derived values, correct or remove it",
+                        )
+                    )
     return out
 
 
-def check_archive_appraisals(conn, frames: EvidenceFrames, rubric: Rubric, file: str,
-                             conflicts: dict[str, dict] | set[str]) -> list[Problem]:
+def check_archive_appraisals(
+    conn, frames: EvidenceFrames, rubric: Rubric, file: str, conflicts: dict[str, dict] | set[str]
+) -> list[Problem]:
     """Every rule problem of the archive's appraisals (empty list: they may be written).
 
     ``conflicts`` are the keys (``study|reviewer|stage``) of stored appraisals the archive would
@@ -168,8 +202,7 @@ def check_archive_appraisals(conn, frames: EvidenceFrames, rubric: Rubric, file:
     if frames.appraisals.empty:
         return []
     label = f"{file}: appraisals"
-    existing = {k: v for k, v in existing_appraisals(conn).items()
-                if "|".join(k) not in conflicts}
+    existing = {k: v for k, v in existing_appraisals(conn).items() if "|".join(k) not in conflicts}
     wide = _wide(frames, rubric.domain_keys)
     unknown = _unknown_domains(frames, label, rubric)
     problems = unknown + _rubric_problems(conn, frames, label, rubric)
@@ -180,23 +213,39 @@ def check_archive_appraisals(conn, frames: EvidenceFrames, rubric: Rubric, file:
 
 def conflict_problems(frames: EvidenceFrames, conflicts, file: str) -> list[Problem]:
     """One problem per stored appraisal the archive would replace."""
-    index = {f"{a['study']}|{a['reviewer']}|{a['stage']}": i + 1
-             for i, a in enumerate(to_records(frames.appraisals))}
+    index = {
+        f"{a['study']}|{a['reviewer']}|{a['stage']}": i + 1
+        for i, a in enumerate(to_records(frames.appraisals))
+    }
     out = []
     for key in sorted(conflicts):
         study, reviewer, stage = key.split("|", 2)
-        out.append(Problem(f"{file}: appraisals", index.get(key), "reviewer",
-                           f"the evidence base already holds the {stage} appraisal of study "
-                           f"'{study}' by '{reviewer}' with other content; an archive does not "
-                           "overwrite an appraisal. Settle differences in a consensus, or "
-                           "restore with --replace (an administrator's decision, recorded in "
-                           "the audit trail)"))
+        out.append(
+            Problem(
+                f"{file}: appraisals",
+                index.get(key),
+                "reviewer",
+                f"the evidence base already holds the {stage} appraisal of study "
+                f"'{study}' by '{reviewer}' with other content; an archive does not "
+                "overwrite an appraisal. Settle differences in a consensus, or "
+                "restore with --replace (an administrator's decision, recorded in "
+                "the audit trail)",
+            )
+        )
     return out
 
 
 def audit_replacements(w: Writer, conflicts, file: str) -> None:
     """Record each replaced appraisal as a ``replace`` entry in the audit trail."""
     for key in sorted(conflicts):
-        w.note("appraisal", key, "replace", None,
-               {"archive": file, "option": "--replace",
-                "reason": "appraisal replaced by an archive restore"})
+        w.note(
+            "appraisal",
+            key,
+            "replace",
+            None,
+            {
+                "archive": file,
+                "option": "--replace",
+                "reason": "appraisal replaced by an archive restore",
+            },
+        )

@@ -21,16 +21,20 @@ class AuditView:
     total_matching: int
 
 
-def verify_audit(db: str | None = None, *, entries: int | None = None,
-                 head: str | None = None) -> ChainReport:
+def verify_audit(
+    db: str | None = None, *, entries: int | None = None, head: str | None = None
+) -> ChainReport:
     """Walk the whole chain; with ``entries`` and ``head`` (a head recorded earlier, e.g. in a
     dossier) also check that the chain still passes through it."""
     if (entries is None) != (head is None):
-        raise ConfigError("give both --entries N and --head HASH (a chain head recorded "
-                          "earlier), or neither")
+        raise ConfigError(
+            "give both --entries N and --head HASH (a chain head recorded earlier), or neither"
+        )
     if entries is not None and entries < 0:
-        raise ConfigError(f"--entries {entries} is negative; give the entry count recorded "
-                          "with the head (0 or more)")
+        raise ConfigError(
+            f"--entries {entries} is negative; give the entry count recorded "
+            "with the head (0 or more)"
+        )
     expected = None if entries is None else ChainHead(entries, head.strip().lower(), None, None)
     store = open_current(db)
     try:
@@ -51,13 +55,21 @@ def parse_since(text: str) -> str:
             if when.tzinfo is None:
                 when = when.replace(tzinfo=dt.UTC)
     except ValueError:
-        raise ConfigError(f"--since {text!r} is not a date; give YYYY-MM-DD (UTC) or an "
-                          "ISO-8601 time such as 2026-12-01T09:30:00Z") from None
+        raise ConfigError(
+            f"--since {text!r} is not a date; give YYYY-MM-DD (UTC) or an "
+            "ISO-8601 time such as 2026-12-01T09:30:00Z"
+        ) from None
     return when.astimezone(dt.UTC).strftime("%Y-%m-%dT%H:%M:%S.%fZ")
 
 
-def show_audit(db: str | None = None, *, record: str | None = None, user: str | None = None,
-               since: str | None = None, limit: int | None = 200) -> AuditView:
+def show_audit(
+    db: str | None = None,
+    *,
+    record: str | None = None,
+    user: str | None = None,
+    since: str | None = None,
+    limit: int | None = 200,
+) -> AuditView:
     """Audit entries filtered by record key, user and time (the newest ``limit`` of them)."""
     if limit is not None and limit < 1:
         raise ConfigError(f"--limit {limit} is not allowed; give 1 or more")

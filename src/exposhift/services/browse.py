@@ -22,8 +22,10 @@ from exposhift.store.queries import analysis_frame, events_frame
 from exposhift.synthesis.independence import pooling_keys
 from exposhift.vocab import DESIGNS
 
-DEMO_NOTE = ("Every record flagged demo is invented: invented agents, studies and authors. "
-             "It shows how exposhift works and is no evidence about any real agent.")
+DEMO_NOTE = (
+    "Every record flagged demo is invented: invented agents, studies and authors. "
+    "It shows how exposhift works and is no evidence about any real agent."
+)
 
 
 @dataclass(frozen=True)
@@ -65,32 +67,56 @@ def evidence_overview(store: Store) -> EvidenceOverview:
         frame = analysis_frame(conn)
         events = events_frame(conn)
     studies = frame.drop_duplicates("study_id")
-    pairs = (frame.groupby(["exposure", "outcome"], sort=True)
-             .agg(outcome_group=("outcome_group", "first"), studies=("study_id", "nunique"),
-                  events=("event_id", "nunique"), estimates=("estimate_uid", "size"))
-             .reset_index()
-             .sort_values(["studies", "events", "exposure", "outcome"],
-                          ascending=[False, False, True, True], kind="stable")
-             .reset_index(drop=True))
+    pairs = (
+        frame.groupby(["exposure", "outcome"], sort=True)
+        .agg(
+            outcome_group=("outcome_group", "first"),
+            studies=("study_id", "nunique"),
+            events=("event_id", "nunique"),
+            estimates=("estimate_uid", "size"),
+        )
+        .reset_index()
+        .sort_values(
+            ["studies", "events", "exposure", "outcome"],
+            ascending=[False, False, True, True],
+            kind="stable",
+        )
+        .reset_index(drop=True)
+    )
     pairs["outcome_group"] = pairs["outcome_group"].fillna("")
-    fam = (studies.assign(design_family=studies["design_family"].fillna("unknown"))
-           .groupby("design_family").size().rename("studies").reset_index()
-           .sort_values(["studies", "design_family"], ascending=[False, True])
-           .reset_index(drop=True))
-    lv = (studies.assign(level=studies["level"].map(_level_text))
-          .groupby("level").size().rename("studies").reset_index()
-          .sort_values("level").reset_index(drop=True))
+    fam = (
+        studies.assign(design_family=studies["design_family"].fillna("unknown"))
+        .groupby("design_family")
+        .size()
+        .rename("studies")
+        .reset_index()
+        .sort_values(["studies", "design_family"], ascending=[False, True])
+        .reset_index(drop=True)
+    )
+    lv = (
+        studies.assign(level=studies["level"].map(_level_text))
+        .groupby("level")
+        .size()
+        .rename("studies")
+        .reset_index()
+        .sort_values("level")
+        .reset_index(drop=True)
+    )
     years = events["change_year"].dropna()
     demo_studies = int(studies["demo"].fillna(False).astype(bool).sum())
     return EvidenceOverview(
-        url=info["url"], backend=info["backend"], counts=dict(info["counts"]),
+        url=info["url"],
+        backend=info["backend"],
+        counts=dict(info["counts"]),
         demo_studies=demo_studies,
         demo_events=int(events["demo"].fillna(False).astype(bool).sum()),
         events_without_study=int((events["studies"] == 0).sum()),
         countries=sorted(events["country"].dropna().unique().tolist()),
         first_year=int(years.min()) if len(years) else None,
         last_year=int(years.max()) if len(years) else None,
-        pairs=pairs, by_design_family=fam, by_level=lv,
+        pairs=pairs,
+        by_design_family=fam,
+        by_level=lv,
     )
 
 
@@ -102,18 +128,34 @@ def list_studies(store: Store) -> pd.DataFrame:
         frame = analysis_frame(conn)
         studies = studies_by_key(conn)
     base = pd.DataFrame(
-        [{"study_id": k, "citation": r["citation"], "year": r["year"], "design": r["design"],
-          "demo": r["demo"]} for k, r in studies.items()],
-        columns=["study_id", "citation", "year", "design", "demo"])
+        [
+            {
+                "study_id": k,
+                "citation": r["citation"],
+                "year": r["year"],
+                "design": r["design"],
+                "demo": r["demo"],
+            }
+            for k, r in studies.items()
+        ],
+        columns=["study_id", "citation", "year", "design", "demo"],
+    )
 
     def joined(s: pd.Series) -> str:
         return ", ".join(sorted({str(v) for v in s.dropna()}))
 
-    agg = (frame.groupby("study_id", sort=True)
-           .agg(level=("level", "first"), exposures=("exposure", joined),
-                outcomes=("outcome", joined), events=("event_id", joined),
-                countries=("country", joined), estimates=("estimate_uid", "size"))
-           .reset_index())
+    agg = (
+        frame.groupby("study_id", sort=True)
+        .agg(
+            level=("level", "first"),
+            exposures=("exposure", joined),
+            outcomes=("outcome", joined),
+            events=("event_id", joined),
+            countries=("country", joined),
+            estimates=("estimate_uid", "size"),
+        )
+        .reset_index()
+    )
     out = base.merge(agg, on="study_id", how="left")
     out["design_family"] = out["design"].map(lambda d: DESIGNS[d][0] if d in DESIGNS else None)
     out["estimates"] = out["estimates"].fillna(0).astype(np.int64)
@@ -121,8 +163,20 @@ def list_studies(store: Store) -> pd.DataFrame:
         out[c] = out[c].fillna("")
     out["level"] = out["level"].astype("float64")
     out["demo"] = out["demo"].fillna(False).astype(bool)
-    cols = ["study_id", "citation", "year", "design", "design_family", "level", "exposures",
-            "outcomes", "events", "countries", "estimates", "demo"]
+    cols = [
+        "study_id",
+        "citation",
+        "year",
+        "design",
+        "design_family",
+        "level",
+        "exposures",
+        "outcomes",
+        "events",
+        "countries",
+        "estimates",
+        "demo",
+    ]
     return out[cols].sort_values(["year", "study_id"], kind="stable").reset_index(drop=True)
 
 
@@ -160,9 +214,18 @@ def group_label(group: dict[str, Any], keys: list[str]) -> str:
 
 
 def pool_view(
-    store: Store, exposure: str, outcome: str, *, method: str = "reml", ci: str = "hksj",
-    by: list[str] | None = None, include_fatal: bool = False, align_to: str = "increase",
-    alpha: float = 0.05, hksj_floor: bool = True, within_event: str = "aggregate",
+    store: Store,
+    exposure: str,
+    outcome: str,
+    *,
+    method: str = "reml",
+    ci: str = "hksj",
+    by: list[str] | None = None,
+    include_fatal: bool = False,
+    align_to: str = "increase",
+    alpha: float = 0.05,
+    hksj_floor: bool = True,
+    within_event: str = "aggregate",
 ) -> PoolView:
     """:func:`~exposhift.services.pooling.pool_evidence` plus one row per pooled *event*.
 
@@ -173,16 +236,55 @@ def pool_view(
     number of estimates combined (``k_units``).
     """
     by = list(by or [])
-    out = pool_evidence(store, exposure, outcome, method=method, ci=ci, by=by,
-                        include_fatal=include_fatal, align_to=align_to, alpha=alpha,
-                        hksj_floor=hksj_floor, within_event=within_event)
-    options = {"method": method, "ci": ci, "by": by, "include_fatal": include_fatal,
-               "align_to": align_to, "alpha": alpha, "hksj_floor": hksj_floor,
-               "within_event": within_event}
-    columns = ["group", "group_label", "estimate_uid", "study_id", "citation", "year",
-               "event_id", "country", "change_date", "change_direction", "design",
-               "design_family", "level", "measure", "estimate_kind", "subgroup", "y", "se",
-               "ci_lower", "ci_upper", "weight", "scale", "sign_flipped", "k_units"]
+    out = pool_evidence(
+        store,
+        exposure,
+        outcome,
+        method=method,
+        ci=ci,
+        by=by,
+        include_fatal=include_fatal,
+        align_to=align_to,
+        alpha=alpha,
+        hksj_floor=hksj_floor,
+        within_event=within_event,
+    )
+    options = {
+        "method": method,
+        "ci": ci,
+        "by": by,
+        "include_fatal": include_fatal,
+        "align_to": align_to,
+        "alpha": alpha,
+        "hksj_floor": hksj_floor,
+        "within_event": within_event,
+    }
+    columns = [
+        "group",
+        "group_label",
+        "estimate_uid",
+        "study_id",
+        "citation",
+        "year",
+        "event_id",
+        "country",
+        "change_date",
+        "change_direction",
+        "design",
+        "design_family",
+        "level",
+        "measure",
+        "estimate_kind",
+        "subgroup",
+        "y",
+        "se",
+        "ci_lower",
+        "ci_upper",
+        "weight",
+        "scale",
+        "sign_flipped",
+        "k_units",
+    ]
     if not out.groups:
         return PoolView(out, pd.DataFrame(columns=columns), options)
     keys = pooling_keys([STRATA[b] for b in by])

@@ -21,8 +21,17 @@ from exposhift.io.frames import python_column
 from exposhift.store.audit_chain import hash_values, last_hash
 from exposhift.store.writer import AUDIT, Writer
 
-_AUDIT_COLUMNS = ("at", "user", "table_name", "row_key", "action", "before", "after",
-                  "prev_hash", "entry_hash")
+_AUDIT_COLUMNS = (
+    "at",
+    "user",
+    "table_name",
+    "row_key",
+    "action",
+    "before",
+    "after",
+    "prev_hash",
+    "entry_hash",
+)
 _SKIP_IN_AUDIT = {"id", "created_at", "updated_at"}
 
 
@@ -76,8 +85,10 @@ class BulkWriter(Writer):
     def _sql(self, table_name: str, columns: Sequence[str]) -> str:
         q = self.conn.dialect.identifier_preparer.quote
         mark = "?" if self.conn.dialect.paramstyle == "qmark" else "%s"
-        return (f"INSERT INTO {q(table_name)} ({', '.join(q(c) for c in columns)}) "
-                f"VALUES ({', '.join([mark] * len(columns))})")
+        return (
+            f"INSERT INTO {q(table_name)} ({', '.join(q(c) for c in columns)}) "
+            f"VALUES ({', '.join([mark] * len(columns))})"
+        )
 
     def _executemany(self, sql: str, rows: list[tuple]) -> None:
         """The driver's executemany on this transaction's connection (no per-row overhead)."""
@@ -93,8 +104,7 @@ class BulkWriter(Writer):
         if n == 0:
             return
         self.flush()  # audit entries stay in the order the changes were made
-        data: dict[str, list] = {c: python_column(frame[c]) for c in frame.columns
-                                 if c != "id"}
+        data: dict[str, list] = {c: python_column(frame[c]) for c in frame.columns if c != "id"}
         kinds = {c: _kind(frame[c].dtype) for c in data}
         if "version" in table.c:
             data["version"] = [1] * n
@@ -103,8 +113,9 @@ class BulkWriter(Writer):
             if stamp in table.c:
                 data[stamp] = [self.now] * n
         columns = list(data)
-        self._executemany(self._sql(table.name, columns),
-                          list(zip(*(data[c] for c in columns), strict=True)))
+        self._executemany(
+            self._sql(table.name, columns), list(zip(*(data[c] for c in columns), strict=True))
+        )
         audited = sorted(c for c in columns if c not in _SKIP_IN_AUDIT)
         template = "{{" + ", ".join(f"{json.dumps(c)}: {{}}" for c in audited) + "}}"
         cells = [_json_cells(data[c], kinds.get(c, "any")) for c in audited]

@@ -32,8 +32,13 @@ from exposhift.services.summary import evidence_summary
 from exposhift.store.database import DEFAULT_SQLITE, resolve_url, sqlite_path
 
 DEMO_DB = Path("demo") / "evidence-demo.db"
-SEED_FILES = ("evidence.csv", "registered_events.csv", "appraisals.csv", "directions.csv",
-              "series.csv")
+SEED_FILES = (
+    "evidence.csv",
+    "registered_events.csv",
+    "appraisals.csv",
+    "directions.csv",
+    "series.csv",
+)
 
 
 def seed_dir() -> Path:
@@ -64,31 +69,40 @@ def _user_databases() -> set[Path]:
     return out
 
 
-_FORCE_HINT = ("Choose another file with --db, or give --force to replace it (a backup copy "
-               "is kept beside it)")
+_FORCE_HINT = (
+    "Choose another file with --db, or give --force to replace it (a backup copy is kept beside it)"
+)
 
 
 def _check_target(target: Path, force: bool) -> None:
     """Refuse the user's own evidence base outright (even with force), and, before building,
     a file that is no exposhift database or holds studies or events not flagged demo."""
     if target.resolve() in _user_databases():
-        raise ConfigError(f"{target} is your evidence base, not a demo file; the demo writes "
-                          f"{DEMO_DB} (or another new file given with --db)")
+        raise ConfigError(
+            f"{target} is your evidence base, not a demo file; the demo writes "
+            f"{DEMO_DB} (or another new file given with --db)"
+        )
     if force or not target.exists():
         return
     try:
         con = sqlite3.connect(f"file:{target}?mode=ro", uri=True)
         try:
-            real = con.execute("SELECT (SELECT count(*) FROM study WHERE NOT demo) + "
-                               "(SELECT count(*) FROM event WHERE NOT demo)").fetchone()[0]
+            real = con.execute(
+                "SELECT (SELECT count(*) FROM study WHERE NOT demo) + "
+                "(SELECT count(*) FROM event WHERE NOT demo)"
+            ).fetchone()[0]
         finally:
             con.close()
     except sqlite3.Error:
-        raise ConfigError(f"{target} exists and is not an exposhift demo database; refusing to "
-                          f"replace it. {_FORCE_HINT}") from None
+        raise ConfigError(
+            f"{target} exists and is not an exposhift demo database; refusing to "
+            f"replace it. {_FORCE_HINT}"
+        ) from None
     if real:
-        raise ConfigError(f"{target} holds {real} records that are not demo records; refusing "
-                          f"to replace it. {_FORCE_HINT}")
+        raise ConfigError(
+            f"{target} holds {real} records that are not demo records; refusing "
+            f"to replace it. {_FORCE_HINT}"
+        )
 
 
 #: tables whose rows are compared by content (the rest: by row count)
@@ -96,8 +110,13 @@ _SKIP_TABLES = ("alembic_version", "sqlite_sequence")
 
 
 def _tables(con: sqlite3.Connection) -> list[str]:
-    return [n for (n,) in con.execute("SELECT name FROM sqlite_master WHERE type = 'table' "
-                                      "AND name NOT LIKE 'sqlite_%'") if n not in _SKIP_TABLES]
+    return [
+        n
+        for (n,) in con.execute(
+            "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'"
+        )
+        if n not in _SKIP_TABLES
+    ]
 
 
 def _audit(con: sqlite3.Connection) -> set[tuple[str, str, str]]:
@@ -113,8 +132,9 @@ def foreign_content(target: Path, fresh: Path) -> list[str]:
             tables = _tables(con)
             if "audit_entry" not in tables:
                 return ["it is not an exposhift database"]
-            old_counts = {t: con.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0]
-                          for t in tables}
+            old_counts = {
+                t: con.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0] for t in tables
+            }
             old_audit = _audit(con)
         finally:
             con.close()
@@ -123,8 +143,9 @@ def foreign_content(target: Path, fresh: Path) -> list[str]:
     con = sqlite3.connect(fresh)
     try:
         new_tables = set(_tables(con))
-        new_counts = {t: con.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0]
-                      for t in new_tables}
+        new_counts = {
+            t: con.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0] for t in new_tables
+        }
         new_audit = _audit(con)
     finally:
         con.close()
@@ -133,13 +154,17 @@ def foreign_content(target: Path, fresh: Path) -> list[str]:
     by_kind: dict[tuple[str, str], int] = {}
     for table, _, action in old_audit - new_audit:
         by_kind[(table, action)] = by_kind.get((table, action), 0) + 1
-    reasons += [f"{n} {table} record(s) {words.get(action, action)} that the demo does not make"
-                for (table, action), n in sorted(by_kind.items())]
+    reasons += [
+        f"{n} {table} record(s) {words.get(action, action)} that the demo does not make"
+        for (table, action), n in sorted(by_kind.items())
+    ]
     covered = {t for t, _ in by_kind}
     for t in tables:
         if t != "audit_entry" and t not in covered and old_counts[t] > new_counts.get(t, 0):
-            reasons.append(f"{old_counts[t] - new_counts.get(t, 0)} row(s) in table {t} that "
-                           "the demo does not write")
+            reasons.append(
+                f"{old_counts[t] - new_counts.get(t, 0)} row(s) in table {t} that "
+                "the demo does not write"
+            )
     return reasons
 
 
@@ -208,16 +233,22 @@ def _overview(store) -> tuple[dict[str, int], pd.DataFrame]:
         "countries": int(f.events["country"].nunique()),
         "designs": int(f.studies["design"].nunique()),
     }
-    est = f.estimates.merge(f.events[["key", "exposure"]], left_on="event", right_on="key",
-                            suffixes=("", "_event"))
-    grid = (est.drop_duplicates(["exposure", "outcome", "study"])
-            .pivot_table(index="exposure", columns="outcome", values="study", aggfunc="count",
-                         fill_value=0))
+    est = f.estimates.merge(
+        f.events[["key", "exposure"]], left_on="event", right_on="key", suffixes=("", "_event")
+    )
+    grid = est.drop_duplicates(["exposure", "outcome", "study"]).pivot_table(
+        index="exposure", columns="outcome", values="study", aggfunc="count", fill_value=0
+    )
     return counts, grid
 
 
-def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
-               user: str | None = None, *, force: bool = False) -> DemoResult:
+def build_demo(
+    db: str | Path | None = None,
+    seed: str | Path | None = None,
+    user: str | None = None,
+    *,
+    force: bool = False,
+) -> DemoResult:
     """Create a fresh demo database from the seed records; returns an overview.
 
     An existing file that holds anything the demo does not generate is refused (ConfigError
@@ -227,14 +258,17 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
     if "://" in str(db or "") and str(db).startswith("sqlite:"):
         target = sqlite_path(resolve_url(str(db))) or target
     if "://" in str(target):
-        raise ConfigError("exposhift demo writes a SQLite file; give a file path with --db, "
-                          "not a URL")
+        raise ConfigError(
+            "exposhift demo writes a SQLite file; give a file path with --db, not a URL"
+        )
     source = Path(seed) if seed else seed_dir()
     evidence = source / SEED_FILES[0]
     if not evidence.is_file():
-        raise ConfigError(f"no demo records: looked for {evidence}. Run exposhift demo from a "
-                          "checkout of the repository (seed_records/ next to src/), or name "
-                          "the directory with --seed")
+        raise ConfigError(
+            f"no demo records: looked for {evidence}. Run exposhift demo from a "
+            "checkout of the repository (seed_records/ next to src/), or name "
+            "the directory with --seed"
+        )
     _check_target(target, force)
     target.parent.mkdir(parents=True, exist_ok=True)
     tmp = target.with_name(f".{target.name}.{os.getpid()}.building")
@@ -269,7 +303,8 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
             if reasons and not force:
                 raise ConfigError(
                     f"{target} holds more than the demo generates ({'; '.join(reasons)}); "
-                    f"refusing to replace it. {_FORCE_HINT}")
+                    f"refusing to replace it. {_FORCE_HINT}"
+                )
             if reasons:
                 backup = str(_backup(target))
         for side in ("-wal", "-shm"):
@@ -283,6 +318,14 @@ def build_demo(db: str | Path | None = None, seed: str | Path | None = None,
         for side in ("-wal", "-shm"):
             with contextlib.suppress(FileNotFoundError):
                 Path(f"{tmp}{side}").unlink()
-    return DemoResult(path=str(target), seed=str(source), counts=counts, grid=grid,
-                      imports=reports, appraisals=appraisals, directions=directions,
-                      summary=summary, backup=backup)
+    return DemoResult(
+        path=str(target),
+        seed=str(source),
+        counts=counts,
+        grid=grid,
+        imports=reports,
+        appraisals=appraisals,
+        directions=directions,
+        summary=summary,
+        backup=backup,
+    )

@@ -39,8 +39,13 @@ class DirectionChange:
     record: dict = field(default_factory=dict)
 
     def to_dict(self) -> dict:
-        return {"exposure": self.exposure, "outcome": self.outcome, "action": self.action,
-                "version": self.version, **self.record}
+        return {
+            "exposure": self.exposure,
+            "outcome": self.outcome,
+            "action": self.action,
+            "version": self.version,
+            **self.record,
+        }
 
 
 @dataclass(frozen=True)
@@ -59,9 +64,17 @@ def _now() -> str:
     return checks.normalise_time(utc_now()) or utc_now()
 
 
-def set_direction(store: Store, exposure: str, outcome: str, direction: str, rationale: str,
-                  *, decided_by: str | None = None, decided_at: str | None = None,
-                  expected_version: int | None = None) -> DirectionChange:
+def set_direction(
+    store: Store,
+    exposure: str,
+    outcome: str,
+    direction: str,
+    rationale: str,
+    *,
+    decided_by: str | None = None,
+    decided_at: str | None = None,
+    expected_version: int | None = None,
+) -> DirectionChange:
     """Pre-specify (or change) the expected direction of ``exposure`` x ``outcome``.
 
     ``decided_by`` defaults to the store's user, ``decided_at`` to now (UTC). With
@@ -77,14 +90,16 @@ def set_direction(store: Store, exposure: str, outcome: str, direction: str, rat
         exposure = require_name(conn, "exposure", exposure)
         outcome = require_name(conn, "outcome", outcome)
         w = Writer(conn, store.user)
-        action, version = upsert_direction(w, exposure, outcome, values,
-                                           expected_version=expected_version)
+        action, version = upsert_direction(
+            w, exposure, outcome, values, expected_version=expected_version
+        )
         w.flush()
     return DirectionChange(exposure, outcome, action, version, values)
 
 
-def clear_direction(store: Store, exposure: str, outcome: str, *,
-                    expected_version: int | None = None) -> DirectionChange:
+def clear_direction(
+    store: Store, exposure: str, outcome: str, *, expected_version: int | None = None
+) -> DirectionChange:
     """Remove the pre-specified direction of ``exposure`` x ``outcome`` (audited)."""
     with store.write() as conn:
         exposure = require_name(conn, "exposure", exposure)
@@ -134,8 +149,9 @@ def plan_directions(conn, frame: pd.DataFrame) -> dict[str, int]:
     return plan
 
 
-def write_directions(w: Writer, frame: pd.DataFrame, *, default_by: str | None = None,
-                     default_at: str | None = None) -> dict[str, int]:
+def write_directions(
+    w: Writer, frame: pd.DataFrame, *, default_by: str | None = None, default_at: str | None = None
+) -> dict[str, int]:
     """Upsert checked direction records inside the caller's transaction; returns counts.
 
     A blank ``decided_by``/``decided_at`` keeps the stored value, or for a new record takes
@@ -145,14 +161,16 @@ def write_directions(w: Writer, frame: pd.DataFrame, *, default_by: str | None =
     by, at = default_by or w.user, default_at or _now()
     for rec in frame.to_dict("records"):
         stored = find_direction(w.conn, rec["exposure"], rec["outcome"])
-        action, _ = upsert_direction(w, rec["exposure"], rec["outcome"],
-                                     _values(rec, stored, by, at))
+        action, _ = upsert_direction(
+            w, rec["exposure"], rec["outcome"], _values(rec, stored, by, at)
+        )
         counts[action] += 1
     return counts
 
 
-def import_directions(store: Store, path: str | Path, *, encoding: str | None = None,
-                      dry_run: bool = False) -> DirectionImport:
+def import_directions(
+    store: Store, path: str | Path, *, encoding: str | None = None, dry_run: bool = False
+) -> DirectionImport:
     """Import a directions sheet (CSV/XLSX) in one transaction; nothing is written on error.
 
     Every problem of the file (row, column, what to do) is raised at once as InputFileError.
@@ -161,8 +179,9 @@ def import_directions(store: Store, path: str | Path, *, encoding: str | None = 
     with store.read() as conn:
         exposures = vocabulary_names(conn, "exposure")
         outcomes = vocabulary_names(conn, "outcome")
-    frame = checks.validate_directions_sheet(sheet, exposures, outcomes, default_by="",
-                                             default_at="")
+    frame = checks.validate_directions_sheet(
+        sheet, exposures, outcomes, default_by="", default_at=""
+    )
     if dry_run:
         with store.read() as conn:
             plan = plan_directions(conn, frame)

@@ -69,9 +69,11 @@ from exposhift.vocab import DESIGNS
 
 FORMATS = ("html", "docx", "bundle", "pdf")
 DEFAULT_FORMATS = ("html", "docx", "bundle")
-HAZARD_CAUTION = ("Hazard conclusions rest with the committee, with local regulation and with "
-                  "licensed practice. A replication status says no more than its rule in "
-                  "words; a pooled estimate says no more than the estimates it pooled.")
+HAZARD_CAUTION = (
+    "Hazard conclusions rest with the committee, with local regulation and with "
+    "licensed practice. A replication status says no more than its rule in "
+    "words; a pooled estimate says no more than the estimates it pooled."
+)
 
 
 @dataclass(frozen=True)
@@ -121,8 +123,10 @@ def made_at(as_of: str | None = None) -> str:
                 stamp = datetime.fromisoformat(as_of.replace("Z", "+00:00"))
                 stamp = stamp.replace(tzinfo=UTC) if stamp.tzinfo is None else stamp
         except ValueError as exc:
-            raise ConfigError(f"--as-of '{as_of}' is not an ISO date (YYYY-MM-DD) or date-time "
-                              "(YYYY-MM-DDTHH:MM:SSZ)") from exc
+            raise ConfigError(
+                f"--as-of '{as_of}' is not an ISO date (YYYY-MM-DD) or date-time "
+                "(YYYY-MM-DDTHH:MM:SSZ)"
+            ) from exc
     elif os.environ.get("SOURCE_DATE_EPOCH"):
         raw = os.environ["SOURCE_DATE_EPOCH"]
         if not raw.isdigit():
@@ -145,18 +149,26 @@ def _question(outcome: str, records: dict[str, list[dict]]) -> Question:
     used_ev = [events[e["event"]] for e in ests if e["event"] in events]
     change = []
     for e in used_ev:
-        size = (f", {e['change_size']:g} {e.get('change_unit') or ''}".rstrip()
-                if e.get("change_size") is not None else "")
+        size = (
+            f", {e['change_size']:g} {e.get('change_unit') or ''}".rstrip()
+            if e.get("change_size") is not None
+            else ""
+        )
         change.append(f"{e['change_kind']} ({e['change_direction']}{size})")
     follow = [e.get("time_window") for e in ests]
-    follow += [f"{s['post_points']} time points after the change" for s in used_st
-               if s.get("post_points") is not None]
-    return Question(population=_uniq(s.get("population") for s in used_st),
-                    exposure_change=_uniq(change),
-                    comparison=_uniq(s.get("comparison") for s in used_st),
-                    outcome=outcome,
-                    time_zero=_uniq(f"{e['country']} {e['change_date']}" for e in used_ev),
-                    follow_up=_uniq(follow))
+    follow += [
+        f"{s['post_points']} time points after the change"
+        for s in used_st
+        if s.get("post_points") is not None
+    ]
+    return Question(
+        population=_uniq(s.get("population") for s in used_st),
+        exposure_change=_uniq(change),
+        comparison=_uniq(s.get("comparison") for s in used_st),
+        outcome=outcome,
+        time_zero=_uniq(f"{e['country']} {e['change_date']}" for e in used_ev),
+        follow_up=_uniq(follow),
+    )
 
 
 def _g(x: Any) -> str:
@@ -170,8 +182,9 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
     main = max(groups, key=lambda g: g.k)
     if main.k < 2:
         return None
-    gi, raw = next((i, g) for i, g in enumerate(pool.groups)
-                   if tuple(g["estimates"]) == main.estimates)
+    gi, raw = next(
+        (i, g) for i, g in enumerate(pool.groups) if tuple(g["estimates"]) == main.estimates
+    )
     notes = []
     sens = raw.get("sensitivity") or {}
     if raw.get("tau2_ci"):
@@ -179,11 +192,14 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
         notes.append(f"τ² interval ({t['method']}): {_g(t['lower'])} to {_g(t['upper'])}.")
     if sens.get("small_study"):
         s = sens["small_study"]
-        notes.append(f"Egger test: intercept {_g(s['intercept'])}, p {_g(s['pvalue'])}."
-                     if s["run"]
-                     else f"Egger test not run: {s['reason']}.")
-    levels = [g for g in ev.pooled_groups(by_level.groups) if set(g.estimates) <= set(
-        main.estimates)]
+        notes.append(
+            f"Egger test: intercept {_g(s['intercept'])}, p {_g(s['pvalue'])}."
+            if s["run"]
+            else f"Egger test not run: {s['reason']}."
+        )
+    levels = [
+        g for g in ev.pooled_groups(by_level.groups) if set(g.estimates) <= set(main.estimates)
+    ]
     # the event-level rows that were pooled: leave one *event* out, cumulative by event
     rows = pool.pooled_rows[pool.pooled_rows["group"] == gi].sort_values("event_id")
     y, v = rows["y"].to_numpy(float), rows["v"].to_numpy(float)
@@ -193,33 +209,59 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
     loo = ev.steps(leave_one_out(y, v, labels=labels, **kw), "omitted", main.scale)
     dates = rows["change_date"].astype(str).to_numpy()
     cum = ev.steps(cumulative(y, v, dates, labels=labels, **kw), "added", main.scale)
-    return Sensitivity(group=main.label, scale=main.scale, leave_one_out=loo, cumulative=cum,
-                       by_level=ev.level_steps(levels), notes=notes)
+    return Sensitivity(
+        group=main.label,
+        scale=main.scale,
+        leave_one_out=loo,
+        cumulative=cum,
+        by_level=ev.level_steps(levels),
+        notes=notes,
+    )
 
 
 def _section(store: Store, exposure: str, outcome: str, records, settings, opts: PoolOptions):
     kw = dataclasses.asdict(opts)
-    group = next((o.get("outcome_group") or "" for o in records["outcome"]
-                  if o["name"] == outcome), "")
+    group = next(
+        (o.get("outcome_group") or "" for o in records["outcome"] if o["name"] == outcome), ""
+    )
     rep = replication_for(store, exposure, outcome, settings=settings)
     replication = ev.replication(rep, STATUSES)
     question = _question(outcome, records)
     certainty = certainty_of(exposure, outcome)
     if not any(e["outcome"] == outcome for e in records["estimate"]):
-        return OutcomeSection(outcome, group, question, [], [], replication, certainty, [], [],
-                              None, [], note="no estimate of this exposure for this outcome"), None
+        return OutcomeSection(
+            outcome,
+            group,
+            question,
+            [],
+            [],
+            replication,
+            certainty,
+            [],
+            [],
+            None,
+            [],
+            note="no estimate of this exposure for this outcome",
+        ), None
     pool = pool_evidence(store, exposure, outcome, details=True, **kw)
     view = pool_view(store, exposure, outcome, by=["design-family"], **kw)
     by_level = pool_evidence(store, exposure, outcome, by=["level"], **kw)
     section = OutcomeSection(
-        outcome=outcome, outcome_group=group, question=question,
+        outcome=outcome,
+        outcome_group=group,
+        question=question,
         pooled=ev.pooled_groups(pool.groups),
-        by_design_family=ev.pooled_groups(view.output.groups), replication=replication,
-        certainty=certainty, forest=ev.forest_rows(view),
+        by_design_family=ev.pooled_groups(view.output.groups),
+        replication=replication,
+        certainty=certainty,
+        forest=ev.forest_rows(view),
         timeline=ev.timeline(rep, GROUP_SCALES),
-        sensitivity=_sensitivity(pool, by_level, opts), excluded=ev.excluded_rows(pool.excluded),
-        note="" if pool.groups else "no poolable estimate: every estimate was left out (see "
-                                    "the study table for why)")
+        sensitivity=_sensitivity(pool, by_level, opts),
+        excluded=ev.excluded_rows(pool.excluded),
+        note=""
+        if pool.groups
+        else "no poolable estimate: every estimate was left out (see the study table for why)",
+    )
     return section, pool
 
 
@@ -239,22 +281,38 @@ def _study_rows(records, sections, rubric) -> list[StudyRow]:
                 domains[r["domain"]] = str(r["level"])
         overall = "n/a" if not app or app.get("overall") is None else str(app["overall"])
         grade = st.get("assignment_grade")
-        out.append(StudyRow(
-            study_id=st["key"], citation=st["citation"], year=st.get("year"),
-            design=st["design"], design_family=DESIGNS.get(st["design"], ("",))[0],
-            places=", ".join(_uniq(e["country"] for e in evs)),
-            change_dates=", ".join(_uniq(e["change_date"] for e in evs)),
-            assignment_grade="not graded" if grade is None else str(grade),
-            domains=domains, overall=overall,
-            used=sorted(e["key"] for e in ests if e["key"] in used),
-            left_out=sorted((e["key"], left.get(e["key"], "not pooled")) for e in ests
-                            if e["key"] not in used),
-            demo=bool(st.get("demo"))))
+        out.append(
+            StudyRow(
+                study_id=st["key"],
+                citation=st["citation"],
+                year=st.get("year"),
+                design=st["design"],
+                design_family=DESIGNS.get(st["design"], ("",))[0],
+                places=", ".join(_uniq(e["country"] for e in evs)),
+                change_dates=", ".join(_uniq(e["change_date"] for e in evs)),
+                assignment_grade="not graded" if grade is None else str(grade),
+                domains=domains,
+                overall=overall,
+                used=sorted(e["key"] for e in ests if e["key"] in used),
+                left_out=sorted(
+                    (e["key"], left.get(e["key"], "not pooled"))
+                    for e in ests
+                    if e["key"] not in used
+                ),
+                demo=bool(st.get("demo")),
+            )
+        )
     return out
 
 
-def gather(store: Store, exposure: str, outcomes: list[str] | None = None, *,
-           as_of: str | None = None, opts: PoolOptions | None = None) -> Gathered:
+def gather(
+    store: Store,
+    exposure: str,
+    outcomes: list[str] | None = None,
+    *,
+    as_of: str | None = None,
+    opts: PoolOptions | None = None,
+) -> Gathered:
     """Everything a dossier says, without rendering it."""
     opts = opts or PoolOptions()
     stamp = made_at(as_of)
@@ -267,32 +325,56 @@ def gather(store: Store, exposure: str, outcomes: list[str] | None = None, *,
         records = records_used(conn, exposure, outcomes)
     rubric = load_rubric(None)
     rep_settings = load_settings()
-    thresholds = {k: (list(v) if isinstance(v, tuple) else v)
-                  for k, v in dataclasses.asdict(rep_settings).items() if k != "regions"}
-    settings = {"pooling": dataclasses.asdict(opts), "replication": thresholds,
-                "regions": {k: list(v) for k, v in sorted(rep_settings.regions.items())},
-                "outcomes": list(outcomes), "rubric_id": rubric.rubric_id}
+    thresholds = {
+        k: (list(v) if isinstance(v, tuple) else v)
+        for k, v in dataclasses.asdict(rep_settings).items()
+        if k != "regions"
+    }
+    settings = {
+        "pooling": dataclasses.asdict(opts),
+        "replication": thresholds,
+        "regions": {k: list(v) for k, v in sorted(rep_settings.regions.items())},
+        "outcomes": list(outcomes),
+        "rubric_id": rubric.rubric_id,
+    }
     sections = [_section(store, exposure, o, records, rep_settings, opts)[0] for o in outcomes]
     gaps = gap_report(store, settings=rep_settings)
     fp = fingerprint(records, rubric.content_hash, settings, __version__)
     demo = any(bool(r.get("demo")) for kind in ("study", "event") for r in records[kind])
     provenance = Provenance(
-        rubric_id=rubric.rubric_id, rubric_version=rubric.version,
-        rubric_hash=rubric.content_hash, rubric_rule=rubric.summary_text,
-        estimators={"τ² estimator": opts.method.upper(), "interval": opts.ci.upper(),
-                    "alpha": opts.alpha, "effects expressed for an exposure": opts.align_to,
-                    "fatal studies": "kept" if opts.include_fatal else "left out",
-                    "HKSJ floor": "on" if opts.hksj_floor else "off"},
+        rubric_id=rubric.rubric_id,
+        rubric_version=rubric.version,
+        rubric_hash=rubric.content_hash,
+        rubric_rule=rubric.summary_text,
+        estimators={
+            "τ² estimator": opts.method.upper(),
+            "interval": opts.ci.upper(),
+            "alpha": opts.alpha,
+            "effects expressed for an exposure": opts.align_to,
+            "fatal studies": "kept" if opts.include_fatal else "left out",
+            "HKSJ floor": "on" if opts.hksj_floor else "off",
+        },
         thresholds={f"replication: {k}": v for k, v in thresholds.items()},
-        software_version=__version__, fingerprint=fp, made_at=stamp,
-        records=sum(len(v) for v in records.values()), audit_head=ev.audit_chain_head(store))
-    d = Dossier(exposure=exposure, outcomes=list(outcomes), sections=sections,
-                studies=_study_rows(records, sections, rubric),
-                domains=[(dm.key, dm.title) for dm in rubric.domains],
-                level_names=[f"{lv.level} {lv.key}" for lv in rubric.scale],
-                gaps=ev.gap_cells(gaps, exposure), opportunities=ev.opportunities(gaps, exposure),
-                provenance=provenance, demo=demo, demo_note=DEMO_NOTE,
-                cautions=[CAUTION, HAZARD_CAUTION, rubric.caution])
+        software_version=__version__,
+        fingerprint=fp,
+        made_at=stamp,
+        records=sum(len(v) for v in records.values()),
+        audit_head=ev.audit_chain_head(store),
+    )
+    d = Dossier(
+        exposure=exposure,
+        outcomes=list(outcomes),
+        sections=sections,
+        studies=_study_rows(records, sections, rubric),
+        domains=[(dm.key, dm.title) for dm in rubric.domains],
+        level_names=[f"{lv.level} {lv.key}" for lv in rubric.scale],
+        gaps=ev.gap_cells(gaps, exposure),
+        opportunities=ev.opportunities(gaps, exposure),
+        provenance=provenance,
+        demo=demo,
+        demo_note=DEMO_NOTE,
+        cautions=[CAUTION, HAZARD_CAUTION, rubric.caution],
+    )
     return Gathered(d, records, settings)
 
 
@@ -307,9 +389,12 @@ def _bundle_files(g: Gathered) -> dict[str, str]:
 
 
 def _as_bundle(g: Gathered, source: str) -> Bundle:
-    return Bundle(source, {"fingerprint": g.dossier.provenance.fingerprint,
-                           "made_at": g.dossier.provenance.made_at},
-                  g.records, bundle_tables(g.dossier))
+    return Bundle(
+        source,
+        {"fingerprint": g.dossier.provenance.fingerprint, "made_at": g.dossier.provenance.made_at},
+        g.records,
+        bundle_tables(g.dossier),
+    )
 
 
 def _pdf(docx: bytes) -> tuple[bytes | None, str | None]:
@@ -320,34 +405,61 @@ def _pdf(docx: bytes) -> tuple[bytes | None, str | None]:
         src = Path(tmp) / "dossier.docx"
         src.write_bytes(docx)
         try:
-            subprocess.run([soffice, f"-env:UserInstallation=file://{tmp}/profile", "--headless",
-                            "--convert-to", "pdf", "--outdir", tmp, str(src)],
-                           check=True, capture_output=True, timeout=300)
+            subprocess.run(
+                [
+                    soffice,
+                    f"-env:UserInstallation=file://{tmp}/profile",
+                    "--headless",
+                    "--convert-to",
+                    "pdf",
+                    "--outdir",
+                    tmp,
+                    str(src),
+                ],
+                check=True,
+                capture_output=True,
+                timeout=300,
+            )
         except (subprocess.SubprocessError, OSError) as exc:
             return None, f"no PDF: LibreOffice failed ({type(exc).__name__})"
         pdf = Path(tmp) / "dossier.pdf"
-        return (pdf.read_bytes(), None) if pdf.is_file() else (None, "no PDF: LibreOffice "
-                                                               "wrote nothing")
+        return (
+            (pdf.read_bytes(), None)
+            if pdf.is_file()
+            else (None, "no PDF: LibreOffice wrote nothing")
+        )
 
 
 def parse_formats(formats: list[str] | str | None) -> tuple[str, ...]:
     if not formats:
         return DEFAULT_FORMATS
-    items = formats.split(",") if isinstance(formats, str) else [
-        x for f in formats for x in f.split(",")]
+    items = (
+        formats.split(",")
+        if isinstance(formats, str)
+        else [x for f in formats for x in f.split(",")]
+    )
     items = [x.strip().lower() for x in items if x.strip()]
     bad = [x for x in items if x not in FORMATS]
     if bad:
-        raise ConfigError(f"unknown --format {', '.join(map(repr, bad))}; use any of "
-                          f"{', '.join(FORMATS)} separated by commas")
+        raise ConfigError(
+            f"unknown --format {', '.join(map(repr, bad))}; use any of "
+            f"{', '.join(FORMATS)} separated by commas"
+        )
     return tuple(dict.fromkeys(items))
 
 
 def build_dossier(
-    store: Store, exposure: str, *, outcomes: list[str] | None = None,
-    out: str | Path | None = None, formats: list[str] | str | None = None,
-    zip_bundle: bool = False, as_of: str | None = None, force: bool = False,
-    since: str | Path | None = None, opts: PoolOptions | None = None,
+    store: Store,
+    exposure: str,
+    *,
+    outcomes: list[str] | None = None,
+    out: str | Path | None = None,
+    formats: list[str] | str | None = None,
+    zip_bundle: bool = False,
+    as_of: str | None = None,
+    force: bool = False,
+    since: str | Path | None = None,
+    opts: PoolOptions | None = None,
 ) -> DossierResult:
     """Gather, render and write one exposure's dossier (see :mod:`exposhift.dossier`)."""
     from exposhift.dossier.figures import dossier_figures
@@ -391,13 +503,20 @@ def build_dossier(
         if zip_bundle:
             files["bundle.zip"] = zip_bytes(bundle)
     written = write_outputs(target, files)
-    return DossierResult(out=str(target), files=written.files, fingerprint=d.provenance.fingerprint,
-                         made_at=d.provenance.made_at, demo=d.demo, warnings=warnings,
-                         changes=d.changes)
+    return DossierResult(
+        out=str(target),
+        files=written.files,
+        fingerprint=d.provenance.fingerprint,
+        made_at=d.provenance.made_at,
+        demo=d.demo,
+        warnings=warnings,
+        changes=d.changes,
+    )
 
 
-def diff_dossier(store: Store | None, old: str | Path, new: str | Path | None = None
-                 ) -> DossierDiff:
+def diff_dossier(
+    store: Store | None, old: str | Path, new: str | Path | None = None
+) -> DossierDiff:
     """What changed from bundle ``old`` to bundle ``new`` (or to the evidence base now, for the
     exposure and outcomes ``old`` was made for)."""
     a = read_bundle(old)

@@ -30,16 +30,19 @@ KEY_CHUNK = 500
 WHOLE_TABLE_ABOVE = 5000
 
 
-def read_table(conn, entity: str, keys: list[str] | None = None,
-               key_col: str | None = None) -> pd.DataFrame:
+def read_table(
+    conn, entity: str, keys: list[str] | None = None, key_col: str | None = None
+) -> pd.DataFrame:
     """All rows of a table (or those whose ``key_col`` is in ``keys``) as a DataFrame."""
     table = TABLES[entity]
     names = [c.name for c in table.columns]
     stmts = [table.select()]
     if keys is not None and len(keys) <= WHOLE_TABLE_ABOVE:
         col = table.c[key_col or "key"]
-        stmts = [table.select().where(col.in_(keys[i:i + KEY_CHUNK]))
-                 for i in range(0, len(keys), KEY_CHUNK)]
+        stmts = [
+            table.select().where(col.in_(keys[i : i + KEY_CHUNK]))
+            for i in range(0, len(keys), KEY_CHUNK)
+        ]
     rows = [r for stmt in stmts for r in conn.execute(stmt).all()]
     frame = pd.DataFrame.from_records(rows, columns=names)
     return frame
@@ -82,13 +85,21 @@ def load_evidence(conn) -> EvidenceFrames:
     lookup = apps.set_index("id")[["study", "reviewer", "stage"]]
     ratings = ratings.join(lookup, on="appraisal_id")
     frames["rating"] = coerce(ratings, FIELDS["rating"])
-    out = EvidenceFrames(directions=_directions(conn), **{
-        plural: frames[e][list(FIELDS[e])].reset_index(drop=True)
-        for e, plural in (("exposure", "exposures"), ("outcome", "outcomes"),
-                          ("event", "events"), ("study", "studies"),
-                          ("estimate", "estimates"), ("appraisal", "appraisals"),
-                          ("rating", "ratings"))
-    })
+    out = EvidenceFrames(
+        directions=_directions(conn),
+        **{
+            plural: frames[e][list(FIELDS[e])].reset_index(drop=True)
+            for e, plural in (
+                ("exposure", "exposures"),
+                ("outcome", "outcomes"),
+                ("event", "events"),
+                ("study", "studies"),
+                ("estimate", "estimates"),
+                ("appraisal", "appraisals"),
+                ("rating", "ratings"),
+            )
+        },
+    )
     out.series = load_series(conn)
     return out
 
@@ -99,9 +110,11 @@ def load_series(conn):
     from exposhift.store.series_records import fit_rows, point_rows, series_rows
 
     series = pd.DataFrame(series_rows(conn), columns=["id", *SERIES_FIELDS])
-    return SeriesFrames(series=series[list(SERIES_FIELDS)],
-                        points=pd.DataFrame(point_rows(conn), columns=list(POINT_FIELDS)),
-                        fits=pd.DataFrame(fit_rows(conn), columns=list(FIT_FIELDS)))
+    return SeriesFrames(
+        series=series[list(SERIES_FIELDS)],
+        points=pd.DataFrame(point_rows(conn), columns=list(POINT_FIELDS)),
+        fits=pd.DataFrame(fit_rows(conn), columns=list(FIT_FIELDS)),
+    )
 
 
 def _directions(conn) -> pd.DataFrame:
@@ -141,20 +154,27 @@ def blinded_warning(frames: EvidenceFrames) -> list[str]:
     if blinded.empty:
         return []
     studies = sorted(blinded.index.astype(str))
-    shown = ", ".join(studies[:5]) + (f" and {len(studies) - 5} more" if len(studies) > 5
-                                      else "")
-    return [f"the archive holds {int(blinded.sum())} independent appraisal(s) still blinded "
-            f"(the second reviewer has not appraised {len(studies)} stud"
-            f"{'y' if len(studies) == 1 else 'ies'}: {shown}); anyone who reads the file sees "
-            "them. Give it only to people who may see every reviewer's ratings"]
+    shown = ", ".join(studies[:5]) + (f" and {len(studies) - 5} more" if len(studies) > 5 else "")
+    return [
+        f"the archive holds {int(blinded.sum())} independent appraisal(s) still blinded "
+        f"(the second reviewer has not appraised {len(studies)} stud"
+        f"{'y' if len(studies) == 1 else 'ies'}: {shown}); anyone who reads the file sees "
+        "them. Give it only to people who may see every reviewer's ratings"
+    ]
 
 
 EXPORT_SUFFIXES = (".json", ".csv", ".xlsx")
 
 
-def export_store(store: Store, path: str | Path, *, events_only: bool = False,
-                 exposure: str | None = None, outcome: str | None = None,
-                 with_appraisals: bool = False) -> ExportResult:
+def export_store(
+    store: Store,
+    path: str | Path,
+    *,
+    events_only: bool = False,
+    exposure: str | None = None,
+    outcome: str | None = None,
+    with_appraisals: bool = False,
+) -> ExportResult:
     """Write ``path``: ``.json`` archive, or ``.csv``/``.xlsx`` sheet (or events sheet).
 
     ``exposure`` / ``outcome`` keep only their records (:func:`~exposhift.services.subset.
@@ -165,23 +185,30 @@ def export_store(store: Store, path: str | Path, *, events_only: bool = False,
     path = Path(path)
     suffix = path.suffix.lower()
     if suffix not in EXPORT_SUFFIXES:
-        raise ConfigError(f"cannot export to '{path.name}'; name a .json (whole evidence base), "
-                          ".csv or .xlsx file (extraction sheet)")
+        raise ConfigError(
+            f"cannot export to '{path.name}'; name a .json (whole evidence base), "
+            ".csv or .xlsx file (extraction sheet)"
+        )
     if events_only and suffix == ".json":
         raise ConfigError("--events writes an events sheet; name a .csv or .xlsx file")
     if with_appraisals and (suffix == ".json" or events_only):
-        raise ConfigError("--with-appraisals adds consensus levels to an estimates sheet; name a "
-                          ".csv or .xlsx file (a .json archive holds every appraisal already)")
+        raise ConfigError(
+            "--with-appraisals adds consensus levels to an estimates sheet; name a "
+            ".csv or .xlsx file (a .json archive holds every appraisal already)"
+        )
     if outcome is not None and events_only:
         raise ConfigError("--outcome does not apply to the events sheet; use --exposure alone")
     with store.read() as conn:
         frames = subset_frames(load_evidence(conn), exposure, outcome)
-    counts = {"events": len(frames.events), "studies": len(frames.studies),
-              "estimates": len(frames.estimates), "appraisals": len(frames.appraisals)}
+    counts = {
+        "events": len(frames.events),
+        "studies": len(frames.studies),
+        "estimates": len(frames.estimates),
+        "appraisals": len(frames.appraisals),
+    }
     if suffix == ".json":
         write_text(archive_text(frames), path)
-        return ExportResult(str(path), "json", "evidence base", counts,
-                            blinded_warning(frames))
+        return ExportResult(str(path), "json", "evidence base", counts, blinded_warning(frames))
     if events_only:
         SHEET_WRITERS[suffix](events_sheet_frame(frames), path)
         return ExportResult(str(path), suffix[1:], "events", {"events": counts["events"]})
@@ -191,17 +218,33 @@ def export_store(store: Store, path: str | Path, *, events_only: bool = False,
 
         sheet = with_consensus_levels(sheet, frames, load_rubric().domain_keys)
     SHEET_WRITERS[suffix](sheet, path)
-    return ExportResult(str(path), suffix[1:], "estimates",
-                        {k: counts[k] for k in ("studies", "events", "estimates")})
+    return ExportResult(
+        str(path),
+        suffix[1:],
+        "estimates",
+        {k: counts[k] for k in ("studies", "events", "estimates")},
+    )
 
 
-def export_file(path: str | Path, *, db: str | None = None, events_only: bool = False,
-                exposure: str | None = None, outcome: str | None = None,
-                with_appraisals: bool = False) -> ExportResult:
+def export_file(
+    path: str | Path,
+    *,
+    db: str | None = None,
+    events_only: bool = False,
+    exposure: str | None = None,
+    outcome: str | None = None,
+    with_appraisals: bool = False,
+) -> ExportResult:
     """Open the evidence base named by ``db`` and export it (or a part) to ``path``."""
     store = open_current(db)
     try:
-        return export_store(store, path, events_only=events_only, exposure=exposure,
-                            outcome=outcome, with_appraisals=with_appraisals)
+        return export_store(
+            store,
+            path,
+            events_only=events_only,
+            exposure=exposure,
+            outcome=outcome,
+            with_appraisals=with_appraisals,
+        )
     finally:
         store.dispose()

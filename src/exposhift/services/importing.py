@@ -49,18 +49,41 @@ from exposhift.store.writer import Writer, keyed_ids
 Progress = Callable[[str, int, int], None]
 
 ENTITIES = ("exposure", "outcome", "event", "study", "estimate", "appraisal")
-KEY_FIELD = {"exposure": "name", "outcome": "name", "event": "key", "study": "key",
-             "estimate": "key", "appraisal": "_key"}
+KEY_FIELD = {
+    "exposure": "name",
+    "outcome": "name",
+    "event": "key",
+    "study": "key",
+    "estimate": "key",
+    "appraisal": "_key",
+}
 #: fields whose blank value in a file means "not stated" rather than "clear it"
 KEEP_WHEN_BLANK = {"exposure": {"agent_class"}, "outcome": {"outcome_group"}}
 #: fields never compared: the natural key and what the key already encodes
-NOT_COMPARED = {"exposure": {"name"}, "outcome": {"name"}, "event": {"key"}, "study": {"key"},
-                "estimate": {"key", "study", "event", "outcome", "measure", "estimate_kind",
-                             "subgroup", "time_window"},
-                "appraisal": {"study", "reviewer", "stage"}}
+NOT_COMPARED = {
+    "exposure": {"name"},
+    "outcome": {"name"},
+    "event": {"key"},
+    "study": {"key"},
+    "estimate": {
+        "key",
+        "study",
+        "event",
+        "outcome",
+        "measure",
+        "estimate_kind",
+        "subgroup",
+        "time_window",
+    },
+    "appraisal": {"study", "reviewer", "stage"},
+}
 #: reference field -> (database column, referenced entity)
-REFS = {"exposure": ("exposure_id", "exposure"), "study": ("study_id", "study"),
-        "event": ("event_id", "event"), "outcome": ("outcome_id", "outcome")}
+REFS = {
+    "exposure": ("exposure_id", "exposure"),
+    "study": ("study_id", "study"),
+    "event": ("event_id", "event"),
+    "outcome": ("outcome_id", "outcome"),
+}
 ESTIMATE_CHUNK = 5000
 PAUSE_ENV = "EXPOSHIFT_TEST_PAUSE_AFTER_ROWS"
 PAUSE_SECONDS_ENV = "EXPOSHIFT_TEST_PAUSE_SECONDS"
@@ -91,8 +114,12 @@ class ImportReport:
 
     def to_dict(self) -> dict:
         return {
-            "file": self.file, "database": self.url, "kind": self.kind, "rows": self.rows,
-            "dry_run": self.dry_run, "notes": self.notes,
+            "file": self.file,
+            "database": self.url,
+            "kind": self.kind,
+            "rows": self.rows,
+            "dry_run": self.dry_run,
+            "notes": self.notes,
             "counts": {k: vars(v) for k, v in self.counts.items()},
         }
 
@@ -106,10 +133,16 @@ class EntityPlan:
 
 
 # ---------------------------------------------------------------------------------- reading
-def read_input(path: str | Path, *, events_only: bool = False, encoding: str | None = None,
-               ignore_extra: bool = False, study_events: StudyEvents | None = None,
-               delimiter: str | None = None, sheet: str | None = None
-               ) -> tuple[str, EvidenceFrames]:
+def read_input(
+    path: str | Path,
+    *,
+    events_only: bool = False,
+    encoding: str | None = None,
+    ignore_extra: bool = False,
+    study_events: StudyEvents | None = None,
+    delimiter: str | None = None,
+    sheet: str | None = None,
+) -> tuple[str, EvidenceFrames]:
     """Validate a file completely; returns its kind and its records (or raises every problem).
 
     ``study_events`` looks up evidence-base studies named in ``same_population_as``.
@@ -119,20 +152,31 @@ def read_input(path: str | Path, *, events_only: bool = False, encoding: str | N
     path = Path(path)
     if path.suffix.lower() == ".json":
         if events_only:
-            raise InputFileError([Problem(path.name, None, None,
-                                          "'events import' reads an events sheet (.csv or "
-                                          ".xlsx); import archives with 'exposhift import'")])
+            raise InputFileError(
+                [
+                    Problem(
+                        path.name,
+                        None,
+                        None,
+                        "'events import' reads an events sheet (.csv or "
+                        ".xlsx); import archives with 'exposhift import'",
+                    )
+                ]
+            )
         if not path.is_file():
-            raise InputFileError([Problem(path.name, None, None,
-                                          f"no such file: {path}; check the path")])
+            raise InputFileError(
+                [Problem(path.name, None, None, f"no such file: {path}; check the path")]
+            )
         return "archive", read_archive(path, encoding, study_events)
     raw = read_sheet(path, encoding, delimiter=delimiter, sheet=sheet)
     try:
         if events_only:
             kind, frames = "events", validate_events_sheet(raw, ignore_extra=ignore_extra)
         else:
-            kind, frames = "sheet", validate_sheet(raw, ignore_extra=ignore_extra,
-                                                   study_events=study_events)
+            kind, frames = (
+                "sheet",
+                validate_sheet(raw, ignore_extra=ignore_extra, study_events=study_events),
+            )
     except InputFileError as exc:  # say how the file was read: the notes may be the cause
         if raw.notes:
             exc.args = (str(exc) + "".join(f"\n  note: {n}" for n in raw.notes),)
@@ -153,8 +197,13 @@ def stored_study_events(store: Store) -> StudyEvents:
 
 # ---------------------------------------------------------------------------------- planning
 def _appraisal_key(frame: pd.DataFrame) -> pd.Series:
-    return (frame["study"].fillna("").astype("str") + "|" + frame["reviewer"].astype("str")
-            + "|" + frame["stage"].astype("str"))
+    return (
+        frame["study"].fillna("").astype("str")
+        + "|"
+        + frame["reviewer"].astype("str")
+        + "|"
+        + frame["stage"].astype("str")
+    )
 
 
 def _stored(conn, entity: str, keys: list[str], cache: dict) -> pd.DataFrame:
@@ -178,8 +227,11 @@ def plan_entity(conn, entity: str, frames: EvidenceFrames, cache: dict) -> Entit
         return EntityPlan(entity, new, [], 0)
     stored = _stored(conn, entity, new[key].tolist(), cache)
     given = frames.fields_given(entity)
-    compared = [f for f in FIELDS[entity] if f in given and f in new.columns
-                and f not in NOT_COMPARED[entity]]
+    compared = [
+        f
+        for f in FIELDS[entity]
+        if f in given and f in new.columns and f not in NOT_COMPARED[entity]
+    ]
     stored_by_key = stored.set_index(key, drop=False)
     found = new[key].isin(stored_by_key.index).to_numpy()
     plan_new = new[~found].reset_index(drop=True)
@@ -217,16 +269,20 @@ def _rating_changes(conn, frames: EvidenceFrames, plan: EntityPlan) -> dict[str,
     stored["_key"] = stored["appraisal_id"].map(app_key)
     existing = set(_appraisal_key(frames.appraisals)) - set(_appraisal_key(plan.new))
     out: dict[str, dict] = {}
-    file_ratings = ratings.assign(_key=_appraisal_key(ratings)) if not ratings.empty else \
-        ratings.assign(_key=pd.Series([], dtype="str"))
+    file_ratings = (
+        ratings.assign(_key=_appraisal_key(ratings))
+        if not ratings.empty
+        else ratings.assign(_key=pd.Series([], dtype="str"))
+    )
     by_key_file = {k: g for k, g in file_ratings.groupby("_key", sort=False)}
     by_key_db = {k: g for k, g in stored.groupby("_key", sort=False)}
     fields = ["level", "reporting", "justification", "suggested_level", "suggestion_reason"]
     for k in existing:
         f = by_key_file.get(k, file_ratings.iloc[0:0])
         d = by_key_db.get(k, stored.iloc[0:0])
-        f_recs = {r["domain"]: r for r in to_records(coerce(f, FIELDS["rating"]),
-                                                     ["domain", *fields])}
+        f_recs = {
+            r["domain"]: r for r in to_records(coerce(f, FIELDS["rating"]), ["domain", *fields])
+        }
         d_recs = {r["domain"]: r for r in d.to_dict("records")}
         add, replace, remove = [], [], []
         for dom, r in f_recs.items():
@@ -256,8 +312,10 @@ def build_plans(conn, frames: EvidenceFrames) -> dict[str, EntityPlan]:
 # ---------------------------------------------------------------------------------- writing
 def _test_pause(written: int) -> None:
     """Test hook: sleep inside the open transaction (to kill the process mid-import)."""
-    sys.stderr.write(f"exposhift: test pause inside the import transaction after {written} "
-                     f"estimate rows ({PAUSE_ENV})\n")
+    sys.stderr.write(
+        f"exposhift: test pause inside the import transaction after {written} "
+        f"estimate rows ({PAUSE_ENV})\n"
+    )
     sys.stderr.flush()
     time.sleep(float(os.environ.get(PAUSE_SECONDS_ENV, "60")))
 
@@ -288,14 +346,21 @@ def _db_changes(conn, entity: str, changes: dict, ids: dict) -> dict:
     return out
 
 
-def _insert(w: BulkWriter, entity: str, frame: pd.DataFrame, ids: dict,
-            progress: Progress | None, pause_after: int | None) -> None:
+def _insert(
+    w: BulkWriter,
+    entity: str,
+    frame: pd.DataFrame,
+    ids: dict,
+    progress: Progress | None,
+    pause_after: int | None,
+) -> None:
     if frame.empty:
         return
     table = TABLES[entity]
     frame = _with_ids(w.conn, frame, entity, ids)
-    cols = [c.name for c in table.columns
-            if c.name not in ("id", "version", "created_at", "updated_at")]
+    cols = [
+        c.name for c in table.columns if c.name not in ("id", "version", "created_at", "updated_at")
+    ]
     for c in cols:  # every column is written (and audited), missing values as NULL
         if c not in frame.columns:
             frame[c] = None
@@ -304,8 +369,8 @@ def _insert(w: BulkWriter, entity: str, frame: pd.DataFrame, ids: dict,
     done = 0
     paused = False
     for start in range(0, total, ESTIMATE_CHUNK):
-        part = frame.iloc[start:start + ESTIMATE_CHUNK]
-        w.insert_frame(table, part[cols], keys[start:start + ESTIMATE_CHUNK])
+        part = frame.iloc[start : start + ESTIMATE_CHUNK]
+        w.insert_frame(table, part[cols], keys[start : start + ESTIMATE_CHUNK])
         done += len(part)
         if progress is not None:
             progress(PLURAL[entity], done, total)
@@ -317,8 +382,14 @@ def _insert(w: BulkWriter, entity: str, frame: pd.DataFrame, ids: dict,
 def _update(w: Writer, entity: str, plan: EntityPlan, ids: dict) -> None:
     table = TABLES[entity]
     for before, changes, key in plan.changes:
-        w.update(table, int(before["id"]), int(before["version"]),
-                 _db_changes(w.conn, entity, changes, ids), before=before, row_key=key)
+        w.update(
+            table,
+            int(before["id"]),
+            int(before["version"]),
+            _db_changes(w.conn, entity, changes, ids),
+            before=before,
+            row_key=key,
+        )
 
 
 def _apply_ratings(w: Writer, rating_plan: dict[str, dict], plan: EntityPlan) -> None:
@@ -336,11 +407,20 @@ def _apply_ratings(w: Writer, rating_plan: dict[str, dict], plan: EntityPlan) ->
             w.delete(table, int(old["id"]))
         new = todo["add"] + [n for _, n in todo["replace"]]
         if new:
-            w.insert_many(table, [dict(r, appraisal_id=int(app["id"])) for r in new],
-                          row_keys=[f"{key}|{r['domain']}" for r in new])
+            w.insert_many(
+                table,
+                [dict(r, appraisal_id=int(app["id"])) for r in new],
+                row_keys=[f"{key}|{r['domain']}" for r in new],
+            )
         if key not in updated:
-            w.update(TABLES["appraisal"], int(app["id"]), int(app["version"]), {},
-                     before=app.to_dict(), row_key=key)
+            w.update(
+                TABLES["appraisal"],
+                int(app["id"]),
+                int(app["version"]),
+                {},
+                before=app.to_dict(),
+                row_key=key,
+            )
 
 
 def _insert_ratings(w: Writer, frames: EvidenceFrames, plan: EntityPlan) -> None:
@@ -354,22 +434,42 @@ def _insert_ratings(w: Writer, frames: EvidenceFrames, plan: EntityPlan) -> None
     apps = with_refs(w.conn, "appraisal", read_table(w.conn, "appraisal"), {})
     app_ids = dict(zip(_appraisal_key(apps).tolist(), apps["id"].tolist(), strict=True))
     ratings = ratings.assign(appraisal_id=ratings["_key"].map(app_ids).astype("int64"))
-    cols = ["appraisal_id", "domain", "level", "reporting", "justification", "suggested_level",
-            "suggestion_reason"]
-    w.insert_many(TABLES["rating"], to_records(ratings, cols),
-                  row_keys=(ratings["_key"] + "|" + ratings["domain"]).tolist())
+    cols = [
+        "appraisal_id",
+        "domain",
+        "level",
+        "reporting",
+        "justification",
+        "suggested_level",
+        "suggestion_reason",
+    ]
+    w.insert_many(
+        TABLES["rating"],
+        to_records(ratings, cols),
+        row_keys=(ratings["_key"] + "|" + ratings["domain"]).tolist(),
+    )
 
 
-def apply_plans(w: BulkWriter, frames: EvidenceFrames, plans: dict[str, EntityPlan],
-                progress: Progress | None = None) -> None:
+def apply_plans(
+    w: BulkWriter,
+    frames: EvidenceFrames,
+    plans: dict[str, EntityPlan],
+    progress: Progress | None = None,
+) -> None:
     pause = os.environ.get(PAUSE_ENV)
     pause_after = int(pause) if pause else None
     ids: dict = {}
     rating_plan = _rating_changes(w.conn, frames, plans["appraisal"])
     for entity in ENTITIES:
         plan = plans[entity]
-        _insert(w, entity, plan.new, ids, progress if entity == "estimate" else None,
-                pause_after if entity == "estimate" else None)
+        _insert(
+            w,
+            entity,
+            plan.new,
+            ids,
+            progress if entity == "estimate" else None,
+            pause_after if entity == "estimate" else None,
+        )
         ids.pop(entity, None)
         _update(w, entity, plan, ids)
     _insert_ratings(w, frames, plans["appraisal"])
@@ -397,9 +497,11 @@ def _direction_counts(conn, frames: EvidenceFrames) -> dict[str, Counts]:
 
 # ---------------------------------------------------------------------------------- services
 #: the entities an import of each kind of file reports on
-REPORTED = {"events": ("exposure", "event"),
-            "sheet": ("exposure", "outcome", "event", "study", "estimate"),
-            "archive": ENTITIES}
+REPORTED = {
+    "events": ("exposure", "event"),
+    "sheet": ("exposure", "outcome", "event", "study", "estimate"),
+    "archive": ENTITIES,
+}
 
 
 def _counts(plans: dict[str, EntityPlan], kind: str, rating_plan: dict) -> dict[str, Counts]:
@@ -415,16 +517,22 @@ def _counts(plans: dict[str, EntityPlan], kind: str, rating_plan: dict) -> dict[
     return out
 
 
-def _archive_door(conn, frames: EvidenceFrames, plans: dict[str, EntityPlan],
-                  rating_plan: dict, file: str, rubric_path, replace: bool) -> set[str]:
+def _archive_door(
+    conn,
+    frames: EvidenceFrames,
+    plans: dict[str, EntityPlan],
+    rating_plan: dict,
+    file: str,
+    rubric_path,
+    replace: bool,
+) -> set[str]:
     """The appraisal rules of ``appraise import`` for an archive; returns the appraisals it
     replaces (only with ``replace``), or raises every problem."""
     if frames.appraisals.empty:
         return set()
     conflicts = {k for _, _, k in plans["appraisal"].changes} | set(rating_plan)
     label = Path(file).name
-    problems = check_archive_appraisals(conn, frames, load_rubric(rubric_path), label,
-                                        conflicts)
+    problems = check_archive_appraisals(conn, frames, load_rubric(rubric_path), label, conflicts)
     if conflicts and not replace:
         problems += conflict_problems(frames, conflicts, label)
     if problems:
@@ -432,9 +540,17 @@ def _archive_door(conn, frames: EvidenceFrames, plans: dict[str, EntityPlan],
     return conflicts
 
 
-def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
-                  dry_run: bool = False, progress: Progress | None = None,
-                  replace: bool = False, rubric_path: str | Path | None = None) -> ImportReport:
+def import_frames(
+    store: Store,
+    frames: EvidenceFrames,
+    *,
+    file: str,
+    kind: str,
+    dry_run: bool = False,
+    progress: Progress | None = None,
+    replace: bool = False,
+    rubric_path: str | Path | None = None,
+) -> ImportReport:
     """Write validated records in one transaction (or, with ``dry_run``, only plan it).
 
     An archive's appraisals pass the rules of ``appraise import``
@@ -443,23 +559,27 @@ def import_frames(store: Store, frames: EvidenceFrames, *, file: str, kind: str,
     An archive's series sections are written in the same transaction.
     """
     notes: list[str] = []
-    with (store.read() if dry_run else store.write()) as conn:
+    with store.read() if dry_run else store.write() as conn:
         plans = build_plans(conn, frames)
         rating_plan = _rating_changes(conn, frames, plans["appraisal"])
         directions = _direction_counts(conn, frames)
         replaced = set()
         if kind == "archive":
-            replaced = _archive_door(conn, frames, plans, rating_plan, file, rubric_path,
-                                     replace)
+            replaced = _archive_door(conn, frames, plans, rating_plan, file, rubric_path, replace)
         if not dry_run:
             w = BulkWriter(conn, store.user)
             audit_replacements(w, replaced, Path(file).name)
             apply_plans(w, frames, plans, progress)
             notes = _import_series(w, frames)
-    return ImportReport(file=file, url=store.masked_url, kind=kind, rows=frames.rows,
-                        dry_run=dry_run, counts={**_counts(plans, kind, rating_plan),
-                                                 **directions},
-                        notes=list(frames.notes) + notes)
+    return ImportReport(
+        file=file,
+        url=store.masked_url,
+        kind=kind,
+        rows=frames.rows,
+        dry_run=dry_run,
+        counts={**_counts(plans, kind, rating_plan), **directions},
+        notes=list(frames.notes) + notes,
+    )
 
 
 def _import_series(w: Writer, frames: EvidenceFrames) -> list[str]:
@@ -472,26 +592,59 @@ def _import_series(w: Writer, frames: EvidenceFrames) -> list[str]:
     c = write_series(w, series.series, series.points)
     fits = write_fits(w, series.fits)
     w.flush()
-    return [f"series: {c['added']} added, {c['updated']} updated, {c['unchanged']} unchanged; "
-            f"{fits} stored re-estimation(s) added"]
+    return [
+        f"series: {c['added']} added, {c['updated']} updated, {c['unchanged']} unchanged; "
+        f"{fits} stored re-estimation(s) added"
+    ]
 
 
-def import_into(store: Store, path: str | Path, *, events_only: bool = False,
-                dry_run: bool = False, encoding: str | None = None, ignore_extra: bool = False,
-                progress: Progress | None = None, replace: bool = False,
-                rubric_path: str | Path | None = None) -> ImportReport:
+def import_into(
+    store: Store,
+    path: str | Path,
+    *,
+    events_only: bool = False,
+    dry_run: bool = False,
+    encoding: str | None = None,
+    ignore_extra: bool = False,
+    progress: Progress | None = None,
+    replace: bool = False,
+    rubric_path: str | Path | None = None,
+) -> ImportReport:
     """Validate ``path`` completely, then import it into ``store`` in one transaction."""
-    kind, frames = read_input(path, events_only=events_only, encoding=encoding,
-                              ignore_extra=ignore_extra, study_events=stored_study_events(store))
-    return import_frames(store, frames, file=str(path), kind=kind, dry_run=dry_run,
-                         progress=progress, replace=replace, rubric_path=rubric_path)
+    kind, frames = read_input(
+        path,
+        events_only=events_only,
+        encoding=encoding,
+        ignore_extra=ignore_extra,
+        study_events=stored_study_events(store),
+    )
+    return import_frames(
+        store,
+        frames,
+        file=str(path),
+        kind=kind,
+        dry_run=dry_run,
+        progress=progress,
+        replace=replace,
+        rubric_path=rubric_path,
+    )
 
 
-def import_file(path: str | Path, *, db: str | None = None, user: str | None = None,
-                events_only: bool = False, dry_run: bool = False, encoding: str | None = None,
-                ignore_extra: bool = False, progress: Progress | None = None,
-                delimiter: str | None = None, sheet: str | None = None,
-                replace: bool = False, rubric_path: str | Path | None = None) -> ImportReport:
+def import_file(
+    path: str | Path,
+    *,
+    db: str | None = None,
+    user: str | None = None,
+    events_only: bool = False,
+    dry_run: bool = False,
+    encoding: str | None = None,
+    ignore_extra: bool = False,
+    progress: Progress | None = None,
+    delimiter: str | None = None,
+    sheet: str | None = None,
+    replace: bool = False,
+    rubric_path: str | Path | None = None,
+) -> ImportReport:
     """``exposhift import`` / ``exposhift events import``: open the store and import a file.
 
     The file is validated before the database is opened for writing; any problem raises
@@ -505,16 +658,30 @@ def import_file(path: str | Path, *, db: str | None = None, user: str | None = N
         return stored_study_events(opened[0])(keys)
 
     try:
-        kind, frames = read_input(path, events_only=events_only, encoding=encoding,
-                                  ignore_extra=ignore_extra, study_events=lookup,
-                                  delimiter=delimiter, sheet=sheet)
+        kind, frames = read_input(
+            path,
+            events_only=events_only,
+            encoding=encoding,
+            ignore_extra=ignore_extra,
+            study_events=lookup,
+            delimiter=delimiter,
+            sheet=sheet,
+        )
     except BaseException:
         for s in opened:
             s.dispose()
         raise
     store = opened[0] if opened else open_current(db, user)
     try:
-        return import_frames(store, frames, file=str(path), kind=kind, dry_run=dry_run,
-                             progress=progress, replace=replace, rubric_path=rubric_path)
+        return import_frames(
+            store,
+            frames,
+            file=str(path),
+            kind=kind,
+            dry_run=dry_run,
+            progress=progress,
+            replace=replace,
+            rubric_path=rubric_path,
+        )
     finally:
         store.dispose()

@@ -27,15 +27,35 @@ LISTS = ("exposures", "outcomes", "studies", "events")
 COLUMNS = {
     "exposures": ["exposure", "events", "events_evaluated", "studies", "outcomes", "estimates"],
     "outcomes": ["outcome", "outcome_group", "exposures", "studies", "estimates"],
-    "studies": ["study_id", "year", "design", "level", "exposures", "outcomes", "estimates",
-                "citation"],
-    "events": ["event_id", "exposure", "change_kind", "change_direction", "country",
-               "change_date", "studies", "family"],
+    "studies": [
+        "study_id",
+        "year",
+        "design",
+        "level",
+        "exposures",
+        "outcomes",
+        "estimates",
+        "citation",
+    ],
+    "events": [
+        "event_id",
+        "exposure",
+        "change_kind",
+        "change_direction",
+        "country",
+        "change_date",
+        "studies",
+        "family",
+    ],
 }
 
 #: the count columns of each listing (0 where nothing is counted)
-COUNTS = {"exposures": COLUMNS["exposures"][1:], "outcomes": ["exposures", "studies", "estimates"],
-          "studies": ["estimates"], "events": ["studies"]}
+COUNTS = {
+    "exposures": COLUMNS["exposures"][1:],
+    "outcomes": ["exposures", "studies", "estimates"],
+    "studies": ["estimates"],
+    "events": ["studies"],
+}
 
 
 def _counts(frame: pd.DataFrame, by: str, **named: tuple[str, str]) -> pd.DataFrame:
@@ -57,19 +77,36 @@ def list_records(store: Store, what: str, exposure: str | None = None) -> pd.Dat
     if exposure is not None:
         events = events[events["exposure"] == exposure]
     if what == "exposures":
-        base = pd.DataFrame({"exposure": [exposure] if exposure else names["exposure"]},
-                            dtype=object)
-        ev = _counts(events.assign(evaluated=events["studies"] > 0), "exposure",
-                     events=("event_id", "size"), events_evaluated=("evaluated", "sum"))
-        est = _counts(frame, "exposure", studies=("study_id", "nunique"),
-                      outcomes=("outcome", "nunique"), estimates=("estimate_uid", "size"))
+        base = pd.DataFrame(
+            {"exposure": [exposure] if exposure else names["exposure"]}, dtype=object
+        )
+        ev = _counts(
+            events.assign(evaluated=events["studies"] > 0),
+            "exposure",
+            events=("event_id", "size"),
+            events_evaluated=("evaluated", "sum"),
+        )
+        est = _counts(
+            frame,
+            "exposure",
+            studies=("study_id", "nunique"),
+            outcomes=("outcome", "nunique"),
+            estimates=("estimate_uid", "size"),
+        )
         out = base.merge(ev, on="exposure", how="left").merge(est, on="exposure", how="left")
     elif what == "outcomes":
         groups = frame.drop_duplicates("outcome").set_index("outcome")["outcome_group"]
-        base = pd.DataFrame({"outcome": sorted(frame["outcome"].unique()) if exposure
-                             else names["outcome"]}, dtype=object)
-        est = _counts(frame, "outcome", exposures=("exposure", "nunique"),
-                      studies=("study_id", "nunique"), estimates=("estimate_uid", "size"))
+        base = pd.DataFrame(
+            {"outcome": sorted(frame["outcome"].unique()) if exposure else names["outcome"]},
+            dtype=object,
+        )
+        est = _counts(
+            frame,
+            "outcome",
+            exposures=("exposure", "nunique"),
+            studies=("study_id", "nunique"),
+            estimates=("estimate_uid", "size"),
+        )
         out = base.merge(est, on="outcome", how="left")
         out["outcome_group"] = out["outcome"].map(groups)
     elif what == "studies":
@@ -104,19 +141,62 @@ class StudyRecord:
             "events": self.events.to_dict(orient="records"),
             "estimates": self.estimates.to_dict(orient="records"),
             "appraisal_of_record": vars(ap["of_record"]) if ap["of_record"] else None,
-            "appraisals": [{"reviewer": v.reviewer, "stage": v.stage, "overall": v.overall,
-                            "blinded": v.blinded} for v in ap["appraisals"]],
+            "appraisals": [
+                {
+                    "reviewer": v.reviewer,
+                    "stage": v.stage,
+                    "overall": v.overall,
+                    "blinded": v.blinded,
+                }
+                for v in ap["appraisals"]
+            ],
             "caution": ap["caution"],
         }
 
 
-STUDY_FIELDS = ("key", "citation", "year", "doi", "design", "comparison", "population",
-                "data_source", "assignment_grade", "pre_points", "post_points", "checks", "demo")
-EVENT_COLUMNS = ["event_id", "exposure", "change_kind", "change_direction", "change_size",
-                 "change_unit", "country", "area", "change_date", "family"]
-ESTIMATE_COLUMNS = ["estimate_uid", "event_id", "outcome", "measure", "estimate_kind",
-                    "estimate", "ci_low", "ci_high", "ci_level", "se", "p_value", "subgroup",
-                    "time_window", "primary"]
+STUDY_FIELDS = (
+    "key",
+    "citation",
+    "year",
+    "doi",
+    "design",
+    "comparison",
+    "population",
+    "data_source",
+    "assignment_grade",
+    "pre_points",
+    "post_points",
+    "checks",
+    "demo",
+)
+EVENT_COLUMNS = [
+    "event_id",
+    "exposure",
+    "change_kind",
+    "change_direction",
+    "change_size",
+    "change_unit",
+    "country",
+    "area",
+    "change_date",
+    "family",
+]
+ESTIMATE_COLUMNS = [
+    "estimate_uid",
+    "event_id",
+    "outcome",
+    "measure",
+    "estimate_kind",
+    "estimate",
+    "ci_low",
+    "ci_high",
+    "ci_level",
+    "se",
+    "p_value",
+    "subgroup",
+    "time_window",
+    "primary",
+]
 
 
 def study_record(store: Store, study_id: str, viewer: str | None = None) -> StudyRecord:
@@ -130,8 +210,11 @@ def study_record(store: Store, study_id: str, viewer: str | None = None) -> Stud
                 study_id = folded[study_id.casefold()]
             else:
                 close = difflib.get_close_matches(study_id, list(studies), n=3, cutoff=0.6)
-                hint = (f"; did you mean {', '.join(map(repr, close))}?" if close
-                        else "; 'exposhift list studies' lists them")
+                hint = (
+                    f"; did you mean {', '.join(map(repr, close))}?"
+                    if close
+                    else "; 'exposhift list studies' lists them"
+                )
                 raise NotFoundError(f"no study '{study_id}' in the evidence base{hint}")
         frame = analysis_frame(conn)
     frame = frame[frame["study_id"] == study_id]

@@ -28,14 +28,23 @@ def resolve_name(known: Sequence[str], entity: str, name: str) -> str:
     if len(matches) == 1:
         return matches[0]
     if matches:
-        raise NotFoundError(f"{entity} '{name}' is ambiguous: the evidence base has "
-                            f"{', '.join(repr(m) for m in matches)}; type one exactly")
+        raise NotFoundError(
+            f"{entity} '{name}' is ambiguous: the evidence base has "
+            f"{', '.join(repr(m) for m in matches)}; type one exactly"
+        )
     by_fold = {fold(k): k for k in known}
-    close = [by_fold[c] for c in difflib.get_close_matches(fold(name), list(by_fold), n=3,
-                                                            cutoff=0.5)]
-    hint = f"; did you mean {', '.join(repr(c) for c in close)}?" if close else (
-        f"; known {entity}s: {', '.join(known[:12])}{' ...' if len(known) > 12 else ''}"
-        if known else f"; the evidence base has no {entity}s yet (import a sheet first)")
+    close = [
+        by_fold[c] for c in difflib.get_close_matches(fold(name), list(by_fold), n=3, cutoff=0.5)
+    ]
+    hint = (
+        f"; did you mean {', '.join(repr(c) for c in close)}?"
+        if close
+        else (
+            f"; known {entity}s: {', '.join(known[:12])}{' ...' if len(known) > 12 else ''}"
+            if known
+            else f"; the evidence base has no {entity}s yet (import a sheet first)"
+        )
+    )
     listing = f" ('exposhift list {entity}s' lists them)" if known else ""
     raise NotFoundError(f"no {entity} '{name}' in the evidence base{hint}{listing}")
 

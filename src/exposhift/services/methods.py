@@ -33,22 +33,40 @@ def methods_in_force(cwd: Path | None = None) -> list[MethodFile]:
     rubric = default_rubric_path()
     own = rubric != packaged_rubric_path()
     if own:
-        how = (f"edit {WORKSPACE_RUBRIC}; appraisals made under the old text keep its hash, new "
-               "ones get the new hash (appraise import --rubric FILE uses another file)")
+        how = (
+            f"edit {WORKSPACE_RUBRIC}; appraisals made under the old text keep its hash, new "
+            "ones get the new hash (appraise import --rubric FILE uses another file)"
+        )
     else:
-        how = (f"mkdir -p evidence && cp {rubric} {WORKSPACE_RUBRIC}, then edit "
-               f"{WORKSPACE_RUBRIC}: commands run from this folder use it")
+        how = (
+            f"mkdir -p evidence && cp {rubric} {WORKSPACE_RUBRIC}, then edit "
+            f"{WORKSPACE_RUBRIC}: commands run from this folder use it"
+        )
     out = [MethodFile("rubric", str(rubric), own, how)]
     local = cwd / WORKSPACE_SETTINGS
     if local.is_file():
-        out.append(MethodFile("thresholds", str(WORKSPACE_SETTINGS), True,
-                              f"edit {WORKSPACE_SETTINGS} (replication and gaps take --settings "
-                              "FILE for another); the rules are in docs/replication.md"))
+        out.append(
+            MethodFile(
+                "thresholds",
+                str(WORKSPACE_SETTINGS),
+                True,
+                f"edit {WORKSPACE_SETTINGS} (replication and gaps take --settings "
+                "FILE for another); the rules are in docs/replication.md",
+            )
+        )
     else:
         template = _repo_settings()
-        src = (f"cp {template} {WORKSPACE_SETTINGS}" if template.is_file()
-               else f"write {WORKSPACE_SETTINGS} with the [thresholds] of docs/replication.md")
-        out.append(MethodFile("thresholds", None, False,
-                              f"mkdir -p evidence && {src}, "
-                              "then edit it (the rules are in docs/replication.md)"))
+        src = (
+            f"cp {template} {WORKSPACE_SETTINGS}"
+            if template.is_file()
+            else f"write {WORKSPACE_SETTINGS} with the [thresholds] of docs/replication.md"
+        )
+        out.append(
+            MethodFile(
+                "thresholds",
+                None,
+                False,
+                f"mkdir -p evidence && {src}, then edit it (the rules are in docs/replication.md)",
+            )
+        )
     return out

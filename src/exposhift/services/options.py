@@ -20,8 +20,10 @@ def check_port(port: int, option: str = "--port") -> int:
     """A TCP port number 1-65535 (RFC 793 / RFC 6335 port range)."""
     lo, hi = PORT_RANGE
     if not lo <= port <= hi:
-        raise ConfigError(f"{option} {port} is not a port; give a number from {lo} to {hi} "
-                          "(e.g. 8501; 1-1023 usually need administrator rights)")
+        raise ConfigError(
+            f"{option} {port} is not a port; give a number from {lo} to {hi} "
+            "(e.g. 8501; 1-1023 usually need administrator rights)"
+        )
     return port
 
 
@@ -31,8 +33,9 @@ def check_year(value: int | None, option: str) -> int | None:
         return None
     lo, hi = YEAR_RANGE
     if not lo <= value <= hi:
-        raise ConfigError(f"{option} {value} is not a year exposhift records; give a year from "
-                          f"{lo} to {hi}")
+        raise ConfigError(
+            f"{option} {value} is not a year exposhift records; give a year from {lo} to {hi}"
+        )
     return value
 
 
@@ -55,6 +58,8 @@ def check_countries(codes: Iterable[str], option: str = "--country") -> tuple[st
                 hints.append(f"{b!r} (did you mean {found.alpha_3}, {found.name}?)")
             except LookupError:
                 hints.append(repr(b))
-        raise ConfigError(f"{option}: unknown ISO 3166-1 alpha-3 country code "
-                          f"{', '.join(hints)}; give codes such as NLD, GBR or USA")
+        raise ConfigError(
+            f"{option}: unknown ISO 3166-1 alpha-3 country code "
+            f"{', '.join(hints)}; give codes such as NLD, GBR or USA"
+        )
     return tuple(out)

@@ -52,10 +52,27 @@ from exposhift.synthesis.sensitivity import (
 )
 
 #: --by choices -> analysis frame columns
-STRATA = {"design-family": "design_family", "level": "level", "design": "design",
-          "country": "country", "outcome-group": "outcome_group"}
-POOL_FIELDS = ("estimate", "se", "ci_lower", "ci_upper", "pi_lower", "pi_upper", "tau2", "i2",
-               "q", "q_pvalue", "pvalue", "df")
+STRATA = {
+    "design-family": "design_family",
+    "level": "level",
+    "design": "design",
+    "country": "country",
+    "outcome-group": "outcome_group",
+}
+POOL_FIELDS = (
+    "estimate",
+    "se",
+    "ci_lower",
+    "ci_upper",
+    "pi_lower",
+    "pi_upper",
+    "tau2",
+    "i2",
+    "q",
+    "q_pvalue",
+    "pvalue",
+    "df",
+)
 NATURAL_FIELDS = ("estimate", "ci_lower", "ci_upper", "pi_lower", "pi_upper")
 
 
@@ -101,16 +118,23 @@ def _finite(x: Any) -> Any:
 def evidence_set_words(include_fatal: bool, min_level: int | None) -> str:
     """The evidence set of a pooled result, in words."""
     if min_level is not None:
-        return (f"studies appraised at overall level >= {min_level} (not-yet-appraised "
-                "studies left out), one number per event")
+        return (
+            f"studies appraised at overall level >= {min_level} (not-yet-appraised "
+            "studies left out), one number per event"
+        )
     if include_fatal:
         return "every study, fatal-overall ones included, one number per event"
-    return ("every study except those appraised fatal overall (not-yet-appraised studies "
-            "included), one number per event")
+    return (
+        "every study except those appraised fatal overall (not-yet-appraised studies "
+        "included), one number per event"
+    )
 
 
 def prepare_for_pooling(
-    frame: pd.DataFrame, *, include_fatal: bool = False, align_to: str = "increase",
+    frame: pd.DataFrame,
+    *,
+    include_fatal: bool = False,
+    align_to: str = "increase",
     min_level: int | None = None,
 ) -> tuple[pd.DataFrame, list[dict[str, Any]]]:
     """Steps 2-4: the evidence set, harmonise, keep independent estimates.
@@ -125,8 +149,12 @@ def prepare_for_pooling(
             excluded += _excluded_records(
                 frame[fatal],
                 frame.loc[fatal, "level"].map(
-                    lambda lv: f"appraisal of record overall {int(lv)} (fatal): left out of "
-                    "pooling by default (--include-fatal keeps it)"))
+                    lambda lv: (
+                        f"appraisal of record overall {int(lv)} (fatal): left out of "
+                        "pooling by default (--include-fatal keeps it)"
+                    )
+                ),
+            )
         frame = frame[~fatal]
     if min_level is not None:
         low = ~(frame["level"] >= min_level)
@@ -134,9 +162,16 @@ def prepare_for_pooling(
             excluded += _excluded_records(
                 frame[low],
                 frame.loc[low, "level"].map(
-                    lambda lv: ("not appraised yet" if pd.isna(lv) else
-                                f"appraisal of record overall {int(lv)}")
-                    + f": below --min-level {min_level}"))
+                    lambda lv: (
+                        (
+                            "not appraised yet"
+                            if pd.isna(lv)
+                            else f"appraisal of record overall {int(lv)}"
+                        )
+                        + f": below --min-level {min_level}"
+                    )
+                ),
+            )
         frame = frame[~low]
     if frame.empty:
         return frame.assign(y=[], v=[]), excluded
@@ -147,8 +182,9 @@ def prepare_for_pooling(
     return kept, excluded
 
 
-def _check_options(by: list[str], align_to: str, method: str, within_event: str,
-                   rho: float, min_level: int | None) -> None:
+def _check_options(
+    by: list[str], align_to: str, method: str, within_event: str, rho: float, min_level: int | None
+) -> None:
     for b in by:
         if b not in STRATA:
             raise ConfigError(f"unknown stratum '{b}' for --by; accepted: {', '.join(STRATA)}")
@@ -157,8 +193,9 @@ def _check_options(by: list[str], align_to: str, method: str, within_event: str,
     if method not in METHODS:
         raise ConfigError(f"unknown --method '{method}'; accepted: {', '.join(METHODS)}")
     if within_event not in WITHIN_EVENT:
-        raise ConfigError(f"unknown --within-event '{within_event}'; accepted: "
-                          f"{', '.join(WITHIN_EVENT)}")
+        raise ConfigError(
+            f"unknown --within-event '{within_event}'; accepted: {', '.join(WITHIN_EVENT)}"
+        )
     if not (isinstance(rho, float | int) and 0.0 <= float(rho) <= 1.0):
         raise ConfigError(f"--rho is a correlation between 0 and 1 (got {rho})")
     if min_level is not None and min_level not in (0, 1, 2, 3):
@@ -193,93 +230,154 @@ def pool_evidence(
     if frame.empty:
         raise NotFoundError(
             f"no estimates for exposure '{exposure}' and outcome '{outcome}'; "
-            "'exposhift gaps' lists the combinations that have some")
-    options = {"method": method, "ci": ci, "by": by, "include_fatal": include_fatal,
-               "min_level": min_level, "align_to": align_to, "alpha": alpha,
-               "hksj_floor": hksj_floor, "within_event": within_event,
-               "rho": float(rho) if within_event == "aggregate" else None}
+            "'exposhift gaps' lists the combinations that have some"
+        )
+    options = {
+        "method": method,
+        "ci": ci,
+        "by": by,
+        "include_fatal": include_fatal,
+        "min_level": min_level,
+        "align_to": align_to,
+        "alpha": alpha,
+        "hksj_floor": hksj_floor,
+        "within_event": within_event,
+        "rho": float(rho) if within_event == "aggregate" else None,
+    }
     words = evidence_set_words(include_fatal, min_level)
-    kept, excluded = prepare_for_pooling(frame, include_fatal=include_fatal, align_to=align_to,
-                                         min_level=min_level)
+    kept, excluded = prepare_for_pooling(
+        frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level
+    )
     if kept.empty:
-        return PoolOutput(exposure, outcome, align_to, [], excluded, evidence_set=words,
-                          options=options)
+        return PoolOutput(
+            exposure, outcome, align_to, [], excluded, evidence_set=words, options=options
+        )
     keys = pooling_keys([STRATA[b] for b in by])
     kept = _fill_keys(kept, keys)
-    pooled = pool_event_level(kept, keys, method=method, ci=ci, alpha=alpha,
-                              hksj_floor=hksj_floor, within_event=within_event, rho=rho)
+    pooled = pool_event_level(
+        kept,
+        keys,
+        method=method,
+        ci=ci,
+        alpha=alpha,
+        hksj_floor=hksj_floor,
+        within_event=within_event,
+        rho=rho,
+    )
     groups = [
-        _group_record(rec, keys, kept, pooled.rows[pooled.rows["group"] == i], options,
-                      details)
+        _group_record(rec, keys, kept, pooled.rows[pooled.rows["group"] == i], options, details)
         for i, rec in enumerate(pooled.table.to_dict(orient="records"))
     ]
     for g in groups:
         g["excluded"] = excluded
     overall = _overall(kept, keys, by, options) if by else []
-    return PoolOutput(exposure, outcome, align_to, groups, excluded, evidence_set=words,
-                      options=options, overall=overall, pooled_rows=pooled.rows,
-                      unit_rows=kept)
+    return PoolOutput(
+        exposure,
+        outcome,
+        align_to,
+        groups,
+        excluded,
+        evidence_set=words,
+        options=options,
+        overall=overall,
+        pooled_rows=pooled.rows,
+        unit_rows=kept,
+    )
 
 
 def _fill_keys(kept: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
     kept = kept.copy()
     for k in keys:
-        kept[k] = kept[k].astype(object).where(kept[k].notna(), "not appraised"
-                                               if k == "level" else "")
+        kept[k] = (
+            kept[k].astype(object).where(kept[k].notna(), "not appraised" if k == "level" else "")
+        )
     return kept
 
 
 def natural(scale: str, values: dict[str, Any]) -> dict[str, Any]:
     """The fields of :data:`NATURAL_FIELDS` on the natural scale (ratio or difference)."""
-    return {f: (None if values.get(f) is None else
-                float(from_analysis_scale(scale, float(values[f]))))
-            for f in NATURAL_FIELDS if f in values}
+    return {
+        f: (None if values.get(f) is None else float(from_analysis_scale(scale, float(values[f]))))
+        for f in NATURAL_FIELDS
+        if f in values
+    }
 
 
-def _group_record(rec: dict[str, Any], keys: list[str], kept: pd.DataFrame,
-                  rows: pd.DataFrame, options: dict[str, Any], details: bool) -> dict[str, Any]:
+def _group_record(
+    rec: dict[str, Any],
+    keys: list[str],
+    kept: pd.DataFrame,
+    rows: pd.DataFrame,
+    options: dict[str, Any],
+    details: bool,
+) -> dict[str, Any]:
     mine = rows
-    units = kept[kept["estimate_uid"].isin(
-        [u for uids in rows["estimate_uids"] for u in uids])]
+    units = kept[kept["estimate_uid"].isin([u for uids in rows["estimate_uids"] for u in uids])]
     scale = str(units["scale"].iloc[0])
     g: dict[str, Any] = {k: _finite(rec[k]) for k in keys}
-    g.update({
-        "k": int(rec["k"]), "k_events": int(rec["k_events"]),
-        "k_estimates": int(rec["k_estimates"]), "method": rec.get("method", options["method"]),
-        "ci_method": rec.get("ci_method", options["ci"]),
-        "within_event": options["within_event"], "rho": options["rho"],
-        "measure": "/".join(sorted(set(units["measure"]))), "scale": scale,
-        **{f: _finite(rec.get(f)) for f in POOL_FIELDS},
-        "notes": [n for n in str(rec.get("notes") or "").split("; ") if n],
-        "sign_flipped": int(units["sign_flipped"].sum()),
-        "estimates": sorted(units["estimate_uid"].tolist()),
-        "events": sorted(mine["event_id"].astype(str).unique().tolist()),
-    })
+    g.update(
+        {
+            "k": int(rec["k"]),
+            "k_events": int(rec["k_events"]),
+            "k_estimates": int(rec["k_estimates"]),
+            "method": rec.get("method", options["method"]),
+            "ci_method": rec.get("ci_method", options["ci"]),
+            "within_event": options["within_event"],
+            "rho": options["rho"],
+            "measure": "/".join(sorted(set(units["measure"]))),
+            "scale": scale,
+            **{f: _finite(rec.get(f)) for f in POOL_FIELDS},
+            "notes": [n for n in str(rec.get("notes") or "").split("; ") if n],
+            "sign_flipped": int(units["sign_flipped"].sum()),
+            "estimates": sorted(units["estimate_uid"].tolist()),
+            "events": sorted(mine["event_id"].astype(str).unique().tolist()),
+        }
+    )
     g["provenance"] = provenance_lines(units)
     g["natural"] = natural(scale, g)
     if scale == "log":
         g["back_transformed"] = dict(g["natural"])
-    g["headline"] = ("single-event" if g["k_events"] == 1 else
-                     "two-events" if g["k_events"] == 2 else "pooled")
+    g["headline"] = (
+        "single-event" if g["k_events"] == 1 else "two-events" if g["k_events"] == 2 else "pooled"
+    )
     ev = mine.sort_values("event_id")
-    g["event_estimates"] = [
-        {"event_id": str(r.event_id), "k_units": int(r.k_units), "y": _finite(r.y),
-         "se": _finite(math.sqrt(r.v)),
-         "natural": natural(scale, {"estimate": r.y,
-                                    "ci_lower": r.y - 1.959963984540054 * math.sqrt(r.v),
-                                    "ci_upper": r.y + 1.959963984540054 * math.sqrt(r.v)})}
-        for r in ev.itertuples(index=False)
-    ] if g["k_events"] <= 2 else []
+    g["event_estimates"] = (
+        [
+            {
+                "event_id": str(r.event_id),
+                "k_units": int(r.k_units),
+                "y": _finite(r.y),
+                "se": _finite(math.sqrt(r.v)),
+                "natural": natural(
+                    scale,
+                    {
+                        "estimate": r.y,
+                        "ci_lower": r.y - 1.959963984540054 * math.sqrt(r.v),
+                        "ci_upper": r.y + 1.959963984540054 * math.sqrt(r.v),
+                    },
+                ),
+            }
+            for r in ev.itertuples(index=False)
+        ]
+        if g["k_events"] <= 2
+        else []
+    )
     y, v = ev["y"].to_numpy(float), ev["v"].to_numpy(float)
     if options["within_event"] != "multilevel" and y.size >= 2:
         t2 = tau2_ci_qprofile(y, v, alpha=options["alpha"])
-        g["tau2_ci"] = {"lower": _finite(t2.tau2_lower), "upper": _finite(t2.tau2_upper),
-                        "method": "Q-profile (Viechtbauer 2007)", "note": t2.note}
+        g["tau2_ci"] = {
+            "lower": _finite(t2.tau2_lower),
+            "upper": _finite(t2.tau2_upper),
+            "method": "Q-profile (Viechtbauer 2007)",
+            "note": t2.note,
+        }
     if g["k_events"] == 2:
-        fe = pool_groups(ev.assign(_g=0), ["_g"], method="fe", ci="wald",
-                         alpha=options["alpha"]).iloc[0]
-        g["fixed_effect"] = {f: _finite(fe[f]) for f in ("estimate", "se", "ci_lower",
-                                                          "ci_upper", "pvalue")}
+        fe = pool_groups(
+            ev.assign(_g=0), ["_g"], method="fe", ci="wald", alpha=options["alpha"]
+        ).iloc[0]
+        g["fixed_effect"] = {
+            f: _finite(fe[f]) for f in ("estimate", "se", "ci_lower", "ci_upper", "pvalue")
+        }
         g["fixed_effect"]["natural"] = natural(scale, g["fixed_effect"])
     if options["within_event"] == "aggregate" and (units["event_id"].duplicated()).any():
         g["rho_sensitivity"] = _rho_range(units, keys, options)
@@ -300,53 +398,82 @@ def _rho_range(units: pd.DataFrame, keys: list[str], options: dict[str, Any]) ->
     out = []
     for r in RHO_RANGE:
         ev = aggregate_within_event(units, keys, rho=r)
-        res = pool_groups(ev.assign(_g=0), ["_g"], method=options["method"], ci=options["ci"],
-                          alpha=options["alpha"], hksj_floor=options["hksj_floor"]).iloc[0]
-        out.append({"rho": r, **{f: _finite(res[f]) for f in ("estimate", "se", "ci_lower",
-                                                             "ci_upper")}})
+        res = pool_groups(
+            ev.assign(_g=0),
+            ["_g"],
+            method=options["method"],
+            ci=options["ci"],
+            alpha=options["alpha"],
+            hksj_floor=options["hksj_floor"],
+        ).iloc[0]
+        out.append(
+            {"rho": r, **{f: _finite(res[f]) for f in ("estimate", "se", "ci_lower", "ci_upper")}}
+        )
     return out
 
 
-def _overall(kept: pd.DataFrame, keys: list[str], by: list[str],
-             options: dict[str, Any]) -> list[dict[str, Any]]:
+def _overall(
+    kept: pd.DataFrame, keys: list[str], by: list[str], options: dict[str, Any]
+) -> list[dict[str, Any]]:
     """Per pooling stratum: the result over all the ``by`` strata and the subgroup test."""
     base = pooling_keys()
-    res = pool_event_level(kept, base, method=options["method"], ci=options["ci"],
-                           alpha=options["alpha"], hksj_floor=options["hksj_floor"],
-                           within_event=options["within_event"], rho=options["rho"] or 0.0)
+    res = pool_event_level(
+        kept,
+        base,
+        method=options["method"],
+        ci=options["ci"],
+        alpha=options["alpha"],
+        hksj_floor=options["hksj_floor"],
+        within_event=options["within_event"],
+        rho=options["rho"] or 0.0,
+    )
     out = []
     strata = [STRATA[b] for b in by]
     for rec in res.table.to_dict(orient="records"):
         units = kept[_match(kept, base, rec)]
         scale = str(units["scale"].iloc[0])
         o = {k: _finite(rec[k]) for k in base}
-        o.update({"k_events": int(rec["k_events"]), "k_estimates": int(rec["k_estimates"]),
-                  **{f: _finite(rec.get(f)) for f in POOL_FIELDS}, "scale": scale})
+        o.update(
+            {
+                "k_events": int(rec["k_events"]),
+                "k_estimates": int(rec["k_estimates"]),
+                **{f: _finite(rec.get(f)) for f in POOL_FIELDS},
+                "scale": scale,
+            }
+        )
         o["natural"] = natural(scale, o)
         o["subgroup_test"] = _subgroup(units, base, strata, options)
         out.append(o)
     return out
 
 
-def _subgroup(units: pd.DataFrame, base: list[str], strata: list[str],
-              options: dict[str, Any]) -> dict[str, Any]:
+def _subgroup(
+    units: pd.DataFrame, base: list[str], strata: list[str], options: dict[str, Any]
+) -> dict[str, Any]:
     rows = aggregate_within_event(units, [*base, *strata], rho=options["rho"] or 0.0)
     label = rows[strata].astype(str).agg(" / ".join, axis=1)
     shared = int(rows["event_id"].duplicated().sum())
     if label.nunique() < 2:
         return {"run": False, "reason": "only one subgroup has estimates"}
     try:
-        st = subgroup_test(rows["y"], rows["v"], label, method=options["method"],
-                           ci=options["ci"], alpha=options["alpha"],
-                           hksj_floor=options["hksj_floor"])
+        st = subgroup_test(
+            rows["y"],
+            rows["v"],
+            label,
+            method=options["method"],
+            ci=options["ci"],
+            alpha=options["alpha"],
+            hksj_floor=options["hksj_floor"],
+        )
     except AnalysisError as exc:
         return {"run": False, "reason": str(exc)}
     note = st.note
     if shared:
-        note += (f"; {shared} event(s) appear in more than one subgroup, so the subgroups "
-                 "are not independent and the test is approximate")
-    return {"run": True, "q_between": st.q_between, "df": st.df, "pvalue": st.pvalue,
-            "note": note}
+        note += (
+            f"; {shared} event(s) appear in more than one subgroup, so the subgroups "
+            "are not independent and the test is approximate"
+        )
+    return {"run": True, "q_between": st.q_between, "df": st.df, "pvalue": st.pvalue, "note": note}
 
 
 def sensitivity(ev: pd.DataFrame, *, scale: str, options: dict[str, Any]) -> dict[str, Any]:
@@ -358,29 +485,48 @@ def sensitivity(ev: pd.DataFrame, *, scale: str, options: dict[str, Any]) -> dic
     if k < 2:
         out["note"] = "a single event: nothing to vary"
         return out
-    kw = {"method": options["method"], "ci": options["ci"], "alpha": options["alpha"],
-          "hksj_floor": options["hksj_floor"]}
+    kw = {
+        "method": options["method"],
+        "ci": options["ci"],
+        "alpha": options["alpha"],
+        "hksj_floor": options["hksj_floor"],
+    }
     if k >= 3:
         loo = leave_one_out(y, v, labels=ev["event_id"].astype(str).to_numpy(), **kw)
         worst = loo.iloc[int(np.argmax(np.abs(loo["shift"].to_numpy())))]
         out["leave_one_out"] = {
-            "lowest": _finite(loo["estimate"].min()), "highest": _finite(loo["estimate"].max()),
-            "most_influential": str(worst["omitted"]), "shift": _finite(worst["shift"]),
-            "natural": {"lowest": float(from_analysis_scale(scale, loo["estimate"].min())),
-                        "highest": float(from_analysis_scale(scale, loo["estimate"].max())),
-                        "without_most_influential": float(
-                            from_analysis_scale(scale, float(worst["estimate"])))},
+            "lowest": _finite(loo["estimate"].min()),
+            "highest": _finite(loo["estimate"].max()),
+            "most_influential": str(worst["omitted"]),
+            "shift": _finite(worst["shift"]),
+            "natural": {
+                "lowest": float(from_analysis_scale(scale, loo["estimate"].min())),
+                "highest": float(from_analysis_scale(scale, loo["estimate"].max())),
+                "without_most_influential": float(
+                    from_analysis_scale(scale, float(worst["estimate"]))
+                ),
+            },
             "unit": "event",
         }
     dates = ev["change_date"].astype(str).to_numpy() if "change_date" in ev else None
     if dates is not None:
         cum = cumulative(y, v, order=dates, labels=ev["event_id"].astype(str).to_numpy(), **kw)
         out["cumulative"] = [
-            {"added": str(r.added), "date": str(r.order), "k_events": int(r.k),
-             "natural": natural(scale, {"estimate": r.estimate, "ci_lower": r.ci_lower,
-                                        "ci_upper": r.ci_upper})}
-            for r in cum.itertuples(index=False)]
+            {
+                "added": str(r.added),
+                "date": str(r.order),
+                "k_events": int(r.k),
+                "natural": natural(
+                    scale, {"estimate": r.estimate, "ci_lower": r.ci_lower, "ci_upper": r.ci_upper}
+                ),
+            }
+            for r in cum.itertuples(index=False)
+        ]
     eg = egger_test(y, v, alpha=options["alpha"])
-    out["small_study"] = {"run": eg.run, "reason": eg.reason.replace("estimates", "events"),
-                          "intercept": _finite(eg.intercept), "pvalue": _finite(eg.pvalue)}
+    out["small_study"] = {
+        "run": eg.run,
+        "reason": eg.reason.replace("estimates", "events"),
+        "intercept": _finite(eg.intercept),
+        "pvalue": _finite(eg.pvalue),
+    }
     return out

@@ -42,8 +42,12 @@ def _settings(settings: ReplicationSettings | None, expected: str | None) -> Rep
 
 
 def replication_for(
-    store: Store, exposure: str, outcome: str, *,
-    settings: ReplicationSettings | None = None, expected: str | None = None,
+    store: Store,
+    exposure: str,
+    outcome: str,
+    *,
+    settings: ReplicationSettings | None = None,
+    expected: str | None = None,
     family: str | None = None,
 ) -> ReplicationReport:
     """Replication report of one exposure × outcome (optionally one family of change). Unknown
@@ -58,10 +62,14 @@ def replication_for(
         known = sorted(frame["family"].dropna().unique().tolist())
         if family not in known:
             close = difflib.get_close_matches(family, known, n=3, cutoff=0.5)
-            hint = (f"did you mean {', '.join(map(repr, close))}?" if close
-                    else f"families of this exposure and outcome: {', '.join(known) or 'none'}")
-            raise NotFoundError(f"no family of change '{family}' for {exposure} and "
-                                f"{outcome}; {hint}")
+            hint = (
+                f"did you mean {', '.join(map(repr, close))}?"
+                if close
+                else f"families of this exposure and outcome: {', '.join(known) or 'none'}"
+            )
+            raise NotFoundError(
+                f"no family of change '{family}' for {exposure} and {outcome}; {hint}"
+            )
         frame = frame[frame["family"] == family]
     units, excluded = independent_units(frame)
     if expected is not None:  # a one-run override wins over the committee's direction
@@ -109,14 +117,19 @@ class GapReport:
 def _check_filters(f: GapFilters, s: ReplicationSettings) -> set[str] | None:
     unknown = [d for d in f.design_families if d not in DESIGN_FAMILIES]
     if unknown:
-        raise ConfigError(f"unknown design family {', '.join(map(repr, unknown))}; use one of "
-                          f"{', '.join(DESIGN_FAMILIES)}")
+        raise ConfigError(
+            f"unknown design family {', '.join(map(repr, unknown))}; use one of "
+            f"{', '.join(DESIGN_FAMILIES)}"
+        )
     if f.year_from is not None and f.year_to is not None and f.year_from > f.year_to:
         raise ConfigError(f"--from {f.year_from} is after --to {f.year_to}; swap them")
     if f.min_level is not None and not 0 <= f.min_level <= 3:
         raise ConfigError(f"--min-level must be 0, 1, 2 or 3 (got {f.min_level})")
-    for value, option in ((f.year_from, "--from"), (f.year_to, "--to"),
-                          (f.stale_after, "--stale-after")):
+    for value, option in (
+        (f.year_from, "--from"),
+        (f.year_to, "--to"),
+        (f.stale_after, "--stale-after"),
+    ):
         check_year(value, option)
     if not f.regions and not f.countries:
         return None
@@ -127,7 +140,9 @@ def _check_filters(f: GapFilters, s: ReplicationSettings) -> set[str] | None:
 
 
 def gap_report(
-    store: Store, filters: GapFilters | None = None, *,
+    store: Store,
+    filters: GapFilters | None = None,
+    *,
     settings: ReplicationSettings | None = None,
 ) -> GapReport:
     """The gap map of the whole evidence base within ``filters``, and the opportunities."""
@@ -138,15 +153,32 @@ def gap_report(
         frame = analysis_frame(conn)
         registry = events_frame(conn)
         directions = directions_frame(conn)
-    frame = filter_frame(frame, design_families=f.design_families or None, countries=countries,
-                         year_from=f.year_from, year_to=f.year_to, min_level=f.min_level)
-    registry = filter_frame(registry.assign(design_family=None, level=float("nan")),
-                            countries=countries, year_from=f.year_from, year_to=f.year_to)
+    frame = filter_frame(
+        frame,
+        design_families=f.design_families or None,
+        countries=countries,
+        year_from=f.year_from,
+        year_to=f.year_to,
+        min_level=f.min_level,
+    )
+    registry = filter_frame(
+        registry.assign(design_family=None, level=float("nan")),
+        countries=countries,
+        year_from=f.year_from,
+        year_to=f.year_to,
+    )
     units, excluded = independent_units(frame)
-    cells = gap_map(units, settings=s, stale_after=f.stale_after, all_estimates=frame,
-                    registry=registry, directions=directions)
+    cells = gap_map(
+        units,
+        settings=s,
+        stale_after=f.stale_after,
+        all_estimates=frame,
+        registry=registry,
+        directions=directions,
+    )
     if f.studied_only:
         cells = cells[cells["studies"] > 0].reset_index(drop=True)
-    opps = opportunities(registry, units, countries=countries, year_from=f.year_from,
-                         year_to=f.year_to)
+    opps = opportunities(
+        registry, units, countries=countries, year_from=f.year_from, year_to=f.year_to
+    )
     return GapReport(cells=cells, opportunities=opps, filters=f, settings=s, excluded=excluded)

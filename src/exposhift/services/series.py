@@ -34,8 +34,10 @@ from exposhift.store.series_records import (
 )
 from exposhift.store.writer import Writer
 
-CAUTION = ("a re-estimate from extracted points supports, never replaces, expert judgement, "
-           "local regulation and licensed practice; digitised points carry reading error")
+CAUTION = (
+    "a re-estimate from extracted points supports, never replaces, expert judgement, "
+    "local regulation and licensed practice; digitised points carry reading error"
+)
 
 
 @dataclass(frozen=True)
@@ -55,8 +57,11 @@ def _context(conn) -> Context:
 
     ev = events_frame(conn)
     studies = {r["key"] for r in _studies(conn)}
-    return Context(event_dates=dict(zip(ev["event_id"], ev["change_date"], strict=True)),
-                   studies=frozenset(studies), exposed=exposed_periods(conn))
+    return Context(
+        event_dates=dict(zip(ev["event_id"], ev["change_date"], strict=True)),
+        studies=frozenset(studies),
+        exposed=exposed_periods(conn),
+    )
 
 
 def _studies(conn) -> list[dict]:
@@ -72,12 +77,14 @@ def import_series_frames(store: Store, frames: SeriesFrames, file: str) -> Serie
             records.ensure_vocab(w, "outcome", name)
         counts = write_series(w, frames.series, frames.points)
         w.flush()
-    return SeriesImportReport(file, store.masked_url, len(frames.series), len(frames.points),
-                              counts)
+    return SeriesImportReport(
+        file, store.masked_url, len(frames.series), len(frames.points), counts
+    )
 
 
-def import_series_into(store: Store, path: str | Path,
-                       encoding: str | None = None) -> SeriesImportReport:
+def import_series_into(
+    store: Store, path: str | Path, encoding: str | None = None
+) -> SeriesImportReport:
     """Validate a series sheet against the evidence base, then write it in one transaction."""
     sheet = read_sheet(Path(path), encoding)
     with store.read() as conn:
@@ -86,8 +93,9 @@ def import_series_into(store: Store, path: str | Path,
     return import_series_frames(store, frames, str(path))
 
 
-def import_series_file(path: str | Path, *, db: str | None = None, user: str | None = None,
-                       encoding: str | None = None) -> SeriesImportReport:
+def import_series_file(
+    path: str | Path, *, db: str | None = None, user: str | None = None, encoding: str | None = None
+) -> SeriesImportReport:
     """``exposhift series import FILE``."""
     store = open_current(db, user)
     try:
@@ -107,41 +115,60 @@ class SeriesEstimate:
     caution: str = CAUTION
 
     def to_dict(self) -> dict[str, Any]:
-        return {"series": {k: v for k, v in self.series.items() if k not in ("id", "version")},
-                "change_at": self.change_at, **self.analysis.to_dict(),
-                "stored_estimate": self.stored_estimate, "checks_added": self.checks_added,
-                "caution": self.caution}
+        return {
+            "series": {k: v for k, v in self.series.items() if k not in ("id", "version")},
+            "change_at": self.change_at,
+            **self.analysis.to_dict(),
+            "stored_estimate": self.stored_estimate,
+            "checks_added": self.checks_added,
+            "caution": self.caution,
+        }
 
 
 def _data(row: dict, pts: list[dict]) -> SeriesData:
     den = [p["denominator"] for p in pts]
     has_den = all(d is not None for d in den) and den
-    return SeriesData(key=row["key"], periods=tuple(p["period"] for p in pts),
-                      values=np.array([p["value"] for p in pts], dtype=float),
-                      denominators=np.array(den, dtype=float) if has_den else None,
-                      value_kind=row["value_kind"], role=row["role"], place=row["place"])
+    return SeriesData(
+        key=row["key"],
+        periods=tuple(p["period"] for p in pts),
+        values=np.array([p["value"] for p in pts], dtype=float),
+        denominators=np.array(den, dtype=float) if has_den else None,
+        value_kind=row["value_kind"],
+        role=row["role"],
+        place=row["place"],
+    )
 
 
 def _load(conn, key: str) -> tuple[dict, SeriesData, list[SeriesData], list[SeriesData]]:
     rows = series_rows(conn, key)
     if not rows:
-        raise NotFoundError(f"no series '{key}' in the evidence base; list them in the series "
-                            "sheet you imported (exposhift series import FILE)")
+        raise NotFoundError(
+            f"no series '{key}' in the evidence base; list them in the series "
+            "sheet you imported (exposhift series import FILE)"
+        )
     row = rows[0]
     if row["role"] != "exposed":
-        raise ConfigError(f"series '{key}' is a {row['role']} series; estimate the exposed "
-                          "series of the study (its comparisons are used with it)")
-    related = [r for r in series_rows(conn) if r["study"] == row["study"]
-               and r["event"] == row["event"] and r["key"] != key]
+        raise ConfigError(
+            f"series '{key}' is a {row['role']} series; estimate the exposed "
+            "series of the study (its comparisons are used with it)"
+        )
+    related = [
+        r
+        for r in series_rows(conn)
+        if r["study"] == row["study"] and r["event"] == row["event"] and r["key"] != key
+    ]
     comps = [r for r in related if r["role"] == "comparison" and r["outcome"] == row["outcome"]]
     negs = [r for r in related if r["role"] == "negative-control"]
     ids = [row["id"], *(r["id"] for r in comps + negs)]
     pts: dict[int, list[dict]] = {}
     for p in point_rows(conn, ids):
         pts.setdefault(p["series_id"], []).append(p)
-    return (row, _data(row, pts.get(row["id"], [])),
-            [_data(r, pts.get(r["id"], [])) for r in comps],
-            [_data(r, pts.get(r["id"], [])) for r in negs])
+    return (
+        row,
+        _data(row, pts.get(row["id"], [])),
+        [_data(r, pts.get(r["id"], [])) for r in comps],
+        [_data(r, pts.get(r["id"], [])) for r in negs],
+    )
 
 
 def _clean(value: Any) -> Any:
@@ -159,8 +186,11 @@ def _clean(value: Any) -> Any:
 def _store(w: Writer, row: dict, a: SeriesAnalysis) -> tuple[str, list[str]]:
     its = a.its
     opts = a.options()
-    what = ("level change" if its.horizon is None
-            else f"average over {its.horizon} periods after the change")
+    what = (
+        "level change"
+        if its.horizon is None
+        else f"average over {its.horizon} periods after the change"
+    )
     window = f"re-estimated from series {row['key']} ({a.model}; {what})"
     lo, hi = its.effect_ci
     z = its.effect / its.effect_se if its.effect_se > 0 else float("nan")
@@ -171,43 +201,74 @@ def _store(w: Writer, row: dict, a: SeriesAnalysis) -> tuple[str, list[str]]:
         "study_id": records.get(w.conn, "study", row["study"])["id"],
         "event_id": records.get(w.conn, "event", row["event"])["id"],
         "outcome_id": records.get(w.conn, "outcome", row["outcome"])["id"],
-        "measure": its.measure, "estimate_kind": its.estimate_kind,
+        "measure": its.measure,
+        "estimate_kind": its.estimate_kind,
         "point": math.exp(its.effect) if log else its.effect,
-        "ci_low": math.exp(lo) if log else lo, "ci_high": math.exp(hi) if log else hi,
-        "ci_level": 0.95, "se": its.effect_se,
-        "p_value": (float(2 * stats.t.sf(abs(z), its.diagnostics["df"]))
-                    if math.isfinite(z) else None),
-        "subgroup": None, "time_window": window, "primary": False,
+        "ci_low": math.exp(lo) if log else lo,
+        "ci_high": math.exp(hi) if log else hi,
+        "ci_level": 0.95,
+        "se": its.effect_se,
+        "p_value": (
+            float(2 * stats.t.sf(abs(z), its.diagnostics["df"])) if math.isfinite(z) else None
+        ),
+        "subgroup": None,
+        "time_window": window,
+        "primary": False,
     }
-    key = "|".join([row["study"], row["event"], row["outcome"], its.measure,
-                    its.estimate_kind, "", window])
+    key = "|".join(
+        [row["study"], row["event"], row["outcome"], its.measure, its.estimate_kind, "", window]
+    )
     if records.find(w.conn, "estimate", key) is not None:
-        raise ConfigError(f"this re-estimate is already stored as estimate '{key}'; nothing "
-                          "was written")
+        raise ConfigError(
+            f"this re-estimate is already stored as estimate '{key}'; nothing was written"
+        )
     records.create(w, "estimate", {"key": key, **values})
-    figures = _clean({"effect": its.effect, "effect_se": its.effect_se,
-                      "effect_ci": list(its.effect_ci), "measure": its.measure,
-                      "diagnostics": its.diagnostics, **a.falsification()})
+    figures = _clean(
+        {
+            "effect": its.effect,
+            "effect_se": its.effect_se,
+            "effect_ci": list(its.effect_ci),
+            "measure": its.measure,
+            "diagnostics": its.diagnostics,
+            **a.falsification(),
+        }
+    )
     write_fit(w, key, row["key"], a.model, _clean(opts), figures)
     study = records.get(w.conn, "study", row["study"])
     have = parse_checks(study["checks"]).codes if study["checks"] else ()
     added = [c for c in a.checks_passed if c not in have]
     if added:
-        records.update(w, "study", row["study"], study["version"],
-                       {"checks": ";".join([*have, *added])})
+        records.update(
+            w, "study", row["study"], study["version"], {"checks": ";".join([*have, *added])}
+        )
     return key, added
 
 
-def estimate_series(store: Store, key: str, *, horizon: int | None = None,
-                    model: str = "auto", seasonal: str | None = "auto",
-                    hac_lag: int | None = None, save: bool = False) -> SeriesEstimate:
+def estimate_series(
+    store: Store,
+    key: str,
+    *,
+    horizon: int | None = None,
+    model: str = "auto",
+    seasonal: str | None = "auto",
+    hac_lag: int | None = None,
+    save: bool = False,
+) -> SeriesEstimate:
     """Re-estimate series ``key`` with its comparisons and negative controls; ``save`` stores
     the standard-form effect (see module doc)."""
     with store.read() as conn:
         row, exposed, comps, negs = _load(conn, key)
     change_at = row["change_at"] or period_of_date(row["change_date"], row["time_unit"])
-    analysis = analyse_series(exposed, change_at, comparisons=comps, negative_controls=negs,
-                              model=model, seasonal=seasonal, horizon=horizon, hac_lag=hac_lag)
+    analysis = analyse_series(
+        exposed,
+        change_at,
+        comparisons=comps,
+        negative_controls=negs,
+        model=model,
+        seasonal=seasonal,
+        horizon=horizon,
+        hac_lag=hac_lag,
+    )
     out = SeriesEstimate(analysis, row, change_at)
     if save:
         with store.write() as conn:
@@ -217,8 +278,9 @@ def estimate_series(store: Store, key: str, *, horizon: int | None = None,
     return out
 
 
-def estimate_series_in(key: str, *, db: str | None = None, user: str | None = None,
-                       **options: Any) -> SeriesEstimate:
+def estimate_series_in(
+    key: str, *, db: str | None = None, user: str | None = None, **options: Any
+) -> SeriesEstimate:
     """``exposhift series estimate SERIES_ID``: open the evidence base and estimate."""
     store = open_current(db, user)
     try:

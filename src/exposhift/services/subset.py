@@ -19,8 +19,9 @@ from exposhift.services.lookup import resolve_name
 LEVEL_PREFIX = "consensus_"
 
 
-def subset_frames(frames: EvidenceFrames, exposure: str | None = None,
-                  outcome: str | None = None) -> EvidenceFrames:
+def subset_frames(
+    frames: EvidenceFrames, exposure: str | None = None, outcome: str | None = None
+) -> EvidenceFrames:
     """The records of ``exposure`` (and ``outcome``); names are matched case-insensitively.
 
     Without ``outcome`` every event of the exposure is kept, evaluated or not; with it, only
@@ -43,31 +44,40 @@ def subset_frames(frames: EvidenceFrames, exposure: str | None = None,
     outcomes = frames.outcomes[frames.outcomes["name"].isin(set(est["outcome"]))]
     directions = frames.directions
     if directions is not None:  # the committee's directions of the pairs kept come along
-        directions = directions[directions["exposure"].isin(set(exposures["name"]))
-                                & directions["outcome"].isin(set(outcomes["name"]))]
+        directions = directions[
+            directions["exposure"].isin(set(exposures["name"]))
+            & directions["outcome"].isin(set(outcomes["name"]))
+        ]
     series = frames.series
     if series is not None and len(series):  # the series of the studies and events kept
         from exposhift.io.series_sheet import SeriesFrames
 
-        keep_s = (series.series["study"].isin(keep)
-                  & series.series["event"].isin(set(events["key"])))
+        keep_s = series.series["study"].isin(keep) & series.series["event"].isin(set(events["key"]))
         kept = set(series.series.loc[keep_s, "key"])
         series = SeriesFrames(
             series=series.series[keep_s],
             points=series.points[series.points["series"].isin(kept)],
-            fits=series.fits[series.fits["series"].isin(kept)
-                             & series.fits["estimate"].isin(set(est["key"]))])
+            fits=series.fits[
+                series.fits["series"].isin(kept) & series.fits["estimate"].isin(set(est["key"]))
+            ],
+        )
     return replace(
-        frames, directions=directions, series=series,
-        exposures=exposures, outcomes=outcomes,
-        events=events, studies=studies, estimates=est,
+        frames,
+        directions=directions,
+        series=series,
+        exposures=exposures,
+        outcomes=outcomes,
+        events=events,
+        studies=studies,
+        estimates=est,
         appraisals=frames.appraisals[frames.appraisals["study"].isin(keep)],
         ratings=frames.ratings[frames.ratings["study"].isin(keep)],
     )
 
 
-def with_consensus_levels(sheet: pd.DataFrame, frames: EvidenceFrames,
-                          domains: list[str]) -> pd.DataFrame:
+def with_consensus_levels(
+    sheet: pd.DataFrame, frames: EvidenceFrames, domains: list[str]
+) -> pd.DataFrame:
     """``sheet`` (one row per estimate) plus the consensus appraisal of each row's study:
     ``consensus_overall`` and ``consensus_<domain>`` per rubric domain (blank: no consensus).
 

@@ -21,14 +21,34 @@ from exposhift.store.directions import directions_frame
 from exposhift.store.queries import analysis_frame
 from exposhift.synthesis.conversions import from_analysis_scale
 
-COLUMNS = ["exposure", "outcome", "events", "status", "provisional", "stratum", "k_events",
-           "k_estimates", "scale", "estimate", "ci_lower", "ci_upper", "tau2", "i2"]
-EVIDENCE_SET = ("good events only (overall appraisal level >= {min_level}), one number per "
-                "event, in the stratum with the most good events")
+COLUMNS = [
+    "exposure",
+    "outcome",
+    "events",
+    "status",
+    "provisional",
+    "stratum",
+    "k_events",
+    "k_estimates",
+    "scale",
+    "estimate",
+    "ci_lower",
+    "ci_upper",
+    "tau2",
+    "i2",
+]
+EVIDENCE_SET = (
+    "good events only (overall appraisal level >= {min_level}), one number per "
+    "event, in the stratum with the most good events"
+)
 
 
-def evidence_summary(store: Store, *, settings: ReplicationSettings | None = None,
-                     directions: pd.DataFrame | None = None) -> pd.DataFrame:
+def evidence_summary(
+    store: Store,
+    *,
+    settings: ReplicationSettings | None = None,
+    directions: pd.DataFrame | None = None,
+) -> pd.DataFrame:
     """One row per exposure x outcome; ``estimate``/``ci_*`` on the natural scale.
 
     Statuses use ``settings`` (default: the thresholds in force, as the ``replication`` action
@@ -43,10 +63,17 @@ def evidence_summary(store: Store, *, settings: ReplicationSettings | None = Non
         return pd.DataFrame(columns=COLUMNS)
     units, _ = independent_units(frame)
     st = replication_statuses(units, settings=s, directions=directions)
-    out = st.rename(columns={"n_events": "events", "pooled_k_events": "k_events",
-                             "pooled_k_estimates": "k_estimates", "pooled_stratum": "stratum",
-                             "pooled_scale": "scale", "pooled_tau2": "tau2",
-                             "pooled_i2": "i2"})
+    out = st.rename(
+        columns={
+            "n_events": "events",
+            "pooled_k_events": "k_events",
+            "pooled_k_estimates": "k_estimates",
+            "pooled_stratum": "stratum",
+            "pooled_scale": "scale",
+            "pooled_tau2": "tau2",
+            "pooled_i2": "i2",
+        }
+    )
     scale = out["scale"].replace("", "identity").to_numpy()
     for col in ("estimate", "ci_lower", "ci_upper"):
         vals = out[f"pooled_{col}"].to_numpy(float)

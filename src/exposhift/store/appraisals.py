@@ -20,8 +20,15 @@ def studies_by_key(conn: Connection) -> dict[str, dict[str, Any]]:
 def existing_appraisals(conn: Connection) -> dict[tuple[str, str, str], dict[str, Any]]:
     """Existing appraisals keyed by (study, reviewer, stage), with their ratings."""
     rows = conn.execute(
-        select(AP.c.id, ST.c.key, AP.c.reviewer, AP.c.stage, RA.c.domain, RA.c.level,
-               RA.c.justification)
+        select(
+            AP.c.id,
+            ST.c.key,
+            AP.c.reviewer,
+            AP.c.stage,
+            RA.c.domain,
+            RA.c.level,
+            RA.c.justification,
+        )
         .join(ST, AP.c.study_id == ST.c.id)
         .outerjoin(RA, RA.c.appraisal_id == AP.c.id)
     ).all()
@@ -37,11 +44,18 @@ def existing_appraisals(conn: Connection) -> dict[tuple[str, str, str], dict[str
 
 def appraisals_of_study(conn: Connection, study_id: int) -> list[dict[str, Any]]:
     """A study's appraisals (consensus first, then by reviewer), each with its ratings."""
-    aps = conn.execute(select(AP).where(AP.c.study_id == study_id)
-                       .order_by(AP.c.stage.desc(), AP.c.reviewer)).mappings().all()
-    ratings = conn.execute(
-        select(RA).where(RA.c.appraisal_id.in_([a["id"] for a in aps]))
-    ).mappings().all()
+    aps = (
+        conn.execute(
+            select(AP).where(AP.c.study_id == study_id).order_by(AP.c.stage.desc(), AP.c.reviewer)
+        )
+        .mappings()
+        .all()
+    )
+    ratings = (
+        conn.execute(select(RA).where(RA.c.appraisal_id.in_([a["id"] for a in aps])))
+        .mappings()
+        .all()
+    )
     by_ap: dict[int, list[dict[str, Any]]] = {}
     for r in ratings:
         by_ap.setdefault(r["appraisal_id"], []).append(dict(r))
@@ -50,21 +64,27 @@ def appraisals_of_study(conn: Connection, study_id: int) -> list[dict[str, Any]]
 
 def independent_ratings(conn: Connection) -> list[dict[str, Any]]:
     """Long rows (study_id, reviewer, domain, level) of every independent appraisal."""
-    return [dict(r) for r in conn.execute(
-        select(ST.c.key.label("study_id"), AP.c.reviewer, RA.c.domain, RA.c.level)
-        .join(AP, AP.c.study_id == ST.c.id)
-        .join(RA, RA.c.appraisal_id == AP.c.id)
-        .where(AP.c.stage == "independent")
-    ).mappings()]
+    return [
+        dict(r)
+        for r in conn.execute(
+            select(ST.c.key.label("study_id"), AP.c.reviewer, RA.c.domain, RA.c.level)
+            .join(AP, AP.c.study_id == ST.c.id)
+            .join(RA, RA.c.appraisal_id == AP.c.id)
+            .where(AP.c.stage == "independent")
+        ).mappings()
+    ]
 
 
 def independent_overall_levels(conn: Connection) -> list[dict[str, Any]]:
     """Rows (study_id, reviewer, overall) of every independent appraisal."""
-    return [dict(r) for r in conn.execute(
-        select(ST.c.key.label("study_id"), AP.c.reviewer, AP.c.overall)
-        .join(AP, AP.c.study_id == ST.c.id)
-        .where(AP.c.stage == "independent")
-    ).mappings()]
+    return [
+        dict(r)
+        for r in conn.execute(
+            select(ST.c.key.label("study_id"), AP.c.reviewer, AP.c.overall)
+            .join(AP, AP.c.study_id == ST.c.id)
+            .where(AP.c.stage == "independent")
+        ).mappings()
+    ]
 
 
 def rubrics_held(conn: Connection) -> set[tuple[str, str]]:

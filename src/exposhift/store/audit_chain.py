@@ -72,8 +72,9 @@ def link(entries: Iterable[dict[str, Any]], prev_hash: str) -> str:
 
 def last_hash(conn: Connection) -> str:
     """The hash of the newest entry (by id), or :data:`GENESIS` when there is none."""
-    h = conn.execute(select(AUDIT.c.entry_hash).order_by(AUDIT.c.id.desc()).limit(1)
-                     ).scalar_one_or_none()
+    h = conn.execute(
+        select(AUDIT.c.entry_hash).order_by(AUDIT.c.id.desc()).limit(1)
+    ).scalar_one_or_none()
     return h or GENESIS
 
 
@@ -87,8 +88,12 @@ class ChainHead:
     last_at: str | None
 
     def to_dict(self) -> dict[str, Any]:
-        return {"entries": self.entries, "head": self.head, "last_id": self.last_id,
-                "last_at": self.last_at}
+        return {
+            "entries": self.entries,
+            "head": self.head,
+            "last_id": self.last_id,
+            "last_at": self.last_at,
+        }
 
 
 @dataclass(frozen=True)
@@ -103,8 +108,10 @@ class ChainReport:
 
 
 def _describe(row: Mapping[str, Any]) -> str:
-    return (f"entry {row['id']} ({row['at']}, {row['user']}, {row['action']} "
-            f"{row['table_name']} '{row['row_key']}')")
+    return (
+        f"entry {row['id']} ({row['at']}, {row['user']}, {row['action']} "
+        f"{row['table_name']} '{row['row_key']}')"
+    )
 
 
 def verify_chain(conn: Connection, expected: ChainHead | None = None) -> ChainReport:
@@ -121,35 +128,55 @@ def verify_chain(conn: Connection, expected: ChainHead | None = None) -> ChainRe
         if row["entry_hash"] is None or row["prev_hash"] is None:
             return _bad(n - 1, prev, last, row, "has no hash: it was written outside exposhift")
         if row["prev_hash"] != prev:
-            what = ("the entry before it was deleted, or it was inserted or moved out of order"
-                    if n > 1 else "entries before it were deleted, or it was inserted")
+            what = (
+                "the entry before it was deleted, or it was inserted or moved out of order"
+                if n > 1
+                else "entries before it were deleted, or it was inserted"
+            )
             return _bad(n - 1, prev, last, row, f"does not follow the entry before it ({what})")
         if entry_hash(prev, row) != row["entry_hash"]:
-            return _bad(n - 1, prev, last, row, "was changed after it was written (its content "
-                        "no longer matches its hash)")
+            return _bad(
+                n - 1,
+                prev,
+                last,
+                row,
+                "was changed after it was written (its content no longer matches its hash)",
+            )
         prev, last = row["entry_hash"], row
         if not seen_expected and n == expected.entries:
             if prev != expected.head:
-                return ChainReport(False, n, _head(n, prev, last), row["id"],
-                                   f"{_describe(row)} is not the recorded head "
-                                   f"{expected.head[:16]}...: the chain was rebuilt")
+                return ChainReport(
+                    False,
+                    n,
+                    _head(n, prev, last),
+                    row["id"],
+                    f"{_describe(row)} is not the recorded head "
+                    f"{expected.head[:16]}...: the chain was rebuilt",
+                )
             seen_expected = True
     head = _head(n, prev, last)
     if not seen_expected:
-        return ChainReport(False, n, head, None,
-                           f"the chain has {n} entries but the recorded head was entry "
-                           f"{expected.entries}: entries were removed from the end")
+        return ChainReport(
+            False,
+            n,
+            head,
+            None,
+            f"the chain has {n} entries but the recorded head was entry "
+            f"{expected.entries}: entries were removed from the end",
+        )
     return ChainReport(True, n, head)
 
 
 def _head(n: int, prev: str, last: Mapping[str, Any] | None) -> ChainHead:
-    return ChainHead(n, prev, None if last is None else int(last["id"]),
-                     None if last is None else last["at"])
+    return ChainHead(
+        n, prev, None if last is None else int(last["id"]), None if last is None else last["at"]
+    )
 
 
 def _bad(checked: int, prev: str, last, row, problem: str) -> ChainReport:
-    return ChainReport(False, checked, _head(checked, prev, last), int(row["id"]),
-                       f"{_describe(row)} {problem}")
+    return ChainReport(
+        False, checked, _head(checked, prev, last), int(row["id"]), f"{_describe(row)} {problem}"
+    )
 
 
 def chain_head(conn: Connection) -> ChainHead:
@@ -157,8 +184,9 @@ def chain_head(conn: Connection) -> ChainHead:
     from sqlalchemy import func
 
     n = int(conn.execute(select(func.count()).select_from(AUDIT)).scalar_one())
-    row = conn.execute(select(AUDIT.c.id, AUDIT.c.at, AUDIT.c.entry_hash)
-                       .order_by(AUDIT.c.id.desc()).limit(1)).first()
+    row = conn.execute(
+        select(AUDIT.c.id, AUDIT.c.at, AUDIT.c.entry_hash).order_by(AUDIT.c.id.desc()).limit(1)
+    ).first()
     if row is None:
         return ChainHead(0, GENESIS, None, None)
     return ChainHead(n, row.entry_hash or GENESIS, int(row.id), row.at)
@@ -170,15 +198,23 @@ def audit_chain_head(store) -> ChainHead:
         return chain_head(conn)
 
 
-def find_entries(conn: Connection, *, row_key: str | None = None, user: str | None = None,
-                 since: str | None = None, limit: int | None = None) -> list[dict[str, Any]]:
+def find_entries(
+    conn: Connection,
+    *,
+    row_key: str | None = None,
+    user: str | None = None,
+    since: str | None = None,
+    limit: int | None = None,
+) -> list[dict[str, Any]]:
     """Audit entries in the order written, filtered by record key (exact, or the key as the
     first part of an appraisal/rating key ``study|...``), user and time (``at >= since``);
     with ``limit``, only the newest ``limit`` of them."""
     stmt = select(AUDIT).order_by(AUDIT.c.id.desc())
     if row_key is not None:
-        stmt = stmt.where((AUDIT.c.row_key == row_key)
-                          | AUDIT.c.row_key.startswith(row_key + "|", autoescape=True))
+        stmt = stmt.where(
+            (AUDIT.c.row_key == row_key)
+            | AUDIT.c.row_key.startswith(row_key + "|", autoescape=True)
+        )
     if user is not None:
         stmt = stmt.where(AUDIT.c.user == user)
     if since is not None:

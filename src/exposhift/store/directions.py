@@ -22,8 +22,15 @@ TABLE = ExpectedDirection.__table__
 EX, OU = Exposure.__table__, Outcome.__table__
 VALUES = ("direction", "rationale", "decided_by", "decided_at")
 #: columns of :func:`directions_frame`
-FRAME_COLUMNS = ("exposure", "outcome", "direction", "rationale", "decided_by", "decided_at",
-                 "version")
+FRAME_COLUMNS = (
+    "exposure",
+    "outcome",
+    "direction",
+    "rationale",
+    "decided_by",
+    "decided_at",
+    "version",
+)
 ACCEPTED = ("raises", "lowers")
 
 
@@ -33,9 +40,11 @@ def row_key(exposure: str, outcome: str) -> str:
 
 
 def _select():
-    return (select(TABLE, EX.c.name.label("exposure"), OU.c.name.label("outcome"))
-            .join(EX, TABLE.c.exposure_id == EX.c.id)
-            .join(OU, TABLE.c.outcome_id == OU.c.id))
+    return (
+        select(TABLE, EX.c.name.label("exposure"), OU.c.name.label("outcome"))
+        .join(EX, TABLE.c.exposure_id == EX.c.id)
+        .join(OU, TABLE.c.outcome_id == OU.c.id)
+    )
 
 
 def directions_frame(conn: Connection) -> pd.DataFrame:
@@ -64,15 +73,22 @@ def _id(conn: Connection, table, name: str, what: str) -> int:
 
 def _check(values: Mapping[str, Any]) -> None:
     if values.get("direction") not in ACCEPTED:
-        raise ConfigError(f"expected direction {values.get('direction')!r} is not one of "
-                          f"{', '.join(ACCEPTED)}")
+        raise ConfigError(
+            f"expected direction {values.get('direction')!r} is not one of {', '.join(ACCEPTED)}"
+        )
     for f in ("rationale", "decided_by", "decided_at"):
         if not str(values.get(f) or "").strip():
             raise ConfigError(f"an expected direction needs {f}; nothing was written")
 
 
-def upsert_direction(w: Writer, exposure: str, outcome: str, values: Mapping[str, Any], *,
-                     expected_version: int | None = None) -> tuple[str, int]:
+def upsert_direction(
+    w: Writer,
+    exposure: str,
+    outcome: str,
+    values: Mapping[str, Any],
+    *,
+    expected_version: int | None = None,
+) -> tuple[str, int]:
     """Insert or update the direction of ``exposure`` x ``outcome``.
 
     ``values`` holds direction, rationale, decided_by and decided_at. With
@@ -86,39 +102,49 @@ def upsert_direction(w: Writer, exposure: str, outcome: str, values: Mapping[str
     stored = find_direction(w.conn, exposure, outcome)
     if stored is None:
         if expected_version is not None:
-            raise ConflictError(f"expected direction '{key}' no longer exists (you edited "
-                                f"version {expected_version}; it was cleared since); nothing "
-                                "was changed. Reload it and set it again")
-        ids = {"exposure_id": _id(w.conn, EX, exposure, "exposure"),
-               "outcome_id": _id(w.conn, OU, outcome, "outcome")}
+            raise ConflictError(
+                f"expected direction '{key}' no longer exists (you edited "
+                f"version {expected_version}; it was cleared since); nothing "
+                "was changed. Reload it and set it again"
+            )
+        ids = {
+            "exposure_id": _id(w.conn, EX, exposure, "exposure"),
+            "outcome_id": _id(w.conn, OU, outcome, "outcome"),
+        }
         try:  # the unique pair: another writer may have set it since it was read
             w.insert(TABLE, {**ids, **vals}, row_key=key)
         except IntegrityError:
-            raise ConflictError(f"expected direction '{key}' was set by someone else at the "
-                                "same time; nothing was changed. Reload it and apply your edit "
-                                "again") from None
+            raise ConflictError(
+                f"expected direction '{key}' was set by someone else at the "
+                "same time; nothing was changed. Reload it and apply your edit "
+                "again"
+            ) from None
         return "added", 1
     version = int(stored["version"]) if expected_version is None else expected_version
     changes = {f: v for f, v in vals.items() if stored[f] != v}
     if not changes and version == int(stored["version"]):
         return "unchanged", version
     before = {k: stored[k] for k in (c.name for c in TABLE.columns)}
-    new_version = w.update(TABLE, int(stored["id"]), version, changes, before=before,
-                           row_key=key)
+    new_version = w.update(TABLE, int(stored["id"]), version, changes, before=before, row_key=key)
     return "updated", new_version
 
 
-def delete_direction(w: Writer, exposure: str, outcome: str, *,
-                     expected_version: int | None = None) -> int:
+def delete_direction(
+    w: Writer, exposure: str, outcome: str, *, expected_version: int | None = None
+) -> int:
     """Delete the direction of ``exposure`` x ``outcome``; returns the version deleted."""
     key = row_key(exposure, outcome)
     stored = find_direction(w.conn, exposure, outcome)
     if stored is None:
         if expected_version is not None:
-            raise ConflictError(f"expected direction '{key}' was cleared by someone else since "
-                                "you read it; nothing was changed")
-        raise NotFoundError(f"no expected direction is set for {exposure} x {outcome}; "
-                            "nothing to clear ('exposhift direction list' shows those set)")
+            raise ConflictError(
+                f"expected direction '{key}' was cleared by someone else since "
+                "you read it; nothing was changed"
+            )
+        raise NotFoundError(
+            f"no expected direction is set for {exposure} x {outcome}; "
+            "nothing to clear ('exposhift direction list' shows those set)"
+        )
     version = int(stored["version"]) if expected_version is None else expected_version
     w.delete(TABLE, int(stored["id"]), version, row_key=key)
     return version

@@ -268,8 +268,11 @@ class SeriesFit(SQLModel, table=True):
 
     __tablename__ = "series_fit"
     id: int | None = Field(default=None, primary_key=True)
-    estimate_id: int = Field(sa_column=Column(Integer, ForeignKey(
-        "estimate.id", ondelete="CASCADE"), nullable=False, unique=True))
+    estimate_id: int = Field(
+        sa_column=Column(
+            Integer, ForeignKey("estimate.id", ondelete="CASCADE"), nullable=False, unique=True
+        )
+    )
     series_id: int = Field(sa_column=_fk("series.id"))
     model: str
     options: str

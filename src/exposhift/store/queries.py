@@ -36,18 +36,46 @@ def analysis_frame(
     stmt = (
         select(
             ES.c.key.label("estimate_uid"),
-            ST.c.key.label("study_id"), ST.c.citation, ST.c.year, ST.c.doi, ST.c.design,
-            ST.c.comparison, ST.c.population, ST.c.data_source, ST.c.same_population_as,
+            ST.c.key.label("study_id"),
+            ST.c.citation,
+            ST.c.year,
+            ST.c.doi,
+            ST.c.design,
+            ST.c.comparison,
+            ST.c.population,
+            ST.c.data_source,
+            ST.c.same_population_as,
             ST.c.assignment_grade,
-            ST.c.pre_points, ST.c.post_points, ST.c.checks, ST.c.demo,
-            EV.c.key.label("event_id"), EX.c.name.label("exposure"), EV.c.change_kind,
-            EV.c.change_direction, EV.c.change_size, EV.c.change_unit, EV.c.country, EV.c.area,
-            EV.c.change_date, EV.c.family,
-            OU.c.name.label("outcome"), OU.c.outcome_group,
-            ES.c.measure, ES.c.estimate_kind, ES.c.per_unit, ES.c.point.label("estimate"),
-            ES.c.ci_low, ES.c.ci_high, ES.c.ci_level, ES.c.se, ES.c.p_value, ES.c.p_bound,
+            ST.c.pre_points,
+            ST.c.post_points,
+            ST.c.checks,
+            ST.c.demo,
+            EV.c.key.label("event_id"),
+            EX.c.name.label("exposure"),
+            EV.c.change_kind,
+            EV.c.change_direction,
+            EV.c.change_size,
+            EV.c.change_unit,
+            EV.c.country,
+            EV.c.area,
+            EV.c.change_date,
+            EV.c.family,
+            OU.c.name.label("outcome"),
+            OU.c.outcome_group,
+            ES.c.measure,
+            ES.c.estimate_kind,
+            ES.c.per_unit,
+            ES.c.point.label("estimate"),
+            ES.c.ci_low,
+            ES.c.ci_high,
+            ES.c.ci_level,
+            ES.c.se,
+            ES.c.p_value,
+            ES.c.p_bound,
             ES.c.baseline_risk,
-            ES.c.subgroup, ES.c.time_window, ES.c.primary,
+            ES.c.subgroup,
+            ES.c.time_window,
+            ES.c.primary,
         )
         .join(ST, ES.c.study_id == ST.c.id)
         .join(EV, ES.c.event_id == EV.c.id)
@@ -61,8 +89,11 @@ def analysis_frame(
         stmt = stmt.where(OU.c.name == outcome)
     rows = conn.execute(stmt).mappings().all()
     frame = pd.DataFrame([dict(r) for r in rows], columns=list(stmt.selected_columns.keys()))
-    frame["same_population_as"] = frame["same_population_as"].astype(object).where(
-        frame["same_population_as"].notna() & (frame["same_population_as"] != ""), None)
+    frame["same_population_as"] = (
+        frame["same_population_as"]
+        .astype(object)
+        .where(frame["same_population_as"].notna() & (frame["same_population_as"] != ""), None)
+    )
     out = add_derived(frame, _consensus_levels(conn))
     from exposhift.store.series_records import re_estimated_keys
 
@@ -76,11 +107,21 @@ def add_derived(frame: pd.DataFrame, levels: dict[str, int]) -> pd.DataFrame:
     out["design_family"] = out["design"].map(lambda d: DESIGNS[d][0] if d in DESIGNS else None)
     out["change_year"] = pd.to_numeric(out["change_date"].astype(str).str[:4], errors="coerce")
     default_family = out["exposure"].astype(str) + " / " + out["change_kind"].astype(str)
-    out["family"] = out["family"].where(out["family"].notna() & (out["family"] != ""),
-                                        default_family)
+    out["family"] = out["family"].where(
+        out["family"].notna() & (out["family"] != ""), default_family
+    )
     out["level"] = out["study_id"].map(levels).astype("float64")
-    for col in ("change_size", "per_unit", "estimate", "ci_low", "ci_high", "ci_level", "se",
-                "p_value", "baseline_risk"):
+    for col in (
+        "change_size",
+        "per_unit",
+        "estimate",
+        "ci_low",
+        "ci_high",
+        "ci_level",
+        "se",
+        "p_value",
+        "baseline_risk",
+    ):
         out[col] = pd.to_numeric(out[col], errors="coerce").astype("float64")
     out["primary"] = out["primary"].fillna(False).astype(bool)
     out["p_bound"] = out["p_bound"].fillna(False).astype(bool)
@@ -92,9 +133,7 @@ def add_derived(frame: pd.DataFrame, levels: dict[str, int]) -> pd.DataFrame:
 def events_frame(conn: Connection) -> pd.DataFrame:
     """Every registered exposure-change event, with the number of studies that analyse it."""
     n_studies = (
-        select(ES.c.event_id, ST.c.key)
-        .join(ST, ES.c.study_id == ST.c.id)
-        .distinct()
+        select(ES.c.event_id, ST.c.key).join(ST, ES.c.study_id == ST.c.id).distinct()
     ).subquery()
     from sqlalchemy import func
 
@@ -105,9 +144,17 @@ def events_frame(conn: Connection) -> pd.DataFrame:
     )
     stmt = (
         select(
-            EV.c.key.label("event_id"), EX.c.name.label("exposure"), EV.c.change_kind,
-            EV.c.change_direction, EV.c.change_size, EV.c.change_unit, EV.c.country, EV.c.area,
-            EV.c.change_date, EV.c.family, EV.c.demo,
+            EV.c.key.label("event_id"),
+            EX.c.name.label("exposure"),
+            EV.c.change_kind,
+            EV.c.change_direction,
+            EV.c.change_size,
+            EV.c.change_unit,
+            EV.c.country,
+            EV.c.area,
+            EV.c.change_date,
+            EV.c.family,
+            EV.c.demo,
             func.coalesce(counts.c.studies, 0).label("studies"),
         )
         .join(EX, EV.c.exposure_id == EX.c.id)
@@ -117,11 +164,11 @@ def events_frame(conn: Connection) -> pd.DataFrame:
     rows = conn.execute(stmt).mappings().all()
     frame = pd.DataFrame([dict(r) for r in rows], columns=list(stmt.selected_columns.keys()))
     frame["studies"] = frame["studies"].astype(np.int64)
-    frame["change_year"] = pd.to_numeric(frame["change_date"].astype(str).str[:4],
-                                         errors="coerce")
+    frame["change_year"] = pd.to_numeric(frame["change_date"].astype(str).str[:4], errors="coerce")
     default_family = frame["exposure"].astype(str) + " / " + frame["change_kind"].astype(str)
-    frame["family"] = frame["family"].where(frame["family"].notna() & (frame["family"] != ""),
-                                            default_family)
+    frame["family"] = frame["family"].where(
+        frame["family"].notna() & (frame["family"] != ""), default_family
+    )
     return frame
 
 
@@ -139,12 +186,16 @@ def study_events(conn: Connection, keys: list[str]) -> dict[str, set[str]]:
     """
     out: dict[str, set[str]] = {}
     for i in range(0, len(keys), 500):
-        part = keys[i:i + 500]
+        part = keys[i : i + 500]
         for (k,) in conn.execute(select(ST.c.key).where(ST.c.key.in_(part))):
             out[k] = set()
-        stmt = (select(ST.c.key, EV.c.key).distinct()
-                .join(ES, ES.c.study_id == ST.c.id).join(EV, ES.c.event_id == EV.c.id)
-                .where(ST.c.key.in_(part)))
+        stmt = (
+            select(ST.c.key, EV.c.key)
+            .distinct()
+            .join(ES, ES.c.study_id == ST.c.id)
+            .join(EV, ES.c.event_id == EV.c.id)
+            .where(ST.c.key.in_(part))
+        )
         for study, event in conn.execute(stmt):
             out[study].add(event)
     return out

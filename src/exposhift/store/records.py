@@ -83,8 +83,9 @@ def create(w: Writer, entity: str, values: Mapping[str, Any]) -> int:
     return w.insert(TABLES[entity], vals)
 
 
-def update(w: Writer, entity: str, key: str, expected_version: int,
-           changes: Mapping[str, Any]) -> int:
+def update(
+    w: Writer, entity: str, key: str, expected_version: int, changes: Mapping[str, Any]
+) -> int:
     """Update one record if it is still at ``expected_version``; returns the new version."""
     check_codes(changes)
     changes = dict(changes)

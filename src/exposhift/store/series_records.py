@@ -29,8 +29,19 @@ from exposhift.store.writer import Writer, keyed_ids
 
 SE, SP, SF = Series.__table__, SeriesPoint.__table__, SeriesFit.__table__
 ST, EV, OU, ES = Study.__table__, Event.__table__, Outcome.__table__, Estimate.__table__
-SERIES_COLS = ("key", "study", "event", "outcome", "role", "place", "time_unit", "value_kind",
-               "change_at", "extracted_by", "demo")
+SERIES_COLS = (
+    "key",
+    "study",
+    "event",
+    "outcome",
+    "role",
+    "place",
+    "time_unit",
+    "value_kind",
+    "change_at",
+    "extracted_by",
+    "demo",
+)
 
 
 def _none(v: Any) -> Any:
@@ -41,31 +52,64 @@ def _none(v: Any) -> Any:
 
 def series_rows(conn: Connection, key: str | None = None) -> list[dict[str, Any]]:
     """Series with natural-key references (study, event, outcome), sorted by key."""
-    stmt = (select(SE.c.id, SE.c.key, ST.c.key.label("study"), EV.c.key.label("event"),
-                   OU.c.name.label("outcome"), SE.c.role, SE.c.place, SE.c.time_unit,
-                   SE.c.value_kind, SE.c.change_at, SE.c.extracted_by, SE.c.demo, SE.c.version,
-                   EV.c.change_date)
-            .join(ST, SE.c.study_id == ST.c.id).join(EV, SE.c.event_id == EV.c.id)
-            .join(OU, SE.c.outcome_id == OU.c.id).order_by(SE.c.key))
+    stmt = (
+        select(
+            SE.c.id,
+            SE.c.key,
+            ST.c.key.label("study"),
+            EV.c.key.label("event"),
+            OU.c.name.label("outcome"),
+            SE.c.role,
+            SE.c.place,
+            SE.c.time_unit,
+            SE.c.value_kind,
+            SE.c.change_at,
+            SE.c.extracted_by,
+            SE.c.demo,
+            SE.c.version,
+            EV.c.change_date,
+        )
+        .join(ST, SE.c.study_id == ST.c.id)
+        .join(EV, SE.c.event_id == EV.c.id)
+        .join(OU, SE.c.outcome_id == OU.c.id)
+        .order_by(SE.c.key)
+    )
     if key is not None:
         stmt = stmt.where(SE.c.key == key)
     return [dict(r) for r in conn.execute(stmt).mappings()]
 
 
 def point_rows(conn: Connection, series_ids: list[int] | None = None) -> list[dict[str, Any]]:
-    stmt = (select(SE.c.key.label("series"), SP.c.series_id, SP.c.period, SP.c.value,
-                   SP.c.denominator, SP.c.source)
-            .join(SE, SP.c.series_id == SE.c.id).order_by(SE.c.key, SP.c.id))
+    stmt = (
+        select(
+            SE.c.key.label("series"),
+            SP.c.series_id,
+            SP.c.period,
+            SP.c.value,
+            SP.c.denominator,
+            SP.c.source,
+        )
+        .join(SE, SP.c.series_id == SE.c.id)
+        .order_by(SE.c.key, SP.c.id)
+    )
     if series_ids is not None:
         stmt = stmt.where(SP.c.series_id.in_(series_ids))
     return [dict(r) for r in conn.execute(stmt).mappings()]
 
 
 def fit_rows(conn: Connection) -> list[dict[str, Any]]:
-    stmt = (select(ES.c.key.label("estimate"), SE.c.key.label("series"), SF.c.model,
-                   SF.c.options, SF.c.figures)
-            .join(ES, SF.c.estimate_id == ES.c.id).join(SE, SF.c.series_id == SE.c.id)
-            .order_by(ES.c.key))
+    stmt = (
+        select(
+            ES.c.key.label("estimate"),
+            SE.c.key.label("series"),
+            SF.c.model,
+            SF.c.options,
+            SF.c.figures,
+        )
+        .join(ES, SF.c.estimate_id == ES.c.id)
+        .join(SE, SF.c.series_id == SE.c.id)
+        .order_by(ES.c.key)
+    )
     return [dict(r) for r in conn.execute(stmt).mappings()]
 
 
@@ -81,9 +125,10 @@ def exposed_periods(conn: Connection) -> dict[tuple[str, str, str], tuple[str, f
     by: dict[str, set] = {}
     for p in pts:
         by.setdefault(p["series"], set()).add(p["period"])
-    return {(r["study"], r["event"], r["outcome"]): (r["time_unit"],
-                                                     frozenset(by.get(r["key"], ())))
-            for r in rows}
+    return {
+        (r["study"], r["event"], r["outcome"]): (r["time_unit"], frozenset(by.get(r["key"], ())))
+        for r in rows
+    }
 
 
 def _point_values(p: dict) -> tuple:
@@ -105,11 +150,19 @@ def write_series(w: Writer, series: pd.DataFrame, points: pd.DataFrame) -> dict[
     counts = {"added": 0, "updated": 0, "unchanged": 0}
     for rec in series.to_dict(orient="records"):
         key = rec["key"]
-        values = {"key": key, "study_id": studies[rec["study"]], "event_id": events[rec["event"]],
-                  "outcome_id": outcomes[rec["outcome"]], "role": rec["role"],
-                  "place": _none(rec["place"]), "time_unit": rec["time_unit"],
-                  "value_kind": rec["value_kind"], "change_at": _none(rec["change_at"]),
-                  "extracted_by": _none(rec["extracted_by"]), "demo": bool(rec["demo"])}
+        values = {
+            "key": key,
+            "study_id": studies[rec["study"]],
+            "event_id": events[rec["event"]],
+            "outcome_id": outcomes[rec["outcome"]],
+            "role": rec["role"],
+            "place": _none(rec["place"]),
+            "time_unit": rec["time_unit"],
+            "value_kind": rec["value_kind"],
+            "change_at": _none(rec["change_at"]),
+            "extracted_by": _none(rec["extracted_by"]),
+            "demo": bool(rec["demo"]),
+        }
         new_pts = [_point_values(p) for p in by_series.get(key, [])]
         old = stored.get(key)
         if old is None:
@@ -117,10 +170,23 @@ def write_series(w: Writer, series: pd.DataFrame, points: pd.DataFrame) -> dict[
             _insert_points(w, sid, key, new_pts)
             counts["added"] += 1
             continue
-        old_vals = {"study_id": studies[old["study"]], "event_id": events[old["event"]],
-                    "outcome_id": outcomes[old["outcome"]],
-                    **{c: old[c] for c in ("role", "place", "time_unit", "value_kind",
-                                           "change_at", "extracted_by", "demo")}}
+        old_vals = {
+            "study_id": studies[old["study"]],
+            "event_id": events[old["event"]],
+            "outcome_id": outcomes[old["outcome"]],
+            **{
+                c: old[c]
+                for c in (
+                    "role",
+                    "place",
+                    "time_unit",
+                    "value_kind",
+                    "change_at",
+                    "extracted_by",
+                    "demo",
+                )
+            },
+        }
         changes = {k: v for k, v in values.items() if k != "key" and old_vals[k] != v}
         same_points = stored_pts.get(key, []) == new_pts
         if not changes and same_points:
@@ -130,8 +196,13 @@ def write_series(w: Writer, series: pd.DataFrame, points: pd.DataFrame) -> dict[
         w.update(SE, old["id"], old["version"], changes, before=before, row_key=key)
         if not same_points:
             for p in point_rows(conn, [old["id"]]):
-                w._record(SP, f"{key}|{p['period']}", "delete",
-                          {k: p[k] for k in ("period", "value", "denominator", "source")}, None)
+                w._record(
+                    SP,
+                    f"{key}|{p['period']}",
+                    "delete",
+                    {k: p[k] for k in ("period", "value", "denominator", "source")},
+                    None,
+                )
             conn.execute(delete(SP).where(SP.c.series_id == old["id"]))
             _insert_points(w, old["id"], key, new_pts)
         counts["updated"] += 1
@@ -139,23 +210,38 @@ def write_series(w: Writer, series: pd.DataFrame, points: pd.DataFrame) -> dict[
 
 
 def _insert_points(w: Writer, sid: int, key: str, pts: list[tuple]) -> None:
-    rows = [{"series_id": sid, "period": p, "value": v, "denominator": d, "source": s}
-            for p, v, d, s in pts]
+    rows = [
+        {"series_id": sid, "period": p, "value": v, "denominator": d, "source": s}
+        for p, v, d, s in pts
+    ]
     w.insert_many(SP, rows, row_keys=[f"{key}|{r['period']}" for r in rows])
 
 
-def write_fit(w: Writer, estimate_key: str, series_key: str, model: str,
-              options: dict | str, figures: dict | str) -> None:
+def write_fit(
+    w: Writer,
+    estimate_key: str,
+    series_key: str,
+    model: str,
+    options: dict | str,
+    figures: dict | str,
+) -> None:
     """Record that ``estimate_key`` was re-estimated from ``series_key`` (audited)."""
     conn = w.conn
     est_id = conn.execute(select(ES.c.id).where(ES.c.key == estimate_key)).scalar_one()
     sid = conn.execute(select(SE.c.id).where(SE.c.key == series_key)).scalar_one()
-    w.insert(SF, {"estimate_id": est_id, "series_id": sid, "model": model,
-                  "options": options if isinstance(options, str) else
-                  json.dumps(options, sort_keys=True),
-                  "figures": figures if isinstance(figures, str) else
-                  json.dumps(figures, sort_keys=True, allow_nan=False)},
-             row_key=estimate_key)
+    w.insert(
+        SF,
+        {
+            "estimate_id": est_id,
+            "series_id": sid,
+            "model": model,
+            "options": options if isinstance(options, str) else json.dumps(options, sort_keys=True),
+            "figures": figures
+            if isinstance(figures, str)
+            else json.dumps(figures, sort_keys=True, allow_nan=False),
+        },
+        row_key=estimate_key,
+    )
 
 
 def write_fits(w: Writer, fits: pd.DataFrame) -> int:
@@ -165,7 +251,6 @@ def write_fits(w: Writer, fits: pd.DataFrame) -> int:
     for rec in fits.to_dict(orient="records"):
         if rec["estimate"] in have:
             continue
-        write_fit(w, rec["estimate"], rec["series"], rec["model"], rec["options"],
-                  rec["figures"])
+        write_fit(w, rec["estimate"], rec["series"], rec["model"], rec["options"], rec["figures"])
         n += 1
     return n

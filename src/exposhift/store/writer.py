@@ -62,12 +62,26 @@ class Writer:
         self._audit: list[dict[str, Any]] = []
 
     # ------------------------------------------------------------------ helpers
-    def note(self, table_name: str, key: str, action: str, before: Mapping[str, Any] | None,
-             after: Mapping[str, Any] | None) -> None:
+    def note(
+        self,
+        table_name: str,
+        key: str,
+        action: str,
+        before: Mapping[str, Any] | None,
+        after: Mapping[str, Any] | None,
+    ) -> None:
         """An audit entry that records a decision rather than a row change (e.g. ``replace``)."""
-        self._audit.append({"at": self.now, "user": self.user, "table_name": table_name,
-                            "row_key": key, "action": action, "before": _json(before),
-                            "after": _json(after)})
+        self._audit.append(
+            {
+                "at": self.now,
+                "user": self.user,
+                "table_name": table_name,
+                "row_key": key,
+                "action": action,
+                "before": _json(before),
+                "after": _json(after),
+            }
+        )
 
     def _row_key(self, table: Table, values: Mapping[str, Any]) -> str:
         col = NATURAL_KEY.get(table.name)
@@ -112,8 +126,9 @@ class Writer:
         if "version" in table.c:
             vals["version"] = 1
         new_id = self.conn.execute(insert(table).values(**vals).returning(table.c.id)).scalar_one()
-        self._record(table, row_key or self._row_key(table, vals), "insert", None,
-                     _audit_values(vals))
+        self._record(
+            table, row_key or self._row_key(table, vals), "insert", None, _audit_values(vals)
+        )
         return int(new_id)
 
     def insert_many(
@@ -170,8 +185,14 @@ class Writer:
         self._record(table, key, "update", changed_before, after)
         return expected_version + 1
 
-    def delete(self, table: Table, row_id: int, expected_version: int | None = None, *,
-               row_key: str | None = None) -> None:
+    def delete(
+        self,
+        table: Table,
+        row_id: int,
+        expected_version: int | None = None,
+        *,
+        row_key: str | None = None,
+    ) -> None:
         """Delete one row (if still at ``expected_version`` when the table is versioned)."""
         before = self._fetch(table, row_id)
         key = row_key or self._row_key(table, before)
@@ -208,8 +229,9 @@ class Writer:
         )
 
 
-def audit_rows(conn: Connection, *, row_key: str | None = None,
-               table_name: str | None = None) -> list[dict[str, Any]]:
+def audit_rows(
+    conn: Connection, *, row_key: str | None = None, table_name: str | None = None
+) -> list[dict[str, Any]]:
     """Audit entries in the order written, optionally for one row or table."""
     stmt = select(AUDIT).order_by(AUDIT.c.id)
     if row_key is not None:

@@ -32,11 +32,11 @@ from exposhift.synthesis.grouped import pool_groups
 
 WITHIN_EVENT: dict[str, str] = {
     "aggregate": "estimates of one event combined into one (within-event correlation rho), "
-                 "then events pooled",
+    "then events pooled",
     "multilevel": "estimates within events in a three-level REML model, cluster-robust CR2 "
-                  "variance by event",
+    "variance by event",
     "independent": "every independent estimate pooled as its own unit (an event with several "
-                   "estimates counts more than once)",
+    "estimates counts more than once)",
 }
 
 
@@ -54,8 +54,9 @@ class EventPooling:
 
 def _event_counts(units: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
     g = units.groupby(keys, sort=True, dropna=False, observed=True)
-    return pd.DataFrame({"k_events": g["event_id"].nunique(),
-                         "k_estimates": g.size()}).reset_index()
+    return pd.DataFrame(
+        {"k_events": g["event_id"].nunique(), "k_estimates": g.size()}
+    ).reset_index()
 
 
 def _attach_groups(rows: pd.DataFrame, table: pd.DataFrame, keys: list[str]) -> pd.DataFrame:
@@ -74,8 +75,14 @@ def _attach_groups(rows: pd.DataFrame, table: pd.DataFrame, keys: list[str]) -> 
 
 
 def pool_event_level(
-    units: pd.DataFrame, keys: Sequence[str], *, method: str = "reml", ci: str = "hksj",
-    alpha: float = 0.05, hksj_floor: bool = True, within_event: str = "aggregate",
+    units: pd.DataFrame,
+    keys: Sequence[str],
+    *,
+    method: str = "reml",
+    ci: str = "hksj",
+    alpha: float = 0.05,
+    hksj_floor: bool = True,
+    within_event: str = "aggregate",
     rho: float = DEFAULT_RHO,
 ) -> EventPooling:
     """Pool every group of ``keys`` of independent, harmonised units with the event as unit.
@@ -86,25 +93,29 @@ def pool_event_level(
     """
     keys = list(keys)
     if within_event not in WITHIN_EVENT:
-        raise AnalysisError(f"unknown within-event route '{within_event}'; use one of: "
-                            f"{', '.join(WITHIN_EVENT)}")
+        raise AnalysisError(
+            f"unknown within-event route '{within_event}'; use one of: {', '.join(WITHIN_EVENT)}"
+        )
     if units.empty:
         empty = pd.DataFrame(columns=[*keys, "k", "k_events", "k_estimates"])
         return EventPooling(empty, units.assign(group=[], weight=[]))
     counts = _event_counts(units, keys)
     if within_event == "aggregate":
         rows = aggregate_within_event(units, keys, rho=rho)
-        table = pool_groups(rows, keys, method=method, ci=ci, alpha=alpha,
-                            hksj_floor=hksj_floor)
+        table = pool_groups(rows, keys, method=method, ci=ci, alpha=alpha, hksj_floor=hksj_floor)
     elif within_event == "independent":
         rows = units.assign(k_units=1, estimate_uids=_singletons(units))
-        table = pool_groups(rows, keys, method=method, ci=ci, alpha=alpha,
-                            hksj_floor=hksj_floor)
+        table = pool_groups(rows, keys, method=method, ci=ci, alpha=alpha, hksj_floor=hksj_floor)
     else:
         rows = units.assign(k_units=1, estimate_uids=_singletons(units))
         table = _pool_multilevel_groups(rows, keys, alpha=alpha)
-    table = table.merge(counts, on=keys, how="left", sort=False) if keys else table.assign(
-        k_events=counts["k_events"].iloc[0], k_estimates=counts["k_estimates"].iloc[0])
+    table = (
+        table.merge(counts, on=keys, how="left", sort=False)
+        if keys
+        else table.assign(
+            k_events=counts["k_events"].iloc[0], k_estimates=counts["k_estimates"].iloc[0]
+        )
+    )
     table["within_event"] = within_event
     table["rho"] = float(rho) if within_event == "aggregate" else np.nan
     rows = _attach_groups(rows, table, keys)
@@ -114,8 +125,11 @@ def pool_event_level(
 
 
 def _singletons(units: pd.DataFrame) -> list[list[str]]:
-    ids = (units["estimate_uid"] if "estimate_uid" in units.columns
-           else pd.Series(units.index)).astype(str).tolist()
+    ids = (
+        (units["estimate_uid"] if "estimate_uid" in units.columns else pd.Series(units.index))
+        .astype(str)
+        .tolist()
+    )
     return [[u] for u in ids]
 
 
@@ -133,20 +147,35 @@ def _pool_multilevel_groups(rows: pd.DataFrame, keys: list[str], alpha: float) -
         if g["event_id"].nunique() < 2:
             single = pool_groups(g.assign(_g=0), ["_g"], alpha=alpha).iloc[0].to_dict()
             single.pop("_g", None)
-            single["notes"] = ("one event: the multilevel model needs at least two events; "
-                               "its estimates pooled as one event. " + str(single["notes"]))
+            single["notes"] = (
+                "one event: the multilevel model needs at least two events; "
+                "its estimates pooled as one event. " + str(single["notes"])
+            )
             rec.update(single)
             rec["k"] = 1
         else:
             res = pool_multilevel(y, v, g["event_id"].astype(str).to_numpy(), alpha=alpha)
-            rec.update({
-                "k": int(g["event_id"].nunique()), "method": "reml-3level",
-                "ci_method": "cr2", "estimate": res.estimate, "se": res.se,
-                "ci_lower": res.ci_lower, "ci_upper": res.ci_upper, "pvalue": res.pvalue,
-                "df": res.df, "tau2": res.sigma2_event + res.sigma2_within,
-                "sigma2_event": res.sigma2_event, "sigma2_within": res.sigma2_within,
-                "q": np.nan, "q_pvalue": np.nan, "i2": np.nan, "pi_lower": np.nan,
-                "pi_upper": np.nan, "notes": "; ".join(res.notes),
-            })
+            rec.update(
+                {
+                    "k": int(g["event_id"].nunique()),
+                    "method": "reml-3level",
+                    "ci_method": "cr2",
+                    "estimate": res.estimate,
+                    "se": res.se,
+                    "ci_lower": res.ci_lower,
+                    "ci_upper": res.ci_upper,
+                    "pvalue": res.pvalue,
+                    "df": res.df,
+                    "tau2": res.sigma2_event + res.sigma2_within,
+                    "sigma2_event": res.sigma2_event,
+                    "sigma2_within": res.sigma2_within,
+                    "q": np.nan,
+                    "q_pvalue": np.nan,
+                    "i2": np.nan,
+                    "pi_lower": np.nan,
+                    "pi_upper": np.nan,
+                    "notes": "; ".join(res.notes),
+                }
+            )
         out.append(rec)
     return pd.DataFrame(out)

@@ -126,8 +126,11 @@ def overlap_groups(frame: pd.DataFrame) -> np.ndarray:
 
 
 def aggregate_within_event(
-    units: pd.DataFrame, keys: Sequence[str], rho: float = DEFAULT_RHO,
-    y: str = "y", v: str = "v",
+    units: pd.DataFrame,
+    keys: Sequence[str],
+    rho: float = DEFAULT_RHO,
+    y: str = "y",
+    v: str = "v",
 ) -> pd.DataFrame:
     """One row per ``keys`` × ``event_id``: the event-level estimate of its independent units.
 
@@ -143,16 +146,23 @@ def aggregate_within_event(
     keys = [*keys, "event_id"]
     missing = [c for c in [*keys, y, v] if c not in units.columns]
     if missing:
-        raise AnalysisError(f"column(s) {', '.join(missing)} missing; harmonise the analysis "
-                            "frame and keep independent units first")
+        raise AnalysisError(
+            f"column(s) {', '.join(missing)} missing; harmonise the analysis "
+            "frame and keep independent units first"
+        )
     if units.empty:
-        return units.assign(k_units=pd.Series(dtype=int), estimate_uids=pd.Series(dtype=object),
-                            study_ids=pd.Series(dtype=object))
+        return units.assign(
+            k_units=pd.Series(dtype=int),
+            estimate_uids=pd.Series(dtype=object),
+            study_ids=pd.Series(dtype=object),
+        )
     yy = units[y].to_numpy(dtype=float)
     vv = units[v].to_numpy(dtype=float)
     if not (np.isfinite(yy).all() and np.isfinite(vv).all() and (vv > 0).all()):
-        raise AnalysisError("every unit needs a finite estimate and a positive, finite variance "
-                            "before estimates are combined within an event")
+        raise AnalysisError(
+            "every unit needs a finite estimate and a positive, finite variance "
+            "before estimates are combined within an event"
+        )
     sort_cols = [*keys, "estimate_uid"] if "estimate_uid" in units.columns else keys
     frame = units.sort_values(sort_cols, kind="stable")
     yy = frame[y].to_numpy(dtype=float)
@@ -166,8 +176,9 @@ def aggregate_within_event(
     a = w / np.bincount(g, weights=w)[g]
     ybar = np.bincount(g, weights=a * yy, minlength=n_groups)
     se = np.sqrt(vv)
-    var = ((1.0 - rho) * np.bincount(g, weights=a * a * vv, minlength=n_groups)
-           + rho * np.bincount(g, weights=a * se, minlength=n_groups) ** 2)
+    var = (1.0 - rho) * np.bincount(g, weights=a * a * vv, minlength=n_groups) + rho * np.bincount(
+        g, weights=a * se, minlength=n_groups
+    ) ** 2
     starts = np.flatnonzero(np.r_[True, g[1:] != g[:-1]])  # rows of one group are contiguous
     out = frame.iloc[starts].reset_index(drop=True)
     out[y] = ybar
@@ -182,18 +193,19 @@ def aggregate_within_event(
         out["estimate_uids"] = [[] for _ in range(n_groups)]
     if "study_id" in frame.columns:
         sids = frame["study_id"].astype(str).tolist()
-        out["study_ids"] = [sids[a] if b - a == 1 else ", ".join(sorted(set(sids[a:b])))
-                            for a, b in bounds]
+        out["study_ids"] = [
+            sids[a] if b - a == 1 else ", ".join(sorted(set(sids[a:b]))) for a, b in bounds
+        ]
     return out
 
 
-def rho_sensitivity(units: pd.DataFrame, keys: Sequence[str], pool_fn,
-                    rhos: Sequence[float] = RHO_RANGE) -> pd.DataFrame:
+def rho_sensitivity(
+    units: pd.DataFrame, keys: Sequence[str], pool_fn, rhos: Sequence[float] = RHO_RANGE
+) -> pd.DataFrame:
     """The pooled result for each ρ in ``rhos``: ``pool_fn(event_rows)`` must return a
     mapping with ``estimate``, ``ci_lower``, ``ci_upper``; one row per ρ."""
     rows = []
     for r in rhos:
         res = pool_fn(aggregate_within_event(units, keys, rho=r))
-        rows.append({"rho": float(r), **{k: res[k] for k in ("estimate", "ci_lower",
-                                                              "ci_upper")}})
+        rows.append({"rho": float(r), **{k: res[k] for k in ("estimate", "ci_lower", "ci_upper")}})
     return pd.DataFrame(rows)

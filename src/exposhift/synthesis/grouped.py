@@ -308,8 +308,13 @@ def _tau2_reml_std(sub: Segments, start: np.ndarray) -> tuple[np.ndarray, np.nda
 
 
 def pool_segments(
-    y: np.ndarray, v: np.ndarray, starts: np.ndarray, method: str = "reml", ci: str = "hksj",
-    alpha: float = 0.05, hksj_floor: bool = True,
+    y: np.ndarray,
+    v: np.ndarray,
+    starts: np.ndarray,
+    method: str = "reml",
+    ci: str = "hksj",
+    alpha: float = 0.05,
+    hksj_floor: bool = True,
 ) -> dict[str, np.ndarray]:
     """Pool contiguous groups of already-validated, group-sorted ``y``/``v``.
 
@@ -366,7 +371,8 @@ def pool_segments(
     # scipy.special ufuncs behind scipy.stats' norm.sf, t.sf and chi2.sf (faster per element)
     with np.errstate(invalid="ignore"):
         pvalue = np.where(
-            np.isinf(df), 2 * special.ndtr(-np.abs(stat)),
+            np.isinf(df),
+            2 * special.ndtr(-np.abs(stat)),
             2 * special.stdtr(np.where(np.isinf(df), 1.0, df), -np.abs(stat)),
         )
 
@@ -446,8 +452,7 @@ def _validate(frame: pd.DataFrame, by: list[str], y: str, v: str) -> tuple[np.nd
     return yy, vv
 
 
-def check_group_extremes(y: np.ndarray, v: np.ndarray, starts: np.ndarray,
-                         index: pd.Index) -> None:
+def check_group_extremes(y: np.ndarray, v: np.ndarray, starts: np.ndarray, index: pd.Index) -> None:
     """Per group, the limits of :func:`exposhift.synthesis.pooling.check_extremes` (variances
     at most MAX_VARIANCE_RATIO apart, estimates at most MAX_SPREAD_SE smallest SEs apart and
     at most MAX_ABS_Y in size); raises :class:`AnalysisError` naming the rows of the first
@@ -458,16 +463,22 @@ def check_group_extremes(y: np.ndarray, v: np.ndarray, starts: np.ndarray,
     ymax = np.maximum.reduceat(y, starts)
     big = np.maximum.reduceat(np.abs(y), starts)
     with np.errstate(over="ignore"):  # an overflowing ratio or spread is itself "too wide"
-        bad = ((vmax / vmin > MAX_VARIANCE_RATIO) | (big > MAX_ABS_Y)
-               | (ymax - ymin > MAX_SPREAD_SE * np.sqrt(vmin)))
+        bad = (
+            (vmax / vmin > MAX_VARIANCE_RATIO)
+            | (big > MAX_ABS_Y)
+            | (ymax - ymin > MAX_SPREAD_SE * np.sqrt(vmin))
+        )
     if not bad.any():
         return
     ends = np.append(starts[1:], y.size)
     first = int(np.flatnonzero(bad)[0])
-    rows = ", ".join(str(i) for i in index[starts[first]:ends[first]][:10])
+    rows = ", ".join(str(i) for i in index[starts[first] : ends[first]][:10])
     try:
-        check_extremes(y[starts[first]:ends[first]], v[starts[first]:ends[first]],
-                       where=f"the group of rows {rows}")
+        check_extremes(
+            y[starts[first] : ends[first]],
+            v[starts[first] : ends[first]],
+            where=f"the group of rows {rows}",
+        )
     except AnalysisError as exc:
         n_bad = int(bad.sum())
         more = f" ({n_bad - 1} more group(s) likewise)" if n_bad > 1 else ""
@@ -475,8 +486,14 @@ def check_group_extremes(y: np.ndarray, v: np.ndarray, starts: np.ndarray,
 
 
 def pool_groups(
-    frame: pd.DataFrame, by: Sequence[str], y: str = "y", v: str = "v", method: str = "reml",
-    ci: str = "hksj", alpha: float = 0.05, hksj_floor: bool = True,
+    frame: pd.DataFrame,
+    by: Sequence[str],
+    y: str = "y",
+    v: str = "v",
+    method: str = "reml",
+    ci: str = "hksj",
+    alpha: float = 0.05,
+    hksj_floor: bool = True,
 ) -> pd.DataFrame:
     """Pool every group of ``frame`` defined by the columns ``by`` at once.
 

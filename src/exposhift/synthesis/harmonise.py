@@ -102,12 +102,32 @@ from exposhift.synthesis.provenance import (
 from exposhift.vocab import DIRECTIONS, ESTIMATE_KINDS, MEASURES
 
 __all__ = [
-    "ADDED_COLUMNS", "ASYMMETRY_TOL", "GROUP_SCALES", "MEASURE_GROUPS", "PROVENANCE_CODES",
-    "PROVENANCE_WORDS", "RATIO_MEASURES", "provenance_lines", "provenance_summary",
-    "UNCERTAINTY_PRECEDENCE", "ci_asymmetric", "ci_asymmetry", "from_analysis_scale",
-    "harmonise", "log_or_to_smd", "or_to_rr", "rescale_factor", "rescale_increment",
-    "se_from_ci", "se_from_p", "smd_to_log_or", "to_analysis_scale", "wald_ci", "z_for_level",
-    "z_from_p", "z_from_p_approx",
+    "ADDED_COLUMNS",
+    "ASYMMETRY_TOL",
+    "GROUP_SCALES",
+    "MEASURE_GROUPS",
+    "PROVENANCE_CODES",
+    "PROVENANCE_WORDS",
+    "RATIO_MEASURES",
+    "provenance_lines",
+    "provenance_summary",
+    "UNCERTAINTY_PRECEDENCE",
+    "ci_asymmetric",
+    "ci_asymmetry",
+    "from_analysis_scale",
+    "harmonise",
+    "log_or_to_smd",
+    "or_to_rr",
+    "rescale_factor",
+    "rescale_increment",
+    "se_from_ci",
+    "se_from_p",
+    "smd_to_log_or",
+    "to_analysis_scale",
+    "wald_ci",
+    "z_for_level",
+    "z_from_p",
+    "z_from_p_approx",
 ]
 
 LOG_MEASURES = frozenset(m for m, s in MEASURES.items() if s == "log")
@@ -133,8 +153,16 @@ GROUP_SCALES: dict[str, str] = {
 UNCERTAINTY_PRECEDENCE: tuple[str, ...] = ("ci", "se", "p")
 #: columns added by :func:`harmonise`
 ADDED_COLUMNS: tuple[str, ...] = (
-    "y", "v", "scale", "se_source", "ci_asymmetric", "sign_flipped", "measure_group",
-    "increment", "harmonise_note", "provenance",
+    "y",
+    "v",
+    "scale",
+    "se_source",
+    "ci_asymmetric",
+    "sign_flipped",
+    "measure_group",
+    "increment",
+    "harmonise_note",
+    "provenance",
     *(c for c in PROVENANCE_CODES if c not in ("ci_asymmetric", "sign_flipped")),
 )
 
@@ -150,7 +178,8 @@ class _Problems:
         self.index = frame.index
         self.uid = (
             frame["estimate_uid"].astype("string").fillna("").to_numpy()
-            if "estimate_uid" in frame.columns else None
+            if "estimate_uid" in frame.columns
+            else None
         )
         self.items: list[tuple[int, str]] = []
         self.count = 0
@@ -243,8 +272,11 @@ def _join_notes(n: int, pieces: list[tuple[np.ndarray, Any]]) -> np.ndarray:
 
 
 def _target_increments(
-    unit: np.ndarray, per_unit: np.ndarray, is_pu: np.ndarray,
-    per_unit_to: float | Mapping[str, float] | None, probs: _Problems,
+    unit: np.ndarray,
+    per_unit: np.ndarray,
+    is_pu: np.ndarray,
+    per_unit_to: float | Mapping[str, float] | None,
+    probs: _Problems,
 ) -> np.ndarray:
     """Absolute target increment for each per-unit row (nan elsewhere)."""
     target = np.full(unit.size, np.nan)
@@ -261,8 +293,10 @@ def _target_increments(
         mapped = pd.Series(unit[ok]).map(lambda u: per_unit_to.get(u, np.nan))
         target[ok] = mapped.to_numpy(dtype=float)
         missing = ok & ~np.isfinite(target)
-        probs.add(missing, lambda i: f"no target increment for change_unit '{unit[i]}' in "
-                  "per_unit_to; add it")
+        probs.add(
+            missing,
+            lambda i: f"no target increment for change_unit '{unit[i]}' in per_unit_to; add it",
+        )
     else:
         target[ok] = float(per_unit_to)
     bad = ok & np.isfinite(target) & ~(target > 0)
@@ -271,8 +305,12 @@ def _target_increments(
 
 
 def harmonise(
-    frame: pd.DataFrame, align_to: str = "increase", *, convert_or: bool = True,
-    smd_as_log_or: bool = False, per_unit_to: float | Mapping[str, float] | None = None,
+    frame: pd.DataFrame,
+    align_to: str = "increase",
+    *,
+    convert_or: bool = True,
+    smd_as_log_or: bool = False,
+    per_unit_to: float | Mapping[str, float] | None = None,
     asymmetry_tol: float = ASYMMETRY_TOL,
 ) -> pd.DataFrame:
     """Add analysis-scale columns to an analysis frame (extraction-sheet column names).
@@ -317,38 +355,56 @@ def harmonise(
 
     # ---- checks that do not depend on the uncertainty source
     known = np.isin(measure, list(MEASURES))
-    probs.add(~known, lambda i: f"unknown measure '{measure[i]}'; use one of "
-              f"{', '.join(MEASURES)}")
+    probs.add(~known, lambda i: f"unknown measure '{measure[i]}'; use one of {', '.join(MEASURES)}")
     probs.add(~np.isfinite(est) & ~np.isnan(est), "estimate is not finite")
     probs.add(np.isnan(est), "estimate is missing")
     is_ratio = np.isin(measure, list(RATIO_MEASURES))
     is_pct = measure == "pct_change"
-    probs.add(is_ratio & np.isfinite(est) & ~(est > 0),
-              lambda i: f"{measure[i]} needs a positive estimate, got {est[i]:g}")
-    probs.add(is_pct & np.isfinite(est) & ~(est > -100),
-              lambda i: f"a percent change must be above -100, got {est[i]:g}")
+    probs.add(
+        is_ratio & np.isfinite(est) & ~(est > 0),
+        lambda i: f"{measure[i]} needs a positive estimate, got {est[i]:g}",
+    )
+    probs.add(
+        is_pct & np.isfinite(est) & ~(est > -100),
+        lambda i: f"a percent change must be above -100, got {est[i]:g}",
+    )
     bad_kind = ~np.isin(kind, list(ESTIMATE_KINDS))
-    probs.add(bad_kind, lambda i: f"unknown estimate_kind '{kind[i]}'; use one of "
-              f"{', '.join(ESTIMATE_KINDS)}")
+    probs.add(
+        bad_kind,
+        lambda i: f"unknown estimate_kind '{kind[i]}'; use one of {', '.join(ESTIMATE_KINDS)}",
+    )
     is_pu = kind == "per-unit"
-    probs.add(is_pu & ~(np.isfinite(per_unit) & (per_unit != 0)),
-              "a per-unit estimate needs per_unit, the exposure increment it refers to")
-    probs.add(~is_pu & ~np.isin(direction, list(DIRECTIONS)),
-              lambda i: f"change_direction must be {' or '.join(DIRECTIONS)}, got "
-              f"'{direction[i]}'")
+    probs.add(
+        is_pu & ~(np.isfinite(per_unit) & (per_unit != 0)),
+        "a per-unit estimate needs per_unit, the exposure increment it refers to",
+    )
+    probs.add(
+        ~is_pu & ~np.isin(direction, list(DIRECTIONS)),
+        lambda i: f"change_direction must be {' or '.join(DIRECTIONS)}, got '{direction[i]}'",
+    )
     level = np.where(np.isnan(level), 0.95, level)
-    probs.add((level >= 1) & (level < 100),
-              lambda i: f"ci_level {level[i]:g} looks like a percentage; give it as a fraction "
-              f"({level[i] / 100:g})")
-    probs.add(~((level > 0) & (level < 1)) & ~((level >= 1) & (level < 100)),
-              lambda i: f"ci_level {level[i]:g} must be a fraction between 0 and 1")
+    probs.add(
+        (level >= 1) & (level < 100),
+        lambda i: (
+            f"ci_level {level[i]:g} looks like a percentage; give it as a fraction "
+            f"({level[i] / 100:g})"
+        ),
+    )
+    probs.add(
+        ~((level > 0) & (level < 1)) & ~((level >= 1) & (level < 100)),
+        lambda i: f"ci_level {level[i]:g} must be a fraction between 0 and 1",
+    )
     probs.add(np.isfinite(se_in) & ~(se_in > 0), lambda i: f"se must be positive, got {se_in[i]:g}")
-    probs.add(np.isfinite(p_in) & ~((p_in > 0) & (p_in < 1)),
-              lambda i: f"p_value must be strictly between 0 and 1, got {p_in[i]:g}")
+    probs.add(
+        np.isfinite(p_in) & ~((p_in > 0) & (p_in < 1)),
+        lambda i: f"p_value must be strictly between 0 and 1, got {p_in[i]:g}",
+    )
     is_or = measure == "OR"
     has_p0 = np.isfinite(p0)
-    probs.add(has_p0 & ~((p0 > 0) & (p0 < 1)),
-              lambda i: f"baseline_risk must be a proportion between 0 and 1, got {p0[i]:g}")
+    probs.add(
+        has_p0 & ~((p0 > 0) & (p0 < 1)),
+        lambda i: f"baseline_risk must be a proportion between 0 and 1, got {p0[i]:g}",
+    )
     level = np.where((level > 0) & (level < 1), level, 0.95)
 
     # ---- which uncertainty source each row uses (CI, then SE, then p)
@@ -356,16 +412,22 @@ def harmonise(
     both = np.isfinite(low) & np.isfinite(high)
     one = np.isfinite(low) ^ np.isfinite(high)
     lim_ok = (
-        both
-        & ~(is_ratio & ~((low > 0) & (high > 0)))
-        & ~(is_pct & ~((low > -100) & (high > -100)))
+        both & ~(is_ratio & ~((low > 0) & (high > 0))) & ~(is_pct & ~((low > -100) & (high > -100)))
     )
-    probs.add(both & ~lim_ok, "confidence limits out of range for the measure (ratios need "
-              "positive limits, percent changes limits above -100)")
+    probs.add(
+        both & ~lim_ok,
+        "confidence limits out of range for the measure (ratios need "
+        "positive limits, percent changes limits above -100)",
+    )
     probs.add(lim_ok & (low > high), lambda i: f"ci_low {low[i]:g} is above ci_high {high[i]:g}")
     outside = lim_ok & (low <= high) & np.isfinite(est) & ((est < low) | (est > high))
-    probs.add(outside, lambda i: f"estimate {est[i]:g} lies outside its interval "
-              f"({low[i]:g}, {high[i]:g}); check the extraction")
+    probs.add(
+        outside,
+        lambda i: (
+            f"estimate {est[i]:g} lies outside its interval "
+            f"({low[i]:g}, {high[i]:g}); check the extraction"
+        ),
+    )
     use_ci = lim_ok & (low < high) & ~outside
     se_ok = np.isfinite(se_in) & (se_in > 0)
     p_ok = np.isfinite(p_in) & (p_in > 0) & (p_in < 1)
@@ -374,10 +436,14 @@ def harmonise(
     none = ~(use_ci | use_se | use_p)
     zero_width = lim_ok & (low == high)
     probs.add(none & one, "only one confidence limit given; give both, or an SE or a p value")
-    probs.add(none & zero_width & ~one, "the confidence interval has zero width; give the "
-              "limits with more decimals, or an SE or a p value")
-    probs.add(none & ~one & ~zero_width & ~both,
-              "no confidence interval, SE or p value; give one of them")
+    probs.add(
+        none & zero_width & ~one,
+        "the confidence interval has zero width; give the "
+        "limits with more decimals, or an SE or a p value",
+    )
+    probs.add(
+        none & ~one & ~zero_width & ~both, "no confidence interval, SE or p value; give one of them"
+    )
 
     # ---- OR -> RR (Zhang & Yu) on the reported scale, before taking logs
     conv_or = is_or & has_p0 & (p0 > 0) & (p0 < 1) & convert_or & valid_est
@@ -419,8 +485,10 @@ def harmonise(
         se_ci = (hh - hl) / (2.0 * stats.norm.ppf((1.0 + level_eff) / 2.0))
         se_p = np.abs(y) / stats.norm.isf(np.where(use_p, p_in, 0.5) / 2.0)
     zero_p = use_p & (y == 0)
-    probs.add(zero_p, "an SE cannot come from a p value when the estimate is at the null "
-              "(give a CI or an SE)")
+    probs.add(
+        zero_p,
+        "an SE cannot come from a p value when the estimate is at the null (give a CI or an SE)",
+    )
     probs.raise_if_any()
     from_ci = use_ci | conv_or  # converted ORs take the SE from their converted limits
     se = np.where(from_ci, se_ci, np.where(use_se, se_in, se_p))
@@ -461,9 +529,15 @@ def harmonise(
     t_over_z = series_t_over_z(points, level)
     wild_se = use_se & se_implausible(measure, se_in)
     flags = {
-        "or_converted": conv_or, "se_from_p": from_p, "p_bound": bound, "se_from_ci_z": small,
-        "smd_converted": smd_conv, "ci_asymmetric": asym, "per_unit_rescaled": rescaled,
-        "sign_flipped": flipped, "se_implausible": wild_se,
+        "or_converted": conv_or,
+        "se_from_p": from_p,
+        "p_bound": bound,
+        "se_from_ci_z": small,
+        "smd_converted": smd_conv,
+        "ci_asymmetric": asym,
+        "per_unit_rescaled": rescaled,
+        "sign_flipped": flipped,
+        "se_implausible": wild_se,
     }
 
     # ---- notes
@@ -473,38 +547,81 @@ def harmonise(
     def small_note(pos: np.ndarray) -> np.ndarray:
         r = t_over_z[pos]
         txt = np.where(np.isfinite(r), _fmt(np.round((r - 1.0) * 100.0, 0)) + "%", "much")
-        return ("only " + _fmt(points[pos]) + " time points: if the CI used t, the SE is "
-                "overstated by " + txt)
+        return (
+            "only " + _fmt(points[pos]) + " time points: if the CI used t, the SE is "
+            "overstated by " + txt
+        )
 
-    notes = _join_notes(n, [
-        (use_ci & ~conv_or, lambda i: "SE from " + pct(i) + "% CI"),
-        (use_se & ~conv_or, "SE as reported"),
-        (use_p & ~conv_or, lambda i: "SE from p = " + _fmt(p_in[i]) + " (exact normal quantile)"),
-        (one & ~use_ci, "only one CI limit given"),
-        (zero_width & ~use_ci, "zero-width CI ignored"),
-        (is_pct, "percent change p taken as log(1 + p/100)"),
-        (conv_or, lambda i: "OR converted to RR with baseline risk " + _fmt(p0[i])
-         + " (Zhang & Yu 1998); SE from the converted " + pct(i) + "% limits; biased for an "
-         "adjusted OR (McNutt et al. 2003)"),
-        (bound, "p given as a bound: the SE is an upper bound (conservative)"),
-        (small, small_note),
-        (wild_se, lambda i: "SE " + _fmt(se_in[i]) + " is implausibly large on the log scale: "
-         "check that it is not in percent points or on the ratio scale"),
-        (smd_conv, "SMD converted to log OR (Chinn 2000)"),
-        (asym, "CI asymmetric on the analysis scale: check the scale of the reported limits"),
-        (rescaled, lambda i: "rescaled log-linearly from per " + _fmt(np.abs(per_unit[i]))
-         + " to per " + increment[i]),
-        (flip_dir, lambda i: "sign flipped: effect of a " + direction[i]
-         + " expressed as that of an " + align_to + " (assumes a mirrored effect)"),
-        (is_pu & flipped, "per-unit estimate re-expressed per " + align_to),
-    ])
+    notes = _join_notes(
+        n,
+        [
+            (use_ci & ~conv_or, lambda i: "SE from " + pct(i) + "% CI"),
+            (use_se & ~conv_or, "SE as reported"),
+            (
+                use_p & ~conv_or,
+                lambda i: "SE from p = " + _fmt(p_in[i]) + " (exact normal quantile)",
+            ),
+            (one & ~use_ci, "only one CI limit given"),
+            (zero_width & ~use_ci, "zero-width CI ignored"),
+            (is_pct, "percent change p taken as log(1 + p/100)"),
+            (
+                conv_or,
+                lambda i: (
+                    "OR converted to RR with baseline risk "
+                    + _fmt(p0[i])
+                    + " (Zhang & Yu 1998); SE from the converted "
+                    + pct(i)
+                    + "% limits; biased for an "
+                    "adjusted OR (McNutt et al. 2003)"
+                ),
+            ),
+            (bound, "p given as a bound: the SE is an upper bound (conservative)"),
+            (small, small_note),
+            (
+                wild_se,
+                lambda i: (
+                    "SE " + _fmt(se_in[i]) + " is implausibly large on the log scale: "
+                    "check that it is not in percent points or on the ratio scale"
+                ),
+            ),
+            (smd_conv, "SMD converted to log OR (Chinn 2000)"),
+            (asym, "CI asymmetric on the analysis scale: check the scale of the reported limits"),
+            (
+                rescaled,
+                lambda i: (
+                    "rescaled log-linearly from per "
+                    + _fmt(np.abs(per_unit[i]))
+                    + " to per "
+                    + increment[i]
+                ),
+            ),
+            (
+                flip_dir,
+                lambda i: (
+                    "sign flipped: effect of a "
+                    + direction[i]
+                    + " expressed as that of an "
+                    + align_to
+                    + " (assumes a mirrored effect)"
+                ),
+            ),
+            (is_pu & flipped, "per-unit estimate re-expressed per " + align_to),
+        ],
+    )
 
     # ---- what double precision cannot hold (an SE of 1e-200 squares to 0, 1e200 to inf)
-    probs.add(~np.isfinite(y), "the estimate on the analysis scale is not finite (check the "
-              "estimate, per_unit and the target increment)")
-    probs.add(np.isfinite(y) & ~(np.isfinite(v) & (v > 0)),
-              lambda i: f"the variance on the analysis scale ({v[i]:g}) is zero or infinite in "
-              "double precision: check the scale of the SE, CI or p value")
+    probs.add(
+        ~np.isfinite(y),
+        "the estimate on the analysis scale is not finite (check the "
+        "estimate, per_unit and the target increment)",
+    )
+    probs.add(
+        np.isfinite(y) & ~(np.isfinite(v) & (v > 0)),
+        lambda i: (
+            f"the variance on the analysis scale ({v[i]:g}) is zero or infinite in "
+            "double precision: check the scale of the SE, CI or p value"
+        ),
+    )
     probs.raise_if_any()
 
     out = frame.copy()

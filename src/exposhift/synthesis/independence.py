@@ -29,7 +29,12 @@ from exposhift.synthesis.events import overlap_groups, text_key
 #: one estimate is kept per combination of these columns (blank population/data_source = one
 #: value)
 UNIT_KEYS: tuple[str, ...] = (
-    "event_id", "population", "data_source", "outcome", "measure_group", "estimate_kind",
+    "event_id",
+    "population",
+    "data_source",
+    "outcome",
+    "measure_group",
+    "estimate_kind",
 )
 OPTIONAL_UNIT_KEYS = frozenset({"population", "data_source"})
 #: estimates may only be pooled within one combination of these columns
@@ -78,8 +83,10 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
         ex["reason"] = pd.Series(dtype=object)
         return frame.copy(), ex
 
-    keys = {c: (_clean_text(frame[c]) if c in frame.columns else np.full(n, "", dtype=object))
-            for c in UNIT_KEYS}
+    keys = {
+        c: (_clean_text(frame[c]) if c in frame.columns else np.full(n, "", dtype=object))
+        for c in UNIT_KEYS
+    }
     raw_text = {c: keys[c] for c in OPTIONAL_UNIT_KEYS}
     for c in OPTIONAL_UNIT_KEYS:
         if c in frame.columns:
@@ -91,29 +98,52 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
     unit = pd.DataFrame(keys).groupby(list(UNIT_KEYS), sort=False).ngroup().to_numpy()
 
     primary = _flag(frame["primary"]) if "primary" in frame.columns else np.zeros(n, bool)
-    re_est = (_flag(frame["re_estimated"]) if "re_estimated" in frame.columns
-              else np.zeros(n, bool))
+    re_est = _flag(frame["re_estimated"]) if "re_estimated" in frame.columns else np.zeros(n, bool)
     has_level = "level" in frame.columns
-    level = (pd.to_numeric(frame["level"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
-             if has_level else np.full(n, np.nan))
-    subgroup = (_clean_text(frame["subgroup"]) if "subgroup" in frame.columns
-                else np.full(n, "", dtype=object))
-    v = (pd.to_numeric(frame["v"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
-         if "v" in frame.columns else np.full(n, np.nan))
-    uid = (_clean_text(frame["estimate_uid"]) if "estimate_uid" in frame.columns
-           else np.full(n, "", dtype=object))
-    study = (_clean_text(frame["study_id"]) if "study_id" in frame.columns
-             else np.full(n, "", dtype=object))
+    level = (
+        pd.to_numeric(frame["level"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+        if has_level
+        else np.full(n, np.nan)
+    )
+    subgroup = (
+        _clean_text(frame["subgroup"])
+        if "subgroup" in frame.columns
+        else np.full(n, "", dtype=object)
+    )
+    v = (
+        pd.to_numeric(frame["v"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+        if "v" in frame.columns
+        else np.full(n, np.nan)
+    )
+    uid = (
+        _clean_text(frame["estimate_uid"])
+        if "estimate_uid" in frame.columns
+        else np.full(n, "", dtype=object)
+    )
+    study = (
+        _clean_text(frame["study_id"])
+        if "study_id" in frame.columns
+        else np.full(n, "", dtype=object)
+    )
 
     level_key = np.where(np.isnan(level), np.inf, -level)
     v_key = np.where(np.isnan(v), np.inf, v)
     uid_rank = pd.factorize(uid, sort=True)[0]
     study_rank = pd.factorize(study, sort=True)[0]
     # np.lexsort: last key is the primary sort key
-    order = np.lexsort((
-        np.arange(n), study_rank, uid_rank, v_key, subgroup != "", level_key, re_est, ~primary,
-        unit,
-    ))
+    order = np.lexsort(
+        (
+            np.arange(n),
+            study_rank,
+            uid_rank,
+            v_key,
+            subgroup != "",
+            level_key,
+            re_est,
+            ~primary,
+            unit,
+        )
+    )
     first = np.r_[True, unit[order][1:] != unit[order][:-1]]
     kept_pos = order[first]
     best_of_unit = np.empty(unit.max() + 1, dtype=int)
@@ -134,11 +164,15 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
         if primary[j] and not primary[i]:
             why = "it is flagged primary"
         elif re_est[i] and not re_est[j]:
-            why = ("it is the published estimate (this one is re-estimated from an extracted "
-                   "series; flag it primary to use it instead)")
+            why = (
+                "it is the published estimate (this one is re-estimated from an extracted "
+                "series; flag it primary to use it instead)"
+            )
         elif has_level and level_key[j] < level_key[i]:
-            why = (f"it is better appraised (level {level[j]:g} vs "
-                   f"{'not appraised' if np.isnan(level[i]) else f'{level[i]:g}'})")
+            why = (
+                f"it is better appraised (level {level[j]:g} vs "
+                f"{'not appraised' if np.isnan(level[i]) else f'{level[i]:g}'})"
+            )
         elif subgroup[j] == "" and subgroup[i] != "":
             why = f"it covers the whole population (this one is subgroup '{subgroup[i]}')"
         elif v_key[j] < v_key[i]:
@@ -161,11 +195,12 @@ def _how_same(i: int, j: int, raw: dict[str, np.ndarray], overlap: np.ndarray) -
     """Why two units with different wording count as one (empty when the text is identical)."""
     if overlap[i] and overlap[i] == overlap[j]:
         return f" (populations overlap: {overlap[i]}, marked with same_population_as)"
-    differ = [f"{c} '{raw[c][i]}' and '{raw[c][j]}'" for c in sorted(raw)
-              if raw[c][i] != raw[c][j]]
+    differ = [f"{c} '{raw[c][i]}' and '{raw[c][j]}'" for c in sorted(raw) if raw[c][i] != raw[c][j]]
     if differ:
-        return (f" ({'; '.join(differ)} read as the same after ignoring case, plural, "
-                "punctuation and spacing)")
+        return (
+            f" ({'; '.join(differ)} read as the same after ignoring case, plural, "
+            "punctuation and spacing)"
+        )
     return ""
 
 
@@ -187,12 +222,12 @@ def check_poolable(frame: pd.DataFrame) -> None:
         )
     combos = frame[list(POOLING_KEYS)].astype("string").fillna("").drop_duplicates()
     if "scale" in frame.columns and frame["scale"].nunique(dropna=False) > 1:
-        raise AnalysisError("estimates on different analysis scales (log and identity) cannot "
-                            "be pooled together; split by measure_group")
-    if len(combos) > 1:
-        shown = "; ".join(
-            " / ".join(x for x in row if x) for row in combos.itertuples(index=False)
+        raise AnalysisError(
+            "estimates on different analysis scales (log and identity) cannot "
+            "be pooled together; split by measure_group"
         )
+    if len(combos) > 1:
+        shown = "; ".join(" / ".join(x for x in row if x) for row in combos.itertuples(index=False))
         raise AnalysisError(
             "these estimates are different quantities and cannot be pooled together "
             f"({shown}): pool each stratum separately (group by "

@@ -167,8 +167,14 @@ def _tau2_pm_reg(X: np.ndarray, y: np.ndarray, v: np.ndarray) -> tuple[float, in
             break
         hi *= 2.0
     root, info = optimize.brentq(
-        lambda t: _q_resid(X, y, 1.0 / (v + t)) - df, 0.0, hi,
-        xtol=1e-300, rtol=PM_RTOL, maxiter=500, full_output=True, disp=False,
+        lambda t: _q_resid(X, y, 1.0 / (v + t)) - df,
+        0.0,
+        hi,
+        xtol=1e-300,
+        rtol=PM_RTOL,
+        maxiter=500,
+        full_output=True,
+        disp=False,
     )
     return max(0.0, float(root)), int(info.iterations), bool(info.converged)
 
@@ -208,8 +214,13 @@ class MetaRegressionResult:
 
 
 def meta_regression(
-    y: Any, v: Any, moderators: Any, method: str = "reml", knapp_hartung: bool = True,
-    alpha: float = 0.05, tau2: float | None = None,
+    y: Any,
+    v: Any,
+    moderators: Any,
+    method: str = "reml",
+    knapp_hartung: bool = True,
+    alpha: float = 0.05,
+    tau2: float | None = None,
 ) -> MetaRegressionResult:
     """Mixed-effects meta-regression of ``y`` (variances ``v``) on ``moderators``.
 
@@ -232,9 +243,7 @@ def meta_regression(
             f"columns of {', '.join(design.columns[1:])}"
         )
     if k <= p:
-        raise AnalysisError(
-            f"{k} estimates cannot support {p} coefficients; use fewer moderators"
-        )
+        raise AnalysisError(f"{k} estimates cannot support {p} coefficients; use fewer moderators")
     notes: list[str] = []
     iterations, converged = 0, True
     if tau2 is not None:
@@ -279,12 +288,20 @@ def meta_regression(
         crit = stats.norm.isf(alpha / 2)
     se = np.sqrt(np.diag(cov))
     stat = beta / se
-    pval = (2 * stats.t.sf(np.abs(stat), df_resid) if knapp_hartung
-            else 2 * stats.norm.sf(np.abs(stat)))
-    coefs = pd.DataFrame({
-        "term": list(design.columns), "estimate": beta, "se": se, "stat": stat,
-        "pvalue": pval, "ci_lower": beta - crit * se, "ci_upper": beta + crit * se,
-    })
+    pval = (
+        2 * stats.t.sf(np.abs(stat), df_resid) if knapp_hartung else 2 * stats.norm.sf(np.abs(stat))
+    )
+    coefs = pd.DataFrame(
+        {
+            "term": list(design.columns),
+            "estimate": beta,
+            "se": se,
+            "stat": stat,
+            "pvalue": pval,
+            "ci_lower": beta - crit * se,
+            "ci_upper": beta + crit * se,
+        }
+    )
 
     b1 = beta[1:]
     qm = float(b1 @ np.linalg.solve(cov[1:, 1:], b1))
@@ -304,11 +321,25 @@ def meta_regression(
     if knapp_hartung and s2 < 1.0:
         notes.append("Knapp-Hartung scale below 1: intervals narrower than the Wald ones")
     return MetaRegressionResult(
-        coefficients=coefs, k=k, n_coef=p, method=method if tau2 is None else "fixed",
-        knapp_hartung=bool(knapp_hartung), alpha=float(alpha), tau2=t2, r2=r2,
-        df_resid=df_resid, q_e=q_e, q_e_pvalue=float(stats.chi2.sf(q_e, df_resid)),
-        omnibus_test=om_test, omnibus_stat=float(om_stat), omnibus_df1=p - 1,
-        omnibus_df2=om_df2, omnibus_pvalue=om_p, kh_scale=s2 if knapp_hartung else float("nan"),
-        converged=bool(converged), iterations=int(iterations), design=design,
+        coefficients=coefs,
+        k=k,
+        n_coef=p,
+        method=method if tau2 is None else "fixed",
+        knapp_hartung=bool(knapp_hartung),
+        alpha=float(alpha),
+        tau2=t2,
+        r2=r2,
+        df_resid=df_resid,
+        q_e=q_e,
+        q_e_pvalue=float(stats.chi2.sf(q_e, df_resid)),
+        omnibus_test=om_test,
+        omnibus_stat=float(om_stat),
+        omnibus_df1=p - 1,
+        omnibus_df2=om_df2,
+        omnibus_pvalue=om_p,
+        kh_scale=s2 if knapp_hartung else float("nan"),
+        converged=bool(converged),
+        iterations=int(iterations),
+        design=design,
         notes=tuple(notes),
     )

@@ -69,12 +69,29 @@ class MultilevelFit:
     def to_dict(self) -> dict[str, Any]:
         """Plain Python values (lists for arrays), without the robust helper object."""
         out: dict[str, Any] = {}
-        for name in ("names", "coef", "vcov_model", "se_model", "vcov_cr2", "se_cr2", "df_cr2",
-                     "sigma2_event", "sigma2_within", "k_estimates", "k_events", "converged",
-                     "iterations", "loglik_reml", "notes"):
+        for name in (
+            "names",
+            "coef",
+            "vcov_model",
+            "se_model",
+            "vcov_cr2",
+            "se_cr2",
+            "df_cr2",
+            "sigma2_event",
+            "sigma2_within",
+            "k_estimates",
+            "k_events",
+            "converged",
+            "iterations",
+            "loglik_reml",
+            "notes",
+        ):
             val = getattr(self, name)
-            out[name] = val.tolist() if isinstance(val, np.ndarray) else (
-                list(val) if isinstance(val, tuple) else val)
+            out[name] = (
+                val.tolist()
+                if isinstance(val, np.ndarray)
+                else (list(val) if isinstance(val, tuple) else val)
+            )
         return out
 
 
@@ -131,11 +148,13 @@ def _check_design(X: Any, n: int, names: Any) -> tuple[np.ndarray, tuple[str, ..
         raise AnalysisError(f"the design matrix has {X.shape[0]} rows for {n} estimates")
     bad = np.flatnonzero(~np.all(np.isfinite(X), axis=1))
     if bad.size:
-        raise AnalysisError(f"moderator value(s) missing or not finite in row(s) "
-                            f"{', '.join(map(str, bad[:10]))}")
+        raise AnalysisError(
+            f"moderator value(s) missing or not finite in row(s) {', '.join(map(str, bad[:10]))}"
+        )
     if np.linalg.matrix_rank(X) < X.shape[1]:
-        raise AnalysisError("the moderators are collinear (design not of full column rank); "
-                            "drop a redundant column")
+        raise AnalysisError(
+            "the moderators are collinear (design not of full column rank); drop a redundant column"
+        )
     names = default if names is None else tuple(str(x) for x in names)
     if len(names) != X.shape[1]:
         raise AnalysisError(f"{len(names)} names for {X.shape[1]} coefficients")
@@ -155,11 +174,14 @@ def fit_multilevel(y: Any, v: Any, cluster: Any, X: Any = None, names: Any = Non
     groups = ClusterIndex.from_labels(cluster, n)
     p = X.shape[1]
     if groups.m < 2:
-        raise AnalysisError(f"{groups.m} event: the event-level model needs estimates from at "
-                            "least 2 events")
+        raise AnalysisError(
+            f"{groups.m} event: the event-level model needs estimates from at least 2 events"
+        )
     if groups.m <= p:
-        raise AnalysisError(f"{groups.m} events for {p} coefficients: cluster-robust inference "
-                            "needs more events than coefficients")
+        raise AnalysisError(
+            f"{groups.m} events for {p} coefficients: cluster-robust inference "
+            "needs more events than coefficients"
+        )
     prob = RemlProblem(y, v, X, groups)
     singleton = bool(np.all(groups.counts == 1))
     theta, nit, converged = maximise_reml(prob, singleton)
@@ -170,13 +192,14 @@ def fit_multilevel(y: Any, v: Any, cluster: Any, X: Any = None, names: Any = Non
 
     def phi_blocks(ids: np.ndarray, m: int) -> np.ndarray:
         rows = groups.starts[ids][:, None] + np.arange(m)
-        return d[rows][:, :, None] * np.eye(m) + s2e              # V̂_i = diag(v + σ²_w) + σ²_e 11'
+        return d[rows][:, :, None] * np.eye(m) + s2e  # V̂_i = diag(v + σ²_w) + σ²_e 11'
 
     rob = robust_blocks(xs, ys - xs @ beta, bread, beta, groups, phi_blocks, "CR2")
     notes = [NOTE_SINGLETON] if singleton else []
     if not converged:
-        notes.append("REML maximisation did not converge: variance components are the best "
-                     "point found")
+        notes.append(
+            "REML maximisation did not converge: variance components are the best point found"
+        )
     notes.extend(rob.notes)
     vm = 0.5 * (bread + bread.T)
     arrays = [beta, vm, np.sqrt(np.diag(vm)), rob.vcov, rob.se, rob.df]
@@ -184,10 +207,22 @@ def fit_multilevel(y: Any, v: Any, cluster: Any, X: Any = None, names: Any = Non
         arr.setflags(write=False)
     beta, vm, se_model, vcov_cr2, se_cr2, df_cr2 = arrays
     return MultilevelFit(
-        names=names, coef=beta, vcov_model=vm, se_model=se_model,
-        vcov_cr2=vcov_cr2, se_cr2=se_cr2, df_cr2=df_cr2, sigma2_event=s2e, sigma2_within=s2w,
-        k_estimates=n, k_events=groups.m, converged=converged, iterations=nit,
-        loglik_reml=float(-nll), notes=tuple(notes), robust=rob,
+        names=names,
+        coef=beta,
+        vcov_model=vm,
+        se_model=se_model,
+        vcov_cr2=vcov_cr2,
+        se_cr2=se_cr2,
+        df_cr2=df_cr2,
+        sigma2_event=s2e,
+        sigma2_within=s2w,
+        k_estimates=n,
+        k_events=groups.m,
+        converged=converged,
+        iterations=nit,
+        loglik_reml=float(-nll),
+        notes=tuple(notes),
+        robust=rob,
     )
 
 
@@ -208,8 +243,9 @@ def wald_test(fit: MultilevelFit, R: Any, r: Any = None, vcov: str = "model") ->
     est = tuple(float(x) for x in d)
     if vcov == "model":
         qstat = float(d @ np.linalg.solve(R @ fit.vcov_model @ R.T, d))
-        return WaldTest("chi2", qstat, float(q), float("inf"), float(stats.chi2.sf(qstat, q)),
-                        qstat, est)
+        return WaldTest(
+            "chi2", qstat, float(q), float("inf"), float(stats.chi2.sf(qstat, q)), qstat, est
+        )
     if vcov != "cr2":
         raise AnalysisError(f"unknown vcov '{vcov}'; use 'model' or 'cr2'")
     rob = fit.robust
@@ -221,14 +257,19 @@ def wald_test(fit: MultilevelFit, R: Any, r: Any = None, vcov: str = "model") ->
         if not se > 0:
             raise AnalysisError("the robust SE of this contrast is 0; the test is undefined")
         tstat = float(d[0] / se)
-        return WaldTest("t-satterthwaite", tstat, 1.0, df, float(2 * stats.t.sf(abs(tstat), df)),
-                        tstat**2, est)
+        return WaldTest(
+            "t-satterthwaite", tstat, 1.0, df, float(2 * stats.t.sf(abs(tstat), df)), tstat**2, est
+        )
     f, df1, df2, pval, qstat = rob.htz(R, d)
     return WaldTest("htz", f, df1, df2, pval, qstat, est)
 
 
 def pool_multilevel(
-    y: Any, v: Any, cluster: Any, alpha: float = 0.05, inference: str = "cr2",
+    y: Any,
+    v: Any,
+    cluster: Any,
+    alpha: float = 0.05,
+    inference: str = "cr2",
 ) -> MultilevelPool:
     """Event-level pooled estimate: the intercept of :func:`fit_multilevel`.
 
@@ -246,23 +287,39 @@ def pool_multilevel(
     if inference == "cr2":
         se, df = float(fit.se_cr2[0]), float(fit.df_cr2[0])
         if not (se > 0 and df > 0):
-            raise AnalysisError("the CR2 standard error is 0 or its degrees of freedom are "
-                                "undefined; use inference='model'")
+            raise AnalysisError(
+                "the CR2 standard error is 0 or its degrees of freedom are "
+                "undefined; use inference='model'"
+            )
         crit = float(stats.t.isf(alpha / 2, df))
         stat = est / se
         pval = float(2 * stats.t.sf(abs(stat), df))
         if df < DF_UNRELIABLE:
-            notes.append(f"CR2 Satterthwaite df = {df:.2f} < 4: robust inference is unreliable "
-                         f"with so few events ({fit.k_events}) (Tipton 2015)")
+            notes.append(
+                f"CR2 Satterthwaite df = {df:.2f} < 4: robust inference is unreliable "
+                f"with so few events ({fit.k_events}) (Tipton 2015)"
+            )
     else:
         se, df = float(fit.se_model[0]), float("inf")
         crit = float(stats.norm.isf(alpha / 2))
         stat = est / se
         pval = float(2 * stats.norm.sf(abs(stat)))
     return MultilevelPool(
-        k=fit.k_estimates, k_estimates=fit.k_estimates, k_events=fit.k_events,
-        inference=inference, alpha=alpha, estimate=est, se=se, ci_lower=est - crit * se,
-        ci_upper=est + crit * se, z_or_t=float(stat), pvalue=pval, df=df,
-        sigma2_event=fit.sigma2_event, sigma2_within=fit.sigma2_within,
-        converged=fit.converged, iterations=fit.iterations, notes=tuple(notes),
+        k=fit.k_estimates,
+        k_estimates=fit.k_estimates,
+        k_events=fit.k_events,
+        inference=inference,
+        alpha=alpha,
+        estimate=est,
+        se=se,
+        ci_lower=est - crit * se,
+        ci_upper=est + crit * se,
+        z_or_t=float(stat),
+        pvalue=pval,
+        df=df,
+        sigma2_event=fit.sigma2_event,
+        sigma2_within=fit.sigma2_within,
+        converged=fit.converged,
+        iterations=fit.iterations,
+        notes=tuple(notes),
     )

@@ -67,17 +67,17 @@ class RemlProblem:
         S, idx, p = self.S, self.idx, self.p
         d = self.v + s2w
         a = 1.0 / d
-        buf = self.buf                                           # [a, a², a³, aZ]
+        buf = self.buf  # [a, a², a³, aZ]
         buf[:, 0] = a
         np.multiply(a, a, out=buf[:, 1])
         np.multiply(buf[:, 1], a, out=buf[:, 2])
         np.multiply(a[:, None], self.Z, out=buf[:, 3:])
-        sums = S @ buf                                           # event sums, (m, 3 + p + 1)
+        sums = S @ buf  # event sums, (m, 3 + p + 1)
         s, sa2, sa3, G = sums[:, 0], sums[:, 1], sums[:, 2], sums[:, 3:]
         t = 1.0 + s2e * s
         c = s2e / t
         za = buf[:, 3:]
-        cross = self.Z.T @ za - (G.T * c) @ G                    # Z'V⁻¹Z
+        cross = self.Z.T @ za - (G.T * c) @ G  # Z'V⁻¹Z
         bread, logdet_x = _inv_logdet(cross[:p, :p])
         beta = bread @ cross[:p, p]
         rss = cross[p, p] - cross[:p, p] @ beta
@@ -87,30 +87,36 @@ class RemlProblem:
             return nll, None, None, beta, bread
         T = np.eye(p + 1)
         T[:p, p] = -beta
-        vz = za - a[:, None] * (c[:, None] * G)[idx]             # V⁻¹[X y]
-        qp = vz @ T                                              # [Q, Py], Q = V⁻¹X
+        vz = za - a[:, None] * (c[:, None] * G)[idx]  # V⁻¹[X y]
+        qp = vz @ T  # [Q, Py], Q = V⁻¹X
         aqp = a[:, None] * qp
         r2 = S @ aqp
-        vqp = aqp - a[:, None] * (c[:, None] * r2)[idx]          # V⁻¹[Q, Py]
-        e = (G / t[:, None]) @ T                                 # event sums of [Q, Py]
+        vqp = aqp - a[:, None] * (c[:, None] * r2)[idx]  # V⁻¹[Q, Py]
+        e = (G / t[:, None]) @ T  # event sums of [Q, Py]
         w = s / t
         k1, k2 = qp.T @ qp, qp.T @ vqp
         k3, k4, k5 = e.T @ e, (e.T * w) @ e, e.T @ (r2 / t[:, None])
         qq, cc = k1[:p, :p], k3[:p, :p]
-        xw, xe = k1[:p, p], k3[:p, p]                            # X'V⁻¹u_within, X'V⁻¹u_event
+        xw, xe = k1[:p, p], k3[:p, p]  # X'V⁻¹u_within, X'V⁻¹u_event
         d_within = s.sum() - c @ sa2 - (bread * qq).sum() - k1[p, p]
         d_event = w.sum() - (bread * cc).sum() - k3[p, p]
         grad = 0.5 * np.array([d_event, d_within])
         # average information AI_kl = ½ u_k'P u_l, u_event = event sums of Py, u_within = Py
         mxe, mxw = bread @ xe, bread @ xw
-        ai = 0.5 * np.array([[k4[p, p] - xe @ mxe, k5[p, p] - xe @ mxw],
-                             [k5[p, p] - xe @ mxw, k2[p, p] - xw @ mxw]])
+        ai = 0.5 * np.array(
+            [[k4[p, p] - xe @ mxe, k5[p, p] - xe @ mxw], [k5[p, p] - xe @ mxw, k2[p, p] - xw @ mxw]]
+        )
         # Fisher information ½tr(PV_kPV_l), P = V⁻¹ − QMQ', block by block
         mqq, mcc = bread @ qq, bread @ cc
         tr_ee = (w * w).sum() - 2 * (bread * k4[:p, :p]).sum() + (mcc * mcc.T).sum()
         tr_ew = (sa2 / (t * t)).sum() - 2 * (bread * k5[:p, :p]).sum() + (mcc * mqq.T).sum()
-        tr_ww = (sa2.sum() - 2 * c @ sa3 + (c * c) @ (sa2 * sa2)
-                 - 2 * (bread * k2[:p, :p]).sum() + (mqq * mqq.T).sum())
+        tr_ww = (
+            sa2.sum()
+            - 2 * c @ sa3
+            + (c * c) @ (sa2 * sa2)
+            - 2 * (bread * k2[:p, :p]).sum()
+            + (mqq * mqq.T).sum()
+        )
         hess = 2.0 * ai - 0.5 * np.array([[tr_ee, tr_ew], [tr_ew, tr_ww]])
         return nll, grad, (hess, ai), beta, bread
 
@@ -151,8 +157,14 @@ def _newton_step(h: np.ndarray, grad: np.ndarray, move: np.ndarray) -> np.ndarra
     return step
 
 
-def _newton(prob: RemlProblem, x0: np.ndarray, free: np.ndarray, scale: float, big: float,
-            max_iter: int = MAX_ITER) -> tuple[float, np.ndarray, int, bool]:
+def _newton(
+    prob: RemlProblem,
+    x0: np.ndarray,
+    free: np.ndarray,
+    scale: float,
+    big: float,
+    max_iter: int = MAX_ITER,
+) -> tuple[float, np.ndarray, int, bool]:
     """Projected Newton on the free components (observed information, else average
     information, else steepest descent), with step halving.
 
@@ -169,7 +181,7 @@ def _newton(prob: RemlProblem, x0: np.ndarray, free: np.ndarray, scale: float, b
             step = _newton_step(hess[0], grad, move)
             if not step @ grad < 0:
                 step = _newton_step(hess[1], grad, move)
-            if not step @ grad < 0:                             # not a descent direction
+            if not step @ grad < 0:  # not a descent direction
                 step = np.where(move, -grad * scale * scale, 0.0)
             blocked = move & (x <= 0.0) & (step < 0.0)
             if not blocked.any():
@@ -182,7 +194,7 @@ def _newton(prob: RemlProblem, x0: np.ndarray, free: np.ndarray, scale: float, b
         lam = min(1.0, float(np.min(x[neg] / -step[neg]))) if neg.any() else 1.0
         for _ in range(60):
             new = np.clip(x + lam * step, 0.0, big)
-            new[new <= ZERO_SNAP * scale] = 0.0                 # land exactly on the bound
+            new[new <= ZERO_SNAP * scale] = 0.0  # land exactly on the bound
             f_new, g_new, h_new, _, _ = prob.evaluate(*new)
             if f_new <= f + 1e-13 * (1.0 + abs(f)):
                 break
@@ -205,8 +217,11 @@ def maximise_reml(prob: RemlProblem, singleton: bool) -> tuple[np.ndarray, int, 
     scale = float(np.median(v))
     total = max(float(np.mean(resid**2) - np.mean(v)), 0.1 * scale)
     big = 1e4 * (float(np.var(Z[:, -1])) + float(v.max()))
-    both, event_only, within_only = (np.array([True, True]), np.array([True, False]),
-                                     np.array([False, True]))
+    both, event_only, within_only = (
+        np.array([True, True]),
+        np.array([True, False]),
+        np.array([False, True]),
+    )
     if singleton:
         runs = [_newton(prob, np.array([total, 0.0]), event_only, scale, big)]
     else:
@@ -219,7 +234,11 @@ def maximise_reml(prob: RemlProblem, singleton: bool) -> tuple[np.ndarray, int, 
     f, x, nit, ok = min(runs, key=lambda r: r[0])
     grad = prob.evaluate(*x)[1] * scale
     free = [0] if singleton else [0, 1]
-    kkt = all((abs(grad[k]) <= KKT_TOL * (1.0 + x[k] / scale)) if x[k] > ZERO_SNAP * scale else
-              (grad[k] >= -KKT_TOL) for k in free)
+    kkt = all(
+        (abs(grad[k]) <= KKT_TOL * (1.0 + x[k] / scale))
+        if x[k] > ZERO_SNAP * scale
+        else (grad[k] >= -KKT_TOL)
+        for k in free
+    )
     at_top = bool(np.any(x >= big * (1 - 1e-9)))
     return x, nit, bool(ok and kkt and not at_top)

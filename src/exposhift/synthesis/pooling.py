@@ -78,9 +78,31 @@ CAUTION = (
 
 #: the scalar fields of :class:`PoolResult`, in column order (used by ``pool_groups``)
 SCALAR_FIELDS: tuple[str, ...] = (
-    "k", "method", "ci_method", "estimate", "se", "ci_lower", "ci_upper", "z_or_t",
-    "pvalue", "df", "tau2", "tau", "q", "q_df", "q_pvalue", "i2", "i2_tau2", "h2",
-    "h2_tau2", "hksj_scale", "pi_lower", "pi_upper", "pi_note", "converged", "iterations",
+    "k",
+    "method",
+    "ci_method",
+    "estimate",
+    "se",
+    "ci_lower",
+    "ci_upper",
+    "z_or_t",
+    "pvalue",
+    "df",
+    "tau2",
+    "tau",
+    "q",
+    "q_df",
+    "q_pvalue",
+    "i2",
+    "i2_tau2",
+    "h2",
+    "h2_tau2",
+    "hksj_scale",
+    "pi_lower",
+    "pi_upper",
+    "pi_note",
+    "converged",
+    "iterations",
     "notes",
 )
 
@@ -92,9 +114,7 @@ SCALAR_FIELDS: tuple[str, ...] = (
 def check_options(method: str, ci: str, alpha: float) -> None:
     """Raise :class:`AnalysisError` for an unknown method / CI method or an alpha outside (0, 1)."""
     if method not in METHODS:
-        raise AnalysisError(
-            f"unknown pooling method '{method}'; use one of: {', '.join(METHODS)}"
-        )
+        raise AnalysisError(f"unknown pooling method '{method}'; use one of: {', '.join(METHODS)}")
     if ci not in CI_METHODS:
         raise AnalysisError(
             f"unknown confidence-interval method '{ci}'; use one of: {', '.join(CI_METHODS)}"
@@ -277,8 +297,14 @@ def _tau2_pm_std(y: np.ndarray, v: np.ndarray) -> tuple[float, int, bool]:
             break
         hi *= 2.0
     root, info = optimize.brentq(
-        lambda t: generalised_q(y, v, t) - df, 0.0, hi,
-        xtol=1e-300, rtol=PM_RTOL, maxiter=500, full_output=True, disp=False,
+        lambda t: generalised_q(y, v, t) - df,
+        0.0,
+        hi,
+        xtol=1e-300,
+        rtol=PM_RTOL,
+        maxiter=500,
+        full_output=True,
+        disp=False,
     )
     return max(0.0, float(root)), int(info.iterations), bool(info.converged)
 
@@ -315,8 +341,11 @@ def _reml_derivatives(y: np.ndarray, v: np.ndarray, tau2: float) -> tuple[float,
 
 
 def tau2_reml(
-    y: np.ndarray, v: np.ndarray, start: float | None = None,
-    rtol: float = REML_RTOL, max_iter: int = REML_MAX_ITER,
+    y: np.ndarray,
+    v: np.ndarray,
+    start: float | None = None,
+    rtol: float = REML_RTOL,
+    max_iter: int = REML_MAX_ITER,
 ) -> tuple[float, int, bool]:
     """REML τ² by Newton–Raphson with Fisher-scoring fallback, truncated at 0.
 
@@ -335,7 +364,11 @@ def tau2_reml(
 
 
 def _tau2_reml_std(
-    y: np.ndarray, v: np.ndarray, start: float | None, rtol: float, max_iter: int,
+    y: np.ndarray,
+    v: np.ndarray,
+    start: float | None,
+    rtol: float,
+    max_iter: int,
 ) -> tuple[float, int, bool]:
     tau2 = tau2_dl(y, v) if start is None else max(0.0, float(start))
     floor = float(v.min())
@@ -378,8 +411,13 @@ def s2_typical(w: np.ndarray) -> float:
 
 
 def note_codes(
-    k: np.ndarray, method: str, ci: str, tau2_zero: np.ndarray, converged: np.ndarray,
-    hksj_narrower: np.ndarray, hksj_floored: np.ndarray,
+    k: np.ndarray,
+    method: str,
+    ci: str,
+    tau2_zero: np.ndarray,
+    converged: np.ndarray,
+    hksj_narrower: np.ndarray,
+    hksj_floored: np.ndarray,
 ) -> tuple[np.ndarray, list[tuple[str, ...]]]:
     """The notes of each pooled result as (code per result, tuple of sentences per code).
 
@@ -390,22 +428,37 @@ def note_codes(
     k = np.asarray(k)
     two = k >= 2
     conditions: list[tuple[np.ndarray, str]] = [
-        (k == 1, "single estimate: returned as reported with its own Wald interval "
-         "(tau2, Q and I2 need at least 2 estimates)"),
+        (
+            k == 1,
+            "single estimate: returned as reported with its own Wald interval "
+            "(tau2, Q and I2 need at least 2 estimates)",
+        ),
     ]
     if method != "fe":
-        conditions.append((two & np.asarray(tau2_zero, dtype=bool),
-                           "tau2 estimate is 0 (truncated at the boundary)"))
-    conditions.append((two & ~np.asarray(converged, dtype=bool),
-                       f"{method.upper()} iteration did not converge: tau2 is the last iterate"))
+        conditions.append(
+            (
+                two & np.asarray(tau2_zero, dtype=bool),
+                "tau2 estimate is 0 (truncated at the boundary)",
+            )
+        )
+    conditions.append(
+        (
+            two & ~np.asarray(converged, dtype=bool),
+            f"{method.upper()} iteration did not converge: tau2 is the last iterate",
+        )
+    )
     if ci == "hksj":
         conditions += [
             (k == 2, "k = 2: the HKSJ interval uses t with 1 df and is very wide"),
-            (two & np.asarray(hksj_narrower, dtype=bool),
-             "HKSJ interval narrower than the Wald interval (untruncated form, IntHout et al. "
-             "2014): hksj_floor=True never is"),
-            (two & np.asarray(hksj_floored, dtype=bool),
-             "HKSJ scale floored at 1 (Roever et al. 2015)"),
+            (
+                two & np.asarray(hksj_narrower, dtype=bool),
+                "HKSJ interval narrower than the Wald interval (untruncated form, IntHout et al. "
+                "2014): hksj_floor=True never is",
+            ),
+            (
+                two & np.asarray(hksj_floored, dtype=bool),
+                "HKSJ scale floored at 1 (Roever et al. 2015)",
+            ),
         ]
     bits = np.zeros(k.size, dtype=np.int64)
     for j, (mask, _) in enumerate(conditions):
@@ -491,19 +544,26 @@ class PoolResult:
             raise AnalysisError(f"{len(labels)} labels for {self.k} estimates")
         z = stats.norm.isf(self.alpha / 2)
         se_i = np.sqrt(self.v)
-        rows = pd.DataFrame({
-            "label": labels, "estimate": self.y, "se": se_i,
-            "ci_lower": self.y - z * se_i, "ci_upper": self.y + z * se_i,
-            "weight": self.weights,
-        })
-        pooled = pd.DataFrame({
-            "label": [f"pooled ({self.method}, {self.ci_method})", "prediction interval"],
-            "estimate": [self.estimate, self.estimate],
-            "se": [self.se, np.nan],
-            "ci_lower": [self.ci_lower, self.pi_lower],
-            "ci_upper": [self.ci_upper, self.pi_upper],
-            "weight": [1.0, np.nan],
-        })
+        rows = pd.DataFrame(
+            {
+                "label": labels,
+                "estimate": self.y,
+                "se": se_i,
+                "ci_lower": self.y - z * se_i,
+                "ci_upper": self.y + z * se_i,
+                "weight": self.weights,
+            }
+        )
+        pooled = pd.DataFrame(
+            {
+                "label": [f"pooled ({self.method}, {self.ci_method})", "prediction interval"],
+                "estimate": [self.estimate, self.estimate],
+                "se": [self.se, np.nan],
+                "ci_lower": [self.ci_lower, self.pi_lower],
+                "ci_upper": [self.ci_upper, self.pi_upper],
+                "weight": [1.0, np.nan],
+            }
+        )
         return pd.concat([rows, pooled], ignore_index=True)
 
 
@@ -512,7 +572,11 @@ class PoolResult:
 
 
 def pool(
-    y: Any, v: Any, method: str = "reml", ci: str = "hksj", alpha: float = 0.05,
+    y: Any,
+    v: Any,
+    method: str = "reml",
+    ci: str = "hksj",
+    alpha: float = 0.05,
     hksj_floor: bool = True,
 ) -> PoolResult:
     """Pool estimates ``y`` with within-study variances ``v`` (analysis scale).
@@ -531,17 +595,48 @@ def pool(
     if k == 1:
         se = float(np.sqrt(v[0]))
         est = float(y[0])
-        notes = compose_notes(np.array([1]), method, ci, np.array([False]), np.array([True]),
-                              np.array([False]), np.array([False]))[0]
+        notes = compose_notes(
+            np.array([1]),
+            method,
+            ci,
+            np.array([False]),
+            np.array([True]),
+            np.array([False]),
+            np.array([False]),
+        )[0]
         zstat = est / se
         return PoolResult(
-            k=1, method=method, ci_method="wald", alpha=alpha, estimate=est, se=se,
-            ci_lower=est - z * se, ci_upper=est + z * se, z_or_t=zstat,
-            pvalue=float(2 * stats.norm.sf(abs(zstat))), df=float("inf"), tau2=nan, tau=nan,
-            q=nan, q_df=0, q_pvalue=nan, i2=nan, i2_tau2=nan, h2=nan, h2_tau2=nan,
-            hksj_scale=nan, pi_lower=nan, pi_upper=nan, pi_note=PI_NOTE_FEW, converged=True,
-            iterations=0, hksj_floor=bool(hksj_floor), weights=_frozen(np.ones(1)),
-            y=_frozen(y), v=_frozen(v), notes=notes,
+            k=1,
+            method=method,
+            ci_method="wald",
+            alpha=alpha,
+            estimate=est,
+            se=se,
+            ci_lower=est - z * se,
+            ci_upper=est + z * se,
+            z_or_t=zstat,
+            pvalue=float(2 * stats.norm.sf(abs(zstat))),
+            df=float("inf"),
+            tau2=nan,
+            tau=nan,
+            q=nan,
+            q_df=0,
+            q_pvalue=nan,
+            i2=nan,
+            i2_tau2=nan,
+            h2=nan,
+            h2_tau2=nan,
+            hksj_scale=nan,
+            pi_lower=nan,
+            pi_upper=nan,
+            pi_note=PI_NOTE_FEW,
+            converged=True,
+            iterations=0,
+            hksj_floor=bool(hksj_floor),
+            weights=_frozen(np.ones(1)),
+            y=_frozen(y),
+            v=_frozen(v),
+            notes=notes,
         )
 
     _, q = cochran_q(y, v)
@@ -591,17 +686,46 @@ def pool(
     else:
         pi_lower, pi_upper, pi_note = nan, nan, PI_NOTE_FEW
 
-    notes = compose_notes(np.array([k]), method, ci, np.array([tau2 == 0.0]),
-                          np.array([converged]), np.array([narrower]), np.array([floored]))[0]
+    notes = compose_notes(
+        np.array([k]),
+        method,
+        ci,
+        np.array([tau2 == 0.0]),
+        np.array([converged]),
+        np.array([narrower]),
+        np.array([floored]),
+    )[0]
     return PoolResult(
-        k=k, method=method, ci_method=ci, alpha=alpha, estimate=mu, se=se,
-        ci_lower=ci_lower, ci_upper=ci_upper, z_or_t=stat, pvalue=pvalue, df=df,
-        tau2=float(tau2), tau=float(np.sqrt(tau2)), q=q, q_df=q_df,
-        q_pvalue=float(stats.chi2.sf(q, q_df)), i2=float(i2),
-        i2_tau2=float(tau2 / (tau2 + s2)), h2=float(q / q_df), h2_tau2=float((tau2 + s2) / s2),
-        hksj_scale=hk_out, pi_lower=float(pi_lower), pi_upper=float(pi_upper), pi_note=pi_note,
-        converged=bool(converged), iterations=int(iterations), hksj_floor=bool(hksj_floor),
-        weights=_frozen(w / sw), y=_frozen(y), v=_frozen(v),
+        k=k,
+        method=method,
+        ci_method=ci,
+        alpha=alpha,
+        estimate=mu,
+        se=se,
+        ci_lower=ci_lower,
+        ci_upper=ci_upper,
+        z_or_t=stat,
+        pvalue=pvalue,
+        df=df,
+        tau2=float(tau2),
+        tau=float(np.sqrt(tau2)),
+        q=q,
+        q_df=q_df,
+        q_pvalue=float(stats.chi2.sf(q, q_df)),
+        i2=float(i2),
+        i2_tau2=float(tau2 / (tau2 + s2)),
+        h2=float(q / q_df),
+        h2_tau2=float((tau2 + s2) / s2),
+        hksj_scale=hk_out,
+        pi_lower=float(pi_lower),
+        pi_upper=float(pi_upper),
+        pi_note=pi_note,
+        converged=bool(converged),
+        iterations=int(iterations),
+        hksj_floor=bool(hksj_floor),
+        weights=_frozen(w / sw),
+        y=_frozen(y),
+        v=_frozen(v),
         notes=notes,
     )
 

@@ -43,31 +43,38 @@ import pandas as pd
 from scipy import stats
 
 PROVENANCE_CODES: tuple[str, ...] = (
-    "or_converted", "se_from_p", "p_bound", "se_from_ci_z", "smd_converted", "ci_asymmetric",
-    "per_unit_rescaled", "sign_flipped", "se_implausible",
+    "or_converted",
+    "se_from_p",
+    "p_bound",
+    "se_from_ci_z",
+    "smd_converted",
+    "ci_asymmetric",
+    "per_unit_rescaled",
+    "sign_flipped",
+    "se_implausible",
 )
 
 #: code -> what it means, in a few words (shown beside every pool that has such rows)
 PROVENANCE_WORDS: dict[str, str] = {
     "or_converted": "odds ratio converted to a risk ratio with the baseline risk (Zhang & Yu "
-                    "1998); adjusted odds ratios convert with bias (McNutt et al. 2003, Am J "
-                    "Epidemiol 157:940)",
+    "1998); adjusted odds ratios convert with bias (McNutt et al. 2003, Am J "
+    "Epidemiol 157:940)",
     "se_from_p": "SE recovered from a p value (Altman & Bland 2011): only as precise as the "
-                 "p value's rounding",
+    "p value's rounding",
     "p_bound": "p value reported as a bound ('p < x'): the SE recovered from it is an upper "
-               "bound, so the estimate weighs less than it should (conservative)",
+    "bound, so the estimate weighs less than it should (conservative)",
     "se_from_ci_z": "SE from a CI taken as built with z, but the study has few time points and "
-                    "probably used t: the SE is overstated by t/z (conservative)",
+    "probably used t: the SE is overstated by t/z (conservative)",
     "smd_converted": "standardised mean difference converted to a log odds ratio (Chinn 2000), "
-                     "assuming a logistic latent distribution",
+    "assuming a logistic latent distribution",
     "ci_asymmetric": "CI asymmetric on the analysis scale: the limits may be on another scale "
-                     "or heavily rounded",
+    "or heavily rounded",
     "per_unit_rescaled": "per-unit estimate rescaled log-linearly to the common increment "
-                         "(assumes a linear effect over that range)",
+    "(assumes a linear effect over that range)",
     "sign_flipped": "effect of a change in the other direction re-expressed by a sign flip "
-                    "(assumes a mirrored effect)",
+    "(assumes a mirrored effect)",
     "se_implausible": "SE entered implausibly large for its scale (probably entered on another "
-                      "scale, e.g. percent points instead of the log scale): check it",
+    "scale, e.g. percent points instead of the log scale): check it",
 }
 
 #: a log-scale SE above this for a ratio measure is implausible (a 95 % CI wider than a factor
@@ -149,5 +156,7 @@ def provenance_lines(frame: pd.DataFrame, what: str = "estimates") -> list[str]:
     """One line per flag carried in ``frame``: "k of n estimates: <what the flag means>
     [code]"; empty when no row is flagged."""
     n = len(frame)
-    return [f"{k} of {n} {what}: {PROVENANCE_WORDS[code]} [{code}]"
-            for code, k in provenance_summary(frame).items()]
+    return [
+        f"{k} of {n} {what}: {PROVENANCE_WORDS[code]} [{code}]"
+        for code, k in provenance_summary(frame).items()
+    ]

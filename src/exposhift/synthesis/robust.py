@@ -140,9 +140,9 @@ class ClusterRobust:
 
     def _g(self, C: np.ndarray) -> np.ndarray:
         """G[s, t, i, j] = p_i(c_s)'Φ p_j(c_t) for the rows c_s of C (see module docstring)."""
-        ct = self.bread @ C.T                                   # (p, q): M c_s
-        kc = np.einsum("jab,bs->jas", self.K, ct)               # q_j(c_s) = K_j M c_s
-        gg = np.einsum("as,jab,bt->jst", ct, self.L, ct)        # u_j(c_s)'Φ_j u_j(c_t)
+        ct = self.bread @ C.T  # (p, q): M c_s
+        kc = np.einsum("jab,bs->jas", self.K, ct)  # q_j(c_s) = K_j M c_s
+        gg = np.einsum("as,jab,bt->jst", ct, self.L, ct)  # u_j(c_s)'Φ_j u_j(c_t)
         qmq = np.einsum("ias,ab,jbt->stij", kc, self.bread, kc)
         eye = np.eye(self.k_clusters)
         return np.einsum("jst,ij->stij", gg, eye) - qmq
@@ -153,8 +153,10 @@ class ClusterRobust:
         g = self._g(c)[0, 0]
         denom = float(np.sum(g * g))
         if not denom > 0:
-            raise AnalysisError("the Satterthwaite degrees of freedom are undefined for this "
-                                "contrast (its robust variance is identically 0)")
+            raise AnalysisError(
+                "the Satterthwaite degrees of freedom are undefined for this "
+                "contrast (its robust variance is identically 0)"
+            )
         return float(np.trace(g) ** 2 / denom)
 
     def htz(self, C: Any, d: Any) -> tuple[float, float, float, float, float]:
@@ -183,8 +185,13 @@ class ClusterRobust:
 
 
 def robust_blocks(
-    Xs: np.ndarray, es: np.ndarray, bread: np.ndarray, coef: np.ndarray, groups: ClusterIndex,
-    phi_blocks: Callable[[np.ndarray, int], np.ndarray], kind: str = "CR2",
+    Xs: np.ndarray,
+    es: np.ndarray,
+    bread: np.ndarray,
+    coef: np.ndarray,
+    groups: ClusterIndex,
+    phi_blocks: Callable[[np.ndarray, int], np.ndarray],
+    kind: str = "CR2",
 ) -> ClusterRobust:
     """CR0/CR2 from the design ``Xs`` and GLS residuals ``es`` (rows sorted by cluster).
 
@@ -202,38 +209,48 @@ def robust_blocks(
     for n in np.unique(groups.counts):
         ids = np.flatnonzero(groups.counts == n)
         rows = groups.starts[ids][:, None] + np.arange(n)
-        xb, eb = Xs[rows], es[rows][..., None]                  # (mb, n, p), (mb, n, 1)
+        xb, eb = Xs[rows], es[rows][..., None]  # (mb, n, p), (mb, n, 1)
         xbt = xb.transpose(0, 2, 1)
         phi = phi_blocks(ids, int(n))
         lam, vec = np.linalg.eigh(phi)
         if not np.all(lam > 0):
             raise AnalysisError("a working covariance block is not positive definite")
         vt = vec.transpose(0, 2, 1)
-        root = (vec * np.sqrt(lam)[:, None, :]) @ vt            # Φ_j^(1/2)
-        root_inv = (vec / np.sqrt(lam)[:, None, :]) @ vt        # Φ_j^(−1/2)
+        root = (vec * np.sqrt(lam)[:, None, :]) @ vt  # Φ_j^(1/2)
+        root_inv = (vec / np.sqrt(lam)[:, None, :]) @ vt  # Φ_j^(−1/2)
         if kind == "CR0":
-            wa = root_inv @ root_inv                             # W_j A_j = W_j
+            wa = root_inv @ root_inv  # W_j A_j = W_j
         else:
-            b = root @ (phi - xb @ bread @ xbt) @ root           # B_j (W = Φ⁻¹)
+            b = root @ (phi - xb @ bread @ xbt) @ root  # B_j (W = Φ⁻¹)
             lb, vb = np.linalg.eigh(0.5 * (b + b.transpose(0, 2, 1)))
             ok = lb > EIG_TOL * np.max(np.abs(lb), axis=1, keepdims=True)
             pinv_clusters += int(np.sum(~ok.all(axis=1)))
             inv_root = np.where(ok, 1.0 / np.sqrt(np.where(ok, lb, 1.0)), 0.0)
             b_half = (vb * inv_root[:, None, :]) @ vb.transpose(0, 2, 1)
-            wa = root_inv @ b_half @ root                        # W_j A_j = Φ^(−1/2)B^(+1/2)Φ^(1/2)
-        meat_rows[ids] = (xbt @ (wa @ eb))[..., 0]              # X_j'W_jA_j e_j
-        ex = wa.transpose(0, 2, 1) @ xb                          # A_j'W_j X_j
+            wa = root_inv @ b_half @ root  # W_j A_j = Φ^(−1/2)B^(+1/2)Φ^(1/2)
+        meat_rows[ids] = (xbt @ (wa @ eb))[..., 0]  # X_j'W_jA_j e_j
+        ex = wa.transpose(0, 2, 1) @ xb  # A_j'W_j X_j
         K[ids] = xbt @ ex
         L[ids] = ex.transpose(0, 2, 1) @ phi @ ex
     half = meat_rows @ bread
     vcov = half.T @ half
     notes = ()
     if pinv_clusters:
-        notes = (f"CR2 adjustment used a pseudo-inverse in {pinv_clusters} event(s) fitted "
-                 "exactly by the model (Pustejovsky & Tipton 2018)",)
+        notes = (
+            f"CR2 adjustment used a pseudo-inverse in {pinv_clusters} event(s) fitted "
+            "exactly by the model (Pustejovsky & Tipton 2018)",
+        )
     out = ClusterRobust(
-        kind=kind, coef=coef, vcov=vcov, se=np.sqrt(np.clip(np.diag(vcov), 0.0, None)),
-        df=np.full(p, np.nan), k_clusters=m, bread=bread, K=K, L=L, notes=notes,
+        kind=kind,
+        coef=coef,
+        vcov=vcov,
+        se=np.sqrt(np.clip(np.diag(vcov), 0.0, None)),
+        df=np.full(p, np.nan),
+        k_clusters=m,
+        bread=bread,
+        K=K,
+        L=L,
+        notes=notes,
     )
     object.__setattr__(out, "df", _coefficient_df(bread, K, L))
     return out
@@ -241,9 +258,9 @@ def robust_blocks(
 
 def _coefficient_df(bread: np.ndarray, K: np.ndarray, L: np.ndarray) -> np.ndarray:
     """Satterthwaite df of every coefficient at once: G^(t) for c = e_t (module docstring)."""
-    kc = K @ bread                                                # (m, p, t): q_j(e_t)
-    gg = np.einsum("at,jab,bt->tj", bread, L, bread)              # ‖g_j(e_t)‖²
-    qmq = np.einsum("iat,ab,jbt->tij", kc, bread, kc)              # q_i'M q_j
+    kc = K @ bread  # (m, p, t): q_j(e_t)
+    gg = np.einsum("at,jab,bt->tj", bread, L, bread)  # ‖g_j(e_t)‖²
+    qmq = np.einsum("iat,ab,jbt->tij", kc, bread, kc)  # q_i'M q_j
     g = -qmq
     diag = np.arange(K.shape[0])
     g[:, diag, diag] += gg
@@ -254,7 +271,9 @@ def _coefficient_df(bread: np.ndarray, K: np.ndarray, L: np.ndarray) -> np.ndarr
 
 
 def _block_source(
-    y: np.ndarray, groups: ClusterIndex, working: Any,
+    y: np.ndarray,
+    groups: ClusterIndex,
+    working: Any,
 ) -> tuple[Callable[[np.ndarray, int], np.ndarray], np.ndarray]:
     """(Φ blocks by cluster ids and size, per-row inverse-variance weights for a diagonal Φ or
     None) for the working covariance ``working`` (see :func:`cr2_vcov`)."""
@@ -262,14 +281,17 @@ def _block_source(
         return (lambda ids, n: np.broadcast_to(np.eye(n), (ids.size, n, n))), None
     if isinstance(working, list | tuple) and len(working) and np.ndim(working[0]) == 2:
         if len(working) != groups.m:
-            raise AnalysisError(f"{len(working)} working covariance blocks for {groups.m} "
-                                "clusters; give one block per cluster, in sorted label order")
+            raise AnalysisError(
+                f"{len(working)} working covariance blocks for {groups.m} "
+                "clusters; give one block per cluster, in sorted label order"
+            )
         blocks = []
         for j, n in enumerate(groups.counts):
             phi = np.asarray(working[j], dtype=float)
             if phi.shape != (n, n) or not np.all(np.isfinite(phi)):
-                raise AnalysisError(f"working covariance block {j} must be a finite {n} x {n} "
-                                    "matrix")
+                raise AnalysisError(
+                    f"working covariance block {j} must be a finite {n} x {n} matrix"
+                )
             if not np.allclose(phi, phi.T) or np.linalg.eigvalsh(phi)[0] <= 0:
                 raise AnalysisError(f"working covariance block {j} is not positive definite")
             blocks.append(phi)

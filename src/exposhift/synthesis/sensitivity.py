@@ -34,9 +34,18 @@ from exposhift.synthesis.pooling import (
 )
 
 __all__ = [
-    "EggerResult", "FunnelData", "MetaRegressionResult", "SubgroupResult", "Tau2Interval",
-    "cumulative", "egger_test", "funnel_data", "leave_one_out", "meta_regression",
-    "subgroup_test", "tau2_ci_qprofile",
+    "EggerResult",
+    "FunnelData",
+    "MetaRegressionResult",
+    "SubgroupResult",
+    "Tau2Interval",
+    "cumulative",
+    "egger_test",
+    "funnel_data",
+    "leave_one_out",
+    "meta_regression",
+    "subgroup_test",
+    "tau2_ci_qprofile",
 ]
 
 EGGER_MIN_K = 10
@@ -73,8 +82,16 @@ def _solve_gen_q(y: np.ndarray, v: np.ndarray, target: float) -> float:
         if generalised_q(y, v, hi) < target:
             break
         hi *= 2.0
-    return float(optimize.brentq(lambda t: generalised_q(y, v, t) - target, 0.0, hi,
-                                 xtol=1e-300, rtol=PM_RTOL, maxiter=500))
+    return float(
+        optimize.brentq(
+            lambda t: generalised_q(y, v, t) - target,
+            0.0,
+            hi,
+            xtol=1e-300,
+            rtol=PM_RTOL,
+            maxiter=500,
+        )
+    )
 
 
 def tau2_ci_qprofile(y: Any, v: Any, alpha: float = 0.05) -> Tau2Interval:
@@ -89,8 +106,19 @@ def tau2_ci_qprofile(y: Any, v: Any, alpha: float = 0.05) -> Tau2Interval:
     k = y.size
     nan = float("nan")
     if k < 2:
-        return Tau2Interval(k, alpha, nan, nan, nan, nan, nan, nan, nan, nan,
-                            "a tau2 interval needs at least 2 estimates")
+        return Tau2Interval(
+            k,
+            alpha,
+            nan,
+            nan,
+            nan,
+            nan,
+            nan,
+            nan,
+            nan,
+            nan,
+            "a tau2 interval needs at least 2 estimates",
+        )
     q_lo_target = float(stats.chi2.isf(alpha / 2, k - 1))
     q_hi_target = float(stats.chi2.ppf(alpha / 2, k - 1))
     ys, vs, scale = standardise(y, v)  # Q is shift invariant and scale equivariant in τ²
@@ -99,15 +127,24 @@ def tau2_ci_qprofile(y: Any, v: Any, alpha: float = 0.05) -> Tau2Interval:
     s2 = s2_typical(1.0 / v)
     note = ""
     if upper == 0.0:
-        note = ("the estimates agree more than their variances predict: the interval is "
-                "the single point 0")
+        note = (
+            "the estimates agree more than their variances predict: the interval is "
+            "the single point 0"
+        )
     elif lower == 0.0:
         note = "lower bound truncated at 0"
     return Tau2Interval(
-        k=k, alpha=float(alpha), tau2_lower=lower, tau2_upper=upper,
-        tau_lower=float(np.sqrt(lower)), tau_upper=float(np.sqrt(upper)),
-        i2_lower=lower / (lower + s2), i2_upper=upper / (upper + s2),
-        q_target_lower=q_lo_target, q_target_upper=q_hi_target, note=note,
+        k=k,
+        alpha=float(alpha),
+        tau2_lower=lower,
+        tau2_upper=upper,
+        tau_lower=float(np.sqrt(lower)),
+        tau_upper=float(np.sqrt(upper)),
+        i2_lower=lower / (lower + s2),
+        i2_upper=upper / (upper + s2),
+        q_target_lower=q_lo_target,
+        q_target_upper=q_hi_target,
+        note=note,
     )
 
 
@@ -125,8 +162,13 @@ def _labels(labels: Any, k: int) -> np.ndarray:
 
 
 def leave_one_out(
-    y: Any, v: Any, labels: Any = None, method: str = "reml", ci: str = "hksj",
-    alpha: float = 0.05, hksj_floor: bool = True,
+    y: Any,
+    v: Any,
+    labels: Any = None,
+    method: str = "reml",
+    ci: str = "hksj",
+    alpha: float = 0.05,
+    hksj_floor: bool = True,
 ) -> pd.DataFrame:
     """Pool the estimates k times, each time without one of them.
 
@@ -150,8 +192,14 @@ def leave_one_out(
 
 
 def cumulative(
-    y: Any, v: Any, order: Any, labels: Any = None, method: str = "reml", ci: str = "hksj",
-    alpha: float = 0.05, hksj_floor: bool = True,
+    y: Any,
+    v: Any,
+    order: Any,
+    labels: Any = None,
+    method: str = "reml",
+    ci: str = "hksj",
+    alpha: float = 0.05,
+    hksj_floor: bool = True,
 ) -> pd.DataFrame:
     """Cumulative meta-analysis: add the estimates one at a time in ``order`` (e.g. year).
 
@@ -193,7 +241,12 @@ class SubgroupResult:
 
 
 def subgroup_test(
-    y: Any, v: Any, groups: Any, method: str = "reml", ci: str = "hksj", alpha: float = 0.05,
+    y: Any,
+    v: Any,
+    groups: Any,
+    method: str = "reml",
+    ci: str = "hksj",
+    alpha: float = 0.05,
     hksj_floor: bool = True,
 ) -> SubgroupResult:
     """Pool each subgroup (its own τ²) and test whether the subgroup means differ.
@@ -213,18 +266,22 @@ def subgroup_test(
     frame = pd.DataFrame({"subgroup": g.astype(str), "y": y, "v": v})
     if frame["subgroup"].nunique() < 2:
         raise AnalysisError("a subgroup test needs at least 2 subgroups")
-    table = pool_groups(frame, ["subgroup"], method=method, ci=ci, alpha=alpha,
-                        hksj_floor=hksj_floor)
+    table = pool_groups(
+        frame, ["subgroup"], method=method, ci=ci, alpha=alpha, hksj_floor=hksj_floor
+    )
     wald = pool_groups(frame, ["subgroup"], method=method, ci="wald", alpha=alpha)
     mu = wald["estimate"].to_numpy(dtype=float)
     w = 1.0 / wald["se"].to_numpy(dtype=float) ** 2
     mbar = np.dot(w, mu) / w.sum()
     qb = float(np.dot(w, (mu - mbar) ** 2))
     df = len(table) - 1
-    note = ("separate tau2 per subgroup; Q-between from the Wald SE of each subgroup estimate; "
-            "a between-study comparison (observational)")
-    return SubgroupResult(table=table, q_between=qb, df=df,
-                          pvalue=float(stats.chi2.sf(qb, df)), note=note)
+    note = (
+        "separate tau2 per subgroup; Q-between from the Wald SE of each subgroup estimate; "
+        "a between-study comparison (observational)"
+    )
+    return SubgroupResult(
+        table=table, q_between=qb, df=df, pvalue=float(stats.chi2.sf(qb, df)), note=note
+    )
 
 
 # --------------------------------------------------------------------------------------------
@@ -258,14 +315,19 @@ def egger_test(y: Any, v: Any, alpha: float = 0.05, min_k: int = EGGER_MIN_K) ->
     k = y.size
     if k < min_k:
         return EggerResult(
-            run=False, k=k,
+            run=False,
+            k=k,
             reason=f"not run: {k} estimate{'s' if k != 1 else ''}; tests for funnel-plot "
             f"asymmetry need at least {min_k} (Sterne et al. 2011)",
         )
     se = np.sqrt(v)
     if np.ptp(se) <= 1e-12 * se.max():
-        return EggerResult(run=False, k=k, reason="not run: all standard errors are equal, so "
-                           "there is no spread of study precision to test")
+        return EggerResult(
+            run=False,
+            k=k,
+            reason="not run: all standard errors are equal, so "
+            "there is no spread of study precision to test",
+        )
     X = np.column_stack([np.ones(k), 1.0 / se])
     z = y / se
     beta, *_ = np.linalg.lstsq(X, z, rcond=None)
@@ -277,9 +339,17 @@ def egger_test(y: Any, v: Any, alpha: float = 0.05, min_k: int = EGGER_MIN_K) ->
     t = b0 / se0
     crit = float(stats.t.isf(alpha / 2, df))
     return EggerResult(
-        run=True, reason="", k=k, intercept=b0, intercept_se=se0, t=t, df=df,
-        pvalue=float(2 * stats.t.sf(abs(t), df)), ci_lower=b0 - crit * se0,
-        ci_upper=b0 + crit * se0, slope=float(beta[1]),
+        run=True,
+        reason="",
+        k=k,
+        intercept=b0,
+        intercept_se=se0,
+        t=t,
+        df=df,
+        pvalue=float(2 * stats.t.sf(abs(t), df)),
+        ci_lower=b0 - crit * se0,
+        ci_upper=b0 + crit * se0,
+        slope=float(beta[1]),
     )
 
 
@@ -294,7 +364,11 @@ class FunnelData:
 
 
 def funnel_data(
-    y: Any, v: Any, labels: Any = None, center: float | None = None, alpha: float = 0.05,
+    y: Any,
+    v: Any,
+    labels: Any = None,
+    center: float | None = None,
+    alpha: float = 0.05,
     n_points: int = 50,
 ) -> FunnelData:
     """Funnel-plot data: each estimate against its SE, with lines centre ± z·SE (Sterne et al.
@@ -305,9 +379,13 @@ def funnel_data(
     c = pool(y, v, method="fe", ci="wald").estimate if center is None else float(center)
     z = float(stats.norm.isf(alpha / 2))
     grid = np.linspace(0.0, se.max() * 1.05, max(2, int(n_points)))
-    points = pd.DataFrame({
-        "label": _labels(labels, y.size), "y": y, "se": se,
-        "outside": np.abs(y - c) > z * se,
-    })
+    points = pd.DataFrame(
+        {
+            "label": _labels(labels, y.size),
+            "y": y,
+            "se": se,
+            "outside": np.abs(y - c) > z * se,
+        }
+    )
     lines = pd.DataFrame({"se": grid, "lower": c - z * grid, "upper": c + z * grid})
     return FunnelData(points=points, lines=lines, center=c, alpha=float(alpha))

@@ -8,18 +8,19 @@ Create Date: 2026-12-03
 import sqlalchemy as sa
 from alembic import op
 
-revision = '0003_p_bound'
-down_revision = '0002_event_unit'
+revision = "0003_p_bound"
+down_revision = "0002_event_unit"
 branch_labels = None
 depends_on = None
 
 
 def upgrade() -> None:
-    with op.batch_alter_table('estimate') as batch:
-        batch.add_column(sa.Column('p_bound', sa.Boolean(), nullable=False,
-                                   server_default=sa.false()))
+    with op.batch_alter_table("estimate") as batch:
+        batch.add_column(
+            sa.Column("p_bound", sa.Boolean(), nullable=False, server_default=sa.false())
+        )
 
 
 def downgrade() -> None:
-    with op.batch_alter_table('estimate') as batch:
-        batch.drop_column('p_bound')
+    with op.batch_alter_table("estimate") as batch:
+        batch.drop_column("p_bound")

@@ -16,8 +16,8 @@ import sqlalchemy as sa
 import sqlmodel
 from alembic import op
 
-revision = '0004_audit_chain'
-down_revision = '0003_p_bound'
+revision = "0004_audit_chain"
+down_revision = "0003_p_bound"
 branch_labels = None
 depends_on = None
 
@@ -26,20 +26,28 @@ HASHED = ("at", "user", "table_name", "row_key", "action", "before", "after")
 
 
 def _hash(prev: str, row) -> str:
-    payload = json.dumps([prev, *(row[f] for f in HASHED)], ensure_ascii=False,
-                         separators=(",", ":"))
+    payload = json.dumps(
+        [prev, *(row[f] for f in HASHED)], ensure_ascii=False, separators=(",", ":")
+    )
     return hashlib.sha256(payload.encode("utf-8")).hexdigest()
 
 
 def upgrade() -> None:
-    with op.batch_alter_table('audit_entry', schema=None) as batch_op:
-        batch_op.add_column(sa.Column('prev_hash', sqlmodel.sql.sqltypes.AutoString(),
-                                      nullable=True))
-        batch_op.add_column(sa.Column('entry_hash', sqlmodel.sql.sqltypes.AutoString(),
-                                      nullable=True))
+    with op.batch_alter_table("audit_entry", schema=None) as batch_op:
+        batch_op.add_column(
+            sa.Column("prev_hash", sqlmodel.sql.sqltypes.AutoString(), nullable=True)
+        )
+        batch_op.add_column(
+            sa.Column("entry_hash", sqlmodel.sql.sqltypes.AutoString(), nullable=True)
+        )
     bind = op.get_bind()
-    audit = sa.table('audit_entry', sa.column('id', sa.Integer), *(sa.column(f) for f in HASHED),
-                     sa.column('prev_hash'), sa.column('entry_hash'))
+    audit = sa.table(
+        "audit_entry",
+        sa.column("id", sa.Integer),
+        *(sa.column(f) for f in HASHED),
+        sa.column("prev_hash"),
+        sa.column("entry_hash"),
+    )
     rows = bind.execute(sa.select(audit).order_by(audit.c.id)).mappings().all()
     prev = GENESIS
     updates = []
@@ -48,12 +56,15 @@ def upgrade() -> None:
         updates.append({"b_id": row["id"], "p": prev, "h": h})
         prev = h
     if updates:
-        bind.execute(sa.update(audit).where(audit.c.id == sa.bindparam("b_id"))
-                     .values(prev_hash=sa.bindparam("p"), entry_hash=sa.bindparam("h")),
-                     updates)
+        bind.execute(
+            sa.update(audit)
+            .where(audit.c.id == sa.bindparam("b_id"))
+            .values(prev_hash=sa.bindparam("p"), entry_hash=sa.bindparam("h")),
+            updates,
+        )
 
 
 def downgrade() -> None:
-    with op.batch_alter_table('audit_entry', schema=None) as batch_op:
-        batch_op.drop_column('entry_hash')
-        batch_op.drop_column('prev_hash')
+    with op.batch_alter_table("audit_entry", schema=None) as batch_op:
+        batch_op.drop_column("entry_hash")
+        batch_op.drop_column("prev_hash")

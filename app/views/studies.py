@@ -1,6 +1,7 @@
 """Studies and appraisals: every study with its design, level, events and countries; the
 appraisal of record of one study (blinding respected); registered events; reviewer agreement."""
 
+import identity
 import pandas as pd
 import streamlit as st
 import ui
@@ -8,7 +9,7 @@ import ui
 import data
 
 db = data.db_target()
-viewer = (st.session_state.get("viewer") or "").strip() or None
+viewer = identity.who().name
 
 # 1. data ------------------------------------------------------------------------------------
 with ui.guard():

@@ -350,3 +350,44 @@ def viewer_of(store: Store, viewer: Identity | str | None) -> Identity:
     with store.read() as conn:
         row = db.account_row(conn, viewer) if db.count_accounts(conn) else None
     return Identity(viewer, row["role"] if row else store.role)
+
+
+LOOPBACK = ("127.0.0.1", "localhost", "::1", "[::1]")
+
+
+def is_loopback(address: str | None) -> bool:
+    """True when a server listening on ``address`` is reachable from this machine only.
+
+    ``None`` or ``""`` (Streamlit's default: every interface) and ``0.0.0.0`` are not.
+    """
+    if not address:
+        return False
+    return address.strip().lower() in LOOPBACK or address.strip().startswith("127.")
+
+
+def sign_in_required(store: Store, address: str | None) -> bool:
+    """The dashboard asks for a sign-in when the evidence base has accounts, and always when it
+    listens on anything but loopback."""
+    return not is_loopback(address) or accounts_exist(store)
+
+
+def dashboard_target(db: str | None, address: str) -> dict:
+    """What ``exposhift dashboard`` serves (:func:`~exposhift.services.setup.database_info`),
+    refused when it would listen beyond this machine on an evidence base without accounts
+    (nobody could sign in)."""
+    from exposhift.services.setup import database_info, open_current
+
+    info = database_info(db)
+    if not is_loopback(address):
+        store = open_current(db)
+        try:
+            has = accounts_exist(store)
+        finally:
+            store.dispose()
+        if not has:
+            raise ConfigError(
+                f"--host {address} serves the dashboard to other machines, where everyone "
+                "signs in, but this evidence base has no accounts yet; add one first with "
+                "'exposhift users add NAME --role admin'"
+            )
+    return info

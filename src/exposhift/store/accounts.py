@@ -8,13 +8,15 @@ as the audit note that records the sign-in, sign-out or failure, and are not aud
 
 from __future__ import annotations
 
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import Connection, func, insert, select, update
 
 from exposhift.errors import ConflictError, NotFoundError
 from exposhift.store.models import Account, AccountSession, SignInAttempt
-from exposhift.store.writer import Writer
+
+if TYPE_CHECKING:  # the CLI's start-up path (open_current) imports this module
+    from exposhift.store.writer import Writer
 
 ACCOUNT = Account.__table__
 SESSION = AccountSession.__table__

@@ -32,6 +32,7 @@ ACTIONS: dict[str, tuple[str, str]] = {
     "consensus": ("editor", "record a consensus appraisal"),
     "edit": ("editor", "import or edit studies, events, estimates and directions"),
     "accounts": ("admin", "manage accounts"),
+    "replace": ("admin", "replace stored appraisals from an archive (--replace)"),
     "export-blinded": ("admin", "export appraisals that are still blinded"),
 }
 
@@ -124,7 +125,7 @@ def hidden_reason(viewer: Identity) -> str:
         return "hidden: readers see consensus appraisals only"
     if viewer.may("editor"):
         return "hidden until both independent appraisals are in"
-    return "hidden until you and the other reviewer have both submitted, or the consensus is in"
+    return "hidden until you and another reviewer have both submitted, or the consensus is in"
 
 
 def require(store, action: str) -> None:

@@ -232,3 +232,24 @@ def test_a_reader_writes_nothing_and_a_reviewer_only_her_own(store, tmp_path):
         ana.dispose()
     with store.read() as conn:
         assert len(audit_rows(conn)) == before  # nothing written by any refusal
+
+
+def test_names_sign_in_without_regard_to_case(store):
+    accounts.add_account(store, "Ana", "reviewer", "the-right-one")
+    assert accounts.sign_in(store, "ana", "the-right-one").identity.name == "Ana"
+
+
+def test_an_editor_imports_but_only_an_admin_replaces_appraisals(store, tmp_path):
+    from exposhift.services.exporting import export_store
+    from exposhift.services.importing import import_into
+
+    build(store, tmp_path)
+    archive = tmp_path / "whole.json"
+    export_store(store, archive)
+    ed = open_current(store.url, user="ed")
+    try:
+        assert import_into(ed, archive).kind  # nothing new, but allowed
+        with pytest.raises(AccessError, match="'ed' has the role editor and may not replace"):
+            import_into(ed, archive, replace=True)
+    finally:
+        ed.dispose()

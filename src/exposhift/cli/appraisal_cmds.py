@@ -160,6 +160,8 @@ def agreement_cmd(
     typer.echo(
         "kappa: Cohen's weighted kappa (1968); linear and quadratic weights over levels 0-3."
     )
+    if table.attrs.get("blinded_note"):
+        typer.echo(f"note: {table.attrs['blinded_note']}")
     typer.echo(f"note: {table.attrs.get('caution', '')}")
 
 

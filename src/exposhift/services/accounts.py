@@ -241,7 +241,7 @@ def sign_in(store: Store, name: str, password: str, *, now: datetime | None = No
     typed = (name or "").strip()[: NAME_MAX + 1]
     with store.read() as conn:
         fails = db.failures_since(conn, typed.casefold(), _stamp(when - RATE_WINDOW))
-        row = db.account_row(conn, typed) if typed else None
+        row = db.account_folded(conn, typed) if typed else None
     if fails >= FAILED_SIGN_INS_ALLOWED:
         _failed(store, typed, stamp, "limited", "rate limited")
         minutes = int(RATE_WINDOW.total_seconds() // 60)

@@ -561,6 +561,8 @@ def import_frames(
     """
     if not dry_run:
         require(store, "edit")
+        if replace:
+            require(store, "replace")
     notes: list[str] = []
     with store.read() if dry_run else store.write() as conn:
         plans = build_plans(conn, frames)

@@ -253,3 +253,13 @@ def test_an_editor_imports_but_only_an_admin_replaces_appraisals(store, tmp_path
             import_into(ed, archive, replace=True)
     finally:
         ed.dispose()
+
+
+def test_the_last_active_admin_stays(store):
+    accounts.add_account(store, "root", "admin", "the-right-one")
+    with pytest.raises(AccessError, match="'root' is the last active admin"):
+        accounts.disable_account(store, "root")
+    with pytest.raises(AccessError, match="last active admin"):
+        accounts.set_role(store, "root", "editor")
+    accounts.add_account(store, "second", "admin", "the-right-one")
+    assert accounts.set_role(store, "root", "editor").role == "editor"

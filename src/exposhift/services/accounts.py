@@ -189,6 +189,17 @@ def _change(store: Store, name: str, now: datetime | None, **changes) -> Account
         if all(row[k] == v for k, v in changes.items() if k != "password_hash"):
             if "password_hash" not in changes:
                 return _view(row)
+        demoted = changes.get("role", row["role"]) != "admin" or changes.get("disabled")
+        if row["role"] == "admin" and not row["disabled"] and demoted:
+            admins = [
+                a for a in db.account_rows(conn) if a["role"] == "admin" and not a["disabled"]
+            ]
+            if len(admins) == 1:
+                raise AccessError(
+                    f"'{name}' is the last active admin account; nothing was changed. Give "
+                    "another account the role admin first, so someone can still manage accounts "
+                    "from the dashboard"
+                )
         w = Writer(conn, store.user, now=stamp)
         db.update_account(w, name, row["version"], changes)
         if changes.get("disabled") or "password_hash" in changes:

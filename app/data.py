@@ -13,9 +13,10 @@ import os
 import pandas as pd
 import streamlit as st
 
+from exposhift.access import Identity
 from exposhift.appraisal.rubric import load_rubric
 from exposhift.replication.settings import load_settings
-from exposhift.services import appraising, browse, replicating, setup
+from exposhift.services import accounts, appraising, browse, replicating, setup
 from exposhift.services import summary as summary_service
 from exposhift.store.database import Store, mask_url, resolve_url
 
@@ -35,7 +36,23 @@ def db_label(db: str | None) -> str:
 
 @st.cache_resource(show_spinner=False)
 def _store(db: str | None) -> Store:
-    return setup.open_current(db, user="dashboard")
+    """The dashboard's own connection: it acts as a ``reader`` named ``dashboard`` (consensus
+    appraisals only, no writes), so a page that forgets the identity shows and writes nothing
+    it should not. Pages act for the person through :func:`acting`."""
+    store = setup.open_current(db, user="dashboard")
+    store.role = "reader"
+    return store
+
+
+def store(db: str | None) -> Store:
+    """The shared store (sign-in and session checks go through it; see :func:`acting`)."""
+    return _store(db)
+
+
+def acting(db: str | None, who: Identity) -> Store:
+    """The store as ``who`` (``identity.who()``): pass it to a write service, which records
+    ``who.name`` in the audit trail and refuses a role that may not write."""
+    return accounts.acting_store(_store(db), who)
 
 
 def clear() -> None:
@@ -65,9 +82,10 @@ def events(db: str | None) -> pd.DataFrame:
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
-def appraisals(db: str | None, study: str, viewer: str | None) -> dict:
-    """A study's appraisals as ``viewer`` may see them (blinding applied by the service)."""
-    return appraising.show_appraisals(_store(db), study, viewer or None)
+def appraisals(db: str | None, study: str, viewer: Identity) -> dict:
+    """A study's appraisals as ``viewer`` (``identity.who()``) may see them (blinding by
+    identity applied by the service)."""
+    return appraising.show_appraisals(_store(db), study, viewer)
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
@@ -77,8 +95,9 @@ def domain_titles() -> dict[str, str]:
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
-def agreement(db: str | None) -> pd.DataFrame:
-    return appraising.agreement(_store(db))
+def agreement(db: str | None, viewer: Identity | None = None) -> pd.DataFrame:
+    """Reviewer agreement over the studies whose independent appraisals ``viewer`` may see."""
+    return appraising.agreement(_store(db), viewer)
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)

@@ -1,7 +1,8 @@
 """exposhift dashboard: entry point (``exposhift dashboard`` runs ``streamlit run`` on it).
 
-1. page setup and navigation; 2. the sidebar every page shares (evidence base, demo notice,
-reviewer name for blinding, reload); 3. run the chosen page. Pages live in ``views/``; they get
+1. page setup, the sign-in gate (``signin.py``: the form, when the session must sign in) and
+navigation; 2. the sidebar every page shares (evidence base, demo notice, who is signed in,
+reload); 3. run the chosen page. Pages live in ``views/``; they get
 data from ``data.py`` (cached service calls) and figures from ``charts.py``. The directory is
 not called ``pages/``: Streamlit treats a ``pages/`` directory beside the entry script as a
 legacy multipage app, and a first request for a page URL would then run that page without
@@ -17,12 +18,16 @@ import streamlit as st
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
+import signin  # noqa: E402
 import ui  # noqa: E402
 
 import data  # noqa: E402
 
 # 1. page setup and navigation ---------------------------------------------------------------
 st.set_page_config(page_title="exposhift", layout="wide", initial_sidebar_state="expanded")
+with ui.guard():
+    if not signin.gate():
+        st.stop()
 PAGES = [
     st.Page("views/overview.py", title="Evidence at a glance", url_path="overview", default=True),
     st.Page("views/studies.py", title="Studies and appraisals", url_path="studies"),
@@ -46,12 +51,7 @@ with st.sidebar:
         st.markdown(":blue-background[**Invented demo data**]")
     elif summary.any_demo:
         st.markdown(":blue-background[**Contains invented demo records**]")
-    st.text_input(
-        "Your reviewer name",
-        key="viewer",
-        help="Independent appraisals stay hidden from everyone but their reviewer until both "
-        "independent appraisals of a study are in. Give your name to see your own.",
-    )
+    signin.sidebar_box()
     if st.button("Reload data", help="Read the evidence base again (after an import)."):
         data.clear()
         st.rerun()

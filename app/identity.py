@@ -1,33 +1,55 @@
 """Who is using this dashboard session: the one seam every page asks.
 
 Pages never read a typed name or a session key themselves; they call :func:`who` and pass the
-identity to the services, which apply blinding and permissions. Without accounts in the evidence
-base (a single-user laptop) the viewer is the name typed in the sidebar, with every role.
+identity to the services, which apply blinding and permissions (``data.appraisals(db, study,
+who())``; for a write, ``data.acting(db, who())`` is the store to pass to the service).
+
+- The evidence base has accounts, or the dashboard listens on anything but loopback: the
+  person who signed in (``signin.py`` shows the form), with the role of her account, read
+  afresh on every page; nobody before the sign-in or after the session expired.
+- No accounts, on loopback (a single-user laptop): the operating-system user, with every role.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import streamlit as st
 
-ROLES = ("reader", "reviewer", "editor", "admin")
+import data
+from exposhift.access import LOCAL, ROLES, Identity, SignInError
+from exposhift.services import accounts
+from exposhift.store.database import default_user
+
+__all__ = ["ROLES", "Identity", "who", "sign_in_required", "TOKEN_KEY", "NOTICE_KEY"]
+
+#: session_state keys: the session token (never shown), a notice for the sign-in form
+TOKEN_KEY = "_exposhift_session_token"
+NOTICE_KEY = "_exposhift_signin_notice"
+
+#: the identity of a session in which nobody has signed in (reads consensus appraisals only)
+NOBODY = Identity(None, "reader")
 
 
-@dataclass(frozen=True)
-class Identity:
-    """The person behind this session: ``name`` (None when nobody is named) and ``role``."""
+def listening_address() -> str | None:
+    """The address this dashboard listens on (``exposhift dashboard --host``)."""
+    return st.get_option("server.address")
 
-    name: str | None
-    role: str
-    signed_in: bool = False
 
-    def may(self, role: str) -> bool:
-        """True when this identity holds ``role`` or a higher one (``ROLES`` order)."""
-        return ROLES.index(self.role) >= ROLES.index(role)
+def sign_in_required() -> bool:
+    """True when this session must sign in: accounts exist, or the address is not loopback."""
+    return accounts.sign_in_required(data.store(data.db_target()), listening_address())
 
 
 def who() -> Identity:
-    """The identity of this session (no accounts: the sidebar's reviewer name, every role)."""
-    name = (st.session_state.get("viewer") or "").strip() or None
-    return Identity(name=name, role="admin")
+    """The identity of this session (see the module docstring)."""
+    token = st.session_state.get(TOKEN_KEY)
+    store = data.store(data.db_target())
+    if token:
+        try:
+            return accounts.session_identity(store, token)
+        except SignInError as exc:
+            st.session_state.pop(TOKEN_KEY, None)
+            st.session_state[NOTICE_KEY] = str(exc)
+            return NOBODY
+    if sign_in_required():
+        return NOBODY
+    return Identity(default_user(), LOCAL.role)

@@ -9,7 +9,7 @@ import ui
 import data
 
 db = data.db_target()
-viewer = identity.who().name
+viewer = identity.who()
 
 # 1. data ------------------------------------------------------------------------------------
 with ui.guard():
@@ -110,11 +110,10 @@ with tab_studies:
                 key="appraisal_table",
                 height=36 * (len(frame) + 1) + 3,
             )
-        hidden = [a.reviewer for a in view["appraisals"] if a.blinded]
+        hidden = [a for a in view["appraisals"] if a.blinded]
         if hidden:
             st.info(
-                f"Hidden until both independent appraisals are in: {', '.join(hidden)}. "
-                "Reviewers see their own appraisal by giving their name in the sidebar."
+                f"Not shown to you: {', '.join(a.reviewer for a in hidden)} ({hidden[0].reason})."
             )
         if record is not None and record.justifications:
             titles = data.domain_titles()
@@ -138,9 +137,11 @@ with tab_events:
 # 5. agreement -------------------------------------------------------------------------------
 with tab_agreement:
     with ui.guard():
-        agree = data.agreement(db)
+        agree = data.agreement(db, viewer)
     st.caption(
         "Agreement between the two independent reviewers per rubric domain (only "
-        "studies whose independent appraisals are both in)."
+        "studies whose independent appraisals are both in, and that you may see)."
     )
+    if agree.attrs.get("blinded_note"):
+        st.info(agree.attrs["blinded_note"])
     st.dataframe(agree, hide_index=True, width="stretch", key="agreement_table")

@@ -4,12 +4,31 @@ and the dashboard's own modules (``app/``) on the import path for the chart buil
 from __future__ import annotations
 
 import pytest
-from dashboard_helpers import app_on_path
+from dashboard_helpers import app_on_path, cheap_hasher
 
 from exposhift.services.demo import build_demo
 from exposhift.services.setup import open_current
 
 app_on_path()
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _loopback_address():
+    """The dashboard as ``exposhift dashboard`` serves it: on 127.0.0.1 (AppTest has no server,
+    and Streamlit's default address - every interface - would ask everyone to sign in)."""
+    from streamlit import config
+
+    before = config.get_option("server.address")
+    config.set_option("server.address", "127.0.0.1")
+    yield
+    config.set_option("server.address", before)
+
+
+@pytest.fixture(autouse=True)
+def _cheap_password_hashes(monkeypatch):
+    """Argon2 with argon2-cffi's cheapest profile, for speed (the parameters are read from each
+    hash, so verification is unchanged; production keeps the RFC 9106 defaults)."""
+    cheap_hasher(monkeypatch)
 
 
 @pytest.fixture(scope="session")

@@ -25,3 +25,14 @@ def values(v) -> list:
     if isinstance(v, dict) and "bdata" in v:
         return np.frombuffer(base64.b64decode(v["bdata"]), dtype=np.dtype(v["dtype"])).tolist()
     return list(v)
+
+
+def cheap_hasher(monkeypatch) -> None:
+    """Argon2 with argon2-cffi's cheapest parameters (``argon2.profiles.CHEAPEST``): tests
+    only; a hash records its own parameters, so verification works either way."""
+    from argon2 import PasswordHasher, profiles
+
+    from exposhift.services import accounts
+
+    monkeypatch.setattr(accounts, "_HASHER", PasswordHasher.from_parameters(profiles.CHEAPEST))
+    accounts._dummy_hash.cache_clear()

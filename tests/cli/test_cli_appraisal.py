@@ -53,11 +53,11 @@ def test_show_hides_other_reviewer_until_both_in(demo_db, tmp_path):
     counts = ap[ap["stage"] == "independent"].groupby("study_id").size()
     single = counts[counts == 1].index[0]
     reviewer = ap[(ap["study_id"] == single) & (ap["stage"] == "independent")]["reviewer"].iloc[0]
-    hidden = runner.invoke(app, ["--db", demo_db, "appraise", "show", single, "--as", "nobody"])
+    hidden = runner.invoke(app, ["--db", demo_db, "--user", "nobody", "appraise", "show", single])
     assert hidden.exit_code == 0 and "hidden until both independent appraisals are in" in (
         hidden.stdout
     )
-    own = runner.invoke(app, ["--db", demo_db, "appraise", "show", single, "--as", reviewer])
+    own = runner.invoke(app, ["--db", demo_db, "--user", reviewer, "appraise", "show", single])
     assert own.exit_code == 0 and "hidden" not in own.stdout and "origin" in own.stdout
 
 

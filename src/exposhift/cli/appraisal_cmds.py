@@ -66,15 +66,14 @@ def appraise_import(
 def appraise_show(
     ctx: typer.Context,
     study_id: str = typer.Argument(..., help="The study's key."),
-    viewer: str | None = typer.Option(
-        None, "--as", help="Reviewer name to view as (default: --user / EXPOSHIFT_USER)."
-    ),
     rubric: Path | None = typer.Option(None, "--rubric", help="Rubric file."),
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
 ) -> None:
-    """Show a study's appraisals; another reviewer's ratings stay hidden until both are in.
+    """Show a study's appraisals as the global --user sees them (blinding by identity: a
+    reviewer sees another's ratings once both are in or after the consensus; a reader sees the
+    consensus only).
 
-    Example: exposhift appraise show Example2004 --as ana
+    Example: exposhift --user ana appraise show Example2004
     """
     from exposhift.services.appraising import show_appraisals
     from exposhift.services.setup import open_current
@@ -82,7 +81,7 @@ def appraise_show(
     s = settings(ctx)
     store = open_current(s.db, s.user)
     try:
-        data = show_appraisals(store, study_id, viewer or store.user, rubric)
+        data = show_appraisals(store, study_id, None, rubric)
     finally:
         store.dispose()
     if as_json:
@@ -161,6 +160,8 @@ def agreement_cmd(
     typer.echo(
         "kappa: Cohen's weighted kappa (1968); linear and quadratic weights over levels 0-3."
     )
+    if table.attrs.get("blinded_note"):
+        typer.echo(f"note: {table.attrs['blinded_note']}")
     typer.echo(f"note: {table.attrs.get('caution', '')}")
 
 

@@ -60,6 +60,8 @@ def verify(
 
 
 def _change(e: dict) -> str:
+    if e.get("hidden"):
+        return f"({e['hidden']})"
     before = json.loads(e["before"]) if e["before"] else {}
     after = json.loads(e["after"]) if e["after"] else {}
     if e["action"] == "update":
@@ -67,7 +69,7 @@ def _change(e: dict) -> str:
             f"{k}: {before.get(k)!r} -> {after.get(k)!r}" for k in sorted(after) if k != "version"
         ]
         return "; ".join(parts) or "(version only)"
-    shown = after or before
+    shown = after or before or {}
     return ", ".join(f"{k}={v!r}" for k, v in sorted(shown.items()))[:160]
 
 
@@ -95,7 +97,8 @@ def show(
     """
     from exposhift.services.auditing import show_audit
 
-    view = show_audit(settings(ctx).db, record=record, user=user, since=since, limit=limit)
+    s = settings(ctx)
+    view = show_audit(s.db, record=record, user=user, since=since, limit=limit, viewer=s.user)
     if as_json:
         print_json({"matching": view.total_matching, "entries": view.entries})
         return

@@ -59,16 +59,21 @@ def dashboard(
         "EXPOSHIFT_DB or evidence/evidence.db).",
     ),
     address: str = typer.Option(
-        "127.0.0.1", "--address", help="Address to listen on (127.0.0.1: this machine only)."
+        "127.0.0.1",
+        "--host",
+        "--address",
+        help="Address to listen on (127.0.0.1: this machine only; any other address asks "
+        "everyone to sign in, so the evidence base needs accounts).",
     ),
 ) -> None:
     """Serve the dashboard (studies, pooling, replication across place and time, gap map) at
-    http://ADDRESS:PORT. Needs no internet connection.
+    http://HOST:PORT. Needs no internet connection. With accounts in the evidence base, or on
+    any address but this machine's, everyone signs in.
 
     Example: exposhift --db demo/evidence-demo.db dashboard --port 8502
     """
+    from exposhift.services.accounts import dashboard_target
     from exposhift.services.options import check_port
-    from exposhift.services.setup import database_info
 
     check_port(port)
     target = db or settings(ctx).db
@@ -80,7 +85,7 @@ def dashboard(
             f"dashboard files not found at {app}; run exposhift from a checkout of the "
             "repository (app/ next to src/)"
         )
-    info = database_info(target)  # refuse a missing or outdated database before serving
+    info = dashboard_target(target, address)  # refuse a missing or outdated base first
     env = dict(os.environ)
     if target:
         env["EXPOSHIFT_DB"] = target

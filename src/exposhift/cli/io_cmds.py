@@ -271,6 +271,7 @@ def export_cmd(
         exposure=exposure,
         outcome=outcome,
         with_appraisals=with_appraisals,
+        user=settings(ctx).user,
     )
     for warning in result.warnings:
         typer.echo(f"warning: {warning}", err=True)

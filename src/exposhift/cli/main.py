@@ -21,6 +21,7 @@ from exposhift.cli import (
     series_cmds,
     store_cmds,
     synthesis_cmds,
+    user_cmds,
 )
 from exposhift.cli.common import Settings
 from exposhift.cli.helptext import Group, use_plain_help
@@ -58,7 +59,8 @@ def main(
         None,
         "--user",
         envvar="EXPOSHIFT_USER",
-        help="Name recorded in the audit trail (default: the OS user).",
+        help="Name recorded in the audit trail (default: the OS user); an account of "
+        "that name lends its role (reader, reviewer, editor, admin).",
     ),
     version: bool = typer.Option(
         False, "--version", callback=_version, is_eager=True, help="Show the version and exit."
@@ -84,6 +86,7 @@ for _module in (
     audit_cmds,
     series_cmds,
     dossier_cmds,
+    user_cmds,
 ):
     _module.register(app)
 

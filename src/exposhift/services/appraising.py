@@ -2,8 +2,13 @@
 
 Rules enforced here (not only in a user interface):
 
-- **Blinding.** A reviewer's independent ratings of a study are hidden from everyone else until
-  the study has at least ``REVIEWERS_BEFORE_UNBLINDING`` independent appraisals.
+- **Blinding by identity** (:func:`exposhift.access.may_see_independent`). A reviewer sees
+  another reviewer's independent ratings of a study once both have submitted, or once the
+  consensus is in; an editor or admin (the chair) once ``REVIEWERS_BEFORE_UNBLINDING`` are in;
+  a reader never: readers see consensus appraisals only. Everyone sees her own. The viewer is
+  the identity passed in, else the store's own (``--user`` and its account's role).
+- **Who may write.** A reviewer records only her own independent appraisals; a consensus, or an
+  appraisal under another reviewer's name, needs an editor; a reader writes nothing.
 - **Consensus** may be recorded only after two independent appraisals exist; it becomes the
   study's appraisal of record (``analysis_frame``'s ``level``).
 - One appraisal per study, reviewer and stage. Re-importing an identical appraisal changes
@@ -21,6 +26,12 @@ from typing import Any
 
 import pandas as pd
 
+from exposhift.access import (
+    Identity,
+    hidden_reason,
+    may_see_independent,
+    require,
+)
 from exposhift.appraisal.agreement import agreement_table, overall_level_row
 from exposhift.appraisal.rubric import load_rubric
 from exposhift.appraisal.rubric_types import Rubric
@@ -35,13 +46,13 @@ from exposhift.store.appraisals import (
     existing_appraisals,
     independent_overall_levels,
     independent_ratings,
+    review_states,
     studies_by_key,
 )
 from exposhift.store.database import Store
 from exposhift.store.writer import Writer
 from exposhift.vocab import REVIEW_STAGES
 
-REVIEWERS_BEFORE_UNBLINDING = 2
 META_COLUMNS = ("study_id", "reviewer", "stage")
 
 
@@ -261,6 +272,37 @@ def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing
     return parsed
 
 
+def _check_authorship(frame: pd.DataFrame, label: str, actor: Identity) -> None:
+    """A reviewer may record only her own independent appraisals (every row checked)."""
+    if actor.may_do("appraise-others") or not {"reviewer", "stage"} <= set(frame.columns):
+        return  # (missing columns are reported by the validation)
+    problems = []
+    for row in frame.index:
+        reviewer, stage = frame.at[row, "reviewer"], frame.at[row, "stage"]
+        if stage == "consensus":
+            problems.append(
+                Problem(
+                    label,
+                    row,
+                    "stage",
+                    f"'{actor.name}' has the role {actor.role} and may not record a consensus "
+                    "(needs editor or higher); leave the consensus to the chair",
+                )
+            )
+        elif reviewer != actor.name:
+            problems.append(
+                Problem(
+                    label,
+                    row,
+                    "reviewer",
+                    f"'{actor.name}' has the role {actor.role} and may record only her own "
+                    f"appraisals, not '{reviewer}''s; put your own name in this column",
+                )
+            )
+    if problems:
+        raise InputFileError(problems)
+
+
 def import_appraisals(
     store: Store,
     path: str | Path,
@@ -275,6 +317,8 @@ def import_appraisals(
     frame = sheet.frame.set_axis(sheet.rows.tolist())
     label = sheet.file
     summary = AppraisalImportSummary(rubric=rubric.label, dry_run=dry_run)
+    require(store, "appraise")
+    _check_authorship(frame, label, Identity(store.user, store.role))
     with store.write() as conn:
         studies = studies_by_key(conn)
         parsed = _validate(frame, label, rubric, studies, existing_appraisals(conn))
@@ -342,9 +386,19 @@ class AppraisalView:
 
 
 def show_appraisals(
-    store: Store, study_key: str, viewer: str | None = None, rubric_path: str | Path | None = None
+    store: Store,
+    study_key: str,
+    viewer: Identity | str | None = None,
+    rubric_path: str | Path | None = None,
 ) -> dict[str, Any]:
-    """A study's appraisals as ``viewer`` may see them (blinding applied)."""
+    """A study's appraisals as ``viewer`` may see them (blinding by identity applied).
+
+    ``viewer``: an :class:`~exposhift.access.Identity` (the dashboard's signed-in person), a
+    name (with its account's role, else the store's), or None (the store's own identity).
+    """
+    from exposhift.services.accounts import viewer_of
+
+    ident = viewer_of(store, viewer)
     rubric = load_rubric(rubric_path)
     with store.read() as conn:
         studies = studies_by_key(conn)
@@ -354,11 +408,14 @@ def show_appraisals(
         aps = appraisals_of_study(conn, study["id"])
     by_ap = {a["id"]: a["ratings"] for a in aps}
     n_indep = sum(1 for a in aps if a["stage"] == "independent")
-    unblinded = n_indep >= REVIEWERS_BEFORE_UNBLINDING
+    reviewers = {a["reviewer"] for a in aps if a["stage"] == "independent"}
+    has_consensus = any(a["stage"] == "consensus" for a in aps)
     views = []
     for a in aps:
         rs = {r["domain"]: r["level"] for r in by_ap.get(a["id"], [])}
-        hidden = a["stage"] == "independent" and not unblinded and a["reviewer"] != viewer
+        hidden = a["stage"] == "independent" and not may_see_independent(
+            ident, a["reviewer"], reviewers, has_consensus
+        )
         label = a["rubric_id"] + " (" + a["rubric_hash"][:12] + ")"
         if hidden:
             views.append(
@@ -368,7 +425,7 @@ def show_appraisals(
                     label,
                     None,
                     None,
-                    "hidden until both independent appraisals are in",
+                    hidden_reason(ident),
                     None,
                     {},
                     {},
@@ -412,16 +469,41 @@ def show_appraisals(
     }
 
 
-def agreement(store: Store) -> pd.DataFrame:
+def visible_studies(conn, viewer: Identity) -> set[str]:
+    """Studies all of whose independent appraisals ``viewer`` may see (blinding by identity)."""
+    return {
+        study
+        for study, (reviewers, has_consensus) in review_states(conn).items()
+        if all(may_see_independent(viewer, r, reviewers, has_consensus) for r in reviewers)
+    }
+
+
+def agreement(store: Store, viewer: Identity | str | None = None) -> pd.DataFrame:
     """Agreement between independent reviewers: one row per domain, ``all domains`` (every
     study x domain pair; n = pairs) and ``overall level`` (n = studies). Percent agreement is
-    0-100."""
+    0-100.
+
+    Only studies whose independent appraisals ``viewer`` may all see are counted (readers:
+    none); ``attrs["studies_counted"]`` says how many, ``attrs["blinded_note"]`` why fewer.
+    """
+    from exposhift.services.accounts import viewer_of
+
+    ident = viewer_of(store, viewer)
     with store.read() as conn:
-        rows = independent_ratings(conn)
-        overall = independent_overall_levels(conn)
+        seen = visible_studies(conn, ident)
+        total = len(review_states(conn))
+        rows = [r for r in independent_ratings(conn) if r["study_id"] in seen]
+        overall = [r for r in independent_overall_levels(conn) if r["study_id"] in seen]
     frame = pd.DataFrame(rows, columns=["study_id", "reviewer", "domain", "level"])
     table = agreement_table(frame)
     levels = pd.DataFrame(overall, columns=["study_id", "reviewer", "overall"])
     out = pd.concat([table, pd.DataFrame([overall_level_row(levels)])], ignore_index=True)
     out.attrs = dict(table.attrs)
+    out.attrs["studies_counted"] = len(seen)
+    out.attrs["blinded_note"] = (
+        ""
+        if len(seen) == total
+        else f"{total - len(seen)} of {total} appraised studies are left out: their independent "
+        f"appraisals are blinded for {ident.name or 'this session'} ({ident.role})"
+    )
     return out

@@ -9,9 +9,12 @@ from __future__ import annotations
 import datetime as dt
 from dataclasses import dataclass
 
+from exposhift.access import Identity, hidden_reason, may_see_independent
 from exposhift.errors import ConfigError
 from exposhift.services.setup import open_current
+from exposhift.store.appraisals import review_states
 from exposhift.store.audit_chain import ChainHead, ChainReport, find_entries, verify_chain
+from exposhift.store.database import Store
 
 
 @dataclass(frozen=True)
@@ -69,16 +72,48 @@ def show_audit(
     user: str | None = None,
     since: str | None = None,
     limit: int | None = 200,
+    viewer: str | None = None,
+    store: Store | None = None,
 ) -> AuditView:
-    """Audit entries filtered by record key, user and time (the newest ``limit`` of them)."""
+    """Audit entries filtered by record key, user and time (the newest ``limit`` of them).
+
+    ``viewer`` (``--user``, a name or an :class:`~exposhift.access.Identity`; default the
+    store's own identity): the values of appraisal and rating entries that are blinded for
+    the viewer are replaced by ``hidden`` (an administrator sees every entry). ``store``: an
+    open store to read (the dashboard's) instead of opening ``db``.
+    """
+    from exposhift.services.accounts import viewer_of
+
     if limit is not None and limit < 1:
         raise ConfigError(f"--limit {limit} is not allowed; give 1 or more")
     start = parse_since(since) if since is not None else None
-    store = open_current(db)
+    own = store is None
+    if own:
+        store = open_current(db, viewer if isinstance(viewer, str) else None)
     try:
+        ident = viewer_of(store, viewer)
         with store.read() as conn:
             rows = find_entries(conn, row_key=record, user=user, since=start)
+            states = None if ident.may_do("export-blinded") else review_states(conn)
     finally:
-        store.dispose()
+        if own:
+            store.dispose()
     shown = rows[-limit:] if limit is not None else rows
+    if states is not None:
+        shown = [_blinded_entry(e, ident, states) for e in shown]
     return AuditView(store.masked_url, shown, len(rows))
+
+
+def _blinded_entry(entry: dict, viewer: Identity, states: dict) -> dict:
+    """``entry``, with its values hidden when it records an independent appraisal (or one of
+    its ratings) that ``viewer`` may not see."""
+    if entry["table_name"] not in ("appraisal", "rating"):
+        return entry
+    parts = entry["row_key"].split("|")
+    if len(parts) < 3 or parts[2] != "independent":
+        return entry
+    study, reviewer = parts[0], parts[1]
+    reviewers, has_consensus = states.get(study, (set(), False))
+    if may_see_independent(viewer, reviewer, reviewers, has_consensus):
+        return entry
+    return dict(entry, before=None, after=None, hidden=hidden_reason(viewer))

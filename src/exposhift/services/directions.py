@@ -14,6 +14,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from exposhift.access import require
 from exposhift.io import directions as checks
 from exposhift.io.sheet import read_sheet
 from exposhift.services.lookup import require_name
@@ -86,6 +87,7 @@ def set_direction(
         "decided_by": (decided_by or "").strip() or store.user,
         "decided_at": checks.check_time(decided_at) if decided_at else _now(),
     }
+    require(store, "edit")
     with store.write() as conn:
         exposure = require_name(conn, "exposure", exposure)
         outcome = require_name(conn, "outcome", outcome)
@@ -101,6 +103,7 @@ def clear_direction(
     store: Store, exposure: str, outcome: str, *, expected_version: int | None = None
 ) -> DirectionChange:
     """Remove the pre-specified direction of ``exposure`` x ``outcome`` (audited)."""
+    require(store, "edit")
     with store.write() as conn:
         exposure = require_name(conn, "exposure", exposure)
         outcome = require_name(conn, "outcome", outcome)
@@ -186,6 +189,7 @@ def import_directions(
         with store.read() as conn:
             plan = plan_directions(conn, frame)
         return DirectionImport(str(path), True, **plan)
+    require(store, "edit")
     with store.write() as conn:
         w = Writer(conn, store.user)
         counts = write_directions(w, frame)

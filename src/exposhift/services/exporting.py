@@ -141,9 +141,8 @@ _UNBLINDED_AT = 2
 def blinded_warning(frames: EvidenceFrames) -> list[str]:
     """A warning when the archive carries independent appraisals that are still blinded.
 
-    Accounts and roles do not exist yet, so anyone who can run ``export`` gets the full
-    archive; the warning says so. (Once accounts exist, the full archive becomes an
-    administrator's export and everyone else gets consensus appraisals only.)
+    Only an administrator's export holds them (:func:`blind_frames` leaves them out of
+    everyone else's); the warning says who may be given the file.
     """
     apps = frames.appraisals
     if apps.empty:
@@ -163,6 +162,54 @@ def blinded_warning(frames: EvidenceFrames) -> list[str]:
     ]
 
 
+def blind_frames(frames: EvidenceFrames, viewer) -> tuple[EvidenceFrames, int]:
+    """``frames`` without the appraisals (and their ratings) that ``viewer`` may not see
+    (:func:`exposhift.access.may_see_independent`), and how many were left out. An admin's
+    export keeps every appraisal."""
+    from dataclasses import replace
+
+    from exposhift.access import may_see_independent
+
+    apps = frames.appraisals
+    if apps.empty or viewer.may_do("export-blinded"):
+        return frames, 0
+    indep = apps[apps["stage"] == "independent"]
+    reviewers = indep.groupby("study")["reviewer"].agg(set).to_dict()
+    consensus = set(apps.loc[apps["stage"] == "consensus", "study"])
+
+    def visible(study, reviewer, stage) -> bool:
+        if stage != "independent":
+            return True
+        return may_see_independent(
+            viewer, reviewer, reviewers.get(study, set()), study in consensus
+        )
+
+    keep = [visible(*t) for t in apps[["study", "reviewer", "stage"]].itertuples(index=False)]
+    kept = apps[keep]
+    keys = set(kept[["study", "reviewer", "stage"]].itertuples(index=False, name=None))
+    ratings = frames.ratings
+    rkeep = [
+        t in keys
+        for t in ratings[["study", "reviewer", "stage"]].itertuples(index=False, name=None)
+    ]
+    out = replace(
+        frames,
+        appraisals=kept.reset_index(drop=True),
+        ratings=ratings[rkeep].reset_index(drop=True),
+    )
+    return out, int(len(apps) - len(kept))
+
+
+def left_out_warning(n: int, viewer) -> list[str]:
+    if not n:
+        return []
+    return [
+        f"{n} independent appraisal(s) left out: they are blinded for "
+        f"{viewer.name or 'this session'} ({viewer.role}); this archive is not the whole "
+        "evidence base (an administrator's export holds every appraisal)"
+    ]
+
+
 EXPORT_SUFFIXES = (".json", ".csv", ".xlsx")
 
 
@@ -174,13 +221,19 @@ def export_store(
     exposure: str | None = None,
     outcome: str | None = None,
     with_appraisals: bool = False,
+    viewer=None,
 ) -> ExportResult:
     """Write ``path``: ``.json`` archive, or ``.csv``/``.xlsx`` sheet (or events sheet).
 
     ``exposure`` / ``outcome`` keep only their records (:func:`~exposhift.services.subset.
     subset_frames`); ``with_appraisals`` adds the consensus levels to a sheet export.
+    ``viewer`` (an :class:`~exposhift.access.Identity`, a name, or None for the store's own
+    identity): appraisals blinded for the viewer are left out, and the result says so.
     """
+    from exposhift.services.accounts import viewer_of
     from exposhift.services.subset import subset_frames, with_consensus_levels
+
+    ident = viewer_of(store, viewer)
 
     path = Path(path)
     suffix = path.suffix.lower()
@@ -200,6 +253,7 @@ def export_store(
         raise ConfigError("--outcome does not apply to the events sheet; use --exposure alone")
     with store.read() as conn:
         frames = subset_frames(load_evidence(conn), exposure, outcome)
+    frames, left_out = blind_frames(frames, ident)
     counts = {
         "events": len(frames.events),
         "studies": len(frames.studies),
@@ -208,7 +262,8 @@ def export_store(
     }
     if suffix == ".json":
         write_text(archive_text(frames), path)
-        return ExportResult(str(path), "json", "evidence base", counts, blinded_warning(frames))
+        warnings = left_out_warning(left_out, ident) + blinded_warning(frames)
+        return ExportResult(str(path), "json", "evidence base", counts, warnings)
     if events_only:
         SHEET_WRITERS[suffix](events_sheet_frame(frames), path)
         return ExportResult(str(path), suffix[1:], "events", {"events": counts["events"]})
@@ -234,9 +289,11 @@ def export_file(
     exposure: str | None = None,
     outcome: str | None = None,
     with_appraisals: bool = False,
+    user: str | None = None,
 ) -> ExportResult:
-    """Open the evidence base named by ``db`` and export it (or a part) to ``path``."""
-    store = open_current(db)
+    """Open the evidence base named by ``db`` and export it (or a part) to ``path`` as
+    ``user`` (``--user``: blinding by the role of its account, if any)."""
+    store = open_current(db, user)
     try:
         return export_store(
             store,

@@ -23,6 +23,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from exposhift.access import require
 from exposhift.appraisal.rubric import load_rubric
 from exposhift.errors import InputFileError, Problem
 from exposhift.io.archive import read_archive
@@ -558,6 +559,10 @@ def import_frames(
     is refused unless ``replace`` is given, and each replacement is audited as ``replace``.
     An archive's series sections are written in the same transaction.
     """
+    if not dry_run:
+        require(store, "edit")
+        if replace:
+            require(store, "replace")
     notes: list[str] = []
     with store.read() if dry_run else store.write() as conn:
         plans = build_plans(conn, frames)

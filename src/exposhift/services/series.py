@@ -16,6 +16,7 @@ from typing import Any
 
 import numpy as np
 
+from exposhift.access import require
 from exposhift.appraisal.checks import parse_checks
 from exposhift.errors import ConfigError, NotFoundError
 from exposhift.io.series_sheet import Context, SeriesFrames, validate_series_sheet
@@ -71,6 +72,7 @@ def _studies(conn) -> list[dict]:
 
 
 def import_series_frames(store: Store, frames: SeriesFrames, file: str) -> SeriesImportReport:
+    require(store, "edit")
     with store.write() as conn:
         w = Writer(conn, store.user)
         for name in sorted(set(frames.series["outcome"])):
@@ -271,6 +273,7 @@ def estimate_series(
     )
     out = SeriesEstimate(analysis, row, change_at)
     if save:
+        require(store, "edit")
         with store.write() as conn:
             w = Writer(conn, store.user)
             out.stored_estimate, out.checks_added = _store(w, row, analysis)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from exposhift.store.accounts import apply_account_role
 from exposhift.store.database import Store, open_store
 from exposhift.store.migrate import current_revision, head_revision, require_current, upgrade
 from exposhift.store.records import TABLES
@@ -39,10 +40,15 @@ def init_database(db: str | None = None, user: str | None = None) -> InitResult:
 
 
 def open_current(db: str | None = None, user: str | None = None) -> Store:
-    """Open a database that is initialised at the newest schema revision."""
+    """Open a database that is initialised at the newest schema revision.
+
+    The store acts with the role of the account named like ``user`` (``--user``), if there is
+    one; otherwise as an administrator (see :func:`exposhift.store.accounts.apply_account_role`).
+    """
     store = open_store(db, user)
     try:
         require_current(store)
+        apply_account_role(store)
     except Exception:
         store.dispose()
         raise

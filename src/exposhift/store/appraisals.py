@@ -90,3 +90,17 @@ def independent_overall_levels(conn: Connection) -> list[dict[str, Any]]:
 def rubrics_held(conn: Connection) -> set[tuple[str, str]]:
     """Every (rubric id, content hash) that stored appraisals were made with."""
     return {(i, h) for i, h in conn.execute(select(AP.c.rubric_id, AP.c.rubric_hash).distinct())}
+
+
+def review_states(conn: Connection) -> dict[str, tuple[set[str], bool]]:
+    """Per appraised study key: its independent reviewers and whether a consensus exists."""
+    out: dict[str, tuple[set[str], bool]] = {}
+    rows = conn.execute(
+        select(ST.c.key, AP.c.reviewer, AP.c.stage).join(AP, AP.c.study_id == ST.c.id)
+    ).all()
+    for study, reviewer, stage in rows:
+        reviewers, consensus = out.get(study, (set(), False))
+        if stage == "independent":
+            reviewers.add(reviewer)
+        out[study] = (reviewers, consensus or stage == "consensus")
+    return out

@@ -16,6 +16,7 @@
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import getpass
 import os
 from collections.abc import Iterator
@@ -105,11 +106,23 @@ def describe_driver_error(exc: BaseException) -> str:
 
 @dataclass
 class Store:
-    """Owns the engine. Use :meth:`read` and :meth:`write` for transactions."""
+    """Owns the engine. Use :meth:`read` and :meth:`write` for transactions.
+
+    ``user`` is the name written to the audit trail; ``role`` (``exposhift.access.ROLES``) is
+    what the acting person may do: a ``reader`` store refuses every write. :meth:`acting`
+    gives a view of the same engine for another person (the dashboard's signed-in user).
+    """
 
     url: str
     user: str
     engine: Engine
+    role: str = "admin"
+    owns_engine: bool = True
+
+    def acting(self, user: str, role: str) -> Store:
+        """The same evidence base for ``user`` with ``role`` (shares this engine; disposing
+        the view leaves the engine open)."""
+        return dataclasses.replace(self, user=user, role=role, owns_engine=False)
 
     @property
     def is_sqlite(self) -> bool:
@@ -129,12 +142,18 @@ class Store:
             raise self._translate(exc) from None
 
     @contextlib.contextmanager
-    def write(self) -> Iterator[Connection]:
+    def write(self, *, bookkeeping: bool = False) -> Iterator[Connection]:
         """One write transaction: committed when the block ends, rolled back on any error.
 
         On SQLite it starts with ``BEGIN IMMEDIATE``: the write lock is taken up front, so a
-        second writer waits (busy timeout) rather than failing half-way.
+        second writer waits (busy timeout) rather than failing half-way. A ``reader`` store
+        refuses, unless ``bookkeeping`` (sign-in attempts and sessions, which every role
+        needs; never evidence).
         """
+        if self.role == "reader" and not bookkeeping:
+            from exposhift.access import Identity
+
+            Identity(self.user, self.role).require("write")
         try:
             with self.engine.connect() as conn:
                 conn = conn.execution_options(exposhift_write=True)
@@ -193,7 +212,8 @@ class Store:
         return int(conn.execute(select(func.count()).select_from(table)).scalar_one())
 
     def dispose(self) -> None:
-        self.engine.dispose()
+        if self.owns_engine:
+            self.engine.dispose()
 
 
 def not_a_database(url: str, msg: str = "") -> DatabaseError:

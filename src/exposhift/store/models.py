@@ -286,3 +286,51 @@ NATURAL_KEY["series"] = "key"
 
 VERSIONED["expected_direction"] = ExpectedDirection
 # ------------------------------------------------------------------ end expected directions
+
+
+# ------------------------------------------------------------------------------ accounts
+class Account(SQLModel, table=True):
+    """A person who may sign in: ``role`` is one of ``exposhift.access.ROLES``.
+
+    ``password_hash`` is an Argon2id hash (argon2-cffi); the password itself is never stored.
+    Written only through :mod:`exposhift.store.accounts` (versioned; audited without the hash).
+    """
+
+    __tablename__ = "account"
+    id: int | None = Field(default=None, primary_key=True)
+    name: str = Field(unique=True)
+    role: str
+    password_hash: str
+    disabled: bool = False
+    version: int = 1
+    created_at: str
+    updated_at: str
+
+
+class AccountSession(SQLModel, table=True):
+    """A signed-in session: the SHA-256 of its token (the token is never stored), when it
+    started, was last used, expires, and when it was ended by signing out (or None)."""
+
+    __tablename__ = "account_session"
+    id: int | None = Field(default=None, primary_key=True)
+    token_hash: str = Field(unique=True)
+    account_id: int = Field(sa_column=_fk("account.id", cascade=True))
+    created_at: str
+    last_seen_at: str
+    expires_at: str
+    ended_at: str | None = None
+
+
+class SignInAttempt(SQLModel, table=True):
+    """One sign-in attempt: the name as typed (case-folded), when, and whether it succeeded.
+    Failed attempts within a window rate-limit further attempts for that name."""
+
+    __tablename__ = "sign_in_attempt"
+    id: int | None = Field(default=None, primary_key=True)
+    name: str = Field(index=True)
+    at: str = Field(index=True)
+    outcome: str  # "ok", "failed", "limited"
+
+
+NATURAL_KEY["account"] = "name"
+# ------------------------------------------------------------------------------ end accounts

@@ -30,7 +30,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from exposhift.appraisal.rubric import load_rubric
+from exposhift.appraisal.rubric import Rubric, load_rubric
 from exposhift.errors import AnalysisError, ConfigError, NotFoundError
 from exposhift.services.lookup import require_name
 from exposhift.store.database import Store
@@ -136,14 +136,17 @@ def prepare_for_pooling(
     include_fatal: bool = False,
     align_to: str = "increase",
     min_level: int | None = None,
+    rubric: Rubric | None = None,
 ) -> tuple[pd.DataFrame, list[dict[str, Any]]]:
     """Steps 2-4: the evidence set, harmonise, keep independent estimates.
 
-    Returns the harmonised independent units to pool and the left-out estimates with reasons.
+    ``rubric`` says which overall levels are left out (the evidence base's rubric in force;
+    None: the packaged rubric). Returns the harmonised independent units to pool and the
+    left-out estimates with reasons.
     """
     excluded: list[dict[str, Any]] = []
     if not include_fatal:
-        rubric = load_rubric(None)
+        rubric = rubric if rubric is not None else load_rubric()
         fatal = frame["level"].isin(list(rubric.exclude_from_pooling))
         if fatal.any():
             excluded += _excluded_records(
@@ -218,10 +221,16 @@ def pool_evidence(
     within_event: str = "aggregate",
     rho: float = DEFAULT_RHO,
     details: bool = False,
+    rubric: Rubric | None = None,
 ) -> PoolOutput:
     """Pool one exposure x outcome; ``details`` adds leave-one-event-out, cumulative and the
-    small-study test to each group (the τ² interval is always there)."""
+    small-study test to each group (the τ² interval is always there). ``rubric``: a one-run
+    override; by default the rubric the evidence base records."""
     by = list(by or [])
+    if rubric is None:
+        from exposhift.services.workspace import stored_rubric
+
+        rubric = stored_rubric(store)
     _check_options(by, align_to, method, within_event, rho, min_level)
     with store.read() as conn:
         exposure = require_name(conn, "exposure", exposure)
@@ -246,7 +255,7 @@ def pool_evidence(
     }
     words = evidence_set_words(include_fatal, min_level)
     kept, excluded = prepare_for_pooling(
-        frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level
+        frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level, rubric=rubric
     )
     if kept.empty:
         return PoolOutput(

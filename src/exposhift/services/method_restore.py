@@ -33,6 +33,22 @@ def restore_method(conn, user: str, add: list[dict]) -> list[str]:
     return [f"method: restored {len(add)} version(s) from the archive ({shown})"]
 
 
+def method_rubrics(conn, frames: EvidenceFrames) -> set[tuple[str, str]]:
+    """(rubric id, content hash) of every rubric version stored here or in the archive."""
+    rubric = part("rubric")
+    texts = [(v.text, f"rubric version {v.number}") for v in method_versions(conn, "rubric")]
+    texts += [
+        (r["text"], f"archive rubric {r['number']}")
+        for r in frames.method or []
+        if r["part"] == "rubric"
+    ]
+    out = set()
+    for text, label in texts:
+        parsed = rubric.parse(text.encode("utf-8"), label)
+        out.add((parsed.rubric_id, parsed.content_hash))
+    return out
+
+
 def door_rubric(conn, frames: EvidenceFrames, rubric_path: str | Path | None):
     """The rubric an archive's appraisals are checked against: a one-run ``--rubric`` file,
     else the archive's rubric in force, else the one this evidence base records."""

@@ -115,18 +115,31 @@ def _finite(x: Any) -> Any:
     return x
 
 
-def evidence_set_words(include_fatal: bool, min_level: int | None) -> str:
-    """The evidence set of a pooled result, in words."""
+def evidence_set_words(
+    include_fatal: bool, min_level: int | None, left_out: tuple[int, ...] = (0,)
+) -> str:
+    """The evidence set of a pooled result, in words; ``left_out``: the overall levels the
+    rubric in force leaves out of pooling (``exclude_from_pooling``)."""
     if min_level is not None:
         return (
             f"studies appraised at overall level >= {min_level} (not-yet-appraised "
             "studies left out), one number per event"
         )
+    levels = ", ".join(str(lv) for lv in sorted(left_out))
     if include_fatal:
-        return "every study, fatal-overall ones included, one number per event"
+        if tuple(left_out) == (0,):
+            return "every study, fatal-overall ones included, one number per event"
+        return f"every study, those appraised at overall {levels} included, one number per event"
+    if tuple(left_out) == (0,):
+        return (
+            "every study except those appraised fatal overall (not-yet-appraised studies "
+            "included), one number per event"
+        )
+    if not left_out:
+        return "every study (the rubric in force leaves no level out), one number per event"
     return (
-        "every study except those appraised fatal overall (not-yet-appraised studies "
-        "included), one number per event"
+        f"every study except those appraised at overall {levels} (left out by the rubric in "
+        "force; not-yet-appraised studies included), one number per event"
     )
 
 
@@ -153,8 +166,8 @@ def prepare_for_pooling(
                 frame[fatal],
                 frame.loc[fatal, "level"].map(
                     lambda lv: (
-                        f"appraisal of record overall {int(lv)} (fatal): left out of "
-                        "pooling by default (--include-fatal keeps it)"
+                        f"appraisal of record overall {int(lv)} ({rubric.level_name(int(lv))}): "
+                        "left out of pooling by default (--include-fatal keeps it)"
                     )
                 ),
             )
@@ -253,7 +266,7 @@ def pool_evidence(
         "within_event": within_event,
         "rho": float(rho) if within_event == "aggregate" else None,
     }
-    words = evidence_set_words(include_fatal, min_level)
+    words = evidence_set_words(include_fatal, min_level, tuple(rubric.exclude_from_pooling))
     kept, excluded = prepare_for_pooling(
         frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level, rubric=rubric
     )

@@ -24,7 +24,6 @@ from exposhift.store.database import open_store
 from exposhift.store.migrate import alembic_config
 from exposhift.store.writer import Writer
 
-
 #: a new evidence base starts with one audited version of each method part
 METHOD = len(METHOD_PARTS)
 
@@ -70,7 +69,7 @@ def test_untouched_chain_verifies_and_hash_is_sha256_of_the_entry(store):
     )
     assert first["entry_hash"] == hashlib.sha256(payload.encode()).hexdigest()
     assert audit_chain_head(store).head == report.head.head
-    assert audit_chain_head(store).entries == 8
+    assert audit_chain_head(store).entries == 8 + METHOD
 
 
 def test_update_of_an_entry_is_caught(store):
@@ -168,7 +167,9 @@ def test_cli_verify_and_show(store):
     _sql(store, "UPDATE audit_entry SET after = '{}' WHERE id = (SELECT MAX(id) FROM audit_entry)")
     bad = runner.invoke(app, ["--db", store.url, "audit", "verify"])
     assert bad.exit_code == 7
-    assert bad.output.startswith("error: audit trail broken after 7 intact entries: entry ")
+    assert bad.output.startswith(
+        f"error: audit trail broken after {7 + METHOD} intact entries: entry "
+    )
     since = runner.invoke(app, ["--db", store.url, "audit", "show", "--since", "yesterday"])
     assert since.exit_code == 2 and "YYYY-MM-DD" in since.output
     with pytest.raises(Exception, match="--entries N and --head"):

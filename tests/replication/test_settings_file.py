@@ -48,8 +48,8 @@ def test_every_problem_is_reported_with_its_line():
         ("alpha", "alpha must be between 0 and 1"),
         ("min_place", "unknown setting 'min_place'"),
         ("min_years_apart", "setting min_years_apart was replaced; use min_months_apart"),
-        ("supporting_families", "must be a list"),
-        ("nordic", "ISO alpha-3"),
+        ("supporting_families", "supporting_families must be a list"),
+        ("nordic", "region 'nordic' must be a list of ISO alpha-3"),
         ("[threshold]", "unknown table or key 'threshold'"),
     ]:
         assert f"r.toml, line {line_of(text, start)}: {words}" in msg

@@ -122,6 +122,8 @@ def show_cmd(
         for d in ap["domains"]:
             if record.ratings and d in record.ratings:
                 typer.echo(f"    {d:<20} {record.ratings[d]}")
+    if ap.get("older_rubric"):
+        typer.echo(f"note: {ap['older_rubric']}")
     typer.echo(f"note: {ap['caution']}")
 
 

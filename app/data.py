@@ -14,9 +14,7 @@ import pandas as pd
 import streamlit as st
 
 from exposhift.access import Identity
-from exposhift.appraisal.rubric import load_rubric
-from exposhift.replication.settings import load_settings
-from exposhift.services import accounts, appraising, browse, replicating, setup
+from exposhift.services import accounts, appraising, browse, replicating, setup, workspace
 from exposhift.services import summary as summary_service
 from exposhift.store.database import Store, mask_url, resolve_url
 
@@ -89,9 +87,9 @@ def appraisals(db: str | None, study: str, viewer: Identity) -> dict:
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
-def domain_titles() -> dict[str, str]:
-    """Rubric domain key -> its title (the rubric in force)."""
-    return {d.key: d.title for d in load_rubric(None).domains}
+def domain_titles(db: str | None = None) -> dict[str, str]:
+    """Rubric domain key -> its title (the rubric the evidence base records)."""
+    return {d.key: d.title for d in workspace.stored_rubric(_store(db)).domains}
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
@@ -158,9 +156,9 @@ def gaps(
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
-def replication_settings():
-    """The thresholds in force (``evidence/replication.toml`` or the defaults)."""
-    return load_settings()
+def replication_settings(db: str | None = None):
+    """The thresholds in force: the settings the evidence base records."""
+    return workspace.stored_settings(_store(db))
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)

@@ -15,7 +15,7 @@ db = data.db_target()
 # 1. data and filters ------------------------------------------------------------------------
 with ui.guard():
     summary = data.summary(db)
-    settings = data.replication_settings()
+    settings = data.replication_settings(db)
 
 st.title("Gap map")
 ui.caution()

@@ -77,6 +77,8 @@ with tab_studies:
             f"{view['independent']} independent appraisal(s)"
         )
         record = view["of_record"]
+        if view.get("older_rubric"):
+            st.warning(view["older_rubric"])
         if record is None:
             st.info(
                 "No consensus appraisal yet: this study has no level of record and is "
@@ -95,7 +97,7 @@ with tab_studies:
                 for d in view["domains"]
             ]
         if table:
-            titles = data.domain_titles()
+            titles = data.domain_titles(db)
             frame = pd.DataFrame(table, index=["overall", *view["domains"]])
             frame.insert(
                 0,
@@ -116,7 +118,7 @@ with tab_studies:
                 f"Not shown to you: {', '.join(a.reviewer for a in hidden)} ({hidden[0].reason})."
             )
         if record is not None and record.justifications:
-            titles = data.domain_titles()
+            titles = data.domain_titles(db)
             with st.expander("Reasons recorded with the appraisal of record"):
                 for d, why in record.justifications.items():
                     st.markdown(f"- **{titles.get(d, d)}**: {why}")

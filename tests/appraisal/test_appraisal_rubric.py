@@ -148,14 +148,15 @@ def test_new_version_and_new_hash_while_the_old_rubric_keeps_its_own(tmp_path, r
     assert new.label.startswith("exposhift-natural-experiments 1.1 (")
 
 
-def test_default_prefers_the_workspace_copy(tmp_path, monkeypatch, rubric_text):
+def test_default_ignores_the_working_folder(tmp_path, monkeypatch, rubric_text, rubric):
+    # the method lives in the evidence base: a rubric.toml in ./evidence is never read
     (tmp_path / "evidence").mkdir()
     local = edited(rubric_text, 'version = "1.0"', 'version = "committee-2"')
     write(tmp_path / "evidence", local)
     monkeypatch.chdir(tmp_path)
     loaded = load_rubric()
-    assert loaded.version == "committee-2"
-    assert loaded.path.resolve() == (tmp_path / "evidence" / "rubric.toml").resolve()
+    assert loaded.version == rubric.version
+    assert loaded.path.resolve() == PACKAGED_FILE.resolve()
 
 
 def test_default_falls_back_to_the_packaged_copy(tmp_path, monkeypatch, rubric):

@@ -284,12 +284,13 @@ def test_demo_refuses_a_base_with_a_reviewers_own_appraisal_unless_forced(tmp_pa
 
 
 # -------------------------------------------------------------------------------- init
-def test_init_says_where_the_rubric_and_thresholds_in_force_are(tmp_path, monkeypatch):
+def test_init_says_which_method_it_records_and_how_to_change_it(tmp_path, monkeypatch):
     monkeypatch.chdir(tmp_path)
     text = ok("init").stdout
-    assert "rubric" in text and "rubric.toml" in text
-    assert "thresholds" in text and "evidence/replication.toml" in text
-    assert "to change:" in text and "cp " in text
+    assert "method recorded in this evidence base" in text
+    assert "rubric    version 1 exposhift-natural-experiments" in text
+    assert "settings  version 1" in text and "packaged default" in text
+    assert "to change it: exposhift method set rubric FILE.toml" in text
 
 
 def test_demo_refuses_a_base_with_an_edited_demo_record_or_an_extra_table(tmp_path):

@@ -13,6 +13,7 @@ from typer.testing import CliRunner
 
 from exposhift.cli.main import app
 from exposhift.io.synthetic import synthetic_sheet
+from exposhift.method.parts import METHOD_PARTS
 
 runner = CliRunner()
 
@@ -63,7 +64,7 @@ def test_bad_file_reports_every_problem_and_writes_nothing(db, tmp_path):
     assert lines[1].startswith("  bad.csv, row 3, column 'country': unknown ISO 3166-1")
     assert lines[2].startswith("  bad.csv, row 4, column 'se': standard error -1")
     assert "Traceback" not in out.output
-    assert info(db)["estimates"] == 0 and info(db)["audit_entries"] == 0
+    assert info(db)["estimates"] == 0 and info(db)["audit_entries"] == len(METHOD_PARTS)
 
 
 def test_dry_run(db, tmp_path):
@@ -72,7 +73,7 @@ def test_dry_run(db, tmp_path):
     assert out.exit_code == 0
     assert out.stdout.startswith("dry run: nothing was written.")
     assert "  studies           2         0          0" in out.stdout
-    assert info(db)["studies"] == 0 and info(db)["audit_entries"] == 0
+    assert info(db)["studies"] == 0 and info(db)["audit_entries"] == len(METHOD_PARTS)
 
 
 def test_encoding_option(db, tmp_path):

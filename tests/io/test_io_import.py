@@ -10,6 +10,7 @@ import pytest
 from io_helpers import count, row, table_dump, two_rows
 
 from exposhift.errors import InputFileError
+from exposhift.method.parts import METHOD_PARTS
 from exposhift.services.importing import import_into
 from exposhift.store import records
 from exposhift.store.writer import Writer, audit_rows
@@ -53,7 +54,8 @@ def test_import_adds_every_entity_once(store, sheet):
     assert (st["year"], st["checks"], st["pre_points"]) == (2005, "pre-trends", 24)
     assert out["outcome_group"] == "respiratory"
     # one audit entry per inserted row, naming the row by its natural key
-    assert count(store, "audit_entry") == 1 + 2 + 2 + 2 + 3
+    # (+ one per method part, recorded when the base was created)
+    assert count(store, "audit_entry") == 1 + 2 + 2 + 2 + 3 + len(METHOD_PARTS)
     with store.read() as conn:
         (entry,) = audit_rows(conn, row_key="S1|E1|asthma|RR|change||")
     assert entry["action"] == "insert" and entry["user"] == "tester"

@@ -15,6 +15,7 @@ from sqlalchemy import text
 from typer.testing import CliRunner
 
 from exposhift.cli.main import app
+from exposhift.method.parts import METHOD_PARTS
 from exposhift.services.auditing import show_audit, verify_audit
 from exposhift.services.setup import init_database, open_current
 from exposhift.store import records
@@ -22,6 +23,9 @@ from exposhift.store.audit_chain import GENESIS, audit_chain_head, verify_chain
 from exposhift.store.database import open_store
 from exposhift.store.migrate import alembic_config
 from exposhift.store.writer import Writer
+
+#: a new evidence base starts with one audited version of each method part
+METHOD = len(METHOD_PARTS)
 
 
 def _seed(store, n=4):
@@ -46,7 +50,7 @@ def _sql(store, sql, **params):
 def test_untouched_chain_verifies_and_hash_is_sha256_of_the_entry(store):
     _seed(store)
     report = _verify(store)
-    assert report.ok and report.checked == 8 and report.bad_id is None
+    assert report.ok and report.checked == 8 + METHOD and report.bad_id is None
     with store.read() as conn:
         first = conn.execute(text("SELECT * FROM audit_entry ORDER BY id LIMIT 1")).mappings().one()
     payload = json.dumps(
@@ -65,7 +69,7 @@ def test_untouched_chain_verifies_and_hash_is_sha256_of_the_entry(store):
     )
     assert first["entry_hash"] == hashlib.sha256(payload.encode()).hexdigest()
     assert audit_chain_head(store).head == report.head.head
-    assert audit_chain_head(store).entries == 8
+    assert audit_chain_head(store).entries == 8 + METHOD
 
 
 def test_update_of_an_entry_is_caught(store):
@@ -145,7 +149,7 @@ def test_migration_chains_entries_written_before_it(db_url):
     try:
         _seed(s, 1)
         report = _verify(s)
-        assert report.ok and report.checked == 5
+        assert report.ok and report.checked == 3 + METHOD + 2
     finally:
         s.dispose()
 
@@ -154,7 +158,7 @@ def test_cli_verify_and_show(store):
     _seed(store)
     runner = CliRunner()
     ok = runner.invoke(app, ["--db", store.url, "audit", "verify"])
-    assert ok.exit_code == 0 and "audit trail intact: 8 entries" in ok.output
+    assert ok.exit_code == 0 and f"audit trail intact: {8 + METHOD} entries" in ok.output
     shown = runner.invoke(app, ["--db", store.url, "audit", "show", "--user", "user1"])
     assert shown.exit_code == 0
     assert shown.output.count("insert") == 4 and "user0" not in shown.output
@@ -163,7 +167,9 @@ def test_cli_verify_and_show(store):
     _sql(store, "UPDATE audit_entry SET after = '{}' WHERE id = (SELECT MAX(id) FROM audit_entry)")
     bad = runner.invoke(app, ["--db", store.url, "audit", "verify"])
     assert bad.exit_code == 7
-    assert bad.output.startswith("error: audit trail broken after 7 intact entries: entry ")
+    assert bad.output.startswith(
+        f"error: audit trail broken after {7 + METHOD} intact entries: entry "
+    )
     since = runner.invoke(app, ["--db", store.url, "audit", "show", "--since", "yesterday"])
     assert since.exit_code == 2 and "YYYY-MM-DD" in since.output
     with pytest.raises(Exception, match="--entries N and --head"):

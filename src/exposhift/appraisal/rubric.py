@@ -14,10 +14,13 @@ Content hash
     safety net when someone edits the text and forgets to raise it.
 
 Where the rubric comes from
-    ``load_rubric(path)`` reads ``path``. ``load_rubric()`` reads ``./evidence/rubric.toml`` in
-    the working directory (the workspace copy a committee edits) when it exists, otherwise the
-    copy packaged with exposhift (``exposhift/data/rubric.toml``, identical to the repository's
-    ``evidence/rubric.toml``).
+    The rubric in force is a record of the evidence base (``exposhift method show``; services
+    read it through :func:`exposhift.services.workspace.open_workspace`). ``load_rubric(path)``
+    reads a file (``exposhift method set rubric FILE`` and the one-run ``--rubric FILE``);
+    :func:`rubric_from_bytes` checks stored text. ``load_rubric()`` without a path gives the copy
+    packaged with exposhift (``exposhift/data/rubric.toml``, identical to the repository's
+    ``evidence/rubric.toml``): what ``exposhift init`` stores in a new evidence base. Nothing is
+    read from the working folder.
 
 Errors
     Any problem raises :class:`~exposhift.errors.RubricError` naming the file, the line and what
@@ -62,10 +65,9 @@ __all__ = [
     "load_rubric",
     "normalise_bytes",
     "packaged_rubric_path",
+    "rubric_from_bytes",
     "rubric_hash",
 ]
-
-WORKSPACE_RUBRIC = Path("evidence") / "rubric.toml"
 
 
 def normalise_bytes(data: bytes) -> bytes:
@@ -85,9 +87,8 @@ def packaged_rubric_path() -> Path:
 
 
 def default_rubric_path() -> Path:
-    """``./evidence/rubric.toml`` when it exists in the working directory, else the packaged."""
-    local = Path.cwd() / WORKSPACE_RUBRIC
-    return local if local.is_file() else packaged_rubric_path()
+    """The packaged rubric (the working folder is never read: the method lives in the base)."""
+    return packaged_rubric_path()
 
 
 _AT = re.compile(r"^(?P<msg>.*?)\s*\(at line (?P<line>\d+), column (?P<col>\d+)\)$", re.S)
@@ -138,16 +139,24 @@ def load_rubric(path: str | Path | None = None) -> Rubric:
         data = file.read_bytes()
     except FileNotFoundError:
         raise RubricError(
-            f"rubric file not found: {label}; give the path of an existing rubric.toml, or "
-            "none to use ./evidence/rubric.toml or the packaged rubric"
+            f"rubric file not found: {label}; give the path of an existing rubric.toml"
         ) from None
     except OSError as exc:
         raise RubricError(f"cannot read the rubric file {label}: {exc.strerror}") from None
+    return rubric_from_bytes(data, label, path=file)
+
+
+def rubric_from_bytes(data: bytes, label: str, *, path: Path | None = None) -> Rubric:
+    """Check rubric text (as stored in the evidence base or read from a file).
+
+    ``label`` names the source in errors (a file path, or ``rubric version 3 of the evidence
+    base``). Raises :class:`RubricError` naming the line of the first problem found.
+    """
     data = normalise_bytes(data)
     text, parts = _parse(label, data)
     return Rubric(
         content_hash=hashlib.sha256(data).hexdigest(),
-        path=file,
+        path=path,
         text=text,
         **parts,
     )

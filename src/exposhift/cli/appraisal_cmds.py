@@ -7,7 +7,7 @@ from pathlib import Path
 
 import typer
 
-from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.common import print_json, user_errors, with_overrides, workspace
 from exposhift.cli.helptext import Group
 
 appraise_app = typer.Typer(
@@ -34,7 +34,10 @@ def appraise_import(
         None, "--encoding", help="Text encoding of a CSV file (default UTF-8, with or without BOM)."
     ),
     rubric: Path | None = typer.Option(
-        None, "--rubric", help="Rubric file (default evidence/rubric.toml)."
+        None,
+        "--rubric",
+        help="One-run override: a rubric file used instead of the evidence base's rubric "
+        "(exposhift method show; method set rubric FILE stores one).",
     ),
     dry_run: bool = typer.Option(False, "--dry-run", help="Check and report; write nothing."),
 ) -> None:
@@ -43,16 +46,11 @@ def appraise_import(
     Example: exposhift --user ana appraise import appraisals.csv --dry-run
     """
     from exposhift.services.appraising import import_appraisals
-    from exposhift.services.setup import open_current
 
-    s = settings(ctx)
-    store = open_current(s.db, s.user)
-    try:
+    with workspace(ctx, rubric=rubric) as ws:
         summary = import_appraisals(
-            store, file, encoding=encoding, rubric_path=rubric, dry_run=dry_run
+            ws.store, file, encoding=encoding, rubric_path=rubric, dry_run=dry_run
         )
-    finally:
-        store.dispose()
     verb = "would add" if dry_run else "added"
     stages = ", ".join(f"{n} {stage}" for stage, n in sorted(summary.by_stage.items()))
     typer.echo(
@@ -66,7 +64,12 @@ def appraise_import(
 def appraise_show(
     ctx: typer.Context,
     study_id: str = typer.Argument(..., help="The study's key."),
-    rubric: Path | None = typer.Option(None, "--rubric", help="Rubric file."),
+    rubric: Path | None = typer.Option(
+        None,
+        "--rubric",
+        help="One-run override: a rubric file used instead of the evidence base's rubric "
+        "(exposhift method show; method set rubric FILE stores one).",
+    ),
     as_json: bool = typer.Option(False, "--json", help="Print JSON."),
 ) -> None:
     """Show a study's appraisals as the global --user sees them (blinding by identity: a
@@ -76,21 +79,19 @@ def appraise_show(
     Example: exposhift --user ana appraise show Example2004
     """
     from exposhift.services.appraising import show_appraisals
-    from exposhift.services.setup import open_current
 
-    s = settings(ctx)
-    store = open_current(s.db, s.user)
-    try:
-        data = show_appraisals(store, study_id, None, rubric)
-    finally:
-        store.dispose()
+    with workspace(ctx, as_json=as_json, rubric=rubric) as ws:
+        data = show_appraisals(ws.store, study_id, None, rubric)
     if as_json:
         print_json(
-            {
-                **data,
-                "appraisals": [vars(v) for v in data["appraisals"]],
-                "of_record": vars(data["of_record"]) if data["of_record"] else None,
-            }
+            with_overrides(
+                {
+                    **data,
+                    "appraisals": [vars(v) for v in data["appraisals"]],
+                    "of_record": vars(data["of_record"]) if data["of_record"] else None,
+                },
+                ws,
+            )
         )
         return
     typer.echo(f"{data['study_id']}  {data['citation']}  [{data['design']}]")
@@ -112,6 +113,8 @@ def appraise_show(
                 if d in v.justifications:
                     line += f"   why: {v.justifications[d]}"
                 typer.echo(line)
+    if data.get("older_rubric"):
+        typer.echo(f"note: {data['older_rubric']}")
     typer.echo(f"note: {data['caution']}")
 
 
@@ -126,14 +129,10 @@ def agreement_cmd(
     Example: exposhift agreement --json
     """
     from exposhift.services.appraising import agreement
-    from exposhift.services.setup import open_current
 
-    s = settings(ctx)
-    store = open_current(s.db, s.user)
-    try:
+    with workspace(ctx) as ws:
+        store = ws.store
         table = agreement(store)
-    finally:
-        store.dispose()
     if as_json:
         print_json(table.to_dict(orient="records"))
         return

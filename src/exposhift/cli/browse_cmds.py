@@ -7,7 +7,7 @@ from typing import Any
 
 import typer
 
-from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.common import print_json, user_errors, workspace
 from exposhift.cli.tables import render
 
 LIST_CHOICES = ("exposures", "outcomes", "studies", "events")
@@ -41,14 +41,10 @@ def list_cmd(
     Example: exposhift list outcomes --exposure vellium
     """
     from exposhift.services.listing import list_records
-    from exposhift.services.setup import open_current
 
-    s = settings(ctx)
-    store = open_current(s.db, s.user)
-    try:
+    with workspace(ctx) as ws:
+        store = ws.store
         table = list_records(store, what.lower(), exposure)
-    finally:
-        store.dispose()
     if as_json:
         print_json(table.to_dict(orient="records"))
         return
@@ -77,14 +73,10 @@ def show_cmd(
     Example: exposhift show Example2004
     """
     from exposhift.services.listing import study_record
-    from exposhift.services.setup import open_current
 
-    s = settings(ctx)
-    store = open_current(s.db, s.user)
-    try:
+    with workspace(ctx) as ws:
+        store = ws.store
         rec = study_record(store, study_id, store.user)
-    finally:
-        store.dispose()
     if as_json:
         print_json(rec.to_dict())
         return
@@ -130,6 +122,8 @@ def show_cmd(
         for d in ap["domains"]:
             if record.ratings and d in record.ratings:
                 typer.echo(f"    {d:<20} {record.ratings[d]}")
+    if ap.get("older_rubric"):
+        typer.echo(f"note: {ap['older_rubric']}")
     typer.echo(f"note: {ap['caution']}")
 
 

@@ -2,16 +2,21 @@
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import json
 import sys
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
-from typing import Any, TypeVar
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, TypeVar
 
 import typer
 
 from exposhift.errors import ExposhiftError
+
+if TYPE_CHECKING:  # pragma: no cover
+    from exposhift.services.workspace import Workspace
 
 F = TypeVar("F", bound=Callable[..., Any])
 
@@ -28,6 +33,34 @@ def settings(ctx: typer.Context) -> Settings:
     if not isinstance(root.obj, Settings):
         root.obj = Settings()
     return root.obj
+
+
+@contextlib.contextmanager
+def workspace(
+    ctx: typer.Context, *, as_json: bool = False, **overrides: Path | None
+) -> Iterator[Workspace]:
+    """The evidence base of ``--db`` opened once, with the method it records.
+
+    ``overrides`` (``rubric=FILE``, ``settings=FILE``) are one-run overrides. Their notes
+    ``one-run override: ...`` are printed first: on stdout for text output, on stderr with
+    ``as_json`` (JSON objects also carry them as a field, :func:`with_overrides`). The store is
+    closed when the block ends.
+    """
+    from exposhift.services.workspace import open_workspace
+
+    s = settings(ctx)
+    given = {k: v for k, v in overrides.items() if v is not None}
+    with open_workspace(s.db, s.user, overrides=given) as ws:
+        for note in ws.overrides:
+            typer.echo(note, err=as_json)
+        yield ws
+
+
+def with_overrides(value: Any, ws: Workspace) -> Any:
+    """A JSON object with the field ``one_run_override`` when this run used an override."""
+    if ws.overrides and isinstance(value, dict):
+        return {**value, "one_run_override": ws.overrides}
+    return value
 
 
 def fail(message: str, code: int = 1) -> None:

@@ -6,7 +6,7 @@ from pathlib import Path
 
 import typer
 
-from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.common import print_json, user_errors, workspace
 from exposhift.cli.helptext import Group
 from exposhift.cli.tables import render
 
@@ -21,13 +21,6 @@ direction_app = typer.Typer(
 
 def register(app: typer.Typer) -> None:
     app.add_typer(direction_app, name="direction")
-
-
-def _open(ctx: typer.Context):
-    from exposhift.services.setup import open_current
-
-    s = settings(ctx)
-    return open_current(s.db, s.user)
 
 
 @direction_app.command("set")
@@ -59,8 +52,8 @@ def direction_set(
     """  # noqa: E501
     from exposhift.services.directions import set_direction
 
-    store = _open(ctx)
-    try:
+    with workspace(ctx) as ws:
+        store = ws.store
         result = set_direction(
             store,
             exposure,
@@ -71,8 +64,6 @@ def direction_set(
             decided_at=at,
             expected_version=if_version,
         )
-    finally:
-        store.dispose()
     if as_json:
         print_json(result.to_dict())
         return
@@ -98,11 +89,9 @@ def direction_clear(
     """
     from exposhift.services.directions import clear_direction
 
-    store = _open(ctx)
-    try:
+    with workspace(ctx) as ws:
+        store = ws.store
         result = clear_direction(store, exposure, outcome, expected_version=if_version)
-    finally:
-        store.dispose()
     typer.echo(
         f"cleared: {result.exposure} x {result.outcome} (was version {result.version}); "
         "its direction will be inferred from the data and its status marked provisional"
@@ -121,11 +110,9 @@ def direction_list(
     """
     from exposhift.services.directions import list_directions
 
-    store = _open(ctx)
-    try:
+    with workspace(ctx) as ws:
+        store = ws.store
         frame = list_directions(store)
-    finally:
-        store.dispose()
     if as_json:
         print_json(frame.to_dict("records"))
         return
@@ -176,11 +163,9 @@ def direction_import(
     """
     from exposhift.services.directions import import_directions
 
-    store = _open(ctx)
-    try:
+    with workspace(ctx) as ws:
+        store = ws.store
         result = import_directions(store, file, encoding=encoding, dry_run=dry_run)
-    finally:
-        store.dispose()
     add, upd = ("would add", "would update") if dry_run else ("added", "updated")
     typer.echo(
         f"{add} {result.added} expected directions, {upd} {result.updated}, "

@@ -5,9 +5,11 @@ Services are imported inside each command, so that ``exposhift --help`` stays fa
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import typer
 
-from exposhift.cli.common import fail, print_json, settings, user_errors
+from exposhift.cli.common import fail, print_json, user_errors, workspace
 from exposhift.cli.helptext import Group
 
 dossier_app = typer.Typer(
@@ -46,6 +48,14 @@ def dossier(
     since: str | None = typer.Option(
         None, "--since", help="An earlier bundle: its changes become the first section."
     ),
+    rubric: Path | None = typer.Option(
+        None, "--rubric", help="One-run override: a rubric file instead of the base's rubric."
+    ),
+    settings_file: Path | None = typer.Option(
+        None,
+        "--settings",
+        help="One-run override: a settings file instead of the base's settings.",
+    ),
 ) -> None:
     """Write the dossier of one exposure: question, summary, studies, figures, gaps, methods.
 
@@ -56,13 +66,10 @@ def dossier(
     if not exposure:
         fail("name the exposure with --exposure (or run 'exposhift dossier diff OLD_BUNDLE')", 2)
     from exposhift.services.dossier import build_dossier
-    from exposhift.services.setup import open_current
 
-    s = settings(ctx)
-    store = open_current(s.db, s.user)
-    try:
+    with workspace(ctx, rubric=rubric, settings=settings_file) as ws:
         res = build_dossier(
-            store,
+            ws.store,
             exposure,
             outcomes=outcome or None,
             out=out,
@@ -71,9 +78,8 @@ def dossier(
             as_of=as_of,
             force=force,
             since=since,
+            method=ws.method,
         )
-    finally:
-        store.dispose()
     typer.echo(
         f"dossier of {exposure} written to {res.out}/ (fingerprint "
         f"{res.fingerprint[:16]}, made {res.made_at})"
@@ -106,17 +112,12 @@ def diff(
     Example: exposhift dossier diff dossiers/dravonil/bundle
     """  # noqa: E501
     from exposhift.services.dossier import diff_dossier
-    from exposhift.services.setup import open_current
 
-    store = None
     if new is None:
-        s = settings(ctx)
-        store = open_current(s.db, s.user)
-    try:
-        result = diff_dossier(store, old, new)
-    finally:
-        if store is not None:
-            store.dispose()
+        with workspace(ctx) as ws:
+            result = diff_dossier(ws.store, old, new)
+    else:
+        result = diff_dossier(None, old, new)
     if as_json:
         print_json(result.to_dict())
         return

@@ -104,9 +104,18 @@ def _run_import(
     finally:
         if bar is not None:
             bar.close()
+    note = (
+        f"one-run override: rubric from {rubric} for the archive's appraisals; nothing of it "
+        "was stored"
+        if rubric is not None
+        else None
+    )
     if as_json:
-        print_json(report.to_dict())
+        out = report.to_dict()
+        print_json({**out, "one_run_override": [note]} if note else out)
     elif not quiet:
+        if note:
+            typer.echo(note)
         _print_report(report)
 
 
@@ -151,8 +160,8 @@ _REPLACE = typer.Option(
 _RUBRIC = typer.Option(
     None,
     "--rubric",
-    help="Archive only: the rubric its appraisals are checked against "
-    "(default evidence/rubric.toml).",
+    help="Archive only, one-run override: the rubric its appraisals are checked against "
+    "(default: the archive's rubric, else the evidence base's; exposhift method show).",
 )
 
 

@@ -17,6 +17,7 @@ from exposhift.cli import (
     direction_cmds,
     dossier_cmds,
     io_cmds,
+    method_cmds,
     replication_cmds,
     series_cmds,
     store_cmds,
@@ -87,6 +88,7 @@ for _module in (
     series_cmds,
     dossier_cmds,
     user_cmds,
+    method_cmds,
 ):
     _module.register(app)
 

@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING, Any
 
 import typer
 
-from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.common import print_json, user_errors, with_overrides, workspace
 from exposhift.cli.tables import render
 
 if TYPE_CHECKING:
@@ -296,7 +296,10 @@ def replication(
         "or 'exposure / change kind').",
     ),
     settings_file: Path | None = typer.Option(
-        None, "--settings", help="Thresholds file (default: evidence/replication.toml)."
+        None,
+        "--settings",
+        help="One-run override: a settings file used instead of the evidence base's settings "
+        "(exposhift method show; method set settings FILE stores one).",
     ),
 ) -> None:
     """Has the effect of this exposure on this outcome been shown again in other places, at
@@ -304,29 +307,24 @@ def replication(
 
     Example: exposhift replication --exposure dravonil --outcome "preterm birth"
     """
-    from exposhift.replication.settings import EXPECTED_CHOICES, load_settings
+    from exposhift.replication.settings import EXPECTED_CHOICES
     from exposhift.services.replicating import replication_for
-    from exposhift.services.setup import open_current
 
     if expected is not None and expected not in EXPECTED_CHOICES:
         from exposhift.errors import ConfigError
 
         raise ConfigError(f"--expected must be one of {', '.join(EXPECTED_CHOICES)}")
-    s = settings(ctx)
-    store = open_current(s.db, s.user)
-    try:
+    with workspace(ctx, as_json=as_json, settings=settings_file) as ws:
         rep = replication_for(
-            store,
+            ws.store,
             exposure,
             outcome,
-            settings=load_settings(settings_file),
+            settings=ws.method.settings,
             expected=expected,
             family=family,
         )
-    finally:
-        store.dispose()
     if as_json:
-        print_json(rep.to_dict())
+        print_json(with_overrides(rep.to_dict(), ws))
     else:
         typer.echo(render_replication(rep))
 
@@ -349,7 +347,7 @@ def gaps(
         None,
         "--region",
         help="Keep only events in these regions (UN M49 continents or the "
-        "regions table of evidence/replication.toml).",
+        "regions table of the settings in force: exposhift method show).",
     ),
     country: list[str] | None = typer.Option(
         None, "--country", help="Keep only events in these countries (ISO alpha-3)."
@@ -366,7 +364,10 @@ def gaps(
         False, "--studied-only", help="Leave out the no-study cells (the listing can be long)."
     ),
     settings_file: Path | None = typer.Option(
-        None, "--settings", help="Thresholds file (default: evidence/replication.toml)."
+        None,
+        "--settings",
+        help="One-run override: a settings file used instead of the evidence base's settings "
+        "(exposhift method show; method set settings FILE stores one).",
     ),
 ) -> None:
     """The evidence-gap map: exposure x outcome group, with replication status and state, and
@@ -374,9 +375,7 @@ def gaps(
 
     Example: exposhift gaps --studied-only --region Europe
     """
-    from exposhift.replication.settings import load_settings
     from exposhift.services.replicating import GapFilters, gap_report
-    from exposhift.services.setup import open_current
 
     filters = GapFilters(
         design_families=_split(design_family),
@@ -388,13 +387,9 @@ def gaps(
         stale_after=stale_after,
         studied_only=studied_only,
     )
-    s = settings(ctx)
-    store = open_current(s.db, s.user)
-    try:
-        rep = gap_report(store, filters, settings=load_settings(settings_file))
-    finally:
-        store.dispose()
+    with workspace(ctx, as_json=as_json, settings=settings_file) as ws:
+        rep = gap_report(ws.store, filters, settings=ws.method.settings)
     if as_json:
-        print_json(rep.to_dict())
+        print_json(with_overrides(rep.to_dict(), ws))
     else:
         typer.echo(render_gaps(rep))

@@ -10,11 +10,10 @@ from exposhift.cli.common import print_json, settings, user_errors
 @user_errors
 def init(ctx: typer.Context) -> None:
     """Create the evidence base, or upgrade it to the newest schema without losing data, and
-    say where the rubric and thresholds in force are and how to adapt them.
+    record the method (rubric, settings) it uses: the packaged defaults in a new base.
 
     Example: exposhift --db evidence/evidence.db init
     """
-    from exposhift.services.methods import methods_in_force
     from exposhift.services.setup import init_database
 
     s = settings(ctx)
@@ -25,16 +24,16 @@ def init(ctx: typer.Context) -> None:
         typer.echo(f"evidence base {result.url} is up to date (schema {result.after})")
     else:
         typer.echo(f"upgraded {result.url} from schema {result.before} to {result.after}")
-    typer.echo("method files in force here (they change results and are recorded with them):")
-    for m in methods_in_force():
-        where = m.path or "built-in defaults"
-        kind = (
-            "this workspace's copy"
-            if m.workspace
-            else ("packaged default" if m.path else "no thresholds file here")
+    typer.echo("method recorded in this evidence base (it changes results; every command uses it):")
+    for name, p in result.method.parts.items():
+        declared = f" {p.declared}" if p.declared else ""
+        typer.echo(
+            f"  {name:<9} version {p.number}{declared} (hash {p.content_hash[:12]}; {p.source})"
         )
-        typer.echo(f"  {m.what:<10} {where} ({kind})")
-        typer.echo(f"  {'':<10} to change: {m.how_to_change}")
+    typer.echo(
+        "  to change it: exposhift method set rubric FILE.toml / method set settings FILE.toml "
+        "(exposhift method show prints the text in force)"
+    )
 
 
 @user_errors

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import typer
 
-from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.common import print_json, user_errors, with_overrides, workspace
 
 #: the --by choices (the keys of exposhift.services.pooling.STRATA; a test checks they agree)
 _BY_HELP = (
@@ -75,20 +77,23 @@ def pool_cmd(
         help="Add leave-one-event-out, cumulative by date of change and the small-study test.",
     ),
     as_json: bool = typer.Option(False, "--json", help="Print JSON: one object per group."),
+    rubric: Path | None = typer.Option(
+        None,
+        "--rubric",
+        help="One-run override: a rubric file used instead of the evidence base's rubric "
+        "(exposhift method show; method set rubric FILE stores one).",
+    ),
 ) -> None:
     """Pool comparable estimates of one exposure and one outcome, one number per event.
 
     Example: exposhift pool --exposure dravonil --outcome "preterm birth" --details
     """
     from exposhift.services.pooling import pool_evidence
-    from exposhift.services.setup import open_current
     from exposhift.synthesis.event_pooling import WITHIN_EVENT
 
-    s = settings(ctx)
-    store = open_current(s.db, s.user)
-    try:
+    with workspace(ctx, as_json=as_json, rubric=rubric) as ws:
         out = pool_evidence(
-            store,
+            ws.store,
             exposure,
             outcome,
             method=method,
@@ -101,20 +106,22 @@ def pool_cmd(
             within_event=within_event,
             rho=rho,
             details=details,
+            rubric=ws.method.rubric,
         )
-    finally:
-        store.dispose()
     if as_json:
         print_json(
-            {
-                "exposure": out.exposure,
-                "outcome": out.outcome,
-                "evidence_set": out.evidence_set,
-                "options": out.options,
-                "groups": out.groups,
-                "overall": out.overall,
-                "caution": out.caution,
-            }
+            with_overrides(
+                {
+                    "exposure": out.exposure,
+                    "outcome": out.outcome,
+                    "evidence_set": out.evidence_set,
+                    "options": out.options,
+                    "groups": out.groups,
+                    "overall": out.overall,
+                    "caution": out.caution,
+                },
+                ws,
+            )
         )
         return
     typer.echo(f"{out.exposure} -> {out.outcome}: effects of an exposure {out.align_to}")

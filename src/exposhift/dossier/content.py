@@ -188,6 +188,9 @@ class Provenance:
     made_at: str
     records: int
     audit_head: str | None  # head of the audit hash chain, None = not recorded
+    #: the method parts used: part -> stored version number, hash, declared version, source,
+    #: one-run override (services.workspace.MethodInForce.to_dict)
+    method: dict[str, Any] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)

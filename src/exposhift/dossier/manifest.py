@@ -6,7 +6,11 @@ Fingerprint: SHA-256 (FIPS 180-4) over one canonical serialisation of
   appraisals with their ratings; see :mod:`exposhift.store.dossier_records`), each with its
   version and without database ids or timestamps;
 - the rubric's content hash, the settings in force (pooling options, replication thresholds,
-  the outcomes asked for) and the software version.
+  the outcomes asked for, the content hash and declared version of each method part) and the
+  software version.
+
+The manifest also names each method part's stored version in the evidence base (number,
+source, who and when) and any one-run override (``--rubric`` / ``--settings``).
 
 The canonical serialisation is JSON with keys sorted, no whitespace, UTF-8, floats written as
 Python's shortest round-trip ``repr`` and NaN refused (RFC 8785 in spirit; not its number
@@ -212,6 +216,7 @@ def manifest(
         "exposhift_version": p.software_version,
         "rubric": {"id": p.rubric_id, "version": p.rubric_version, "hash": p.rubric_hash},
         "settings": settings,
+        "method": p.method,
         "audit_chain_head": p.audit_head,
         "demo": d.demo,
         "files": files,

@@ -10,9 +10,11 @@ Layout (``format`` = ``exposhift-evidence-base``, ``format_version`` = 1)::
      "expected_directions": [{"exposure", "outcome", "direction", "rationale", "decided_by",
                               "decided_at"}],
      "appraisals": [{..., "ratings": [...]}],
+     "method": [{"part", "number", "declared", "content_hash", "source", "text"}],
      "series": [{..., "points": [...]}], "series_fits": [...]}
 
-(the series sections: :mod:`exposhift.io.series_archive`)
+(the method section: :mod:`exposhift.io.method_archive`; the series sections:
+:mod:`exposhift.io.series_archive`)
 
 An archive without ``expected_directions`` (written before the section existed) still reads;
 it leaves the stored directions as they are.
@@ -55,6 +57,7 @@ from exposhift.io.limits import (
     current_limits,
     text_problem,
 )
+from exposhift.io.method_archive import method_lines, read_method_section
 from exposhift.io.problems import ProblemLog, quote, sorted_problems
 from exposhift.io.series_archive import read_series_sections, series_lines
 from exposhift.io.sheet import read_text
@@ -145,6 +148,7 @@ def archive_text(frames: EvidenceFrames) -> str:
     )
     lines += _direction_lines(frames)
     lines += _list("appraisals", appraisals, "  ", False)
+    lines += method_lines(frames.method, _list)
     lines += series_lines(frames.series, _list)
     lines.append("}")
     return "\n".join(lines) + "\n"
@@ -452,6 +456,7 @@ def read_archive(
         doc, log, file, ev["exposure"], es["outcome"], exposures, outcomes
     )
     series = _series(doc, log, file, ev, st, es)
+    method = read_method_section(doc, log, file)
     if log.problems:
         raise InputFileError(sorted_problems(log.problems))
     warn = ProblemLog(es_log.file, es_log.rows)
@@ -475,6 +480,7 @@ def read_archive(
         rows=len(events) + len(studies) + len(estimates) + len(appraisals) + len(series),
         warnings=sorted_problems(warn.problems),
         series=series,
+        method=method,
     )
 
 

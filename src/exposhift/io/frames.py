@@ -212,6 +212,8 @@ class EvidenceFrames:
     warnings: list[Problem] = field(default_factory=list)
     #: series records (:class:`exposhift.io.series_sheet.SeriesFrames`), archives only
     series: object | None = None
+    #: method versions (:mod:`exposhift.io.method_archive` records); None: the file has none
+    method: list | None = None
 
     def frame(self, entity: str) -> pd.DataFrame:
         return getattr(self, PLURAL[entity])

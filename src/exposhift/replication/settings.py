@@ -1,9 +1,12 @@
 """The thresholds behind replication statuses and gap states, as documented settings.
 
 Every number that decides a status or a state lives here, with what it means. The defaults are
-written out in ``evidence/replication.toml`` (the workspace copy a committee edits; a test checks
-that the two agree). :func:`load_settings` reads ``./evidence/replication.toml`` when it exists in
-the working directory, else uses the defaults below; a path can be given instead.
+written out in ``exposhift/data/replication.toml`` (the packaged copy ``exposhift init`` stores
+in a new evidence base) and ``evidence/replication.toml`` (the repository's template a committee
+copies and edits; a test checks that all three agree). The settings in force are a record of the
+evidence base (``exposhift method show`` / ``method set settings FILE``); :func:`load_settings`
+reads a file (one-run ``--settings FILE``) and, without a path, gives the defaults. Nothing is
+read from the working folder.
 
 Which thresholds are published and which are ours:
 
@@ -25,15 +28,12 @@ Which thresholds are published and which are ours:
 
 from __future__ import annotations
 
-import tomllib
 from dataclasses import dataclass, field, fields, replace
 from pathlib import Path
 from typing import Any
 
 from exposhift.errors import ConfigError
 from exposhift.replication.regions import M49_REGIONS
-
-WORKSPACE_SETTINGS = Path("evidence") / "replication.toml"
 
 EXPECTED_CHOICES = ("pooled", "raises", "lowers")
 POOL_METHODS = ("fe", "dl", "pm", "reml")
@@ -165,19 +165,16 @@ def settings_from_mapping(data: dict[str, Any], source: str = "settings") -> Rep
 
 
 def load_settings(path: str | Path | None = None) -> ReplicationSettings:
-    """Settings from ``path``, else ``./evidence/replication.toml`` if present, else defaults."""
+    """Settings from the file ``path`` (every problem named by its line), else the defaults."""
     if path is None:
-        if not WORKSPACE_SETTINGS.is_file():
-            return DEFAULTS
-        path = WORKSPACE_SETTINGS
+        return DEFAULTS
+    from exposhift.replication.settings_file import settings_from_bytes
+
     p = Path(path)
     if not p.is_file():
-        raise ConfigError(
-            f"replication settings file not found: {p}; give an existing TOML "
-            "file or none to use the defaults"
-        )
+        raise ConfigError(f"replication settings file not found: {p}; give an existing TOML file")
     try:
-        data = tomllib.loads(p.read_text(encoding="utf-8"))
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(f"{p}: not valid TOML ({exc}); fix the file") from None
-    return settings_from_mapping(data, str(p))
+        data = p.read_bytes()
+    except OSError as exc:
+        raise ConfigError(f"cannot read the settings file {p}: {exc.strerror}") from None
+    return settings_from_bytes(data, str(p))

@@ -311,8 +311,9 @@ def import_appraisals(
     rubric_path: str | Path | None = None,
     dry_run: bool = False,
 ) -> AppraisalImportSummary:
-    """Import appraisals from a CSV/XLSX file in one transaction (all or nothing)."""
-    rubric = load_rubric(rubric_path)
+    """Import appraisals from a CSV/XLSX file in one transaction (all or nothing), under the
+    rubric the evidence base records (``rubric_path``: a one-run override)."""
+    rubric = _rubric(store, rubric_path)
     sheet = read_sheet(path, encoding)
     frame = sheet.frame.set_axis(sheet.rows.tolist())
     label = sheet.file
@@ -395,11 +396,14 @@ def show_appraisals(
 
     ``viewer``: an :class:`~exposhift.access.Identity` (the dashboard's signed-in person), a
     name (with its account's role, else the store's), or None (the store's own identity).
+    When the consensus of record was made under another rubric than the one in force, the
+    result has ``older_rubric`` (:func:`older_rubric_note`); the views keep the hash each
+    appraisal was made with.
     """
     from exposhift.services.accounts import viewer_of
 
     ident = viewer_of(store, viewer)
-    rubric = load_rubric(rubric_path)
+    rubric = _rubric(store, rubric_path)
     with store.read() as conn:
         studies = studies_by_key(conn)
         if study_key not in studies:
@@ -457,7 +461,9 @@ def show_appraisals(
             )
         )
     record = next((v for v in views if v.stage == "consensus"), None)
+    older = older_rubric_note(store, aps, rubric)
     return {
+        **({"older_rubric": older} if older else {}),
         "study_id": study_key,
         "citation": study["citation"],
         "design": study["design"],
@@ -478,6 +484,38 @@ def visible_studies(conn, viewer: Identity) -> set[str]:
     }
 
 
+def _rubric(store: Store, rubric_path: str | Path | None):
+    """The rubric file of a one-run ``--rubric``, else the rubric the evidence base records."""
+    if rubric_path is not None:
+        return load_rubric(rubric_path)
+    from exposhift.services.workspace import stored_rubric
+
+    return stored_rubric(store)
+
+
+def older_rubric_note(store: Store, aps: list[dict], rubric) -> str | None:
+    """Words for a consensus made under a rubric other than ``rubric`` (None otherwise)."""
+    consensus = next((a for a in aps if a["stage"] == "consensus"), None)
+    if consensus is None or consensus["rubric_hash"] == rubric.content_hash:
+        return None
+    from exposhift.store.method_records import method_versions
+
+    with store.read() as conn:
+        held = [
+            v for v in method_versions(conn, "rubric") if v.content_hash == consensus["rubric_hash"]
+        ]
+    made = (
+        f"rubric version {held[-1].number} ({held[-1].declared})"
+        if held
+        else f"rubric {consensus['rubric_id']} (hash {consensus['rubric_hash'][:12]}), "
+        "not stored in this evidence base"
+    )
+    return (
+        f"consensus made under an older rubric: {made}; the rubric in force is {rubric.label}. "
+        "Its overall level stands as decided; re-appraise to apply the rubric in force"
+    )
+
+
 def agreement(store: Store, viewer: Identity | str | None = None) -> pd.DataFrame:
     """Agreement between independent reviewers: one row per domain, ``all domains`` (every
     study x domain pair; n = pairs) and ``overall level`` (n = studies). Percent agreement is
@@ -495,7 +533,7 @@ def agreement(store: Store, viewer: Identity | str | None = None) -> pd.DataFram
         rows = [r for r in independent_ratings(conn) if r["study_id"] in seen]
         overall = [r for r in independent_overall_levels(conn) if r["study_id"] in seen]
     frame = pd.DataFrame(rows, columns=["study_id", "reviewer", "domain", "level"])
-    table = agreement_table(frame)
+    table = agreement_table(frame, _rubric(store, None))
     levels = pd.DataFrame(overall, columns=["study_id", "reviewer", "overall"])
     out = pd.concat([table, pd.DataFrame([overall_level_row(levels)])], ignore_index=True)
     out.attrs = dict(table.attrs)

@@ -143,7 +143,10 @@ def _unknown_domains(frames, label, rubric) -> list[Problem]:
 
 
 def _rubric_problems(conn, frames, label, rubric) -> list[Problem]:
+    from exposhift.services.method_restore import method_rubrics
+
     held = rubrics_held(conn) | {(rubric.rubric_id, rubric.content_hash)}
+    held |= method_rubrics(conn, frames)  # every rubric version the base or archive records
     ids = {i for i, _ in held}
     out = []
     ratings: dict[tuple, dict[str, int]] = {}

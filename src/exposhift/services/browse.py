@@ -226,6 +226,7 @@ def pool_view(
     alpha: float = 0.05,
     hksj_floor: bool = True,
     within_event: str = "aggregate",
+    rubric=None,
 ) -> PoolView:
     """:func:`~exposhift.services.pooling.pool_evidence` plus one row per pooled *event*.
 
@@ -248,6 +249,7 @@ def pool_view(
         alpha=alpha,
         hksj_floor=hksj_floor,
         within_event=within_event,
+        rubric=rubric,
     )
     options = {
         "method": method,

@@ -23,7 +23,6 @@ from pathlib import Path
 from typing import Any
 
 from exposhift import __version__
-from exposhift.appraisal.rubric import load_rubric
 from exposhift.dossier import evidence as ev
 from exposhift.dossier.bundle import (
     Bundle,
@@ -54,7 +53,6 @@ from exposhift.dossier.manifest import (
     table_csv,
 )
 from exposhift.errors import ConfigError
-from exposhift.replication.settings import load_settings
 from exposhift.replication.status import STATUSES
 from exposhift.services.browse import DEMO_NOTE, pool_view
 from exposhift.services.lookup import require_name
@@ -219,8 +217,10 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
     )
 
 
-def _section(store: Store, exposure: str, outcome: str, records, settings, opts: PoolOptions):
-    kw = dataclasses.asdict(opts)
+def _section(
+    store: Store, exposure: str, outcome: str, records, settings, opts: PoolOptions, rubric=None
+):
+    kw = dict(dataclasses.asdict(opts), rubric=rubric)
     group = next(
         (o.get("outcome_group") or "" for o in records["outcome"] if o["name"] == outcome), ""
     )
@@ -312,9 +312,18 @@ def gather(
     *,
     as_of: str | None = None,
     opts: PoolOptions | None = None,
+    method=None,
 ) -> Gathered:
-    """Everything a dossier says, without rendering it."""
+    """Everything a dossier says, without rendering it.
+
+    ``method`` (a :class:`~exposhift.services.workspace.MethodInForce`) defaults to the method
+    the evidence base records; its parts' hashes enter the fingerprint, and the manifest names
+    each part's stored version (and any one-run override).
+    """
+    from exposhift.services.workspace import method_in_force
+
     opts = opts or PoolOptions()
+    method = method if method is not None else method_in_force(store)
     stamp = made_at(as_of)
     with store.read() as conn:
         exposure = require_name(conn, "exposure", exposure)
@@ -323,8 +332,8 @@ def gather(
         else:
             outcomes = outcomes_of_exposure(conn, exposure)
         records = records_used(conn, exposure, outcomes)
-    rubric = load_rubric(None)
-    rep_settings = load_settings()
+    rubric = method.rubric
+    rep_settings = method.settings
     thresholds = {
         k: (list(v) if isinstance(v, tuple) else v)
         for k, v in dataclasses.asdict(rep_settings).items()
@@ -336,8 +345,14 @@ def gather(
         "regions": {k: list(v) for k, v in sorted(rep_settings.regions.items())},
         "outcomes": list(outcomes),
         "rubric_id": rubric.rubric_id,
+        "method": {
+            name: {"content_hash": p.content_hash, "declared": p.declared}
+            for name, p in method.parts.items()
+        },
     }
-    sections = [_section(store, exposure, o, records, rep_settings, opts)[0] for o in outcomes]
+    sections = [
+        _section(store, exposure, o, records, rep_settings, opts, rubric)[0] for o in outcomes
+    ]
     gaps = gap_report(store, settings=rep_settings)
     fp = fingerprint(records, rubric.content_hash, settings, __version__)
     demo = any(bool(r.get("demo")) for kind in ("study", "event") for r in records[kind])
@@ -360,6 +375,7 @@ def gather(
         made_at=stamp,
         records=sum(len(v) for v in records.values()),
         audit_head=ev.audit_chain_head(store),
+        method=method.to_dict(),
     )
     d = Dossier(
         exposure=exposure,
@@ -460,13 +476,14 @@ def build_dossier(
     force: bool = False,
     since: str | Path | None = None,
     opts: PoolOptions | None = None,
+    method=None,
 ) -> DossierResult:
     """Gather, render and write one exposure's dossier (see :mod:`exposhift.dossier`)."""
     from exposhift.dossier.figures import dossier_figures
 
     fmts = parse_formats(formats)
     old = read_bundle(since) if since is not None else None
-    g = gather(store, exposure, outcomes, as_of=as_of, opts=opts)
+    g = gather(store, exposure, outcomes, as_of=as_of, opts=opts, method=method)
     target = Path(out) if out else Path("dossiers") / slug(g.dossier.exposure)
     check_out_dir(target, force)
     warnings: list[str] = []

@@ -101,7 +101,16 @@ def load_evidence(conn) -> EvidenceFrames:
         },
     )
     out.series = load_series(conn)
+    out.method = _method(conn)
     return out
+
+
+def _method(conn) -> list[dict]:
+    """Every stored method version, as archive records (:mod:`exposhift.io.method_archive`)."""
+    from exposhift.io.method_archive import records_of
+    from exposhift.store.method_records import method_versions
+
+    return records_of(method_versions(conn))
 
 
 def load_series(conn):
@@ -269,9 +278,9 @@ def export_store(
         return ExportResult(str(path), suffix[1:], "events", {"events": counts["events"]})
     sheet = sheet_frame(frames)
     if with_appraisals:
-        from exposhift.appraisal.rubric import load_rubric
+        from exposhift.services.workspace import stored_rubric
 
-        sheet = with_consensus_levels(sheet, frames, load_rubric().domain_keys)
+        sheet = with_consensus_levels(sheet, frames, stored_rubric(store).domain_keys)
     SHEET_WRITERS[suffix](sheet, path)
     return ExportResult(
         str(path),

@@ -24,7 +24,6 @@ import numpy as np
 import pandas as pd
 
 from exposhift.access import require
-from exposhift.appraisal.rubric import load_rubric
 from exposhift.errors import InputFileError, Problem
 from exposhift.io.archive import read_archive
 from exposhift.io.frames import FIELDS, PLURAL, EvidenceFrames, coerce, to_records
@@ -40,6 +39,7 @@ from exposhift.services.archive_appraisals import (
 )
 from exposhift.services.bulk import BulkWriter
 from exposhift.services.exporting import read_table, with_refs
+from exposhift.services.method_restore import door_rubric, method_plan, restore_method
 from exposhift.services.setup import open_current
 from exposhift.store.database import Store
 from exposhift.store.queries import study_events
@@ -533,7 +533,8 @@ def _archive_door(
         return set()
     conflicts = {k for _, _, k in plans["appraisal"].changes} | set(rating_plan)
     label = Path(file).name
-    problems = check_archive_appraisals(conn, frames, load_rubric(rubric_path), label, conflicts)
+    rubric = door_rubric(conn, frames, rubric_path)
+    problems = check_archive_appraisals(conn, frames, rubric, label, conflicts)
     if conflicts and not replace:
         problems += conflict_problems(frames, conflicts, label)
     if problems:
@@ -569,13 +570,17 @@ def import_frames(
         rating_plan = _rating_changes(conn, frames, plans["appraisal"])
         directions = _direction_counts(conn, frames)
         replaced = set()
+        method_add: list[dict] = []
         if kind == "archive":
+            method_add = method_plan(conn, frames, file)
             replaced = _archive_door(conn, frames, plans, rating_plan, file, rubric_path, replace)
         if not dry_run:
             w = BulkWriter(conn, store.user)
             audit_replacements(w, replaced, Path(file).name)
             apply_plans(w, frames, plans, progress)
             notes = _import_series(w, frames)
+            w.flush()  # the method versions' audit entries follow in the chain
+            notes += restore_method(conn, store.user, method_add)
     return ImportReport(
         file=file,
         url=store.masked_url,

@@ -30,7 +30,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from exposhift.appraisal.rubric import load_rubric
+from exposhift.appraisal.rubric import Rubric, load_rubric
 from exposhift.errors import AnalysisError, ConfigError, NotFoundError
 from exposhift.services.lookup import require_name
 from exposhift.store.database import Store
@@ -115,18 +115,31 @@ def _finite(x: Any) -> Any:
     return x
 
 
-def evidence_set_words(include_fatal: bool, min_level: int | None) -> str:
-    """The evidence set of a pooled result, in words."""
+def evidence_set_words(
+    include_fatal: bool, min_level: int | None, left_out: tuple[int, ...] = (0,)
+) -> str:
+    """The evidence set of a pooled result, in words; ``left_out``: the overall levels the
+    rubric in force leaves out of pooling (``exclude_from_pooling``)."""
     if min_level is not None:
         return (
             f"studies appraised at overall level >= {min_level} (not-yet-appraised "
             "studies left out), one number per event"
         )
+    levels = ", ".join(str(lv) for lv in sorted(left_out))
     if include_fatal:
-        return "every study, fatal-overall ones included, one number per event"
+        if tuple(left_out) == (0,):
+            return "every study, fatal-overall ones included, one number per event"
+        return f"every study, those appraised at overall {levels} included, one number per event"
+    if tuple(left_out) == (0,):
+        return (
+            "every study except those appraised fatal overall (not-yet-appraised studies "
+            "included), one number per event"
+        )
+    if not left_out:
+        return "every study (the rubric in force leaves no level out), one number per event"
     return (
-        "every study except those appraised fatal overall (not-yet-appraised studies "
-        "included), one number per event"
+        f"every study except those appraised at overall {levels} (left out by the rubric in "
+        "force; not-yet-appraised studies included), one number per event"
     )
 
 
@@ -136,22 +149,25 @@ def prepare_for_pooling(
     include_fatal: bool = False,
     align_to: str = "increase",
     min_level: int | None = None,
+    rubric: Rubric | None = None,
 ) -> tuple[pd.DataFrame, list[dict[str, Any]]]:
     """Steps 2-4: the evidence set, harmonise, keep independent estimates.
 
-    Returns the harmonised independent units to pool and the left-out estimates with reasons.
+    ``rubric`` says which overall levels are left out (the evidence base's rubric in force;
+    None: the packaged rubric). Returns the harmonised independent units to pool and the
+    left-out estimates with reasons.
     """
     excluded: list[dict[str, Any]] = []
     if not include_fatal:
-        rubric = load_rubric(None)
+        rubric = rubric if rubric is not None else load_rubric()
         fatal = frame["level"].isin(list(rubric.exclude_from_pooling))
         if fatal.any():
             excluded += _excluded_records(
                 frame[fatal],
                 frame.loc[fatal, "level"].map(
                     lambda lv: (
-                        f"appraisal of record overall {int(lv)} (fatal): left out of "
-                        "pooling by default (--include-fatal keeps it)"
+                        f"appraisal of record overall {int(lv)} ({rubric.level_name(int(lv))}): "
+                        "left out of pooling by default (--include-fatal keeps it)"
                     )
                 ),
             )
@@ -218,10 +234,16 @@ def pool_evidence(
     within_event: str = "aggregate",
     rho: float = DEFAULT_RHO,
     details: bool = False,
+    rubric: Rubric | None = None,
 ) -> PoolOutput:
     """Pool one exposure x outcome; ``details`` adds leave-one-event-out, cumulative and the
-    small-study test to each group (the τ² interval is always there)."""
+    small-study test to each group (the τ² interval is always there). ``rubric``: a one-run
+    override; by default the rubric the evidence base records."""
     by = list(by or [])
+    if rubric is None:
+        from exposhift.services.workspace import stored_rubric
+
+        rubric = stored_rubric(store)
     _check_options(by, align_to, method, within_event, rho, min_level)
     with store.read() as conn:
         exposure = require_name(conn, "exposure", exposure)
@@ -244,9 +266,9 @@ def pool_evidence(
         "within_event": within_event,
         "rho": float(rho) if within_event == "aggregate" else None,
     }
-    words = evidence_set_words(include_fatal, min_level)
+    words = evidence_set_words(include_fatal, min_level, tuple(rubric.exclude_from_pooling))
     kept, excluded = prepare_for_pooling(
-        frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level
+        frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level, rubric=rubric
     )
     if kept.empty:
         return PoolOutput(

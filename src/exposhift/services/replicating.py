@@ -24,7 +24,7 @@ from exposhift.errors import ConfigError, NotFoundError
 from exposhift.replication.families import independent_units
 from exposhift.replication.gaps import filter_frame, gap_map, opportunities, region_countries
 from exposhift.replication.report import ReplicationReport, replication_report
-from exposhift.replication.settings import ReplicationSettings, load_settings
+from exposhift.replication.settings import ReplicationSettings
 from exposhift.replication.status import CAUTION
 from exposhift.services.lookup import require_name
 from exposhift.services.options import check_countries, check_year
@@ -34,8 +34,15 @@ from exposhift.store.queries import analysis_frame, events_frame
 from exposhift.vocab import DESIGN_FAMILIES
 
 
-def _settings(settings: ReplicationSettings | None, expected: str | None) -> ReplicationSettings:
-    s = settings if settings is not None else load_settings()
+def _settings(
+    store: Store, settings: ReplicationSettings | None, expected: str | None
+) -> ReplicationSettings:
+    """``settings`` (a one-run override), else the settings the evidence base records."""
+    if settings is None:
+        from exposhift.services.workspace import stored_settings
+
+        settings = stored_settings(store)
+    s = settings
     if expected is not None:
         s = s.with_(expected_direction=expected)
     return s
@@ -52,7 +59,7 @@ def replication_for(
 ) -> ReplicationReport:
     """Replication report of one exposure × outcome (optionally one family of change). Unknown
     names raise NotFoundError naming close matches."""
-    s = _settings(settings, expected)
+    s = _settings(store, settings, expected)
     with store.read() as conn:
         exposure = require_name(conn, "exposure", exposure)
         outcome = require_name(conn, "outcome", outcome)
@@ -147,7 +154,7 @@ def gap_report(
 ) -> GapReport:
     """The gap map of the whole evidence base within ``filters``, and the opportunities."""
     f = filters or GapFilters()
-    s = _settings(settings, None)
+    s = _settings(store, settings, None)
     countries = _check_filters(f, s)
     with store.read() as conn:
         frame = analysis_frame(conn)

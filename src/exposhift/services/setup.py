@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 from exposhift.store.accounts import apply_account_role
 from exposhift.store.database import Store, open_store
@@ -27,14 +28,21 @@ class InitResult:
     url: str
     before: str | None
     after: str
+    method: Any = None  # the MethodInForce now recorded (services.workspace)
 
 
 def init_database(db: str | None = None, user: str | None = None) -> InitResult:
-    """Create the database (or upgrade it to the newest schema) without losing data."""
+    """Create the database (or upgrade it to the newest schema) without losing data, and
+    record the packaged default of every method part it does not hold yet."""
+    from exposhift.services.workspace import method_in_force, record_missing_parts
+
     store = open_store(db, user, create=True)
     try:
         before, after = upgrade(store)
-        return InitResult(url=store.masked_url, before=before, after=after)
+        record_missing_parts(store)
+        return InitResult(
+            url=store.masked_url, before=before, after=after, method=method_in_force(store)
+        )
     finally:
         store.dispose()
 

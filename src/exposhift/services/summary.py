@@ -14,7 +14,7 @@ import pandas as pd
 
 from exposhift.replication import replication_statuses
 from exposhift.replication.families import independent_units
-from exposhift.replication.settings import ReplicationSettings, load_settings
+from exposhift.replication.settings import ReplicationSettings
 from exposhift.services.pooling import CAUTION
 from exposhift.store.database import Store
 from exposhift.store.directions import directions_frame
@@ -54,7 +54,11 @@ def evidence_summary(
     Statuses use ``settings`` (default: the thresholds in force, as the ``replication`` action
     does), so both report the same status and the same pooled number.
     """
-    s = settings if settings is not None else load_settings()
+    if settings is None:
+        from exposhift.services.workspace import stored_settings
+
+        settings = stored_settings(store)
+    s = settings
     with store.read() as conn:
         frame = analysis_frame(conn)
         if directions is None:

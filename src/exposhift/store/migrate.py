@@ -57,7 +57,9 @@ def upgrade(store: Store) -> tuple[str | None, str]:
                 f"database {store.masked_url} holds tables but no exposhift schema revision; "
                 "refusing to touch it. Choose an empty database or file with --db"
             )
-        command.upgrade(alembic_config(conn), "head")
+        cfg = alembic_config(conn)
+        cfg.attributes["user"] = store.user  # named in the audit entries a migration writes
+        command.upgrade(cfg, "head")
         after = current_revision(conn)
     return before, after or head_revision()
 

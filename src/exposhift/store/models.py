@@ -333,4 +333,30 @@ class SignInAttempt(SQLModel, table=True):
 
 
 NATURAL_KEY["account"] = "name"
+
+
 # ------------------------------------------------------------------------------ end accounts
+# ------------------------------------------------------------------ method in force
+class MethodVersion(SQLModel, table=True):
+    """One version of one part of the method (the rubric, the settings, ...): its full text.
+
+    Rows are only ever added (``exposhift init``, ``exposhift method set``, an archive import),
+    each with an audit entry; the highest ``number`` of a part is the version in force.
+    ``declared`` is the version the text declares itself (the rubric's id and version), "" when
+    it declares none. See :mod:`exposhift.store.method_records`.
+    """
+
+    __tablename__ = "method_version"
+    __table_args__ = (UniqueConstraint("part", "number"),)
+    id: int | None = Field(default=None, primary_key=True)
+    part: str = Field(index=True)
+    number: int
+    text: str
+    content_hash: str
+    declared: str = ""
+    source: str
+    created_by: str
+    created_at: str
+
+
+# ------------------------------------------------------------------ end method in force

@@ -12,13 +12,13 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from exposhift.services.pooling import STRATA, PoolOutput, pool_evidence
 from exposhift.services.setup import database_info
 from exposhift.store.appraisals import studies_by_key
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame, events_frame
+from exposhift.synthesis.forest_rows import event_rows
 from exposhift.synthesis.independence import pooling_keys
 from exposhift.vocab import DESIGNS
 
@@ -288,19 +288,10 @@ def pool_view(
     if not out.groups:
         return PoolView(out, pd.DataFrame(columns=columns), options)
     keys = pooling_keys([STRATA[b] for b in by])
-    z = float(stats.norm.isf(alpha / 2))
-    rows = out.pooled_rows.copy()
+    rows = event_rows(out.pooled_rows, alpha)
     labels = {i: group_label(g, keys) for i, g in enumerate(out.groups)}
     rows["group_label"] = rows["group"].map(labels)
-    rows["se"] = np.sqrt(rows["v"].to_numpy(dtype=float))
-    rows["ci_lower"] = rows["y"] - z * rows["se"]
-    rows["ci_upper"] = rows["y"] + z * rows["se"]
-    if "study_ids" in rows.columns:
-        rows["study_id"] = rows["study_ids"].where(rows["study_ids"].notna(), rows["study_id"])
-    rows["estimate_uid"] = rows["estimate_uids"].map(lambda u: "; ".join(map(str, u)))
-    rows["change_date"] = rows["change_date"].astype(str)
     for c in columns:
         if c not in rows.columns:
             rows[c] = None
-    rows = rows.sort_values(["group", "change_date", "event_id"], kind="stable")
     return PoolView(out, rows[columns].reset_index(drop=True), options)

@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-import math
 from pathlib import Path
 
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
 from exposhift.cli.helptext import Group
+from exposhift.cli.numbers import is_missing, number
 
 appraise_app = typer.Typer(
     help="Record and read appraisals (two independent reviewers, "
@@ -141,10 +141,10 @@ def agreement_cmd(
     typer.echo(f"{'domain':<20} {'n':>4} {'agree %':>8} {'kappa lin':>10} {'kappa quad':>11}")
 
     def fmt(x: float) -> str:
-        return "   n/a" if x is None or (isinstance(x, float) and math.isnan(x)) else f"{x:.2f}"
+        return number(x, 2, missing="   n/a")
 
     def pct(x: float) -> str:
-        return "    n/a" if x is None or (isinstance(x, float) and math.isnan(x)) else f"{x:.1f}%"
+        return "    n/a" if is_missing(x) else number(x, 1) + "%"
 
     for rec in table.to_dict(orient="records"):
         if rec["domain"] in ("all domains", "overall level"):

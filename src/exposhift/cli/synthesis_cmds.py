@@ -5,6 +5,7 @@ from __future__ import annotations
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
+from exposhift.cli.numbers import number
 
 #: the --by choices (the keys of exposhift.services.pooling.STRATA; a test checks they agree)
 _BY_HELP = (
@@ -16,7 +17,7 @@ _DEFAULT_RHO = 0.8
 
 
 def _fmt(x, digits=3):
-    return "n/a" if x is None else f"{x:.{digits}g}" if abs(x) >= 1000 else f"{x:.{digits}f}"
+    return number(x, digits, large=1000)
 
 
 def _interval(nat: dict, lo: str, hi: str, digits: int = 3) -> str:

@@ -91,6 +91,7 @@ def pool(
     by: tuple[str, ...],
     include_fatal: bool,
     align_to: str,
+    within_event: str = "aggregate",
 ) -> browse.PoolView:
     return browse.pool_view(
         _store(db),
@@ -101,6 +102,7 @@ def pool(
         by=list(by),
         include_fatal=include_fatal,
         align_to=align_to,
+        within_event=within_event,
     )
 
 

@@ -48,7 +48,7 @@ def test_init_again_keeps_every_row(db_url):
     again = init_database(db_url)
     assert again.before == again.after == head_revision()
     info = database_info(db_url)
-    assert info["counts"]["exposures"] == 1 and info["counts"]["audit_entries"] == 1
+    assert info.counts["exposures"] == 1 and info.counts["audit_entries"] == 1
 
 
 def test_newer_revision_is_refused_and_nothing_written(db_url):

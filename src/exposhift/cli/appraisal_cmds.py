@@ -86,13 +86,7 @@ def appraise_show(
     finally:
         store.dispose()
     if as_json:
-        print_json(
-            {
-                **data,
-                "appraisals": [vars(v) for v in data["appraisals"]],
-                "of_record": vars(data["of_record"]) if data["of_record"] else None,
-            }
-        )
+        print_json(data.to_dict())
         return
     typer.echo(f"{data['study_id']}  {data['citation']}  [{data['design']}]")
     if not data["appraisals"]:

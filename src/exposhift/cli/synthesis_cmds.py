@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
+
 import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
@@ -106,17 +108,7 @@ def pool_cmd(
     finally:
         store.dispose()
     if as_json:
-        print_json(
-            {
-                "exposure": out.exposure,
-                "outcome": out.outcome,
-                "evidence_set": out.evidence_set,
-                "options": out.options,
-                "groups": out.groups,
-                "overall": out.overall,
-                "caution": out.caution,
-            }
-        )
+        print_json(out.to_dict())
         return
     typer.echo(f"{out.exposure} -> {out.outcome}: effects of an exposure {out.align_to}")
     typer.echo(f"  evidence set: {out.evidence_set}")
@@ -139,7 +131,7 @@ def pool_cmd(
     typer.echo(f"\nnote: {out.caution}")
 
 
-def _print_group(g: dict) -> None:
+def _print_group(g: Mapping) -> None:
     from exposhift.services.pooling import STRATA
 
     strata = ", ".join(

@@ -27,6 +27,7 @@ from exposhift.appraisal.scoring import score_appraisal
 from exposhift.errors import NotFoundError
 from exposhift.io.appraisal_sheet import validate_appraisal_sheet
 from exposhift.io.sheet import read_sheet
+from exposhift.results import ReadsAsMapping
 from exposhift.store.appraisals import (
     APPRAISAL_TABLE,
     RATING_TABLE,
@@ -130,10 +131,47 @@ class AppraisalView:
     suggestions: dict[str, tuple[int | None, str]]
     blinded: bool
 
+    def to_dict(self) -> dict[str, Any]:
+        return dict(vars(self))
+
+
+@dataclass(frozen=True, eq=False)
+class StudyAppraisals(ReadsAsMapping):
+    """A study's appraisals as one viewer may see them (blinding applied); ``of_record`` is the
+    consensus, the appraisal of record."""
+
+    study_id: str
+    citation: str
+    design: str
+    appraisals: list[AppraisalView]
+    of_record: AppraisalView | None
+    independent: int
+    domains: tuple[str, ...]
+    caution: str
+
+    def to_dict(self) -> dict[str, Any]:
+        """What ``exposhift appraise show --json`` prints."""
+        return {
+            "study_id": self.study_id,
+            "citation": self.citation,
+            "design": self.design,
+            "appraisals": [v.to_dict() for v in self.appraisals],
+            "of_record": self.of_record.to_dict() if self.of_record else None,
+            "independent": self.independent,
+            "domains": self.domains,
+            "caution": self.caution,
+        }
+
+    def __getitem__(self, key: str) -> Any:
+        # callers that index by key get the views themselves, as before
+        if key in ("appraisals", "of_record"):
+            return getattr(self, key)
+        return super().__getitem__(key)
+
 
 def show_appraisals(
     store: Store, study_key: str, viewer: str | None = None, rubric_path: str | Path | None = None
-) -> dict[str, Any]:
+) -> StudyAppraisals:
     """A study's appraisals as ``viewer`` may see them (blinding applied)."""
     rubric = load_rubric(rubric_path)
     with store.read() as conn:
@@ -190,16 +228,16 @@ def show_appraisals(
             )
         )
     record = next((v for v in views if v.stage == "consensus"), None)
-    return {
-        "study_id": study_key,
-        "citation": study["citation"],
-        "design": study["design"],
-        "appraisals": views,
-        "of_record": record,
-        "independent": n_indep,
-        "domains": rubric.domain_keys,
-        "caution": rubric.caution,
-    }
+    return StudyAppraisals(
+        study_id=study_key,
+        citation=study["citation"],
+        design=study["design"],
+        appraisals=views,
+        of_record=record,
+        independent=n_indep,
+        domains=rubric.domain_keys,
+        caution=rubric.caution,
+    )
 
 
 def agreement(store: Store) -> pd.DataFrame:

@@ -7,6 +7,7 @@ dataclasses; the dashboard and any other front end only display them.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -105,9 +106,9 @@ def evidence_overview(store: Store) -> EvidenceOverview:
     years = events["change_year"].dropna()
     demo_studies = int(studies["demo"].fillna(False).astype(bool).sum())
     return EvidenceOverview(
-        url=info["url"],
-        backend=info["backend"],
-        counts=dict(info["counts"]),
+        url=info.url,
+        backend=info.backend,
+        counts=dict(info.counts),
         demo_studies=demo_studies,
         demo_events=int(events["demo"].fillna(False).astype(bool).sum()),
         events_without_study=int((events["studies"] == 0).sum()),
@@ -200,7 +201,7 @@ class PoolView:
         return self.output.caution
 
 
-def group_label(group: dict[str, Any], keys: list[str]) -> str:
+def group_label(group: Mapping[str, Any], keys: list[str]) -> str:
     """A readable name of one pooled group: its key values, blanks left out."""
     parts = []
     for k in keys:

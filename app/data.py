@@ -108,6 +108,7 @@ def pool(
     by: tuple[str, ...],
     include_fatal: bool,
     align_to: str,
+    within_event: str = "aggregate",
 ) -> browse.PoolView:
     return browse.pool_view(
         _store(db),
@@ -118,6 +119,7 @@ def pool(
         by=list(by),
         include_fatal=include_fatal,
         align_to=align_to,
+        within_event=within_event,
     )
 
 

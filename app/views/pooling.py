@@ -7,18 +7,18 @@ import streamlit as st
 import ui
 
 import data
+from exposhift.services.pooling import STRATA as STRATA_COLUMNS
+from exposhift.synthesis.choices import (
+    ALIGNMENTS,
+    ESTIMATORS,
+    INTERVALS,
+    WITHIN_EVENT_ROUTES,
+)
 
-METHODS = {
-    "reml": "REML",
-    "dl": "DerSimonian–Laird",
-    "pm": "Paule–Mandel",
-    "fe": "fixed effect (inverse variance)",
-}
-CIS = {
-    "hksj": "Hartung–Knapp–Sidik–Jonkman (t, events − 1 df, scale floored at 1)",
-    "wald": "Wald (z)",
-}
-STRATA = ["design-family", "level", "design", "country", "outcome-group"]
+# the option lists come from the library: a new estimator or stratum appears here by itself
+METHODS = ESTIMATORS
+CIS = INTERVALS
+STRATA = list(STRATA_COLUMNS)
 
 db = data.db_target()
 
@@ -57,21 +57,29 @@ by = c5.multiselect(
     "exposure increment; add strata here. Pooling within design family "
     "is the primary analysis; across families it is secondary.",
 )
-align = c6.selectbox("Express effects for an exposure", ["increase", "decrease"], key="pool_align")
+align = c6.selectbox("Express effects for an exposure", list(ALIGNMENTS), key="pool_align")
+within_event = st.selectbox(
+    "Several estimates of one event",
+    list(WITHIN_EVENT_ROUTES),
+    format_func=lambda k: f"{k}: {WITHIN_EVENT_ROUTES[k]}",
+    key="pool_within_event",
+)
 include_fatal = st.checkbox(
     "Keep studies appraised fatal overall (left out by default)", key="pool_fatal"
 )
 
 with ui.guard():
-    view = data.pool(db, exposure, outcome, method, ci, tuple(by), include_fatal, align)
+    view = data.pool(
+        db, exposure, outcome, method, ci, tuple(by), include_fatal, align, within_event
+    )
 out = view.output
 
 # 2. forest plot -----------------------------------------------------------------------------
 st.subheader(f"{exposure} → {outcome}")
 st.caption(
-    f"Effects of an exposure {align}; {METHODS[method]} τ², {CIS[ci]} interval. "
-    "Squares: one exposure-change event each (several estimates of one event combined "
-    "into one number; size = weight); diamond: pooled estimate and its interval; "
+    f"Effects of an exposure {align}; {METHODS[method]} τ², {CIS[ci]} interval; several "
+    f"estimates of one event: {WITHIN_EVENT_ROUTES[within_event]}. "
+    "Squares: one pooled unit each (size = weight); diamond: pooled estimate and its interval; "
     "dashed line: 95% prediction interval (3 or more events)."
 )
 if not out.groups:

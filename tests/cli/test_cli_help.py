@@ -102,3 +102,41 @@ def test_pool_rho_default_is_the_library_default():
     from exposhift.synthesis.events import DEFAULT_RHO
 
     assert _DEFAULT_RHO == DEFAULT_RHO
+
+
+def _modules_after(code: str, cwd=None) -> list[str]:
+    proc = subprocess.run(
+        [sys.executable, "-c", code], capture_output=True, text=True, check=True, cwd=cwd
+    )
+    return json.loads(proc.stderr.strip().splitlines()[-1])
+
+
+def test_no_command_help_imports_a_heavy_library():
+    # every command's --help in one process: none of them may pull in the heavy libraries
+    code = (
+        "import json, sys\n"
+        "from exposhift.cli.main import app\n"
+        f"for path in {[list(p) for p in COMMANDS]!r}:\n"
+        "    try:\n"
+        "        app([*path, '--help'])\n"
+        "    except SystemExit:\n"
+        "        pass\n"
+        f"sys.stderr.write(json.dumps([m for m in {HEAVY!r} if m in sys.modules]))\n"
+    )
+    assert _modules_after(code) == []
+
+
+def test_info_imports_no_computation_library(tmp_path):
+    # info opens the evidence base (SQLAlchemy, Alembic for the revision) and computes nothing
+    runner.invoke(app, ["--db", str(tmp_path / "e.db"), "init"])
+    code = (
+        "import json, sys\n"
+        "from exposhift.cli.main import app\n"
+        "try:\n"
+        f"    app(['--db', {str(tmp_path / 'e.db')!r}, 'info', '--json'])\n"
+        "except SystemExit:\n"
+        "    pass\n"
+        "heavy = ('pandas', 'scipy', 'numpy', 'statsmodels', 'plotly', 'openpyxl')\n"
+        "sys.stderr.write(json.dumps([m for m in heavy if m in sys.modules]))\n"
+    )
+    assert _modules_after(code) == []

@@ -50,8 +50,8 @@ def test_init_again_keeps_every_row(db_url):
     assert again.before == again.after == head_revision()
     info = database_info(db_url)
     # one audit entry for the exposure, one per method part recorded when the base was created
-    assert info["counts"]["exposures"] == 1
-    assert info["counts"]["audit_entries"] == 1 + len(METHOD_PARTS)
+    assert info.counts["exposures"] == 1
+    assert info.counts["audit_entries"] == 1 + len(METHOD_PARTS)
 
 
 def test_newer_revision_is_refused_and_nothing_written(db_url):

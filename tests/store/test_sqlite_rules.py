@@ -38,7 +38,7 @@ def test_read_only_database_gets_one_clear_error_and_no_write(tmp_path):
     with pytest.raises(DatabaseError, match="read-only"), store.write() as conn:
         records.ensure_vocab(Writer(conn, "t"), "exposure", "should-not-land")
     store.dispose()
-    assert database_info(str(path))["counts"]["exposures"] == 0
+    assert database_info(str(path)).counts["exposures"] == 0
 
 
 _WRITER = textwrap.dedent(
@@ -77,8 +77,8 @@ def test_two_processes_write_one_file_without_locking_errors(tmp_path):
         assert p.returncode == 0, err
         assert "database is locked" not in err
     info = database_info(url)
-    assert info["counts"]["exposures"] == 2 * n
-    assert info["counts"]["audit_entries"] == 2 * n + len(METHOD_PARTS)  # + method versions
+    assert info.counts["exposures"] == 2 * n
+    assert info.counts["audit_entries"] == 2 * n + len(METHOD_PARTS)  # + method versions
 
 
 def test_open_store_creates_parent_directory_only_for_init(tmp_path):

@@ -34,15 +34,13 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from exposhift import cautions
 from exposhift.appraisal.rubric import Rubric, load_rubric
 from exposhift.errors import AnalysisError, ReviewError, RubricError
 
 WEIGHTS = ("linear", "quadratic", None)
 LONG_COLUMNS = ("study_id", "reviewer", "domain", "level")
-CAUTION = (
-    "Kappa depends on how ratings spread over the levels: read it beside the table of "
-    "ratings, and compare values across domains or rubric versions with care."
-)
+CAUTION = cautions.AGREEMENT
 #: the row that pools every study x domain pair, and the row of the overall level
 ALL_DOMAINS = "all domains"
 OVERALL_LEVEL = "overall level"

@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-import math
 from pathlib import Path
 
 import typer
 
 from exposhift.cli.common import print_json, user_errors, with_overrides, workspace
 from exposhift.cli.helptext import Group
+from exposhift.cli.numbers import is_missing, number
 
 appraise_app = typer.Typer(
     help="Record and read appraisals (two independent reviewers, "
@@ -83,16 +83,7 @@ def appraise_show(
     with workspace(ctx, as_json=as_json, rubric=rubric) as ws:
         data = show_appraisals(ws.store, study_id, None, rubric)
     if as_json:
-        print_json(
-            with_overrides(
-                {
-                    **data,
-                    "appraisals": [vars(v) for v in data["appraisals"]],
-                    "of_record": vars(data["of_record"]) if data["of_record"] else None,
-                },
-                ws,
-            )
-        )
+        print_json(with_overrides(data.to_dict(), ws))
         return
     typer.echo(f"{data['study_id']}  {data['citation']}  [{data['design']}]")
     if not data["appraisals"]:
@@ -139,10 +130,10 @@ def agreement_cmd(
     typer.echo(f"{'domain':<20} {'n':>4} {'agree %':>8} {'kappa lin':>10} {'kappa quad':>11}")
 
     def fmt(x: float) -> str:
-        return "   n/a" if x is None or (isinstance(x, float) and math.isnan(x)) else f"{x:.2f}"
+        return number(x, 2, missing="   n/a")
 
     def pct(x: float) -> str:
-        return "    n/a" if x is None or (isinstance(x, float) and math.isnan(x)) else f"{x:.1f}%"
+        return "    n/a" if is_missing(x) else number(x, 1) + "%"
 
     for rec in table.to_dict(orient="records"):
         if rec["domain"] in ("all domains", "overall level"):

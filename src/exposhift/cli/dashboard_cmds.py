@@ -89,7 +89,7 @@ def dashboard(
     env = dict(os.environ)
     if target:
         env["EXPOSHIFT_DB"] = target
-    typer.echo(f"exposhift dashboard for {info['url']}: http://{address}:{port}  (Ctrl+C stops)")
+    typer.echo(f"exposhift dashboard for {info.url}: http://{address}:{port}  (Ctrl+C stops)")
     cmd = streamlit_command(app, port, address)
     if os.name == "posix":
         sys.stdout.flush()

@@ -10,6 +10,7 @@ from typing import TYPE_CHECKING, Any
 import typer
 
 from exposhift.cli.common import print_json, user_errors, with_overrides, workspace
+from exposhift.cli.numbers import number
 from exposhift.cli.tables import render
 
 if TYPE_CHECKING:
@@ -27,13 +28,7 @@ def register(app: typer.Typer) -> None:
 
 
 def _fmt(value: Any, digits: int = 3) -> str:
-    if value is None or (isinstance(value, float) and math.isnan(value)):
-        return "-"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, float):
-        return f"{value:.{digits}g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.2e}"
-    return str(value)
+    return number(value, digits, style="significant", missing="-")
 
 
 def table(rows: Sequence[Sequence[Any]], headers: Sequence[str]) -> str:

@@ -9,6 +9,7 @@ import typer
 
 from exposhift.cli.common import print_json, settings, user_errors
 from exposhift.cli.helptext import Group
+from exposhift.cli.numbers import number
 
 series_app = typer.Typer(
     help="Extracted series: import, re-estimate, falsify.\n\nExample: "
@@ -19,7 +20,7 @@ series_app = typer.Typer(
 
 
 def _f(x, digits: int = 3) -> str:
-    return "n/a" if x is None or x != x else f"{x:.{digits}f}"
+    return number(x, digits)
 
 
 @series_app.command("import")

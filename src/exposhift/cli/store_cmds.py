@@ -49,10 +49,10 @@ def info(
 
     data = database_info(settings(ctx).db)
     if as_json:
-        print_json({**data["counts"], "url": data["url"], "revision": data["revision"]})
+        print_json(data.to_dict())
         return
-    typer.echo(f"evidence base  {data['url']}")
-    typer.echo(f"backend        {data['backend']}, schema revision {data['revision']}")
-    width = max(len(k) for k in data["counts"])
-    for name, n in data["counts"].items():
+    typer.echo(f"evidence base  {data.url}")
+    typer.echo(f"backend        {data.backend}, schema revision {data.revision}")
+    width = max(len(k) for k in data.counts)
+    for name, n in data.counts.items():
         typer.echo(f"  {name.replace('_', ' '):<{width}}  {n:>8,}")

@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from pathlib import Path
 
 import typer
 
 from exposhift.cli.common import print_json, user_errors, with_overrides, workspace
+from exposhift.cli.numbers import number
 
 #: the --by choices (the keys of exposhift.services.pooling.STRATA; a test checks they agree)
 _BY_HELP = (
@@ -18,7 +20,7 @@ _DEFAULT_RHO = 0.8
 
 
 def _fmt(x, digits=3):
-    return "n/a" if x is None else f"{x:.{digits}g}" if abs(x) >= 1000 else f"{x:.{digits}f}"
+    return number(x, digits, large=1000)
 
 
 def _interval(nat: dict, lo: str, hi: str, digits: int = 3) -> str:
@@ -109,20 +111,7 @@ def pool_cmd(
             rubric=ws.method.rubric,
         )
     if as_json:
-        print_json(
-            with_overrides(
-                {
-                    "exposure": out.exposure,
-                    "outcome": out.outcome,
-                    "evidence_set": out.evidence_set,
-                    "options": out.options,
-                    "groups": out.groups,
-                    "overall": out.overall,
-                    "caution": out.caution,
-                },
-                ws,
-            )
-        )
+        print_json(with_overrides(out.to_dict(), ws))
         return
     typer.echo(f"{out.exposure} -> {out.outcome}: effects of an exposure {out.align_to}")
     typer.echo(f"  evidence set: {out.evidence_set}")
@@ -145,7 +134,7 @@ def pool_cmd(
     typer.echo(f"\nnote: {out.caution}")
 
 
-def _print_group(g: dict) -> None:
+def _print_group(g: Mapping) -> None:
     from exposhift.services.pooling import STRATA
 
     strata = ", ".join(

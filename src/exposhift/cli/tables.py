@@ -2,17 +2,16 @@
 
 from __future__ import annotations
 
-import math
 from typing import TYPE_CHECKING
+
+from exposhift.cli.numbers import is_missing, number
 
 if TYPE_CHECKING:
     import pandas as pd
 
 
 def _num(x: float, digits: int = 2) -> str:
-    if x is None or (isinstance(x, float) and math.isnan(x)):
-        return "-"
-    return f"{x:.{digits}f}" if abs(x) < 100 else f"{x:.0f}"
+    return "-" if is_missing(x) else number(x, digits) if abs(x) < 100 else number(x, 0)
 
 
 def render(rows: list[list[str]], header: list[str], indent: str = "  ") -> str:

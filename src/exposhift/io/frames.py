@@ -9,11 +9,16 @@ database. Field names are the store's column names, with references by natural k
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
 
 from exposhift.errors import Problem
+from exposhift.keys import ESTIMATE_KEY_PARTS, RECORD_KEYS
+
+if TYPE_CHECKING:  # io.series_sheet imports this module
+    from exposhift.io.series_sheet import SeriesFrames
 
 #: field -> kind ("text", "int", "float", "bool"); order is the export order
 EXPOSURE_FIELDS = {"name": "text", "agent_class": "text"}
@@ -98,27 +103,8 @@ FIELDS: dict[str, dict[str, str]] = {
     "rating": RATING_FIELDS,
 }
 
-#: the natural key of each entity, as a tuple of fields
-KEYS: dict[str, tuple[str, ...]] = {
-    "exposure": ("name",),
-    "outcome": ("name",),
-    "event": ("key",),
-    "study": ("key",),
-    "estimate": ("key",),
-    "appraisal": ("study", "reviewer", "stage"),
-    "rating": ("study", "reviewer", "stage", "domain"),
-}
-
-#: the parts of an estimate's natural key, in order
-ESTIMATE_KEY_PARTS = (
-    "study",
-    "event",
-    "outcome",
-    "measure",
-    "estimate_kind",
-    "subgroup",
-    "time_window",
-)
+#: the natural key of each entity, as a tuple of fields (declared in exposhift.keys)
+KEYS = RECORD_KEYS
 
 #: entity name -> plural used in reports
 PLURAL = {
@@ -211,7 +197,7 @@ class EvidenceFrames:
     #: and the caller shows them after it (see :func:`exposhift.io.plausible.check_plausible`)
     warnings: list[Problem] = field(default_factory=list)
     #: series records (:class:`exposhift.io.series_sheet.SeriesFrames`), archives only
-    series: object | None = None
+    series: SeriesFrames | None = None
     #: method versions (:mod:`exposhift.io.method_archive` records); None: the file has none
     method: list | None = None
 

@@ -19,6 +19,7 @@ import pandas as pd
 from scipy import stats
 
 from exposhift.replication.dose import DoseResponse, dose_response
+from exposhift.replication.entries import FamilyEntry, PlaceSequence, Reversal
 from exposhift.replication.families import direction_words
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.replication.status import CAUTION, analyse
@@ -86,11 +87,11 @@ class ReplicationReport:
     sign_test: dict[str, Any]
     by_design_family: pd.DataFrame
     triangulation: dict[str, Any]
-    temporal: list[dict]
-    reversals: list[dict]
+    temporal: list[PlaceSequence]
+    reversals: list[Reversal]
     dose_response: DoseResponse
     excluded: pd.DataFrame = field(default_factory=pd.DataFrame)
-    families: list[dict] = field(default_factory=list)
+    families: list[FamilyEntry] = field(default_factory=list)
     settings: ReplicationSettings = DEFAULTS
     caution: str = CAUTION
     provisional: bool = False
@@ -135,9 +136,9 @@ class ReplicationReport:
             "sign_test": {k: _clean(v) for k, v in self.sign_test.items()},
             "by_design_family": _records(self.by_design_family[list(FAMILY_FIELDS)]),
             "triangulation": {k: _clean(v) for k, v in self.triangulation.items()},
-            "families": self.families,
-            "temporal": self.temporal,
-            "reversals": self.reversals,
+            "families": [f.to_dict() for f in self.families],
+            "temporal": [t.to_dict() for t in self.temporal],
+            "reversals": [r.to_dict() for r in self.reversals],
             "dose_response": self.dose_response.to_dict(),
             "excluded": excluded,
             "scale_note": "estimates are on the analysis scale (log scale for ratio measures) "
@@ -330,7 +331,7 @@ def _event_level(ev: pd.DataFrame, z: float) -> pd.DataFrame:
     return out.sort_values(["change_date", "event_id"], kind="stable").reset_index(drop=True)
 
 
-def family_summary(events: pd.DataFrame) -> list[dict]:
+def family_summary(events: pd.DataFrame) -> list[FamilyEntry]:
     """Families of exposure change among the events: the explicit family key of the event, or
     exposure / change kind. Per family: events, places, first and last change year."""
     fam = events["family"] if "family" in events.columns else None
@@ -342,14 +343,14 @@ def family_summary(events: pd.DataFrame) -> list[dict]:
     for name, grp in ev.groupby("_family", sort=True):
         years = grp["change_year"].dropna()
         out.append(
-            {
-                "family": name,
-                "events": int(grp["event_id"].nunique()),
-                "places": sorted(grp["place"].unique().tolist()),
-                "first_year": int(years.min()) if len(years) else None,
-                "last_year": int(years.max()) if len(years) else None,
-                "directions": sorted(grp["change_direction"].dropna().unique().tolist()),
-            }
+            FamilyEntry(
+                family=name,
+                events=int(grp["event_id"].nunique()),
+                places=sorted(grp["place"].unique().tolist()),
+                first_year=int(years.min()) if len(years) else None,
+                last_year=int(years.max()) if len(years) else None,
+                directions=sorted(grp["change_direction"].dropna().unique().tolist()),
+            )
         )
     return out
 

@@ -51,6 +51,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from exposhift import cautions
 from exposhift.replication.families import (
     DEFAULT_BY,
     event_table,
@@ -63,7 +64,6 @@ from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.replication.spatial import spatial_summary
 from exposhift.replication.temporal import temporal_summary
 from exposhift.replication.triangulation import family_pools, triangulation_summary
-from exposhift.synthesis.pooling import CAUTION as POOLING_CAUTION
 
 #: statuses from strongest to weakest (the order used when a gap-map cell shows the best one)
 STATUSES: dict[str, str] = {
@@ -79,8 +79,8 @@ STATUSES: dict[str, str] = {
 }
 STATUS_RANK: dict[str, int] = {s: i for i, s in enumerate(STATUSES)}
 
-#: the caution shown beside statuses: the same text as beside pooled numbers
-CAUTION = POOLING_CAUTION
+#: the caution shown beside statuses (exposhift.cautions)
+CAUTION = cautions.REPLICATION
 
 
 @dataclass(frozen=True)

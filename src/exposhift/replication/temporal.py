@@ -31,6 +31,7 @@ from collections.abc import Sequence
 import numpy as np
 import pandas as pd
 
+from exposhift.replication.entries import PlaceSequence, Reversal, SequenceEvent
 from exposhift.replication.families import DEFAULT_BY
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 
@@ -109,7 +110,7 @@ def temporal_summary(
 def place_sequences(
     events: pd.DataFrame,
     settings: ReplicationSettings = DEFAULTS,
-) -> list[dict]:
+) -> list[PlaceSequence]:
     """For one exposure × outcome: each place with two or more events, its events in order,
     whether each counts (see :func:`temporal_summary`) and, for those that count, their period
     number (periods are formed by the counting events, as in :func:`temporal_summary`)."""
@@ -127,29 +128,29 @@ def place_sequences(
                 period[pos] = int(p)
         counted_periods = len({p for p in period if p is not None})
         out.append(
-            {
-                "place": place,
-                "periods_with_counting_event": counted_periods,
-                "replicated": counted_periods >= settings.min_periods,
-                "events": [
-                    {
-                        "event_id": r.event_id,
-                        "change_date": str(r.change_date),
-                        "direction": r.change_direction,
-                        "period": p,
-                        "level": _lvl(r.level),
-                        "sign": int(r.sign),
-                        "concordant": bool(r.concordant),
-                        "counts": bool(c),
-                    }
+            PlaceSequence(
+                place=place,
+                periods_with_counting_event=counted_periods,
+                replicated=counted_periods >= settings.min_periods,
+                events=[
+                    SequenceEvent(
+                        event_id=r.event_id,
+                        change_date=str(r.change_date),
+                        direction=r.change_direction,
+                        period=p,
+                        level=_lvl(r.level),
+                        sign=int(r.sign),
+                        concordant=bool(r.concordant),
+                        counts=bool(c),
+                    )
                     for r, p, c in zip(grp.itertuples(index=False), period, counts, strict=True)
                 ],
-            }
+            )
         )
     return out
 
 
-def reversals(events: pd.DataFrame, settings: ReplicationSettings = DEFAULTS) -> list[dict]:
+def reversals(events: pd.DataFrame, settings: ReplicationSettings = DEFAULTS) -> list[Reversal]:
     """For one exposure × outcome: every increase that follows a decrease in the same place,
     paired with the latest earlier decrease (preferring one that counts); ``outcome_moved_back``
     when the aligned estimates share a sign (the raw effects are opposite), ``counts`` when both
@@ -173,15 +174,15 @@ def reversals(events: pd.DataFrame, settings: ReplicationSettings = DEFAULTS) ->
             moved_back = bool(up.sign != 0 and up.sign == down.sign)
             counts = bool(moved_back and up.counts and down.counts)
             out.append(
-                {
-                    "place": place,
-                    "decrease_event": down.event_id,
-                    "decrease_date": str(down.change_date),
-                    "increase_event": up.event_id,
-                    "increase_date": str(up.change_date),
-                    "outcome_moved_back": moved_back,
-                    "counts": counts,
-                }
+                Reversal(
+                    place=place,
+                    decrease_event=down.event_id,
+                    decrease_date=str(down.change_date),
+                    increase_event=up.event_id,
+                    increase_date=str(up.change_date),
+                    outcome_moved_back=moved_back,
+                    counts=counts,
+                )
             )
     return out
 

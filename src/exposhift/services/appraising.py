@@ -34,11 +34,11 @@ from exposhift.access import (
 )
 from exposhift.appraisal.agreement import agreement_table, overall_level_row
 from exposhift.appraisal.rubric import load_rubric
-from exposhift.appraisal.rubric_types import Rubric
-from exposhift.appraisal.scoring import StudyFacts, score_appraisal, suggest_levels
-from exposhift.appraisal.suggestions import facts_from_record
+from exposhift.appraisal.scoring import score_appraisal
 from exposhift.errors import InputFileError, NotFoundError, Problem
+from exposhift.io.appraisal_sheet import validate_appraisal_sheet
 from exposhift.io.sheet import read_sheet
+from exposhift.results import ReadsAsMapping
 from exposhift.store.appraisals import (
     APPRAISAL_TABLE,
     RATING_TABLE,
@@ -51,9 +51,8 @@ from exposhift.store.appraisals import (
 )
 from exposhift.store.database import Store
 from exposhift.store.writer import Writer
-from exposhift.vocab import REVIEW_STAGES
 
-META_COLUMNS = ("study_id", "reviewer", "stage")
+REVIEWERS_BEFORE_UNBLINDING = 2
 
 
 @dataclass
@@ -63,213 +62,6 @@ class AppraisalImportSummary:
     by_stage: dict[str, int] = field(default_factory=dict)
     rubric: str = ""
     dry_run: bool = False
-
-
-def _int_level(text: str) -> int | None:
-    try:
-        value = float(text)
-    except ValueError:
-        return None
-    return int(value) if value.is_integer() else None
-
-
-def facts_of(study: dict[str, Any]) -> StudyFacts:
-    """The recorded facts of a study that appraisal suggestions are made from."""
-    return facts_from_record(
-        study["design"],
-        study.get("pre_points"),
-        study.get("post_points"),
-        study.get("checks") or None,
-        study.get("assignment_grade"),
-        has_comparison=bool(study.get("comparison")) or None,
-    )
-
-
-def _validate(frame: pd.DataFrame, label: str, rubric: Rubric, studies, existing):
-    """Every problem in one pass; returns parsed appraisals in file order."""
-    problems: list[Problem] = []
-    domains = rubric.domain_keys
-    known = (
-        set(META_COLUMNS)
-        | set(domains)
-        | {f"{d}_why" for d in domains}
-        | {f"{d}_reporting" for d in domains}
-    )
-    for col in META_COLUMNS:
-        if col not in frame.columns:
-            problems.append(Problem(label, 1, col, "required column is missing"))
-    unknown = [c for c in frame.columns if c not in known]
-    for col in unknown:
-        problems.append(
-            Problem(
-                label,
-                1,
-                col,
-                f"unknown column; accepted domain keys: {', '.join(domains)} (with optional "
-                "'<domain>_why' and '<domain>_reporting' columns)",
-            )
-        )
-    if problems:
-        raise InputFileError(problems)
-    reporting_keys = {r.key for r in rubric.reporting}
-    parsed: list[dict[str, Any]] = []
-    seen: dict[tuple[str, str, str], int] = {}
-    independents: dict[str, set[str]] = {}
-    for study, reviewer, stage in existing:
-        if stage == "independent":
-            independents.setdefault(study, set()).add(reviewer)
-    # independent appraisals first, so a file may hold both stages of a study
-    order = sorted(frame.index, key=lambda r: (frame.at[r, "stage"] != "independent", r))
-    for row in order:
-        rec = frame.loc[row]
-        study, reviewer, stage = rec["study_id"], rec["reviewer"], rec["stage"]
-        bad = False
-        if not study:
-            problems.append(Problem(label, row, "study_id", "empty; name the study"))
-            bad = True
-        elif study not in studies:
-            problems.append(
-                Problem(
-                    label,
-                    row,
-                    "study_id",
-                    f"no study '{study}' in the evidence base; import it first",
-                )
-            )
-            bad = True
-        if not reviewer:
-            problems.append(Problem(label, row, "reviewer", "empty; name the reviewer"))
-            bad = True
-        if stage not in REVIEW_STAGES:
-            problems.append(
-                Problem(
-                    label,
-                    row,
-                    "stage",
-                    f"'{stage}' is not a stage; accepted: {', '.join(REVIEW_STAGES)}",
-                )
-            )
-            bad = True
-        ratings: dict[str, int] = {}
-        why: dict[str, str] = {}
-        reporting: dict[str, str] = {}
-        for d in domains:
-            text = rec.get(d, "")
-            if text == "":
-                if d in rubric.core_domains:
-                    problems.append(
-                        Problem(label, row, d, "core domain not rated; give a level 0-3")
-                    )
-                    bad = True
-                continue
-            level = _int_level(text)
-            if level is None or level not in (0, 1, 2, 3):
-                what = "is not one of the levels" if level is None else "is outside 0-3"
-                problems.append(
-                    Problem(
-                        label,
-                        row,
-                        d,
-                        f"level '{text}' {what}; accepted: 0 (fatal), 1 (weak), "
-                        "2 (adequate), 3 (strong)",
-                    )
-                )
-                bad = True
-                continue
-            ratings[d] = level
-            if rec.get(f"{d}_why", ""):
-                why[d] = rec[f"{d}_why"]
-            rep = rec.get(f"{d}_reporting", "")
-            if rep:
-                if rep not in reporting_keys:
-                    problems.append(
-                        Problem(
-                            label,
-                            row,
-                            f"{d}_reporting",
-                            f"'{rep}' is not a reporting value; accepted: "
-                            f"{', '.join(sorted(reporting_keys))}",
-                        )
-                    )
-                    bad = True
-                else:
-                    reporting[d] = rep
-        if bad:
-            continue
-        key = (study, reviewer, stage)
-        if key in seen:
-            problems.append(
-                Problem(
-                    label,
-                    row,
-                    "reviewer",
-                    f"'{reviewer}' already appraises study '{study}' at stage "
-                    f"'{stage}' in row {seen[key]}; keep one row",
-                )
-            )
-            continue
-        seen[key] = row
-        suggestions = suggest_levels(facts_of(studies[study]), rubric)
-        for d, level in ratings.items():
-            s = suggestions.get(d)
-            if s is None or s.allows(level) or d in why:
-                continue
-            wanted = f"{s.level}" if s.level is not None else f"at most {s.max_level}"
-            problems.append(
-                Problem(
-                    label,
-                    row,
-                    d,
-                    f"level {level} departs from the suggested {wanted} ({s.reason}); use the "
-                    f"suggested level or give the reason for overriding in '{d}_why'",
-                )
-            )
-            bad = True
-        if bad:
-            continue
-        if key in existing:
-            if existing[key]["ratings"] == ratings:
-                parsed.append({"key": key, "row": row, "unchanged": True})
-                continue
-            problems.append(
-                Problem(
-                    label,
-                    row,
-                    "reviewer",
-                    f"'{reviewer}' has already appraised study '{study}' at stage '{stage}' with "
-                    "other ratings; an appraisal is not overwritten. Settle differences in the "
-                    "consensus appraisal",
-                )
-            )
-            continue
-        if stage == "independent":
-            independents.setdefault(study, set()).add(reviewer)
-        elif len(independents.get(study, set())) < 2:
-            n = len(independents.get(study, set()))
-            problems.append(
-                Problem(
-                    label,
-                    row,
-                    "stage",
-                    f"a consensus for study '{study}' needs two independent appraisals first "
-                    f"(it has {n}); import the independent appraisals before the consensus",
-                )
-            )
-            continue
-        parsed.append(
-            {
-                "key": key,
-                "row": row,
-                "ratings": ratings,
-                "why": why,
-                "reporting": reporting,
-                "suggestions": suggestions,
-                "unchanged": False,
-            }
-        )
-    if problems:
-        raise InputFileError(sorted(problems, key=lambda p: (p.row or 0, p.column or "")))
-    return parsed
 
 
 def _check_authorship(frame: pd.DataFrame, label: str, actor: Identity) -> None:
@@ -322,7 +114,7 @@ def import_appraisals(
     _check_authorship(frame, label, Identity(store.user, store.role))
     with store.write() as conn:
         studies = studies_by_key(conn)
-        parsed = _validate(frame, label, rubric, studies, existing_appraisals(conn))
+        parsed = validate_appraisal_sheet(frame, label, rubric, studies, existing_appraisals(conn))
         w = Writer(conn, store.user)
         for item in parsed:
             if item["unchanged"]:
@@ -385,13 +177,53 @@ class AppraisalView:
     suggestions: dict[str, tuple[int | None, str]]
     blinded: bool
 
+    def to_dict(self) -> dict[str, Any]:
+        return dict(vars(self))
+
+
+@dataclass(frozen=True, eq=False)
+class StudyAppraisals(ReadsAsMapping):
+    """A study's appraisals as one viewer may see them (blinding applied); ``of_record`` is the
+    consensus, the appraisal of record."""
+
+    study_id: str
+    citation: str
+    design: str
+    appraisals: list[AppraisalView]
+    of_record: AppraisalView | None
+    independent: int
+    domains: tuple[str, ...]
+    caution: str
+    #: words for a consensus made under another rubric than the one in force (None: not so)
+    older_rubric: str | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        """What ``exposhift appraise show --json`` prints."""
+        return {
+            **({"older_rubric": self.older_rubric} if self.older_rubric else {}),
+            "study_id": self.study_id,
+            "citation": self.citation,
+            "design": self.design,
+            "appraisals": [v.to_dict() for v in self.appraisals],
+            "of_record": self.of_record.to_dict() if self.of_record else None,
+            "independent": self.independent,
+            "domains": self.domains,
+            "caution": self.caution,
+        }
+
+    def __getitem__(self, key: str) -> Any:
+        # callers that index by key get the views themselves, as before
+        if key in ("appraisals", "of_record"):
+            return getattr(self, key)
+        return super().__getitem__(key)
+
 
 def show_appraisals(
     store: Store,
     study_key: str,
     viewer: Identity | str | None = None,
     rubric_path: str | Path | None = None,
-) -> dict[str, Any]:
+) -> StudyAppraisals:
     """A study's appraisals as ``viewer`` may see them (blinding by identity applied).
 
     ``viewer``: an :class:`~exposhift.access.Identity` (the dashboard's signed-in person), a
@@ -461,18 +293,17 @@ def show_appraisals(
             )
         )
     record = next((v for v in views if v.stage == "consensus"), None)
-    older = older_rubric_note(store, aps, rubric)
-    return {
-        **({"older_rubric": older} if older else {}),
-        "study_id": study_key,
-        "citation": study["citation"],
-        "design": study["design"],
-        "appraisals": views,
-        "of_record": record,
-        "independent": n_indep,
-        "domains": rubric.domain_keys,
-        "caution": rubric.caution,
-    }
+    return StudyAppraisals(
+        older_rubric=older_rubric_note(store, aps, rubric),
+        study_id=study_key,
+        citation=study["citation"],
+        design=study["design"],
+        appraisals=views,
+        of_record=record,
+        independent=n_indep,
+        domains=rubric.domain_keys,
+        caution=rubric.caution,
+    )
 
 
 def visible_studies(conn, viewer: Identity) -> set[str]:

@@ -1,9 +1,10 @@
 """The appraisal rules at the archive door: the same as ``appraise import``, plus conflicts.
 
 An appraisal that reaches the store through a JSON archive passes the validation of
-:func:`exposhift.services.appraising._validate` (domains of the rubric, levels 0-3, core domains
-rated, reporting values, stages, a consensus only after two independent appraisals, a
-justification for every departure from a suggested level), and three archive checks:
+:func:`exposhift.io.appraisal_sheet.validate_appraisal_sheet` (domains of the rubric,
+levels 0-3, core domains rated, reporting values, stages, a consensus only after two
+independent appraisals, a justification for every departure from a suggested level), and three
+archive checks:
 
 - the rubric named (id and content hash) is the rubric in use or one the evidence base already
   holds appraisals of;
@@ -28,8 +29,8 @@ import pandas as pd
 from exposhift.appraisal.rubric_types import Rubric
 from exposhift.appraisal.scoring import score_appraisal
 from exposhift.errors import InputFileError, Problem
+from exposhift.io.appraisal_sheet import validate_appraisal_sheet
 from exposhift.io.frames import EvidenceFrames, to_records
-from exposhift.services.appraising import _validate
 from exposhift.store.appraisals import existing_appraisals, rubrics_held, studies_by_key
 from exposhift.store.writer import Writer
 
@@ -107,7 +108,7 @@ def _message(msg: str, domains: tuple[str, ...]) -> str:
 
 def _rule_problems(frames, wide, label, rubric, studies, existing) -> list[Problem]:
     try:
-        _validate(wide, label, rubric, studies, existing)
+        validate_appraisal_sheet(wide, label, rubric, studies, existing)
     except InputFileError as exc:
         return [
             Problem(

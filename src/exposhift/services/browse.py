@@ -7,18 +7,19 @@ dataclasses; the dashboard and any other front end only display them.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from exposhift.services.pooling import STRATA, PoolOutput, pool_evidence
 from exposhift.services.setup import database_info
 from exposhift.store.appraisals import studies_by_key
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame, events_frame
+from exposhift.synthesis.forest_rows import event_rows
 from exposhift.synthesis.independence import pooling_keys
 from exposhift.vocab import DESIGNS
 
@@ -105,9 +106,9 @@ def evidence_overview(store: Store) -> EvidenceOverview:
     years = events["change_year"].dropna()
     demo_studies = int(studies["demo"].fillna(False).astype(bool).sum())
     return EvidenceOverview(
-        url=info["url"],
-        backend=info["backend"],
-        counts=dict(info["counts"]),
+        url=info.url,
+        backend=info.backend,
+        counts=dict(info.counts),
         demo_studies=demo_studies,
         demo_events=int(events["demo"].fillna(False).astype(bool).sum()),
         events_without_study=int((events["studies"] == 0).sum()),
@@ -200,7 +201,7 @@ class PoolView:
         return self.output.caution
 
 
-def group_label(group: dict[str, Any], keys: list[str]) -> str:
+def group_label(group: Mapping[str, Any], keys: list[str]) -> str:
     """A readable name of one pooled group: its key values, blanks left out."""
     parts = []
     for k in keys:
@@ -290,19 +291,10 @@ def pool_view(
     if not out.groups:
         return PoolView(out, pd.DataFrame(columns=columns), options)
     keys = pooling_keys([STRATA[b] for b in by])
-    z = float(stats.norm.isf(alpha / 2))
-    rows = out.pooled_rows.copy()
+    rows = event_rows(out.pooled_rows, alpha)
     labels = {i: group_label(g, keys) for i, g in enumerate(out.groups)}
     rows["group_label"] = rows["group"].map(labels)
-    rows["se"] = np.sqrt(rows["v"].to_numpy(dtype=float))
-    rows["ci_lower"] = rows["y"] - z * rows["se"]
-    rows["ci_upper"] = rows["y"] + z * rows["se"]
-    if "study_ids" in rows.columns:
-        rows["study_id"] = rows["study_ids"].where(rows["study_ids"].notna(), rows["study_id"])
-    rows["estimate_uid"] = rows["estimate_uids"].map(lambda u: "; ".join(map(str, u)))
-    rows["change_date"] = rows["change_date"].astype(str)
     for c in columns:
         if c not in rows.columns:
             rows[c] = None
-    rows = rows.sort_values(["group", "change_date", "event_id"], kind="stable")
     return PoolView(out, rows[columns].reset_index(drop=True), options)

@@ -16,7 +16,6 @@ from __future__ import annotations
 import contextlib
 import datetime as dt
 import os
-import sqlite3
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -25,11 +24,18 @@ import pandas as pd
 import exposhift
 from exposhift.errors import ConfigError
 from exposhift.services.appraising import import_appraisals
-from exposhift.services.exporting import load_evidence
 from exposhift.services.importing import ImportReport, import_into
 from exposhift.services.setup import init_database, open_current
 from exposhift.services.summary import evidence_summary
 from exposhift.store.database import DEFAULT_SQLITE, resolve_url, sqlite_path
+from exposhift.store.evidence_frames import load_evidence
+from exposhift.store.sqlite_files import (
+    checkpoint,
+    copy_database,
+    foreign_content,
+    non_demo_records,
+    remove_database,
+)
 
 DEMO_DB = Path("demo") / "evidence-demo.db"
 SEED_FILES = (
@@ -84,88 +90,17 @@ def _check_target(target: Path, force: bool) -> None:
         )
     if force or not target.exists():
         return
-    try:
-        con = sqlite3.connect(f"file:{target}?mode=ro", uri=True)
-        try:
-            real = con.execute(
-                "SELECT (SELECT count(*) FROM study WHERE NOT demo) + "
-                "(SELECT count(*) FROM event WHERE NOT demo)"
-            ).fetchone()[0]
-        finally:
-            con.close()
-    except sqlite3.Error:
+    real = non_demo_records(target)
+    if real is None:
         raise ConfigError(
             f"{target} exists and is not an exposhift demo database; refusing to "
             f"replace it. {_FORCE_HINT}"
-        ) from None
+        )
     if real:
         raise ConfigError(
             f"{target} holds {real} records that are not demo records; refusing "
             f"to replace it. {_FORCE_HINT}"
         )
-
-
-#: tables whose rows are compared by content (the rest: by row count)
-_SKIP_TABLES = ("alembic_version", "sqlite_sequence")
-
-
-def _tables(con: sqlite3.Connection) -> list[str]:
-    return [
-        n
-        for (n,) in con.execute(
-            "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite_%'"
-        )
-        if n not in _SKIP_TABLES
-    ]
-
-
-def _audit(con: sqlite3.Connection) -> set[tuple[str, str, str]]:
-    return set(con.execute("SELECT table_name, row_key, action FROM audit_entry"))
-
-
-def foreign_content(target: Path, fresh: Path) -> list[str]:
-    """What ``target`` holds that a fresh demo build (``fresh``) does not: an empty list when the
-    file holds only what the demo generates. Each entry is a readable reason."""
-    try:
-        con = sqlite3.connect(f"file:{target}?mode=ro", uri=True)
-        try:
-            tables = _tables(con)
-            if "audit_entry" not in tables:
-                return ["it is not an exposhift database"]
-            old_counts = {
-                t: con.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0] for t in tables
-            }
-            old_audit = _audit(con)
-        finally:
-            con.close()
-    except sqlite3.Error:
-        return ["it is not an exposhift database (not readable as SQLite)"]
-    con = sqlite3.connect(fresh)
-    try:
-        new_tables = set(_tables(con))
-        new_counts = {
-            t: con.execute(f'SELECT count(*) FROM "{t}"').fetchone()[0] for t in new_tables
-        }
-        new_audit = _audit(con)
-    finally:
-        con.close()
-    reasons = []
-    words = {"insert": "added", "update": "changed", "delete": "deleted"}
-    by_kind: dict[tuple[str, str], int] = {}
-    for table, _, action in old_audit - new_audit:
-        by_kind[(table, action)] = by_kind.get((table, action), 0) + 1
-    reasons += [
-        f"{n} {table} record(s) {words.get(action, action)} that the demo does not make"
-        for (table, action), n in sorted(by_kind.items())
-    ]
-    covered = {t for t, _ in by_kind}
-    for t in tables:
-        if t != "audit_entry" and t not in covered and old_counts[t] > new_counts.get(t, 0):
-            reasons.append(
-                f"{old_counts[t] - new_counts.get(t, 0)} row(s) in table {t} that "
-                "the demo does not write"
-            )
-    return reasons
 
 
 def backup_path(target: Path) -> Path:
@@ -174,32 +109,10 @@ def backup_path(target: Path) -> Path:
 
 
 def _backup(target: Path) -> Path:
-    """Copy ``target`` beside itself (SQLite's online backup when it is a database: the WAL is
-    included; a byte copy otherwise)."""
+    """Copy ``target`` beside itself (:func:`~exposhift.store.sqlite_files.copy_database`)."""
     dest = backup_path(target)
-    try:
-        src = sqlite3.connect(f"file:{target}?mode=ro", uri=True)
-        try:
-            src.execute("SELECT count(*) FROM sqlite_master").fetchone()
-            out = sqlite3.connect(dest)
-            try:
-                src.backup(out)
-            finally:
-                out.close()
-        finally:
-            src.close()
-    except sqlite3.Error:
-        _remove_sqlite(dest)
-        import shutil
-
-        shutil.copy2(target, dest)
+    copy_database(target, dest)
     return dest
-
-
-def _remove_sqlite(path: Path) -> None:
-    for p in (path, Path(f"{path}-wal"), Path(f"{path}-shm"), Path(f"{path}-journal")):
-        with contextlib.suppress(FileNotFoundError):
-            p.unlink()
 
 
 def _import_appraisals(store, path: Path) -> str:
@@ -272,7 +185,7 @@ def build_demo(
     _check_target(target, force)
     target.parent.mkdir(parents=True, exist_ok=True)
     tmp = target.with_name(f".{target.name}.{os.getpid()}.building")
-    _remove_sqlite(tmp)
+    remove_database(tmp)
     try:
         init_database(str(tmp), user or "demo")
         store = open_current(str(tmp), user or "demo")
@@ -292,11 +205,7 @@ def build_demo(
             summary = evidence_summary(store)
         finally:
             store.dispose()
-        con = sqlite3.connect(tmp)
-        try:
-            con.execute("PRAGMA wal_checkpoint(TRUNCATE)")
-        finally:
-            con.close()
+        checkpoint(tmp)
         backup = None
         if target.exists():
             reasons = foreign_content(target, tmp)
@@ -312,7 +221,7 @@ def build_demo(
                 Path(f"{target}{side}").unlink()
         os.replace(tmp, target)
     except BaseException:
-        _remove_sqlite(tmp)
+        remove_database(tmp)
         raise
     finally:
         for side in ("-wal", "-shm"):

@@ -22,7 +22,7 @@ from datetime import UTC, date, datetime
 from pathlib import Path
 from typing import Any
 
-from exposhift import __version__
+from exposhift import __version__, cautions
 from exposhift.dossier import evidence as ev
 from exposhift.dossier.bundle import (
     Bundle,
@@ -67,11 +67,7 @@ from exposhift.vocab import DESIGNS
 
 FORMATS = ("html", "docx", "bundle", "pdf")
 DEFAULT_FORMATS = ("html", "docx", "bundle")
-HAZARD_CAUTION = (
-    "Hazard conclusions rest with the committee, with local regulation and with "
-    "licensed practice. A replication status says no more than its rule in "
-    "words; a pooled estimate says no more than the estimates it pooled."
-)
+HAZARD_CAUTION = cautions.HAZARD
 
 
 @dataclass(frozen=True)

@@ -14,7 +14,7 @@ from typing import Any
 import pandas as pd
 
 from exposhift.errors import ConfigError, NotFoundError
-from exposhift.services.appraising import show_appraisals
+from exposhift.services.appraising import StudyAppraisals, show_appraisals
 from exposhift.services.browse import list_studies
 from exposhift.services.lookup import resolve_name
 from exposhift.store.appraisals import studies_by_key
@@ -132,7 +132,7 @@ class StudyRecord:
     study: dict[str, Any]
     events: pd.DataFrame
     estimates: pd.DataFrame
-    appraisals: dict[str, Any]  # show_appraisals(): blinding applied, of_record = consensus
+    appraisals: StudyAppraisals  # show_appraisals(): blinding applied, of_record = consensus
 
     def to_dict(self) -> dict[str, Any]:
         ap = self.appraisals
@@ -140,7 +140,7 @@ class StudyRecord:
             "study": self.study,
             "events": self.events.to_dict(orient="records"),
             "estimates": self.estimates.to_dict(orient="records"),
-            "appraisal_of_record": vars(ap["of_record"]) if ap["of_record"] else None,
+            "appraisal_of_record": ap.of_record.to_dict() if ap.of_record else None,
             "appraisals": [
                 {
                     "reviewer": v.reviewer,
@@ -148,9 +148,9 @@ class StudyRecord:
                     "overall": v.overall,
                     "blinded": v.blinded,
                 }
-                for v in ap["appraisals"]
+                for v in ap.appraisals
             ],
-            "caution": ap["caution"],
+            "caution": ap.caution,
         }
 
 

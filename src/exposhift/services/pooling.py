@@ -33,6 +33,7 @@ import pandas as pd
 from exposhift.appraisal.rubric import Rubric, load_rubric
 from exposhift.errors import AnalysisError, ConfigError, NotFoundError
 from exposhift.services.lookup import require_name
+from exposhift.services.pool_results import Exclusion, PooledGroup
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame
 from exposhift.synthesis.conversions import from_analysis_scale
@@ -81,8 +82,8 @@ class PoolOutput:
     exposure: str
     outcome: str
     align_to: str
-    groups: list[dict[str, Any]]
-    excluded: list[dict[str, Any]]
+    groups: list[PooledGroup]
+    excluded: list[Exclusion]
     caution: str = CAUTION
     #: the evidence set and the options, in words and as values (shown with every result)
     evidence_set: str = ""
@@ -96,11 +97,23 @@ class PoolOutput:
     #: the harmonised, independent estimates behind them (one row each)
     unit_rows: pd.DataFrame = field(default_factory=pd.DataFrame, repr=False)
 
+    def to_dict(self) -> dict[str, Any]:
+        """What ``exposhift pool --json`` prints."""
+        return {
+            "exposure": self.exposure,
+            "outcome": self.outcome,
+            "evidence_set": self.evidence_set,
+            "options": self.options,
+            "groups": [g.to_dict() for g in self.groups],
+            "overall": self.overall,
+            "caution": self.caution,
+        }
 
-def _excluded_records(frame: pd.DataFrame, reason: pd.Series | str) -> list[dict[str, Any]]:
+
+def _excluded_records(frame: pd.DataFrame, reason: pd.Series | str) -> list[Exclusion]:
     out = frame[["estimate_uid", "study_id", "event_id"]].copy()
     out["reason"] = reason
-    return out.to_dict(orient="records")
+    return [Exclusion(**rec) for rec in out.to_dict(orient="records")]
 
 
 def _finite(x: Any) -> Any:
@@ -150,14 +163,14 @@ def prepare_for_pooling(
     align_to: str = "increase",
     min_level: int | None = None,
     rubric: Rubric | None = None,
-) -> tuple[pd.DataFrame, list[dict[str, Any]]]:
+) -> tuple[pd.DataFrame, list[Exclusion]]:
     """Steps 2-4: the evidence set, harmonise, keep independent estimates.
 
     ``rubric`` says which overall levels are left out (the evidence base's rubric in force;
     None: the packaged rubric). Returns the harmonised independent units to pool and the
     left-out estimates with reasons.
     """
-    excluded: list[dict[str, Any]] = []
+    excluded: list[Exclusion] = []
     if not include_fatal:
         rubric = rubric if rubric is not None else load_rubric()
         fatal = frame["level"].isin(list(rubric.exclude_from_pooling))
@@ -287,11 +300,15 @@ def pool_evidence(
         rho=rho,
     )
     groups = [
-        _group_record(rec, keys, kept, pooled.rows[pooled.rows["group"] == i], options, details)
+        PooledGroup.from_record(
+            _group_record(
+                rec, keys, kept, pooled.rows[pooled.rows["group"] == i], options, details
+            ),
+            keys,
+            excluded,
+        )
         for i, rec in enumerate(pooled.table.to_dict(orient="records"))
     ]
-    for g in groups:
-        g["excluded"] = excluded
     overall = _overall(kept, keys, by, options) if by else []
     return PoolOutput(
         exposure,

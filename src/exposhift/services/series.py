@@ -16,6 +16,7 @@ from typing import Any
 
 import numpy as np
 
+from exposhift import cautions
 from exposhift.access import require
 from exposhift.appraisal.checks import parse_checks
 from exposhift.errors import ConfigError, NotFoundError
@@ -35,10 +36,7 @@ from exposhift.store.series_records import (
 )
 from exposhift.store.writer import Writer
 
-CAUTION = (
-    "a re-estimate from extracted points supports, never replaces, expert judgement, "
-    "local regulation and licensed practice; digitised points carry reading error"
-)
+CAUTION = cautions.SERIES
 
 
 @dataclass(frozen=True)

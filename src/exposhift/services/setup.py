@@ -63,7 +63,22 @@ def open_current(db: str | None = None, user: str | None = None) -> Store:
     return store
 
 
-def database_info(db: str | None = None) -> dict:
+@dataclass(frozen=True)
+class DatabaseInfo:
+    """What an evidence base holds: counts per table, its masked URL and schema revision."""
+
+    url: str
+    backend: str
+    revision: str | None
+    newest_revision: str | None
+    counts: dict[str, int]
+
+    def to_dict(self) -> dict:
+        """What ``exposhift info --json`` prints: the counts, the URL and the revision."""
+        return {**self.counts, "url": self.url, "revision": self.revision}
+
+
+def database_info(db: str | None = None) -> DatabaseInfo:
     """Counts per table, masked URL and schema revision."""
     store = open_current(db)
     try:
@@ -73,12 +88,12 @@ def database_info(db: str | None = None) -> dict:
         with store.read() as conn:
             counts = {name: store.count(conn, tables[t]) for name, t in COUNTED.items()}
             rev = current_revision(conn)
-        return {
-            "url": store.masked_url,
-            "backend": store.engine.dialect.name,
-            "revision": rev,
-            "newest_revision": head_revision(),
-            "counts": counts,
-        }
+        return DatabaseInfo(
+            url=store.masked_url,
+            backend=store.engine.dialect.name,
+            revision=rev,
+            newest_revision=head_revision(),
+            counts=counts,
+        )
     finally:
         store.dispose()

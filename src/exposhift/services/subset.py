@@ -8,6 +8,7 @@ into another evidence base. Pure: frames in, frames out.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import replace
 
 import pandas as pd
@@ -76,7 +77,7 @@ def subset_frames(
 
 
 def with_consensus_levels(
-    sheet: pd.DataFrame, frames: EvidenceFrames, domains: list[str]
+    sheet: pd.DataFrame, frames: EvidenceFrames, domains: Sequence[str]
 ) -> pd.DataFrame:
     """``sheet`` (one row per estimate) plus the consensus appraisal of each row's study:
     ``consensus_overall`` and ``consensus_<domain>`` per rubric domain (blank: no consensus).

@@ -15,6 +15,8 @@ from __future__ import annotations
 from sqlalchemy import Column, ForeignKey, Integer, UniqueConstraint
 from sqlmodel import Field, SQLModel
 
+from exposhift.keys import NATURAL_KEY  # noqa: F401  (declared once there; re-exported)
+
 metadata = SQLModel.metadata
 metadata.naming_convention = {
     "ix": "ix_%(column_0_label)s",
@@ -190,13 +192,6 @@ VERSIONED = {
 }
 
 #: the column that names a row for users and in the audit trail
-NATURAL_KEY = {
-    "exposure": "name",
-    "outcome": "name",
-    "event": "key",
-    "study": "key",
-    "estimate": "key",
-}
 
 
 # ---------------------------------------------------------------------- expected directions
@@ -281,7 +276,6 @@ class SeriesFit(SQLModel, table=True):
 
 
 VERSIONED["series"] = Series
-NATURAL_KEY["series"] = "key"
 
 
 VERSIONED["expected_direction"] = ExpectedDirection

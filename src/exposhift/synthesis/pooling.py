@@ -55,6 +55,7 @@ import numpy as np
 import pandas as pd
 from scipy import optimize, stats
 
+from exposhift import cautions
 from exposhift.errors import AnalysisError
 
 METHODS: tuple[str, ...] = ("fe", "dl", "pm", "reml")
@@ -69,12 +70,8 @@ PM_RTOL = 1e-14
 #: in theory; rounding must not decide whether a note appears)
 NOTE_TOL = 1e-9
 
-#: the caution to show beside pooled numbers (METHODS.md section 7)
-CAUTION = (
-    "Pooled numbers and status labels support, never replace, expert judgement; hazard "
-    "conclusions rest with the committee and with local regulation and licensed practice. "
-    "Natural experiments remain vulnerable to bias that no rubric fully captures."
-)
+#: the caution to show beside pooled numbers (METHODS.md section 7; text in exposhift.cautions)
+CAUTION = cautions.POOLING
 
 #: the scalar fields of :class:`PoolResult`, in column order (used by ``pool_groups``)
 SCALAR_FIELDS: tuple[str, ...] = (

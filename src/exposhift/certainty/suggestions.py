@@ -250,11 +250,16 @@ def _imprecision(f: CellFacts, s: CertaintySettings) -> Suggestion:
             nums,
         )
     if cross_null or cross_t:
-        what = "includes no effect" if cross_null else f"crosses the {band} threshold {side:.3g}"
-        return Suggestion("imprecision", "down-one", f"{where} {what}; {ois}", nums)
-    return Suggestion(
-        "imprecision", "none", f"{where} lies beyond the {band} on one side; {ois}", nums
+        what = "includes no effect" if cross_null else f"crosses the decision threshold {side:.3g}"
+        return Suggestion("imprecision", "down-one", f"{where} {what} ({band}); {ois}", nums)
+    beyond = ci[0] >= hi if est >= null else ci[1] <= lo
+    what = (
+        "lies wholly beyond the decision threshold: an appreciable effect"
+        if beyond
+        else "lies wholly between no effect and the decision threshold: an effect too small "
+        "to matter for the decision, estimated precisely"
     )
+    return Suggestion("imprecision", "none", f"{where} {what} ({band}); {ois}", nums)
 
 
 def _indirectness(f: CellFacts, s: CertaintySettings) -> Suggestion:

@@ -55,8 +55,17 @@ def reasons_in_words(cell: CellSuggestions, judgements: pd.DataFrame | None) -> 
         if rating not in ("none", "not-assessable"):
             mark = "" if s.domain in recorded else " (suggested)"
             parts.append(f"{s.domain} {rating}{mark}")
+    if not cell.facts.k_events:
+        return "nothing pooled: every estimate was left out of pooling (see 'exposhift pool')"
     start = f"starts {cell.start_level}"
-    return f"{start}; " + ", ".join(parts) if parts else f"{start}; no domain moves it"
+    out = f"{start}; " + ", ".join(parts) if parts else f"{start}; no domain moves it"
+    fin = recorded_final(judgements)
+    if fin is not None and bool(fin.get("overrides")):
+        out += (
+            f"; final level {fin['rating']} set by the committee against the sum "
+            f"({fin['suggested']})"
+        )
+    return out
 
 
 def table_row(cell: CellSuggestions, judgements: pd.DataFrame | None) -> dict[str, Any]:

@@ -13,6 +13,7 @@ from exposhift.cli import (
     appraisal_cmds,
     audit_cmds,
     browse_cmds,
+    certainty_cmds,
     dashboard_cmds,
     direction_cmds,
     dossier_cmds,
@@ -84,6 +85,7 @@ for _module in (
     audit_cmds,
     series_cmds,
     dossier_cmds,
+    certainty_cmds,
 ):
     _module.register(app)
 

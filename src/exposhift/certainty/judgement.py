@@ -51,11 +51,10 @@ REQUIRED: tuple[str, ...] = ("exposure", "outcome", "domain", "rating")
 
 def final_suggestion(cell: CellSuggestions, ratings: Mapping[str, str]) -> str:
     """The level the domain ratings add up to: ``ratings`` (the committee's, by domain) where
-    given, the tool's suggestion elsewhere."""
-    total = 0
-    for s in cell.domains:
-        total += steps(s.domain, ratings.get(s.domain, s.rating))
-    return move(cell.start_level, total)
+    given, the tool's suggestion elsewhere; rate-ups count for at most ``max_steps_up``."""
+    moves = [steps(s.domain, ratings.get(s.domain, s.rating)) for s in cell.domains]
+    up = min(sum(m for m in moves if m > 0), cell.max_steps_up)
+    return move(cell.start_level, sum(m for m in moves if m < 0) + up)
 
 
 def judgement_problem(

@@ -92,6 +92,7 @@ class CellSuggestions:
     e_value: EValue
     settings_fingerprint: str
     facts: CellFacts
+    max_steps_up: int = 2
 
     def of(self, domain: str) -> Suggestion | None:
         return next((s for s in self.domains if s.domain == domain), None)
@@ -491,4 +492,5 @@ def suggest(facts: CellFacts, settings: CertaintySettings) -> CellSuggestions:
         ev,
         settings.fingerprint(),
         facts,
+        settings.max_steps_up,
     )

@@ -277,6 +277,25 @@ def record_judgements(
     )
 
 
+def cell_certainty(
+    store: Store,
+    exposure: str,
+    outcome: str,
+    *,
+    settings: CertaintySettings | None = None,
+    sensitivity: bool = False,
+) -> CellCertainty | None:
+    """One cell's suggestions and recorded judgements (None when it has no estimate)."""
+    s = settings or load_certainty_settings(None)
+    with store.read() as conn:
+        exposure = require_name(conn, "exposure", exposure)
+        outcome = require_name(conn, "outcome", outcome)
+        apps = consensus_domain_levels(conn, s.indirectness_domain)
+        recorded = judgements_frame(conn, exposure=exposure, outcome=outcome)
+    cell, rows = _cell(store, exposure, outcome, s, apps, sens=sensitivity)
+    return None if cell is None else CellCertainty(cell, recorded, rows)
+
+
 def recorded_judgements(store: Store, exposure: str, outcome: str) -> pd.DataFrame:
     """The judgements recorded for one cell (empty frame when none)."""
     with store.read() as conn:

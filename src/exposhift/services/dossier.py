@@ -57,6 +57,7 @@ from exposhift.errors import ConfigError
 from exposhift.replication.settings import load_settings
 from exposhift.replication.status import STATUSES
 from exposhift.services.browse import DEMO_NOTE, pool_view
+from exposhift.services.certainty import cell_certainty
 from exposhift.services.lookup import require_name
 from exposhift.services.pooling import pool_evidence
 from exposhift.services.replicating import gap_report, replication_for
@@ -227,7 +228,7 @@ def _section(store: Store, exposure: str, outcome: str, records, settings, opts:
     rep = replication_for(store, exposure, outcome, settings=settings)
     replication = ev.replication(rep, STATUSES)
     question = _question(outcome, records)
-    certainty = certainty_of(exposure, outcome)
+    certainty = certainty_of(exposure, outcome, cell_certainty(store, exposure, outcome))
     if not any(e["outcome"] == outcome for e in records["estimate"]):
         return OutcomeSection(
             outcome,

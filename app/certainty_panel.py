@@ -59,7 +59,7 @@ def show(db: str | None, exposure: str, outcome: str) -> None:
                 "domain": d["domain"],
                 "suggested": d["rating"],
                 "recorded": (c["recorded"].get(d["domain"]) or {}).get("rating", "-"),
-                "reason": d["reason"],
+                "because": d["reason"],
             }
             for d in c["domains"]
         ]

@@ -171,8 +171,9 @@ def certainty_record(
         return
     if res.dry_run:
         typer.echo(
-            f"checked {res.file}: {res.added} judgement(s) valid ({res.overrides} overriding "
-            "the suggestion); nothing written"
+            f"checked {res.file}: valid; would add {res.added}, update {res.updated}, leave "
+            f"{res.unchanged} unchanged ({res.overrides} overriding the suggestion); nothing "
+            "written"
         )
         return
     typer.echo(

@@ -267,7 +267,15 @@ def record_judgements(
                 counts[action] += 1
             w.flush()
     else:
-        counts["added"] = len(frame)
+        keyed = {(r["exposure"], r["outcome"], r["domain"]): r for r in stored.to_dict("records")}
+        for rec in frame.to_dict("records"):
+            old = keyed.get((rec["exposure"], rec["outcome"], rec["domain"]))
+            if old is None:
+                counts["added"] += 1
+            elif (old["rating"], old["why"]) != (rec["rating"], rec["why"]):
+                counts["updated"] += 1
+            else:
+                counts["unchanged"] += 1
     return JudgementImport(
         str(path),
         dry_run,

@@ -1,6 +1,7 @@
 """Pooling: random-effects meta-analysis of one exposure and one outcome, per stratum, with a
 forest plot, the prediction interval, and every estimate left out with its reason."""
 
+import certainty_panel
 import charts
 import pandas as pd
 import streamlit as st
@@ -134,6 +135,8 @@ else:
         "and count events. A prediction interval needs 3 or more events; with 2 events "
         "the t interval has 1 degree of freedom and is very wide."
     )
+
+    certainty_panel.show(db, exposure, outcome)
 
 # 4. estimates left out ----------------------------------------------------------------------
 st.subheader(f"Estimates left out ({len(out.excluded)})")

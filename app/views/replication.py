@@ -1,6 +1,7 @@
 """Replication across place and time: where and when the same kind of exposure change was
 evaluated, whether its effect pointed the same way, and whether designs agree."""
 
+import certainty_panel
 import charts
 import pandas as pd
 import streamlit as st
@@ -102,6 +103,8 @@ for fam in report.families:
         f"Family of change **{fam['family']}**: {fam['events']} event(s) in "
         f"{len(fam['places'])} place(s), {fam['first_year']}–{fam['last_year']}."
     )
+
+certainty_panel.show(db, exposure, outcome)
 
 ev = report.events
 if ev.empty:

@@ -18,6 +18,8 @@ _LAZY = {
     "score_appraisal": "exposhift.appraisal.scoring",
     "weighted_kappa": "exposhift.appraisal.agreement",
     "load_rubric": "exposhift.appraisal.rubric",
+    "e_value": "exposhift.synthesis.evalue",
+    "EValue": "exposhift.synthesis.evalue",
 }
 
 __all__ = ["__version__", *_LAZY]

@@ -66,7 +66,8 @@ def test_numbers_are_the_services_numbers(demo_store):
     )
     rep = replication_for(demo_store, "dravonil", "preterm birth")
     assert s.replication.status == rep.status and s.replication.rule == rep.rule
-    assert s.certainty.rating == "not yet rated"
+    assert s.certainty.rating == "limited"  # recorded by the demo committee (judgements.csv)
+    assert s.certainty.rated and s.certainty.row["certainty"] == "limited"
 
 
 def test_edit_changes_fingerprint_and_diff_names_it(demo_copy, tmp_path):

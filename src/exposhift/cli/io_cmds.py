@@ -357,6 +357,8 @@ def demo_cmd(
     typer.echo(f"  {r.appraisals}")
     if r.directions:
         typer.echo(f"  {r.directions} (other exposure x outcome cells have none)")
+    if r.judgements:
+        typer.echo(f"  {r.judgements} ('exposhift evidence-table --exposure dravonil' shows them)")
     if not r.summary.empty:
         typer.echo(
             "\nwhat the evidence says (independent events, replication status, pooled "

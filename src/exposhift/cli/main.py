@@ -13,6 +13,7 @@ from exposhift.cli import (
     appraisal_cmds,
     audit_cmds,
     browse_cmds,
+    certainty_cmds,
     dashboard_cmds,
     direction_cmds,
     dossier_cmds,
@@ -89,6 +90,7 @@ for _module in (
     dossier_cmds,
     user_cmds,
     method_cmds,
+    certainty_cmds,
 ):
     _module.register(app)
 

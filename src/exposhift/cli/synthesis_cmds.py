@@ -195,6 +195,16 @@ def _print_group(g: Mapping) -> None:
             f"(p {_fmt(g['q_pvalue'], 3)}); analysis scale {_fmt(g['estimate'], 4)} "
             f"(SE {_fmt(g['se'], 4)})"
         )
+    if g["scale"] == "log" and g["k_events"] >= 2:
+        from exposhift.synthesis.evalue import e_value_of_pooled
+
+        ev = e_value_of_pooled(nat, g["measure"])
+        if ev.defined and ev.ci is not None:
+            typer.echo(
+                f"    E-value {ev.point:.2f}, of the CI limit nearest no effect {ev.ci:.2f} "
+                "(VanderWeele & Ding 2017): the strength of unmeasured confounding, with both "
+                "the exposure change and the outcome, that could explain the pooled ratio away"
+            )
     if g.get("rho_sensitivity"):
         parts = [
             f"rho {r['rho']:g}: {_fmt(_back(g['scale'], r['estimate']))} "

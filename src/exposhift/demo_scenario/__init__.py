@@ -17,7 +17,9 @@ and ``output`` (files).
 - ``directions``: the invented committee's expected directions for some exposure x outcome
   cells (columns :data:`exposhift.io.directions.FIELDS`).
 - ``series``: extracted series of a few studies, one row per point (the series sheet, see
-  :mod:`exposhift.demo_scenario.series`).
+  :mod:`exposhift.demo_scenario.series`);
+- ``judgements``: the invented committee's certainty judgements for two exposures (columns
+  :data:`exposhift.certainty.judgement.FIELDS`; :mod:`exposhift.demo_scenario.judgements`).
 
 Everything is INVENTED demonstration material (agents, studies, authors, journals, numbers),
 flagged ``demo=yes``; see :mod:`exposhift.demo_scenario.events` for the scenario. The same
@@ -25,9 +27,9 @@ seed and keyed random draws give the same frames on every call and machine, with
 on time.
 
 ``python -m exposhift.demo_scenario [OUT_DIR]`` writes ``evidence.csv``,
-``registered_events.csv``, ``appraisals.csv``, ``directions.csv``, ``series.csv`` and
-``README.md`` (default: the repository's ``seed_records/`` when run from a source checkout,
-else ``./seed_records``).
+``registered_events.csv``, ``appraisals.csv``, ``directions.csv``, ``series.csv``,
+``judgements.csv`` and ``README.md`` (default: the repository's ``seed_records/`` when run from
+a source checkout, else ``./seed_records``).
 """
 
 from __future__ import annotations
@@ -41,6 +43,7 @@ from exposhift.demo_scenario.appraisals import appraisals_frame
 from exposhift.demo_scenario.directions import directions_frame
 from exposhift.demo_scenario.estimates import estimates_frame, events_frame
 from exposhift.demo_scenario.expectations import EXPECTED, Expectation
+from exposhift.demo_scenario.judgements import judgements_frame
 from exposhift.demo_scenario.output import FILES, README, csv_text, readme_text, write
 from exposhift.demo_scenario.series import series_frame
 
@@ -60,13 +63,14 @@ __all__ = [
 
 def build_scenario() -> dict[str, pd.DataFrame]:
     """The demo evidence base: ``{"estimates", "events", "appraisals", "directions",
-    "series"}`` -> DataFrame."""
+    "series", "judgements"}`` -> DataFrame."""
     return {
         "estimates": estimates_frame(),
         "events": events_frame(),
         "appraisals": appraisals_frame(),
         "directions": directions_frame(),
         "series": series_frame(),
+        "judgements": judgements_frame(),
     }
 
 

@@ -21,6 +21,7 @@ FILES: dict[str, str] = {
     "appraisals": "appraisals.csv",
     "directions": "directions.csv",
     "series": "series.csv",
+    "judgements": "judgements.csv",
 }
 README = "README.md"
 FLOAT_FORMAT = "%.10g"
@@ -92,6 +93,11 @@ def readme_text(frames: dict[str, pd.DataFrame]) -> str:
                     len(frames["series"]),
                     f"points of {frames['series']['series_id'].nunique()} series extracted from "
                     "studies' tables and figures (one row per point)",
+                ),
+                (
+                    FILES["judgements"],
+                    len(frames["judgements"]),
+                    "the invented committee's certainty judgements for two exposures",
                 ),
             ],
         ),

@@ -61,11 +61,15 @@ class Replication:
 
 @dataclass(frozen=True)
 class Certainty:
-    """The certainty-of-evidence rating of one outcome (not yet rated until that work lands)."""
+    """The certainty of one outcome's evidence (``rated``: a committee level is recorded)."""
 
     rated: bool
     rating: str
     explanation: str
+    #: (domain, rating with who gave it, why) per certainty domain
+    reasons: list[tuple[str, str, str]] = field(default_factory=list)
+    #: the outcome's row of the summary-of-evidence table (exposhift.certainty.table.COLUMNS)
+    row: dict[str, Any] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)

@@ -230,6 +230,8 @@ def render_docx(d: Dossier, images: dict[str, bytes | None]) -> bytes:
             doc.add_paragraph(s.note or "No poolable estimate.")
         doc.add_heading(f"Certainty of the evidence: {s.certainty.rating}", level=3)
         doc.add_paragraph(s.certainty.explanation)
+        for dom, rating, why in s.certainty.reasons:
+            doc.add_paragraph(f"{dom}: {rating} — {why}")
 
     _studies(doc, d)
     _figures(doc, d, images)

@@ -34,6 +34,7 @@ from pathlib import Path
 from typing import Any
 
 from exposhift.appraisal.rubric import normalise_bytes, rubric_from_bytes
+from exposhift.certainty.settings import certainty_settings_from_text
 from exposhift.errors import ConfigError, ExposhiftError
 from exposhift.replication.settings_file import settings_from_bytes
 
@@ -107,6 +108,16 @@ METHOD_PARTS: dict[str, MethodPart] = {
         packaged=lambda: packaged_data("replication.toml"),
         parse=settings_from_bytes,
         option="--settings",
+    ),
+    "certainty": MethodPart(
+        name="certainty",
+        title="certainty-of-evidence settings",
+        filename="certainty.toml",
+        packaged=lambda: packaged_data("certainty.toml"),
+        parse=lambda data, label: certainty_settings_from_text(
+            normalise_bytes(data).decode("utf-8"), label
+        ),
+        option="--certainty",
     ),
 }
 

@@ -44,6 +44,7 @@ SEED_FILES = (
     "appraisals.csv",
     "directions.csv",
     "series.csv",
+    "judgements.csv",
 )
 
 
@@ -61,6 +62,7 @@ class DemoResult:
     imports: list[ImportReport] = field(default_factory=list)
     appraisals: str = ""  # what happened to appraisals.csv
     directions: str = ""  # what happened to directions.csv
+    judgements: str = ""  # what happened to judgements.csv
     summary: pd.DataFrame = field(default_factory=pd.DataFrame)  # what the evidence says
     backup: str | None = None  # the copy of the replaced file (with force)
 
@@ -129,6 +131,15 @@ def _import_directions(store, path: Path) -> str:
 
     result = import_directions(store, path)
     return f"{result.added} expected directions loaded from directions.csv"
+
+
+def _import_judgements(store, path: Path) -> str:
+    if not path.is_file():
+        return "no judgements.csv in the seed directory"
+    from exposhift.services.certainty import record_judgements
+
+    result = record_judgements(store, path)
+    return f"{result.added} certainty judgements recorded from judgements.csv"
 
 
 def _overview(store) -> tuple[dict[str, int], pd.DataFrame]:
@@ -201,6 +212,7 @@ def build_demo(
                 from exposhift.services.series import import_series_into
 
                 import_series_into(store, series)
+            judgements = _import_judgements(store, source / SEED_FILES[5])
             counts, grid = _overview(store)
             summary = evidence_summary(store)
         finally:
@@ -235,6 +247,7 @@ def build_demo(
         imports=reports,
         appraisals=appraisals,
         directions=directions,
+        judgements=judgements,
         summary=summary,
         backup=backup,
     )

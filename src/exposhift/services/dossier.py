@@ -55,6 +55,7 @@ from exposhift.dossier.manifest import (
 from exposhift.errors import ConfigError
 from exposhift.replication.status import STATUSES
 from exposhift.services.browse import DEMO_NOTE, pool_view
+from exposhift.services.certainty import cell_certainty
 from exposhift.services.lookup import require_name
 from exposhift.services.pooling import pool_evidence
 from exposhift.services.replicating import gap_report, replication_for
@@ -223,7 +224,7 @@ def _section(
     rep = replication_for(store, exposure, outcome, settings=settings)
     replication = ev.replication(rep, STATUSES)
     question = _question(outcome, records)
-    certainty = certainty_of(exposure, outcome)
+    certainty = certainty_of(exposure, outcome, cell_certainty(store, exposure, outcome))
     if not any(e["outcome"] == outcome for e in records["estimate"]):
         return OutcomeSection(
             outcome,

@@ -354,3 +354,38 @@ class MethodVersion(SQLModel, table=True):
 
 
 # ------------------------------------------------------------------ end method in force
+
+
+# ------------------------------------------------------------------ certainty judgements
+class CertaintyJudgement(SQLModel, table=True):
+    """The committee's rating of one certainty domain of one exposure x outcome.
+
+    ``domain`` is a key of :data:`exposhift.certainty.domains.DOMAINS` (``certainty``: the final
+    level); ``suggested`` and ``suggestion_reason`` are the tool's suggestion when the rating
+    was recorded, ``overrides`` whether the rating departs from it; ``numbers`` (JSON text) the
+    numbers the suggestion rested on; ``settings_hash`` the certainty settings it was made with.
+    Written only through :mod:`exposhift.store.certainty_records` (versioned, audited).
+    """
+
+    __tablename__ = "certainty_judgement"
+    __table_args__ = (UniqueConstraint("exposure_id", "outcome_id", "domain"),)
+    id: int | None = Field(default=None, primary_key=True)
+    exposure_id: int = Field(sa_column=_fk("exposure.id"))
+    outcome_id: int = Field(sa_column=_fk("outcome.id"))
+    domain: str
+    rating: str
+    why: str
+    suggested: str
+    suggestion_reason: str
+    overrides: bool = False
+    numbers: str
+    settings_hash: str
+    decided_by: str
+    decided_at: str  # ISO-8601 UTC with a Z suffix
+    version: int = 1
+    created_at: str
+    updated_at: str
+
+
+VERSIONED["certainty_judgement"] = CertaintyJudgement
+# ------------------------------------------------------------ end certainty judgements

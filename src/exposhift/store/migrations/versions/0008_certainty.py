@@ -12,7 +12,7 @@ import sqlmodel
 from alembic import op
 
 revision = "0008_certainty"
-down_revision = "0005_series"
+down_revision = "0006_method"
 branch_labels = None
 depends_on = None
 

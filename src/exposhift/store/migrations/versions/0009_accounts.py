@@ -10,7 +10,7 @@ import sqlmodel
 from alembic import op
 
 revision = "0009_accounts"
-down_revision = "0006_method"
+down_revision = "0008_certainty"
 branch_labels = None
 depends_on = None
 

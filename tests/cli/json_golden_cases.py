@@ -39,11 +39,11 @@ READ_ONLY: list[tuple[str, list[str]]] = [
     ("show_duarte1999", ["show", "Duarte1999", "--json"]),
     (
         "appraise_show_lindqvist1996",
-        ["appraise", "show", "Lindqvist1996", "--as", "moreau", "--json"],
+        ["appraise", "show", "Lindqvist1996", "--json"],
     ),
     (
         "appraise_show_albrecht1998",
-        ["appraise", "show", "Albrecht1998", "--as", "nobody", "--json"],
+        ["appraise", "show", "Albrecht1998", "--json"],
     ),
     ("agreement", ["agreement", "--json"]),
     ("audit_verify", ["audit", "verify", "--json"]),
@@ -61,6 +61,25 @@ READ_ONLY: list[tuple[str, list[str]]] = [
     (
         "events_import_dry_run",
         ["events", "import", str(SEEDS / "registered_events.csv"), "--dry-run", "--json"],
+    ),
+    ("method_show", ["method", "show", "--json"]),
+    ("method_show_rubric_history", ["method", "show", "rubric", "--history", "--json"]),
+    ("users_list", ["users", "list", "--json"]),
+    (
+        "certainty_corvane_asthma",
+        [
+            "certainty",
+            "--exposure",
+            "corvane",
+            "--outcome",
+            "asthma emergency visits",
+            "--json",
+        ],
+    ),
+    ("evidence_table_dravonil", ["evidence-table", "--exposure", "dravonil", "--json"]),
+    (
+        "certainty_record_dry_run",
+        ["certainty", "record", str(SEEDS / "judgements.csv"), "--dry-run", "--json"],
     ),
 ]
 for _i, (_x, _o) in enumerate(PAIRS):
@@ -154,6 +173,16 @@ WRITING: list[tuple[str, list[str]]] = [
     ),
     ("series_import_again", ["series", "import", str(SEEDS / "series.csv"), "--json"]),
     ("import_again", ["import", str(SEEDS / "evidence.csv"), "--json"]),
+    (
+        "method_set_settings",
+        [
+            "method",
+            "set",
+            "settings",
+            str(SEEDS.parent / "evidence" / "replication.toml"),
+            "--json",
+        ],
+    ),
     (
         "direction_set",
         [

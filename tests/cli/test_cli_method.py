@@ -191,6 +191,7 @@ def test_archive_carries_the_method_and_restores_it(two_bases, tmp_path):
     run("--db", b, "export", str(first))
     doc = json.loads(first.read_text(encoding="utf-8"))
     assert [(m["part"], m["number"]) for m in doc["method"]] == [
+        ("certainty", 1),
         ("rubric", 1),
         ("rubric", 2),
         ("settings", 1),
@@ -227,7 +228,8 @@ def test_archive_with_an_edited_method_text_is_refused(two_bases, tmp_path):
     run("--db", b, "export", str(archive))
     text = archive.read_text(encoding="utf-8")
     doc = json.loads(text)
-    doc["method"][1]["text"] = doc["method"][1]["text"].replace("committee-2", "committee-3")
+    edited = next(m for m in doc["method"] if (m["part"], m["number"]) == ("rubric", 2))
+    edited["text"] = edited["text"].replace("committee-2", "committee-3")
     archive.write_text(json.dumps(doc), encoding="utf-8")
     fresh = str(tmp_path / "fresh.db")
     run("--db", fresh, "init")

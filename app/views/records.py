@@ -31,8 +31,37 @@ tab_study, tab_event, tab_history = st.tabs(
 )
 
 
-def _col(name: str) -> st.column_config.TextColumn:
-    return st.column_config.TextColumn(name, help=BY_NAME[name].help)
+NEW_ESTIMATE = "(add a new estimate)"
+
+
+def _fields(title: str, columns, shown: dict, prefix: str, may: bool, locked: set) -> dict:
+    """Text boxes holding a sheet's cells (the sheet's rules check them on saving)."""
+    st.markdown(f"**{title}**")
+    cols = st.columns(3)
+    return {
+        c: cols[i % 3].text_input(
+            c,
+            value=str(shown.get(c, "") or ""),
+            key=prefix + c,
+            help=BY_NAME[c].help,
+            disabled=not may or c in locked,
+        )
+        for i, c in enumerate(columns)
+    }
+
+
+def _with_event(events: pd.DataFrame, key: str, typed: dict, shown: dict) -> pd.DataFrame:
+    """The form's events: the shown event with the typed fields, or a new one when any field
+    was typed for an event the form did not show (a stored event needs no fields)."""
+    key = key.strip()
+    rows = events.to_dict("records")
+    known = [r["event_id"] for r in rows]
+    if key in known:
+        i = known.index(key)
+        rows[i] = {**rows[i], **typed, "event_id": key}
+    elif any(str(v).strip() for v in typed.values()):
+        rows.append({**typed, "event_id": key})
+    return pd.DataFrame(rows, columns=list(EVENT_COLUMNS))
 
 
 def _saved(result: editing.SaveResult, what: str) -> None:
@@ -64,6 +93,7 @@ with tab_study:
     may = forms.who_line("editor", "add or correct a study")
     choice = ui.pick("Study", [NEW, *studies["study_id"].tolist()], key="records_study")
     gen = st.session_state.setdefault("records_gen", 0)
+    locked = {"study_id"} if choice != NEW else set()
     loaded = st.session_state.get("records_draft")
     if loaded is None or loaded[0] != (choice, gen):
         with ui.guard():
@@ -83,53 +113,53 @@ with tab_study:
         if st.button("Reload from the evidence base", key="records_reload"):
             st.session_state["records_gen"] = gen + 1
             st.rerun()
-    p = f"rec{gen}_{choice}_"
-    with st.form(f"study_form_{gen}_{choice}", border=False):
-        st.markdown("**Study**")
-        cols = st.columns(3)
-        values = {}
-        for i, c in enumerate(STUDY_COLUMNS):
-            values[c] = cols[i % 3].text_input(
-                c,
-                value=draft.study.get(c, ""),
-                key=p + c,
-                help=BY_NAME[c].help,
-                disabled=not may or (c == "study_id" and draft.key is not None),
-            )
-        st.markdown(
-            "**Events** the estimates refer to (an event already in the evidence base can be "
-            "named in an estimate's event_id without a row here)"
+    est_rows = draft.estimates.to_dict("records")
+    shown_rows = [i for i, r in enumerate(est_rows) if r["outcome"] or r["estimate"]]
+    labels = [
+        f"{n + 1}: {r['outcome']} · {r['measure']} {r['estimate_kind']} · {r['estimate']}"
+        + (f" · {r['subgroup']}" if r["subgroup"] else "")
+        + (f" · {r['time_window']}" if r["time_window"] else "")
+        for n, r in enumerate(est_rows[i] for i in shown_rows)
+    ]
+    if labels:
+        st.markdown(f"**Estimates of this study** ({len(labels)})")
+        st.dataframe(draft.estimates, hide_index=True, width="stretch", key="records_estimates")
+    pick = st.selectbox(
+        "Estimate to correct or add",
+        [*labels, NEW_ESTIMATE],
+        key=f"records_estimate_{gen}_{choice}",
+        help="The form edits the study, one estimate and that estimate's event; the other "
+        "estimates are saved as they are.",
+    )
+    row = shown_rows[labels.index(pick)] if pick in labels else None
+    est = est_rows[row] if row is not None else {c: "" for c in editing.ESTIMATE_FORM_COLUMNS}
+    ev_rows = {r["event_id"]: r for r in draft.events.to_dict("records")}
+    ev = ev_rows.get(est["event_id"], {c: "" for c in EVENT_COLUMNS})
+    p = f"rec{gen}_{choice}_{row}_"
+    with st.form(f"study_form_{gen}_{choice}_{row}", border=False):
+        values = _fields("Study", STUDY_COLUMNS, draft.study, p + "s_", may, locked)
+        est_values = _fields("Estimate", editing.ESTIMATE_FORM_COLUMNS, est, p + "e_", may, set())
+        ev_values = _fields(
+            "Its event (an event already in the evidence base needs only its event_id above)",
+            EVENT_COLUMNS[1:],
+            ev,
+            p + "v_",
+            may,
+            set(),
         )
-        ev_table = st.data_editor(
-            draft.events,
-            num_rows="dynamic",
-            hide_index=True,
-            width="stretch",
-            key=p + "events",
-            disabled=not may,
-            column_config={c: _col(c) for c in EVENT_COLUMNS},
-        )
-        st.markdown("**Estimates**, one row each, as reported")
-        est_table = st.data_editor(
-            draft.estimates,
-            num_rows="dynamic",
-            hide_index=True,
-            width="stretch",
-            key=p + "estimates",
-            disabled=not may,
-            column_config={c: _col(c) for c in editing.ESTIMATE_FORM_COLUMNS},
-        )
-        save = st.form_submit_button("Save the study", type="primary", disabled=not may)
+        save = st.form_submit_button("Save", type="primary", disabled=not may)
     if save:
         try:
             with st.spinner("Checking and saving…"):
+                estimates = draft.estimates.copy()
+                if row is None:
+                    estimates = pd.concat([estimates, pd.DataFrame([est_values])])
+                else:
+                    for c, v in est_values.items():
+                        estimates.iat[row, estimates.columns.get_loc(c)] = v
+                events = _with_event(draft.events, est_values["event_id"], ev_values, ev)
                 result = editing.save_study(
-                    forms.store(),
-                    draft,
-                    values,
-                    pd.DataFrame(ev_table),
-                    pd.DataFrame(est_table),
-                    user=forms.me().name,
+                    forms.store(), draft, values, events, estimates, user=forms.me().name
                 )
         except InputFileError as exc:
             forms.problems(exc, row_word="estimate row", key="records_problems")

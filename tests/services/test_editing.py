@@ -200,7 +200,7 @@ def test_new_study_of_a_registered_event(base):
 
 
 def test_history_hides_another_reviewers_blinded_ratings(base):
-    ratings = {"origin": 1, "counterfactual": 2, "design_checks": 2, "concurrent_changes": 2}
+    ratings = {"origin": 1, "counterfactual": 2, "design_checks": 1, "concurrent_changes": 2}
     reasons = {"origin": "invented reason", "falsification": ""}
     submit_appraisal(base, "Example2004", ratings, reasons, reviewer="ann")
     trail = history.record_history(base, "Example2004", viewer="bob")

@@ -57,8 +57,9 @@ def _with_event(events: pd.DataFrame, key: str, typed: dict, shown: dict) -> pd.
     rows = events.to_dict("records")
     known = [r["event_id"] for r in rows]
     if key in known:
-        i = known.index(key)
-        rows[i] = {**rows[i], **typed, "event_id": key}
+        if shown.get("event_id") == key:  # the form showed this event: its fields as typed
+            i = known.index(key)
+            rows[i] = {**rows[i], **typed, "event_id": key}
     elif any(str(v).strip() for v in typed.values()):
         rows.append({**typed, "event_id": key})
     return pd.DataFrame(rows, columns=list(EVENT_COLUMNS))

@@ -58,6 +58,10 @@ def section(column: str | None) -> str:
     return col.entity if col is not None else ""
 
 
+#: problems listed on a page (all are counted)
+SHOWN = 200
+
+
 def problems(exc: InputFileError, row_word: str = "row", key: str | None = None) -> None:
     """Every problem of a refused input, in one table (where, field, what to do)."""
     n = len(exc.problems)
@@ -70,11 +74,13 @@ def problems(exc: InputFileError, row_word: str = "row", key: str | None = None)
                 "field": p.column or "",
                 "problem": p.message,
             }
-            for p in exc.problems
+            for p in exc.problems[:SHOWN]
         ],
         columns=["file", "where", "field", "problem"],
     )
-    st.dataframe(frame, hide_index=True, width="stretch", key=key)
+    st.table(frame.set_index("where"))
+    if n > SHOWN:
+        st.caption(f"… and {n - SHOWN} more; correct these and check again.")
 
 
 def conflict(exc) -> None:
@@ -95,11 +101,7 @@ def conflict(exc) -> None:
                     }
                 )
         st.markdown(f"**{c.entity} `{c.key}`** — their change (from the audit trail):")
-        st.dataframe(
-            pd.DataFrame(rows, columns=["who", "when", "field", "before", "their value"]),
-            hide_index=True,
-            width="stretch",
-        )
+        st.table(pd.DataFrame(rows, columns=["who", "when", "field", "before", "their value"]))
 
 
 def after_write() -> None:

@@ -21,7 +21,7 @@ from pathlib import Path
 import identity
 import pytest
 from sklearn.metrics import cohen_kappa_score
-from writing_helpers import copy_db, count, open_page, sql, texts
+from writing_helpers import copy_db, count, frame_with, open_page, sql, texts
 
 STUDY = "Iyer2015"  # no appraisal yet in the demo
 RUBRIC = Path(__file__).resolve().parents[2] / "evidence" / "rubric.toml"
@@ -85,7 +85,7 @@ def test_unrated_core_domains_are_each_shown_and_nothing_written(db):
     core = [d["key"] for d in tomllib.loads(RUBRIC.read_text())["domain"] if d.get("core")]
     before = count(db, "appraisal")
     at = _submit(_page("ann"), "indep_submit")
-    problems = next(d.value for d in at.dataframe if "problem" in d.value.columns)
+    problems = frame_with(at, "problem")
     assert sorted(problems["field"]) == sorted(core)
     assert sum("core domain not rated" in e.value for e in at.error) == len(core)
     assert count(db, "appraisal") == before
@@ -96,7 +96,7 @@ def test_a_departing_rating_needs_a_reason(db):
     assert any("departs from the suggestion" in w.value for w in at.warning)
     before = count(db, "rating")
     at = _submit(at, "indep_submit")
-    problems = next(d.value for d in at.dataframe if "problem" in d.value.columns)
+    problems = frame_with(at, "problem")
     assert problems["field"].tolist() == ["origin"]
     assert "departs from the suggested at most 1" in problems["problem"].iloc[0]
     assert count(db, "rating") == before

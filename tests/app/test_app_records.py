@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import identity
 import pytest
-from writing_helpers import button, copy_db, count, open_page, sql, texts
+from writing_helpers import button, copy_db, count, frame_with, open_page, sql, texts
 
 from exposhift.services import editing
 from exposhift.services.setup import open_current
@@ -44,10 +44,7 @@ def _save(at, label: str = "Save"):
 
 
 def _problems(at):
-    for d in at.dataframe:
-        if "problem" in d.value.columns:
-            return d.value
-    raise AssertionError(f"no problem table: {texts(at)}")
+    return frame_with(at, "problem")
 
 
 def test_a_correction_is_saved_versioned_and_audited(db):
@@ -103,7 +100,7 @@ def test_a_stale_edit_is_refused_with_the_other_change_shown(db):
     at.text_input(key=P + "s_comparison").set_value("ann's comparison")
     at = _save(at)
     assert any("someone else changed this record" in e.value for e in at.error)
-    theirs_table = next(d.value for d in at.dataframe if "their value" in d.value.columns)
+    theirs_table = frame_with(at, "their value")
     row = theirs_table[theirs_table["field"] == "comparison"].iloc[0]
     assert row["who"] == "bob" and row["their value"] == "states that banned it later (bob)"
     assert sql(db, "select comparison from study where key = ?", STUDY) == [

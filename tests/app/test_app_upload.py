@@ -15,7 +15,7 @@ from pathlib import Path
 
 import identity
 import pytest
-from writing_helpers import button, copy_db, count, open_page, sql, texts
+from writing_helpers import button, copy_db, count, frame_with, open_page, sql, texts
 
 EXAMPLE = Path(__file__).resolve().parents[2] / "docs" / "example-sheet.csv"
 TABLES = ("study", "event", "estimate", "audit_entry")
@@ -40,10 +40,7 @@ def _upload(at, name: str, content: bytes):
 
 
 def _problem_table(at):
-    for d in at.dataframe:
-        if "problem" in d.value.columns:
-            return d.value
-    raise AssertionError("no problem table shown")
+    return frame_with(at, "problem")
 
 
 def test_preview_then_confirm_imports_as_the_named_person(db):

@@ -20,8 +20,12 @@ def copy_db(src: str, dst) -> str:
     return str(dst)
 
 
-def sql(db: str, query: str, *args) -> list[tuple]:
-    con = sqlite3.connect(db)
+def sql(db: str, query: str, *args, read_only: bool = False) -> list[tuple]:
+    """Rows read with the standard library's sqlite3. ``read_only`` beside a running dashboard
+    server: a read-write connection of another process that closes last checkpoints and removes
+    the WAL files under it (seen as "disk I/O error" in the dashboard)."""
+    target = f"file:{db}?mode=ro" if read_only else db
+    con = sqlite3.connect(target, uri=read_only)
     try:
         return con.execute(query, args).fetchall()
     finally:
@@ -64,3 +68,14 @@ def button(at: AppTest, label: str):
         if b.label == label:
             return b
     raise AssertionError(f"no button {label!r}: {[b.label for b in at.button]}")
+
+
+def frame_with(at: AppTest, column: str):
+    """The first table or dataframe on the page with ``column`` (a table's index as a column)."""
+    for t in list(at.table) + list(at.dataframe):
+        value = t.value
+        if column not in value.columns and value.index.name == column:
+            value = value.reset_index()
+        if column in value.columns:
+            return value
+    raise AssertionError(f"no table with column {column!r}: {texts(at)}")

@@ -180,13 +180,21 @@ with tab_compare:
     else:
         n_diff = int(table["differs"].sum())
         st.markdown(f"**{n_diff} of {len(table)} rows differ** (marked).")
+        reviewers = [c for c in table.columns if c not in ("domain", "key", "differs", "suggested")]
+        shown = table.assign(
+            **{
+                c: table[c].map(lambda v: "not rated" if pd.isna(v) else str(int(v)))
+                for c in reviewers
+            }
+        )
         st.dataframe(
-            table.style.apply(
+            shown.style.apply(
                 lambda r: ["background-color: #fde2c8" if r["differs"] else "" for _ in r],
                 axis=1,
             ),
             hide_index=True,
             width="stretch",
+            height=36 * (len(shown) + 1) + 3,
             key="appraise_compare",
         )
         if form.consensus is not None:
@@ -198,9 +206,6 @@ with tab_compare:
             st.markdown("**Consensus appraisal** (prefilled where the two reviewers agree)")
             if st.session_state.get("cons_problems"):
                 forms.problems(st.session_state["cons_problems"], key="cons_problem_table")
-            reviewers = [
-                c for c in table.columns if c not in ("domain", "key", "differs", "suggested")
-            ]
             agreed = {}
             for _, r in table.iterrows():
                 vals = {r[c] for c in reviewers}

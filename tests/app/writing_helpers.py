@@ -74,7 +74,7 @@ def frame_with(at: AppTest, column: str):
     """The first table or dataframe on the page with ``column`` (a table's index as a column)."""
     for t in list(at.table) + list(at.dataframe):
         value = t.value
-        if column not in value.columns and value.index.name == column:
+        if value.index.name and value.index.name not in value.columns:
             value = value.reset_index()
         if column in value.columns:
             return value

@@ -232,9 +232,9 @@ def form_sheet(
                         EVENT_FORM,
                         pos + 1,
                         "event_id",
-                        f"event '{k}' is already in the evidence base; to use it, name it in "
-                        "the estimates' event_id and leave it out of the events table (its "
-                        "fields are taken from the evidence base)",
+                        f"event '{k}' is already in the evidence base; to use it, give only "
+                        "its event_id and leave the event's other fields empty (they are taken "
+                        "from the evidence base); to correct it, open a study of that event",
                     )
                 )
     study_cells = {

@@ -37,6 +37,10 @@ PAGES = [
     ),
     st.Page("views/gaps.py", title="Gap map", url_path="gaps"),
     st.Page("views/series.py", title="Extracted series", url_path="series"),
+    st.Page("views/upload.py", title="Upload a sheet", url_path="upload"),
+    st.Page("views/records.py", title="Add or correct records", url_path="records"),
+    st.Page("views/appraise.py", title="Appraise a study", url_path="appraise"),
+    st.Page("views/downloads.py", title="Downloads", url_path="downloads"),
 ]
 page = st.navigation(PAGES)
 

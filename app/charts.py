@@ -14,7 +14,6 @@ the figures with :data:`PLOTLY_CONFIG`, which points plotly.js at the app's own 
 from __future__ import annotations
 
 import functools
-import json
 import math
 from pathlib import Path
 from typing import Any
@@ -24,6 +23,7 @@ import pandas as pd
 import plotly.graph_objects as go
 import pycountry
 
+from exposhift import mapdata
 from exposhift.synthesis.harmonise import GROUP_SCALES
 
 STATIC = Path(__file__).resolve().parent / "static"
@@ -57,16 +57,15 @@ STATE_COLOURS: dict[str, str] = {
 
 
 # ----------------------------------------------------------------------------- helpers
-@functools.lru_cache(maxsize=1)
 def country_shapes() -> dict:
-    """Natural Earth 1:110m countries as GeoJSON, ``id`` = ISO 3166-1 alpha-3 (static/)."""
-    return json.loads((STATIC / "countries-110m.geojson").read_text(encoding="utf-8"))
+    """Natural Earth 1:110m countries as GeoJSON, ``id`` = ISO 3166-1 alpha-3 (package data,
+    :mod:`exposhift.mapdata`)."""
+    return mapdata.country_shapes()
 
 
-@functools.lru_cache(maxsize=1)
 def country_points() -> dict[str, list]:
     """alpha-3 -> [lon, lat, name]: a point inside each country (Natural Earth 1:50m)."""
-    return json.loads((STATIC / "country_points.json").read_text(encoding="utf-8"))
+    return mapdata.country_points()
 
 
 @functools.lru_cache(maxsize=512)
@@ -211,13 +210,28 @@ def count_bars(frame: pd.DataFrame, category: str, value: str, title: str) -> go
 
 
 # ----------------------------------------------------------------------------- forest plot
-def forest_plot(rows: pd.DataFrame, groups: list[dict], *, title: str = "") -> go.Figure:
+def forest_budget(n_groups: int, max_rows: int | None) -> int | None:
+    """Rows drawn per stratum: ``max_rows`` shared between the strata, at least 5 each."""
+    if max_rows is None or n_groups == 0:
+        return None
+    return max(5, max_rows // n_groups)
+
+
+def forest_plot(
+    rows: pd.DataFrame, groups: list[dict], *, title: str = "", max_rows: int | None = 40
+) -> go.Figure:
     """Forest plot: one row per pooled estimate (square sized by weight, line = its CI), then
     the group's pooled estimate as a diamond (CI) with its prediction interval as a dashed
     line, for every group of ``groups`` (``PoolOutput.groups``). ``rows`` is
-    ``PoolView.rows``. Ratio measures are drawn back-transformed on a log axis."""
+    ``PoolView.rows``. Ratio measures are drawn back-transformed on a log axis.
+
+    A readable number of rows: at most ``max_rows`` event rows in all (shared between the
+    strata by :func:`forest_budget`); a stratum with more draws its heaviest events and one
+    line "N more events" (the pooled diamond still uses every event; the page's table lists
+    them all)."""
     if rows.empty or not groups:
         return empty_figure("nothing was pooled")
+    budget = forest_budget(len(groups), max_rows)
     log = all(g.get("scale") == "log" for g in groups)
     f = np.exp if log else (lambda a: np.asarray(a, dtype=float))
     ticks: list[tuple[float, str]] = []
@@ -231,6 +245,11 @@ def forest_plot(rows: pd.DataFrame, groups: list[dict], *, title: str = "") -> g
         label = str(sub["group_label"].iloc[0]) if len(sub) else f"group {gi + 1}"
         headers.append((pos, f"<b>stratum: {label}</b>"))
         pos -= 1
+        hidden = sub.iloc[0:0]
+        if budget is not None and len(sub) > budget:
+            top = sub["weight"].fillna(0).sort_values(ascending=False, kind="stable").index
+            shown = sub.index.isin(top[:budget])
+            sub, hidden = sub[shown], sub[~shown]
         ys = []
         for _, r in sub.iterrows():
             ys.append(pos)
@@ -251,6 +270,12 @@ def forest_plot(rows: pd.DataFrame, groups: list[dict], *, title: str = "") -> g
                     f"{_fmt(f(r['ci_upper']))}]   {100 * r['weight']:.0f}%",
                 )
             )
+            pos -= 1
+        if len(hidden):
+            ticks.append(
+                (pos, f"<i>… {plural(len(hidden), 'more event')} (the table lists every event)</i>")
+            )
+            right.append((pos, f"<i>{100 * hidden['weight'].sum():.0f}% of the weight</i>"))
             pos -= 1
         est, lo, hi = (
             f(sub["y"].to_numpy()),

@@ -16,6 +16,7 @@ from scipy import stats
 
 from exposhift.services.pooling import STRATA, PoolOutput, pool_evidence
 from exposhift.services.setup import database_info
+from exposhift.services.snapshot import EvidenceSnapshot
 from exposhift.store.appraisals import studies_by_key
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame, events_frame
@@ -60,12 +61,16 @@ def _level_text(level: float) -> str:
     return "not appraised" if pd.isna(level) else f"level {int(level)}"
 
 
-def evidence_overview(store: Store) -> EvidenceOverview:
-    """Counts, demo flags, exposure × outcome pairs with evidence, studies per design family."""
+def evidence_overview(store: Store, snapshot: EvidenceSnapshot | None = None) -> EvidenceOverview:
+    """Counts, demo flags, exposure × outcome pairs with evidence, studies per design family
+    (from ``snapshot`` when given: :mod:`exposhift.services.snapshot`)."""
     info = database_info(store.url)
-    with store.read() as conn:
-        frame = analysis_frame(conn)
-        events = events_frame(conn)
+    if snapshot is not None:
+        frame, events = snapshot.analysis, snapshot.events
+    else:
+        with store.read() as conn:
+            frame = analysis_frame(conn)
+            events = events_frame(conn)
     studies = frame.drop_duplicates("study_id")
     pairs = (
         frame.groupby(["exposure", "outcome"], sort=True)
@@ -120,12 +125,12 @@ def evidence_overview(store: Store) -> EvidenceOverview:
     )
 
 
-def list_studies(store: Store) -> pd.DataFrame:
+def list_studies(store: Store, snapshot: EvidenceSnapshot | None = None) -> pd.DataFrame:
     """One row per study: design, design family, appraisal level of record, exposures,
     outcomes, events and countries it analyses, number of estimates, demo flag. Studies without
     an estimate are listed too (with empty exposures)."""
     with store.read() as conn:
-        frame = analysis_frame(conn)
+        frame = analysis_frame(conn) if snapshot is None else snapshot.analysis
         studies = studies_by_key(conn)
     base = pd.DataFrame(
         [
@@ -180,8 +185,10 @@ def list_studies(store: Store) -> pd.DataFrame:
     return out[cols].sort_values(["year", "study_id"], kind="stable").reset_index(drop=True)
 
 
-def list_events(store: Store) -> pd.DataFrame:
+def list_events(store: Store, snapshot: EvidenceSnapshot | None = None) -> pd.DataFrame:
     """Every registered exposure-change event with the number of studies analysing it."""
+    if snapshot is not None:
+        return snapshot.events.copy()
     with store.read() as conn:
         return events_frame(conn)
 
@@ -226,6 +233,7 @@ def pool_view(
     alpha: float = 0.05,
     hksj_floor: bool = True,
     within_event: str = "aggregate",
+    snapshot: EvidenceSnapshot | None = None,
 ) -> PoolView:
     """:func:`~exposhift.services.pooling.pool_evidence` plus one row per pooled *event*.
 
@@ -248,6 +256,7 @@ def pool_view(
         alpha=alpha,
         hksj_floor=hksj_floor,
         within_event=within_event,
+        snapshot=snapshot,
     )
     options = {
         "method": method,

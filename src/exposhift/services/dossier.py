@@ -475,7 +475,9 @@ def build_dossier(
         d = dataclasses.replace(d, changes=diff_bundles(old, _as_bundle(g, "this dossier")))
     figs = dossier_figures(d) if {"html", "docx", "pdf"} & set(fmts) else {}
     if figs and "map" not in figs:
-        warnings.append("map not drawn: the vendored map shapes (app/static) were not found")
+        warnings.append(
+            "map not drawn: the map shapes (exposhift/data/maps) are missing from this install"
+        )
     files: dict[str, bytes | str] = {}
     if "html" in fmts:
         from exposhift.dossier.html import render_html

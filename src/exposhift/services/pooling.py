@@ -33,6 +33,7 @@ import pandas as pd
 from exposhift.appraisal.rubric import load_rubric
 from exposhift.errors import AnalysisError, ConfigError, NotFoundError
 from exposhift.services.lookup import require_name
+from exposhift.services.snapshot import EvidenceSnapshot
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame
 from exposhift.synthesis.conversions import from_analysis_scale
@@ -218,15 +219,20 @@ def pool_evidence(
     within_event: str = "aggregate",
     rho: float = DEFAULT_RHO,
     details: bool = False,
+    snapshot: EvidenceSnapshot | None = None,
 ) -> PoolOutput:
     """Pool one exposure x outcome; ``details`` adds leave-one-event-out, cumulative and the
-    small-study test to each group (the τ² interval is always there)."""
+    small-study test to each group (the τ² interval is always there). ``snapshot``: read the
+    estimates from it instead of the store (:mod:`exposhift.services.snapshot`)."""
     by = list(by or [])
     _check_options(by, align_to, method, within_event, rho, min_level)
     with store.read() as conn:
         exposure = require_name(conn, "exposure", exposure)
         outcome = require_name(conn, "outcome", outcome)
-        frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
+        if snapshot is None:
+            frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
+        else:
+            frame = snapshot.pair(exposure, outcome)
     if frame.empty:
         raise NotFoundError(
             f"no estimates for exposure '{exposure}' and outcome '{outcome}'; "

@@ -27,6 +27,7 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, DBAPIError, IntegrityError, OperationalError
 
 from exposhift.errors import ConfigError, DatabaseError
+from exposhift.store import data_version
 
 DEFAULT_SQLITE = Path("evidence") / "evidence.db"
 SUPPORTED_DRIVERS = {"sqlite", "sqlite+pysqlite", "postgresql", "postgresql+psycopg"}
@@ -133,7 +134,9 @@ class Store:
         """One write transaction: committed when the block ends, rolled back on any error.
 
         On SQLite it starts with ``BEGIN IMMEDIATE``: the write lock is taken up front, so a
-        second writer waits (busy timeout) rather than failing half-way.
+        second writer waits (busy timeout) rather than failing half-way. When the block
+        changed any row, the data version moves in the same transaction
+        (:mod:`exposhift.store.data_version`).
         """
         try:
             with self.engine.connect() as conn:
@@ -142,7 +145,10 @@ class Store:
                     if not self.is_sqlite:
                         conn.exec_driver_sql(f"SET LOCAL lock_timeout = '{PG_LOCK_TIMEOUT}'")
                         conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({PG_WRITE_LOCK})")
+                    data_version.begin(conn)
                     yield conn
+                    if data_version.wrote(conn):
+                        data_version.bump(conn)
         except OperationalError as exc:
             raise self._translate(exc) from None
         except IntegrityError as exc:
@@ -188,6 +194,11 @@ class Store:
             f"cannot use database {self.masked_url}: {msg}. Check that the server is running "
             "and the URL is right (--db or EXPOSHIFT_DB)"
         )
+
+    def data_version(self) -> int:
+        """The data version now: moves with every committed write (caches key on it)."""
+        with self.read() as conn:
+            return data_version.current(conn)
 
     def count(self, conn: Connection, table) -> int:
         return int(conn.execute(select(func.count()).select_from(table)).scalar_one())
@@ -280,6 +291,7 @@ def open_store(db: str | None = None, user: str | None = None, *, create: bool =
         engine = _sqlite_engine(url, create=create)
     else:
         engine = create_engine(url, connect_args={"connect_timeout": 5}, pool_pre_ping=True)
+    data_version.watch(engine)
     store = Store(url=url, user=user or default_user(), engine=engine)
     try:
         with engine.connect() as conn:

@@ -210,6 +210,35 @@ def count_bars(frame: pd.DataFrame, category: str, value: str, title: str) -> go
 
 
 # ----------------------------------------------------------------------------- forest plot
+def reported_text(row: Any) -> str:
+    """An estimate as the study reported it, e.g. ``RR 0.78 [0.70, 0.87] after a ban``
+    (several estimates of one event combined: says so instead)."""
+    k = row.get("k_units") if hasattr(row, "get") else None
+    if k is not None and pd.notna(k) and k > 1:
+        return f"{int(k)} estimates combined"
+    value = row.get("reported")
+    if value is None or pd.isna(value):
+        return "as reported: -"
+    lo, hi = row.get("reported_low"), row.get("reported_high")
+    ci = (
+        ""
+        if lo is None or pd.isna(lo) or hi is None or pd.isna(hi)
+        else f" [{_fmt(lo)}, {_fmt(hi)}]"
+    )
+    kind = row.get("change_kind")
+    after = f" after a {kind}" if isinstance(kind, str) and kind else ""
+    return f"{row.get('measure')} {_fmt(value)}{ci}{after}"
+
+
+def aligned_values(rows: pd.DataFrame) -> pd.Series:
+    """Each pooled row's aligned value and Wald interval on the natural scale, as text."""
+    out = []
+    for r in rows.itertuples(index=False):
+        f = math.exp if r.scale == "log" else float
+        out.append(f"{_fmt(f(r.y))} [{_fmt(f(r.ci_lower))}, {_fmt(f(r.ci_upper))}]")
+    return pd.Series(out, index=rows.index, dtype=object)
+
+
 def forest_budget(n_groups: int, max_rows: int | None) -> int | None:
     """Rows drawn per stratum: ``max_rows`` shared between the strata, at least 5 each."""
     if max_rows is None or n_groups == 0:
@@ -244,6 +273,7 @@ def forest_plot(
         sub = rows[rows["group"] == gi]
         label = str(sub["group_label"].iloc[0]) if len(sub) else f"group {gi + 1}"
         headers.append((pos, f"<b>stratum: {label}</b>"))
+        right.append((pos, "<i>as reported  →  aligned [95% CI]   weight</i>"))
         pos -= 1
         hidden = sub.iloc[0:0]
         if budget is not None and len(sub) > budget:
@@ -262,11 +292,14 @@ def forest_plot(
                 if "k_units" in r and pd.notna(r["k_units"]) and r["k_units"] > 1
                 else ""
             )
-            ticks.append((pos, f"{r['event_id']}: {r['study_id']} ({where}){sub_txt}{combined}"))
+            lvl = "not appraised" if pd.isna(r["level"]) else f"level {int(r['level'])}"
+            ticks.append(
+                (pos, f"{r['event_id']}: {r['study_id']} ({where}){sub_txt}{combined} · {lvl}")
+            )
             right.append(
                 (
                     pos,
-                    f"{_fmt(f(r['y']))} [{_fmt(f(r['ci_lower']))}, "
+                    f"{reported_text(r)}  →  {_fmt(f(r['y']))} [{_fmt(f(r['ci_lower']))}, "
                     f"{_fmt(f(r['ci_upper']))}]   {100 * r['weight']:.0f}%",
                 )
             )
@@ -405,7 +438,7 @@ def forest_plot(
         height=int(120 + 26 * n_rows),
         plot_bgcolor="white",
         font=FONT,
-        margin=dict(l=10, r=230, t=40 if title else 10, b=50),
+        margin=dict(l=10, r=380, t=40 if title else 10, b=50),
         title=dict(text=title, font=dict(size=14)) if title else None,
     )
     return fig

@@ -29,6 +29,8 @@ from exposhift.store.database import Store, mask_url, resolve_url
 DB_ENV = "EXPOSHIFT_DB"
 #: cached results kept per function (older data versions fall out first)
 KEEP = 64
+#: event rows a forest plot draws at most (the heaviest; the page's table lists every event)
+FOREST_ROWS = 40
 #: settings files read from the working directory when present (see their loaders)
 SETTINGS_FILES = (Path("evidence") / "rubric.toml", Path("evidence") / "replication.toml")
 
@@ -152,7 +154,7 @@ def agreement(db: str | None) -> pd.DataFrame:
     return _agreement(db, stamp(db))
 
 
-def _pool_options(method, ci, by, include_fatal, align_to, within_event) -> tuple:
+def _pool_options(method, ci, by, include_fatal, align_to, within_event, min_level) -> tuple:
     return (
         ("method", method),
         ("ci", ci),
@@ -160,6 +162,7 @@ def _pool_options(method, ci, by, include_fatal, align_to, within_event) -> tupl
         ("include_fatal", include_fatal),
         ("align_to", align_to),
         ("within_event", within_event),
+        ("min_level", min_level),
     )
 
 
@@ -180,8 +183,9 @@ def pool(
     include_fatal: bool,
     align_to: str,
     within_event: str = "aggregate",
+    min_level: int | None = None,
 ) -> browse.PoolView:
-    options = _pool_options(method, ci, by, include_fatal, align_to, within_event)
+    options = _pool_options(method, ci, by, include_fatal, align_to, within_event, min_level)
     return _pool(db, stamp(db), exposure, outcome, options)
 
 
@@ -201,11 +205,13 @@ def forest(
     include_fatal: bool,
     align_to: str,
     within_event: str = "aggregate",
-    top: int = 40,
+    min_level: int | None = None,
+    top: int | None = None,
 ):
-    """The forest plot of :func:`pool` with the same arguments (at most ``top`` rows per
-    stratum), built once per stamp (shared: do not modify the figure)."""
-    options = _pool_options(method, ci, by, include_fatal, align_to, within_event)
+    """The forest plot of :func:`pool` with the same arguments (at most ``top`` event rows,
+    default :data:`FOREST_ROWS`), built once per stamp (shared: do not modify the figure)."""
+    top = FOREST_ROWS if top is None else top
+    options = _pool_options(method, ci, by, include_fatal, align_to, within_event, min_level)
     return _forest(db, stamp(db), exposure, outcome, options, top)
 
 

@@ -146,21 +146,27 @@ def list_studies(store: Store, snapshot: EvidenceSnapshot | None = None) -> pd.D
         columns=["study_id", "citation", "year", "design", "demo"],
     )
 
-    def joined(s: pd.Series) -> str:
-        return ", ".join(sorted({str(v) for v in s.dropna()}))
+    def joined(col: str) -> pd.Series:
+        """Per study: the distinct values of ``col``, sorted, joined by ", " (deduplicated
+        before grouping, so each study joins a handful of strings, not one per estimate)."""
+        sub = frame.loc[frame[col].notna(), ["study_id", col]]
+        sub = sub.assign(**{col: sub[col].astype(str)}).drop_duplicates()
+        sub = sub.sort_values(["study_id", col], kind="stable")
+        return sub.groupby("study_id", sort=True)[col].agg(", ".join)
 
-    agg = (
-        frame.groupby("study_id", sort=True)
-        .agg(
-            level=("level", "first"),
-            exposures=("exposure", joined),
-            outcomes=("outcome", joined),
-            events=("event_id", joined),
-            countries=("country", joined),
-            estimates=("estimate_uid", "size"),
-        )
-        .reset_index()
+    agg = frame.groupby("study_id", sort=True).agg(
+        level=("level", "first"), estimates=("estimate_uid", "size")
     )
+    for name, col in (
+        ("exposures", "exposure"),
+        ("outcomes", "outcome"),
+        ("events", "event_id"),
+        ("countries", "country"),
+    ):
+        agg[name] = joined(col)
+    agg = agg.reset_index()[
+        ["study_id", "level", "exposures", "outcomes", "events", "countries", "estimates"]
+    ]
     out = base.merge(agg, on="study_id", how="left")
     out["design_family"] = out["design"].map(lambda d: DESIGNS[d][0] if d in DESIGNS else None)
     out["estimates"] = out["estimates"].fillna(0).astype(np.int64)
@@ -233,6 +239,7 @@ def pool_view(
     alpha: float = 0.05,
     hksj_floor: bool = True,
     within_event: str = "aggregate",
+    min_level: int | None = None,
     snapshot: EvidenceSnapshot | None = None,
 ) -> PoolView:
     """:func:`~exposhift.services.pooling.pool_evidence` plus one row per pooled *event*.
@@ -240,8 +247,9 @@ def pool_view(
     The rows are exactly the rows the pooling service pooled
     (:attr:`~exposhift.services.pooling.PoolOutput.pooled_rows`: one number per event and
     group, with its share of the group's random-effects weight computed by the engine), with
-    the event's Wald interval ``y ± z·se`` for display (z for ``alpha``), the studies and the
-    number of estimates combined (``k_units``).
+    the event's Wald interval ``y ± z·se`` for display (z for ``alpha``), the studies, the
+    number of estimates combined (``k_units``) and, for an event with one estimate, that
+    estimate as reported (``reported``, ``reported_low``, ``reported_high``: before alignment).
     """
     by = list(by or [])
     out = pool_evidence(
@@ -256,6 +264,7 @@ def pool_view(
         alpha=alpha,
         hksj_floor=hksj_floor,
         within_event=within_event,
+        min_level=min_level,
         snapshot=snapshot,
     )
     options = {
@@ -267,6 +276,7 @@ def pool_view(
         "alpha": alpha,
         "hksj_floor": hksj_floor,
         "within_event": within_event,
+        "min_level": min_level,
     }
     columns = [
         "group",
@@ -279,10 +289,14 @@ def pool_view(
         "country",
         "change_date",
         "change_direction",
+        "change_kind",
         "design",
         "design_family",
         "level",
         "measure",
+        "reported",
+        "reported_low",
+        "reported_high",
         "estimate_kind",
         "subgroup",
         "y",
@@ -308,6 +322,14 @@ def pool_view(
         rows["study_id"] = rows["study_ids"].where(rows["study_ids"].notna(), rows["study_id"])
     rows["estimate_uid"] = rows["estimate_uids"].map(lambda u: "; ".join(map(str, u)))
     rows["change_date"] = rows["change_date"].astype(str)
+    # the estimate as reported (before alignment), for an event with one estimate
+    single = rows["k_units"].fillna(1).to_numpy() <= 1 if "k_units" in rows else True
+    for col, src in (
+        ("reported", "estimate"),
+        ("reported_low", "ci_low"),
+        ("reported_high", "ci_high"),
+    ):
+        rows[col] = rows[src].where(single) if src in rows else np.nan
     for c in columns:
         if c not in rows.columns:
             rows[c] = None

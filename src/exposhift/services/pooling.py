@@ -251,6 +251,10 @@ def pool_evidence(
         "rho": float(rho) if within_event == "aggregate" else None,
     }
     words = evidence_set_words(include_fatal, min_level)
+    if within_event != "aggregate":  # the words name the route actually used
+        words = words.replace(
+            "one number per event", f"estimates pooled by the {within_event} route"
+        )
     kept, excluded = prepare_for_pooling(
         frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level
     )

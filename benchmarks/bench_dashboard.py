@@ -103,8 +103,10 @@ def main() -> None:
         small = measure(str(demo), args.repeat)
         large = measure(big, args.repeat)
     print(f"dashboard pages, AppTest, best of {args.repeat}; baseline: the same page on the demo")
-    print(f"{'page':<12} {'demo cold':>10} {'demo warm':>10} {'big cold':>10} {'big warm':>10}"
-          f" {'cold x':>7} {'warm x':>7}")
+    print(
+        f"{'page':<12} {'demo cold':>10} {'demo warm':>10} {'big cold':>10} {'big warm':>10}"
+        f" {'cold x':>7} {'warm x':>7}"
+    )
     for page in PAGES:
         (dc, dw), (bc, bw) = small[page], large[page]
         print(

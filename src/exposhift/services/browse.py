@@ -241,6 +241,8 @@ def pool_view(
     within_event: str = "aggregate",
     min_level: int | None = None,
     snapshot: EvidenceSnapshot | None = None,
+    prepared: PoolOutput | None = None,
+    light: bool = False,
 ) -> PoolView:
     """:func:`~exposhift.services.pooling.pool_evidence` plus one row per pooled *event*.
 
@@ -266,6 +268,8 @@ def pool_view(
         within_event=within_event,
         min_level=min_level,
         snapshot=snapshot,
+        prepared=prepared,
+        light=light,
     )
     options = {
         "method": method,

@@ -60,6 +60,7 @@ from exposhift.services.browse import DEMO_NOTE, pool_view
 from exposhift.services.lookup import require_name
 from exposhift.services.pooling import pool_evidence
 from exposhift.services.replicating import gap_report, replication_for
+from exposhift.services.snapshot import EvidenceSnapshot, take_snapshot
 from exposhift.store.database import Store
 from exposhift.store.dossier_records import outcomes_of_exposure, records_used
 from exposhift.synthesis.harmonise import GROUP_SCALES
@@ -219,12 +220,23 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
     )
 
 
-def _section(store: Store, exposure: str, outcome: str, records, settings, opts: PoolOptions):
+def _section(
+    store: Store,
+    exposure: str,
+    outcome: str,
+    records,
+    settings,
+    opts: PoolOptions,
+    snapshot: EvidenceSnapshot | None = None,
+):
+    """One outcome's section. The estimates are read from ``snapshot`` (one read for the whole
+    dossier), prepared once for pooling (harmonised, independent) and pooled three ways: in
+    full with the details, by design family (forest plot) and by level (sensitivity)."""
     kw = dataclasses.asdict(opts)
     group = next(
         (o.get("outcome_group") or "" for o in records["outcome"] if o["name"] == outcome), ""
     )
-    rep = replication_for(store, exposure, outcome, settings=settings)
+    rep = replication_for(store, exposure, outcome, settings=settings, snapshot=snapshot)
     replication = ev.replication(rep, STATUSES)
     question = _question(outcome, records)
     certainty = certainty_of(exposure, outcome)
@@ -243,9 +255,10 @@ def _section(store: Store, exposure: str, outcome: str, records, settings, opts:
             [],
             note="no estimate of this exposure for this outcome",
         ), None
-    pool = pool_evidence(store, exposure, outcome, details=True, **kw)
-    view = pool_view(store, exposure, outcome, by=["design-family"], **kw)
-    by_level = pool_evidence(store, exposure, outcome, by=["level"], **kw)
+    pool = pool_evidence(store, exposure, outcome, details=True, snapshot=snapshot, **kw)
+    again = dict(snapshot=snapshot, prepared=pool, light=True, **kw)
+    view = pool_view(store, exposure, outcome, by=["design-family"], **again)
+    by_level = pool_evidence(store, exposure, outcome, by=["level"], **again)
     section = OutcomeSection(
         outcome=outcome,
         outcome_group=group,
@@ -337,8 +350,11 @@ def gather(
         "outcomes": list(outcomes),
         "rubric_id": rubric.rubric_id,
     }
-    sections = [_section(store, exposure, o, records, rep_settings, opts)[0] for o in outcomes]
-    gaps = gap_report(store, settings=rep_settings)
+    snapshot = take_snapshot(store)  # one read of the evidence base for every section
+    sections = [
+        _section(store, exposure, o, records, rep_settings, opts, snapshot)[0] for o in outcomes
+    ]
+    gaps = gap_report(store, settings=rep_settings, snapshot=snapshot)
     fp = fingerprint(records, rubric.content_hash, settings, __version__)
     demo = any(bool(r.get("demo")) for kind in ("study", "event") for r in records[kind])
     provenance = Provenance(

@@ -220,10 +220,17 @@ def pool_evidence(
     rho: float = DEFAULT_RHO,
     details: bool = False,
     snapshot: EvidenceSnapshot | None = None,
+    prepared: PoolOutput | None = None,
+    light: bool = False,
 ) -> PoolOutput:
     """Pool one exposure x outcome; ``details`` adds leave-one-event-out, cumulative and the
     small-study test to each group (the τ² interval is always there). ``snapshot``: read the
-    estimates from it instead of the store (:mod:`exposhift.services.snapshot`)."""
+    estimates from it instead of the store (:mod:`exposhift.services.snapshot`).
+
+    For a second view of the same evidence (other strata): ``prepared``, an earlier result of
+    the same exposure, outcome and evidence-set options, gives its harmonised independent
+    estimates and left-out list instead of preparing them again; ``light`` leaves out what such
+    a view does not show (the within-event correlation range and the across-strata test)."""
     by = list(by or [])
     _check_options(by, align_to, method, within_event, rho, min_level)
     with store.read() as conn:
@@ -250,14 +257,21 @@ def pool_evidence(
         "within_event": within_event,
         "rho": float(rho) if within_event == "aggregate" else None,
     }
+    if prepared is not None:
+        same = {k: prepared.options.get(k) for k in ("include_fatal", "min_level", "align_to")}
+        if same != {"include_fatal": include_fatal, "min_level": min_level, "align_to": align_to}:
+            raise ValueError("prepared comes from another evidence set or alignment")
     words = evidence_set_words(include_fatal, min_level)
     if within_event != "aggregate":  # the words name the route actually used
         words = words.replace(
             "one number per event", f"estimates pooled by the {within_event} route"
         )
-    kept, excluded = prepare_for_pooling(
-        frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level
-    )
+    if prepared is not None:
+        kept, excluded = prepared.unit_rows, list(prepared.excluded)
+    else:
+        kept, excluded = prepare_for_pooling(
+            frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level
+        )
     if kept.empty:
         return PoolOutput(
             exposure, outcome, align_to, [], excluded, evidence_set=words, options=options
@@ -275,12 +289,14 @@ def pool_evidence(
         rho=rho,
     )
     groups = [
-        _group_record(rec, keys, kept, pooled.rows[pooled.rows["group"] == i], options, details)
+        _group_record(
+            rec, keys, kept, pooled.rows[pooled.rows["group"] == i], options, details, light
+        )
         for i, rec in enumerate(pooled.table.to_dict(orient="records"))
     ]
     for g in groups:
         g["excluded"] = excluded
-    overall = _overall(kept, keys, by, options) if by else []
+    overall = _overall(kept, keys, by, options) if by and not light else []
     return PoolOutput(
         exposure,
         outcome,
@@ -320,6 +336,7 @@ def _group_record(
     rows: pd.DataFrame,
     options: dict[str, Any],
     details: bool,
+    light: bool = False,
 ) -> dict[str, Any]:
     mine = rows
     units = kept[kept["estimate_uid"].isin([u for uids in rows["estimate_uids"] for u in uids])]
@@ -389,7 +406,11 @@ def _group_record(
             f: _finite(fe[f]) for f in ("estimate", "se", "ci_lower", "ci_upper", "pvalue")
         }
         g["fixed_effect"]["natural"] = natural(scale, g["fixed_effect"])
-    if options["within_event"] == "aggregate" and (units["event_id"].duplicated()).any():
+    if (
+        not light
+        and options["within_event"] == "aggregate"
+        and (units["event_id"].duplicated()).any()
+    ):
         g["rho_sensitivity"] = _rho_range(units, keys, options)
     if details:
         g["sensitivity"] = sensitivity(ev, scale=scale, options=options)

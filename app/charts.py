@@ -445,16 +445,6 @@ def forest_plot(
 
 
 # ----------------------------------------------------------------------------- map
-def _spread(n: int, radius: float = 2.2) -> list[tuple[float, float]]:
-    """Offsets (degrees) placing n markers of one country around its point."""
-    if n == 1:
-        return [(0.0, 0.0)]
-    return [
-        (radius * math.cos(2 * math.pi * i / n), radius * math.sin(2 * math.pi * i / n))
-        for i in range(n)
-    ]
-
-
 def map_extent(
     lon: list[float],
     lat: list[float],
@@ -485,8 +475,10 @@ def event_map(
 ) -> go.Figure:
     """World map of independent events (``ReplicationReport.events`` rows that represent their
     event): countries with events shaded, one triangle per event (▲ exposure increased, ▼
-    decreased) coloured by its estimate aligned to an exposure increase (red: the outcome
-    rises with exposure, blue: it falls; back-transformed for ratio measures). When the events
+    decreased) placed inside its country (:func:`exposhift.mapdata.marker_places`; the
+    country is labelled, with its number of events when it has several) and coloured by its
+    estimate aligned to an exposure increase (red: the outcome rises with exposure, blue: it
+    falls; back-transformed for ratio measures; the timeline uses the same colours). When the events
     mix measure groups, the colour is z = estimate / SE instead. Open markers: level below
     ``min_level`` or not appraised. The view fits the markers, or the countries in ``focus``
     (alpha-3 codes) when given."""
@@ -533,13 +525,22 @@ def event_map(
                 hovertemplate="%{text}<extra></extra>",
             )
         )
-        pts = country_points()
+        label_lon, label_lat, label_text = [], [], []
         for code, grp in ev.groupby("country", sort=False):
-            p = pts.get(str(code))
-            offsets = _spread(len(grp))
-            for (dx, dy), _ in zip(offsets, grp.index, strict=True):
-                lon.append(None if p is None else p[0] + dx)
-                lat.append(None if p is None else p[1] + dy)
+            places = mapdata.marker_places(str(code), len(grp))
+            if not places:
+                places = ((None, None),) * len(grp)
+            for x, y in places:
+                lon.append(x)
+                lat.append(y)
+            if places[0][0] is not None:
+                stacked = len(set(places)) < len(places)
+                label_lon.append(places[0][0])
+                label_lat.append(places[0][1])
+                label_text.append(
+                    f"{country_name(str(code))}"
+                    + (f" · {plural(len(grp), 'event')}" if stacked or len(grp) > 1 else "")
+                )
         order = [i for _, grp in ev.groupby("country", sort=False) for i in grp.index]
         ev = ev.loc[order].reset_index(drop=True)
         y = ev["estimate"].astype(float).to_numpy()
@@ -600,6 +601,18 @@ def event_map(
                 ),
             )
         )
+        fig.add_trace(
+            go.Scattergeo(
+                lon=label_lon,
+                lat=label_lat,
+                mode="text",
+                text=label_text,
+                textposition="top center",
+                textfont=dict(size=12, color="#222222"),
+                hoverinfo="skip",
+                name="country labels",
+            )
+        )
     if focus:
         pts = country_points()
         keep = [pts[c] for c in focus if c in pts]
@@ -639,9 +652,11 @@ def outcome_moves(events: pd.DataFrame) -> np.ndarray:
 def event_timeline(
     events: pd.DataFrame, reversals: list[dict] | None = None, *, min_level: int = 2
 ) -> go.Figure:
-    """Events by change date per country: ▲/▼ = the exposure rose/fell, red/blue = the outcome
-    rose/fell after it, open = level below ``min_level``; events of one country joined in
-    order, reversals (``ReplicationReport.reversals``) marked with an arrow."""
+    """Events by change date per country: ▲/▼ = the exposure rose/fell, red/blue = the
+    estimate aligned to an exposure increase says the outcome rises/falls with exposure (the
+    map's colours; whether the outcome rose or fell after the change is in the hover), open =
+    level below ``min_level``; events of one country joined in order, reversals
+    (``ReplicationReport.reversals``) marked with an arrow."""
     ev = events
     if "represents_event" in ev.columns:
         ev = ev[ev["represents_event"].astype(bool)]
@@ -667,7 +682,10 @@ def event_timeline(
             )
     moves = outcome_moves(ev)
     good = ev["level"].astype(float).ge(min_level).fillna(False).to_numpy()
-    colours = [ROSE if m > 0 else FELL if m < 0 else FLAT for m in moves]
+    # one colour meaning per page: the sign of the estimate aligned to an exposure increase,
+    # as on the map (red: the outcome rises with exposure, blue: it falls)
+    effect = np.sign(ev["estimate"].astype(float).to_numpy())
+    colours = [ROSE if e > 0 else FELL if e < 0 else FLAT for e in np.nan_to_num(effect)]
     symbols = [
         (UP if d == "increase" else DOWN) + ("" if g else "-open")
         for d, g in zip(ev["direction"], good, strict=True)
@@ -735,8 +753,8 @@ def event_timeline(
     for label, sym, col in (
         ("exposure rose", UP, "#555555"),
         ("exposure fell", DOWN, "#555555"),
-        ("outcome rose", "circle", ROSE),
-        ("outcome fell", "circle", FELL),
+        ("outcome rises with exposure", "circle", ROSE),
+        ("outcome falls with exposure", "circle", FELL),
         (f"open: level below {min_level}", "circle-open", "#555555"),
     ):
         fig.add_trace(

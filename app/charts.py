@@ -866,6 +866,8 @@ def gap_heatmap(cells: pd.DataFrame) -> go.Figure:
         z[i, j] = idx.get(str(c["state"]), np.nan)
         if int(c["events"]):
             text[i, j] = f"{int(c['events'])} ev · {int(c['studies'])} st"
+            if str(c["state"]) == "replicated-in-part" and c.get("not_yet"):
+                text[i, j] += f"<br>not yet: {c['not_yet']}"  # in part, never "settled"
         level = "-" if pd.isna(c["best_level"]) else int(c["best_level"])
         hover[i, j] = (
             f"<b>{c['exposure']} × {c['outcome_group']}</b><br>state {c['state']}"

@@ -52,7 +52,11 @@ with st.sidebar:
         help="Independent appraisals stay hidden from everyone but their reviewer until both "
         "independent appraisals of a study are in. Give your name to see your own.",
     )
-    if st.button("Reload data", help="Read the evidence base again (after an import)."):
+    if st.button(
+        "Reload data",
+        help="Pages follow the evidence base by themselves (every write moves its data "
+        "version); this forgets every cached result and reads everything again.",
+    ):
         data.clear()
         st.rerun()
     if not st.get_option("server.enableStaticServing"):

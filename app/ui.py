@@ -62,6 +62,12 @@ def status_box(status: str, rule: str, provisional: bool = False) -> None:
     getattr(st, tone)(f"**Replication status: {label}**\n\n{rule}")
 
 
+def region_name(key: str) -> str:
+    """A region of the replication settings as every page writes it: ``western-europe`` ->
+    ``Western Europe``."""
+    return str(key).replace("-", " ").replace("_", " ").title()
+
+
 def level_text(value) -> str:
     return "not appraised" if value is None or pd.isna(value) else f"{int(value)}"
 

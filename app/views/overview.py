@@ -88,6 +88,11 @@ st.dataframe(
         "ci_upper": st.column_config.NumberColumn("CI high", format="%.3f"),
         "tau2": st.column_config.NumberColumn("τ²", format="%.4f"),
         "i2": st.column_config.NumberColumn("I²", format="percent"),
+        "k_events": st.column_config.NumberColumn("events pooled"),
+        "k_estimates": st.column_config.NumberColumn("estimates pooled"),
+        "provisional": st.column_config.CheckboxColumn(
+            "provisional", help="the expected direction was inferred from these same events"
+        ),
     },
 )
 st.caption(

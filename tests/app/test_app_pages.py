@@ -178,7 +178,7 @@ def test_studies_filter_reruns(app, demo_db):
     table = _frame(at, "citation")
     expected = _sql(demo_db, "SELECT count(*) FROM study WHERE design = 'synthetic-control'")
     assert len(table) == expected[0][0]
-    assert set(table["design_family"]) == {"weighted-fit"}
+    assert set(table["design family"]) == {"weighted-fit"}  # human column titles
 
 
 # ----------------------------------------------------------------------------- pooling
@@ -399,7 +399,7 @@ def test_gap_map_cells_opportunities_and_filter(app, demo_db):
     never = _sql(
         demo_db, "SELECT count(*) FROM event WHERE id NOT IN (SELECT event_id FROM estimate)"
     )[0][0]
-    assert len(_frame(at, "needs")) == never
+    assert len(_frame(at, "an evaluation needs")) == never
     # filter: only studied cells
     at.toggle(key="gap_studied").set_value(True).run()
     assert not at.exception

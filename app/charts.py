@@ -287,15 +287,8 @@ def forest_plot(
             sub_txt = (
                 f" [{r['subgroup']}]" if isinstance(r["subgroup"], str) and r["subgroup"] else ""
             )
-            combined = (
-                f" · {int(r['k_units'])} estimates combined"
-                if "k_units" in r and pd.notna(r["k_units"]) and r["k_units"] > 1
-                else ""
-            )
             lvl = "not appraised" if pd.isna(r["level"]) else f"level {int(r['level'])}"
-            ticks.append(
-                (pos, f"{r['event_id']}: {r['study_id']} ({where}){sub_txt}{combined} · {lvl}")
-            )
+            ticks.append((pos, f"{r['event_id']}: {r['study_id']} ({where}){sub_txt} · {lvl}"))
             right.append(
                 (
                     pos,
@@ -438,7 +431,7 @@ def forest_plot(
         height=int(120 + 26 * n_rows),
         plot_bgcolor="white",
         font=FONT,
-        margin=dict(l=10, r=380, t=40 if title else 10, b=50),
+        margin=dict(l=10, r=330, t=40 if title else 10, b=50),
         title=dict(text=title, font=dict(size=14)) if title else None,
     )
     return fig
@@ -533,7 +526,9 @@ def event_map(
             for x, y in places:
                 lon.append(x)
                 lat.append(y)
-            if places[0][0] is not None:
+            if places[0][0] is not None and (focus or len(grp) > 1):
+                # labelled: every country of a zoomed view; in the world view the countries
+                # with several events (their count), so small neighbours do not overprint
                 stacked = len(set(places)) < len(places)
                 label_lon.append(places[0][0])
                 label_lat.append(places[0][1])
@@ -601,18 +596,19 @@ def event_map(
                 ),
             )
         )
-        fig.add_trace(
-            go.Scattergeo(
-                lon=label_lon,
-                lat=label_lat,
-                mode="text",
-                text=label_text,
-                textposition="top center",
-                textfont=dict(size=12, color="#222222"),
-                hoverinfo="skip",
-                name="country labels",
+        if label_text:
+            fig.add_trace(
+                go.Scattergeo(
+                    lon=label_lon,
+                    lat=label_lat,
+                    mode="text",
+                    text=label_text,
+                    textposition="top center",
+                    textfont=dict(size=12, color="#222222"),
+                    hoverinfo="skip",
+                    name="country labels",
+                )
             )
-        )
     if focus:
         pts = country_points()
         keep = [pts[c] for c in focus if c in pts]

@@ -71,7 +71,7 @@ ui.caution()
 with ui.guard():
     findings = data.findings(db)
 st.dataframe(
-    findings,
+    ui.readable(ui.paged(findings, "overview_findings"), titles={c: c for c in findings.columns}),
     hide_index=True,
     width="stretch",
     key="overview_findings",

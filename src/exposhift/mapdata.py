@@ -11,6 +11,8 @@ import functools
 import json
 from importlib import resources
 
+import numpy as np
+
 SHAPES = "countries-110m.geojson"
 POINTS = "country_points.json"
 
@@ -61,6 +63,18 @@ def inside(ring: list[list[float]], x: float, y: float) -> bool:
     return hit
 
 
+def inside_many(ring: list[list[float]], x: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """:func:`inside` for arrays of points at once (the same even-odd rule, vectorised)."""
+    r = np.asarray(ring, dtype=float)
+    x1, y1 = r[:, 0], r[:, 1]
+    x2, y2 = np.roll(x1, -1), np.roll(y1, -1)
+    px, py = np.asarray(x, dtype=float)[:, None], np.asarray(y, dtype=float)[:, None]
+    straddles = (y1 > py) != (y2 > py)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        cross = px < (x2 - x1) * (py - y1) / (y2 - y1) + x1
+    return ((straddles & cross).sum(axis=1) % 2) == 1
+
+
 def in_country(code: str, x: float, y: float) -> bool:
     """True when (longitude ``x``, latitude ``y``) lies inside one of the country's outlines."""
     return any(inside(r, x, y) for r in _rings(code))
@@ -84,16 +98,17 @@ def marker_places(code: str, n: int, margin: float = 0.35) -> tuple[tuple[float,
     ring = rings[0]
     xs, ys = [p[0] for p in ring], [p[1] for p in ring]
     step = max((max(xs) - min(xs)) / 24, (max(ys) - min(ys)) / 24, 0.05)
-    cands = []
-    y = min(ys) + step / 2
-    while y < max(ys):
-        x = min(xs) + step / 2
-        while x < max(xs):
-            around = ((x, y), (x + margin, y), (x - margin, y), (x, y + margin), (x, y - margin))
-            if all(inside(ring, a, b) for a, b in around):
-                cands.append((round(x, 3), round(y, 3)))
-            x += step
-        y += step
+    gx = np.arange(min(xs) + step / 2, max(xs), step)
+    gy = np.arange(min(ys) + step / 2, max(ys), step)
+    px, py = (a.ravel() for a in np.meshgrid(gx, gy, indexing="xy"))
+    ok = np.ones(px.size, dtype=bool)
+    for dx, dy in ((0, 0), (margin, 0), (-margin, 0), (0, margin), (0, -margin)):
+        ok &= inside_many(ring, px + dx, py + dy)
+    order = np.lexsort((px[ok], py[ok]))  # row by row, south to north, as the grid runs
+    cands = [
+        (round(float(x), 3), round(float(y), 3))
+        for x, y in zip(px[ok][order], py[ok][order], strict=True)
+    ]
     if len(cands) < n:
         return (home,) * n
     start = home if inside(ring, *home) else cands[0]

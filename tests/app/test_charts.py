@@ -277,6 +277,9 @@ def test_gap_heatmap_states_and_counts(demo_store):
         i, j = list(h.y).index(c["exposure"]), list(h.x).index(c["outcome_group"])
         assert states[int(h.z[i][j])] == c["state"]
         expected = f"{int(c['events'])} ev · {int(c['studies'])} st" if c["events"] else ""
+        if c["state"] == "replicated-in-part":  # never reads as settled: says what is missing
+            expected += f"<br>not yet: {c['not_yet']}"
+            assert c["not_yet"]
         assert h.text[i][j] == expected
     assert list(h.colorbar.ticktext) == states
 

@@ -45,6 +45,9 @@ def _view(page: str):
 
     at = AppTest.from_file(str(ENTRY), default_timeout=600)
     at.switch_page(f"views/{page}.py")
+    # the synthetic base has no appraisal: pool every level but fatal on both bases, so the
+    # pooling page pools and draws its forest plot (good events only would leave nothing)
+    at.session_state["pool_evidence"] = "not-fatal"
     return at
 
 

@@ -235,6 +235,39 @@ def replication(
     return _replication(db, stamp(db), exposure, outcome, expected, family)
 
 
+@st.cache_resource(**CACHE)
+def _replication_figures(
+    db: str | None,
+    key: tuple,
+    exposure: str,
+    outcome: str,
+    expected: str | None,
+    family,
+    min_level: int,
+    focus: tuple[str, ...] | None,
+):
+    report = _replication(db, key, exposure, outcome, expected, family)
+    return (
+        charts.event_map(report.events, min_level=min_level, focus=list(focus) if focus else None),
+        charts.event_timeline(report.events, report.reversals, min_level=min_level),
+    )
+
+
+def replication_figures(
+    db: str | None,
+    exposure: str,
+    outcome: str,
+    expected: str | None,
+    family: str | None,
+    min_level: int,
+    focus: list[str] | None,
+):
+    """The map and the timeline of :func:`replication` (built once per stamp and view;
+    shared: do not modify the figures)."""
+    view = tuple(focus) if focus else None
+    return _replication_figures(db, stamp(db), exposure, outcome, expected, family, min_level, view)
+
+
 @st.cache_data(**CACHE)
 def _gaps(db: str | None, key: tuple, filters: replicating.GapFilters) -> replicating.GapReport:
     return replicating.gap_report(_store(db), filters, snapshot=snapshot(db, key))

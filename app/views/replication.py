@@ -121,11 +121,11 @@ if st.session_state.get("rep_map_view") not in ("all events", *areas):
     st.session_state.pop("rep_map_view", None)
 if len(areas) > 1:
     view = st.radio("Map view", ["all events", *areas], horizontal=True, key="rep_map_view")
-st.plotly_chart(
-    charts.event_map(ev, min_level=settings.min_level, focus=areas.get(view)),
-    config=charts.PLOTLY_CONFIG,
-    key="rep_map",
+chosen = None if len(families) <= 1 or family == "all families" else family
+event_map, timeline = data.replication_figures(
+    db, exposure, outcome, expected, chosen, settings.min_level, areas.get(view)
 )
+st.plotly_chart(event_map, config=charts.PLOTLY_CONFIG, key="rep_map")
 st.caption(
     "▲ exposure rose, ▼ exposure fell; open marker: appraisal level below "
     f"{settings.min_level}. Colour, on this map and on the timeline below alike: the estimate "
@@ -142,11 +142,7 @@ if sign.get("n"):
 
 # 4. time: timeline --------------------------------------------------------------------------
 st.subheader("When: events by date, per country")
-st.plotly_chart(
-    charts.event_timeline(ev, report.reversals, min_level=settings.min_level),
-    config=charts.PLOTLY_CONFIG,
-    key="rep_timeline",
-)
+st.plotly_chart(timeline, config=charts.PLOTLY_CONFIG, key="rep_timeline")
 for seq in report.temporal:
     mark = "replicated in time" if seq["replicated"] else "not replicated in time"
     st.markdown(

@@ -16,9 +16,9 @@ from exposhift.errors import ExposhiftError
 from exposhift.services.certainty import cell_certainty
 
 
-@st.cache_data(ttl=data.TTL, show_spinner=False)
-def _cell(db: str | None, exposure: str, outcome: str) -> dict | None:
-    cell = cell_certainty(data._store(db), exposure, outcome)
+@st.cache_data(**data.CACHE)
+def _cell(db: str | None, key: tuple, exposure: str, outcome: str) -> dict | None:
+    cell = cell_certainty(data.store(db), exposure, outcome)
     return None if cell is None else cell.to_dict()
 
 
@@ -26,7 +26,7 @@ def show(db: str | None, exposure: str, outcome: str) -> None:
     """The panel: certainty (recorded, or suggested and marked so), the E-value in words, and
     each domain's suggestion and recorded rating in an expander."""
     try:
-        c = _cell(db, exposure, outcome)
+        c = _cell(db, data.stamp(db), exposure, outcome)
     except ExposhiftError as exc:
         st.error(str(exc))
         return

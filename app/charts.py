@@ -14,7 +14,6 @@ the figures with :data:`PLOTLY_CONFIG`, which points plotly.js at the app's own 
 from __future__ import annotations
 
 import functools
-import json
 import math
 from pathlib import Path
 from typing import Any
@@ -24,6 +23,7 @@ import pandas as pd
 import plotly.graph_objects as go
 import pycountry
 
+from exposhift import mapdata
 from exposhift.synthesis.harmonise import GROUP_SCALES
 
 STATIC = Path(__file__).resolve().parent / "static"
@@ -57,16 +57,15 @@ STATE_COLOURS: dict[str, str] = {
 
 
 # ----------------------------------------------------------------------------- helpers
-@functools.lru_cache(maxsize=1)
 def country_shapes() -> dict:
-    """Natural Earth 1:110m countries as GeoJSON, ``id`` = ISO 3166-1 alpha-3 (static/)."""
-    return json.loads((STATIC / "countries-110m.geojson").read_text(encoding="utf-8"))
+    """Natural Earth 1:110m countries as GeoJSON, ``id`` = ISO 3166-1 alpha-3 (package data,
+    :mod:`exposhift.mapdata`)."""
+    return mapdata.country_shapes()
 
 
-@functools.lru_cache(maxsize=1)
 def country_points() -> dict[str, list]:
     """alpha-3 -> [lon, lat, name]: a point inside each country (Natural Earth 1:50m)."""
-    return json.loads((STATIC / "country_points.json").read_text(encoding="utf-8"))
+    return mapdata.country_points()
 
 
 @functools.lru_cache(maxsize=512)
@@ -211,13 +210,57 @@ def count_bars(frame: pd.DataFrame, category: str, value: str, title: str) -> go
 
 
 # ----------------------------------------------------------------------------- forest plot
-def forest_plot(rows: pd.DataFrame, groups: list[dict], *, title: str = "") -> go.Figure:
+def reported_text(row: Any) -> str:
+    """An estimate as the study reported it, e.g. ``RR 0.78 [0.70, 0.87] after a ban``
+    (several estimates of one event combined: says so instead)."""
+    k = row.get("k_units") if hasattr(row, "get") else None
+    if k is not None and pd.notna(k) and k > 1:
+        return f"{int(k)} estimates combined"
+    value = row.get("reported")
+    if value is None or pd.isna(value):
+        return "as reported: -"
+    lo, hi = row.get("reported_low"), row.get("reported_high")
+    ci = (
+        ""
+        if lo is None or pd.isna(lo) or hi is None or pd.isna(hi)
+        else f" [{_fmt(lo)}, {_fmt(hi)}]"
+    )
+    kind = row.get("change_kind")
+    after = f" after a {kind}" if isinstance(kind, str) and kind else ""
+    return f"{row.get('measure')} {_fmt(value)}{ci}{after}"
+
+
+def aligned_values(rows: pd.DataFrame) -> pd.Series:
+    """Each pooled row's aligned value and Wald interval on the natural scale, as text."""
+    out = []
+    for r in rows.itertuples(index=False):
+        f = math.exp if r.scale == "log" else float
+        out.append(f"{_fmt(f(r.y))} [{_fmt(f(r.ci_lower))}, {_fmt(f(r.ci_upper))}]")
+    return pd.Series(out, index=rows.index, dtype=object)
+
+
+def forest_budget(n_groups: int, max_rows: int | None) -> int | None:
+    """Rows drawn per stratum: ``max_rows`` shared between the strata, at least 5 each."""
+    if max_rows is None or n_groups == 0:
+        return None
+    return max(5, max_rows // n_groups)
+
+
+def forest_plot(
+    rows: pd.DataFrame, groups: list[dict], *, title: str = "", max_rows: int | None = 40
+) -> go.Figure:
     """Forest plot: one row per pooled estimate (square sized by weight, line = its CI), then
     the group's pooled estimate as a diamond (CI) with its prediction interval as a dashed
     line, for every group of ``groups`` (``PoolOutput.groups``). ``rows`` is
-    ``PoolView.rows``. Ratio measures are drawn back-transformed on a log axis."""
+    ``PoolView.rows``. Ratio measures are drawn back-transformed on a log axis.
+
+    A readable number of rows: at most ``max_rows`` event rows in all (shared between the
+    strata by :func:`forest_budget`); a stratum with more draws its heaviest events and one
+    line "N more events" (the pooled diamond still uses every event; the page's table lists
+    them all)."""
     if rows.empty or not groups:
         return empty_figure("nothing was pooled")
+    budget = forest_budget(len(groups), max_rows)
     log = all(g.get("scale") == "log" for g in groups)
     f = np.exp if log else (lambda a: np.asarray(a, dtype=float))
     ticks: list[tuple[float, str]] = []
@@ -230,7 +273,13 @@ def forest_plot(rows: pd.DataFrame, groups: list[dict], *, title: str = "") -> g
         sub = rows[rows["group"] == gi]
         label = str(sub["group_label"].iloc[0]) if len(sub) else f"group {gi + 1}"
         headers.append((pos, f"<b>stratum: {label}</b>"))
+        right.append((pos, "<i>as reported  →  aligned [95% CI]   weight</i>"))
         pos -= 1
+        hidden = sub.iloc[0:0]
+        if budget is not None and len(sub) > budget:
+            top = sub["weight"].fillna(0).sort_values(ascending=False, kind="stable").index
+            shown = sub.index.isin(top[:budget])
+            sub, hidden = sub[shown], sub[~shown]
         ys = []
         for _, r in sub.iterrows():
             ys.append(pos)
@@ -238,19 +287,21 @@ def forest_plot(rows: pd.DataFrame, groups: list[dict], *, title: str = "") -> g
             sub_txt = (
                 f" [{r['subgroup']}]" if isinstance(r["subgroup"], str) and r["subgroup"] else ""
             )
-            combined = (
-                f" · {int(r['k_units'])} estimates combined"
-                if "k_units" in r and pd.notna(r["k_units"]) and r["k_units"] > 1
-                else ""
-            )
-            ticks.append((pos, f"{r['event_id']}: {r['study_id']} ({where}){sub_txt}{combined}"))
+            lvl = "not appraised" if pd.isna(r["level"]) else f"level {int(r['level'])}"
+            ticks.append((pos, f"{r['event_id']}: {r['study_id']} ({where}){sub_txt} · {lvl}"))
             right.append(
                 (
                     pos,
-                    f"{_fmt(f(r['y']))} [{_fmt(f(r['ci_lower']))}, "
+                    f"{reported_text(r)}  →  {_fmt(f(r['y']))} [{_fmt(f(r['ci_lower']))}, "
                     f"{_fmt(f(r['ci_upper']))}]   {100 * r['weight']:.0f}%",
                 )
             )
+            pos -= 1
+        if len(hidden):
+            ticks.append(
+                (pos, f"<i>… {plural(len(hidden), 'more event')} (the table lists every event)</i>")
+            )
+            right.append((pos, f"<i>{100 * hidden['weight'].sum():.0f}% of the weight</i>"))
             pos -= 1
         est, lo, hi = (
             f(sub["y"].to_numpy()),
@@ -380,23 +431,13 @@ def forest_plot(rows: pd.DataFrame, groups: list[dict], *, title: str = "") -> g
         height=int(120 + 26 * n_rows),
         plot_bgcolor="white",
         font=FONT,
-        margin=dict(l=10, r=230, t=40 if title else 10, b=50),
+        margin=dict(l=10, r=330, t=40 if title else 10, b=50),
         title=dict(text=title, font=dict(size=14)) if title else None,
     )
     return fig
 
 
 # ----------------------------------------------------------------------------- map
-def _spread(n: int, radius: float = 2.2) -> list[tuple[float, float]]:
-    """Offsets (degrees) placing n markers of one country around its point."""
-    if n == 1:
-        return [(0.0, 0.0)]
-    return [
-        (radius * math.cos(2 * math.pi * i / n), radius * math.sin(2 * math.pi * i / n))
-        for i in range(n)
-    ]
-
-
 def map_extent(
     lon: list[float],
     lat: list[float],
@@ -427,8 +468,10 @@ def event_map(
 ) -> go.Figure:
     """World map of independent events (``ReplicationReport.events`` rows that represent their
     event): countries with events shaded, one triangle per event (▲ exposure increased, ▼
-    decreased) coloured by its estimate aligned to an exposure increase (red: the outcome
-    rises with exposure, blue: it falls; back-transformed for ratio measures). When the events
+    decreased) placed inside its country (:func:`exposhift.mapdata.marker_places`; the
+    country is labelled, with its number of events when it has several) and coloured by its
+    estimate aligned to an exposure increase (red: the outcome rises with exposure, blue: it
+    falls; back-transformed for ratio measures; the timeline uses the same colours). When the events
     mix measure groups, the colour is z = estimate / SE instead. Open markers: level below
     ``min_level`` or not appraised. The view fits the markers, or the countries in ``focus``
     (alpha-3 codes) when given."""
@@ -475,13 +518,24 @@ def event_map(
                 hovertemplate="%{text}<extra></extra>",
             )
         )
-        pts = country_points()
+        label_lon, label_lat, label_text = [], [], []
         for code, grp in ev.groupby("country", sort=False):
-            p = pts.get(str(code))
-            offsets = _spread(len(grp))
-            for (dx, dy), _ in zip(offsets, grp.index, strict=True):
-                lon.append(None if p is None else p[0] + dx)
-                lat.append(None if p is None else p[1] + dy)
+            places = mapdata.marker_places(str(code), len(grp))
+            if not places:
+                places = ((None, None),) * len(grp)
+            for x, y in places:
+                lon.append(x)
+                lat.append(y)
+            if places[0][0] is not None and (focus or len(grp) > 1):
+                # labelled: every country of a zoomed view; in the world view the countries
+                # with several events (their count), so small neighbours do not overprint
+                stacked = len(set(places)) < len(places)
+                label_lon.append(places[0][0])
+                label_lat.append(places[0][1])
+                label_text.append(
+                    f"{country_name(str(code))}"
+                    + (f" · {plural(len(grp), 'event')}" if stacked or len(grp) > 1 else "")
+                )
         order = [i for _, grp in ev.groupby("country", sort=False) for i in grp.index]
         ev = ev.loc[order].reset_index(drop=True)
         y = ev["estimate"].astype(float).to_numpy()
@@ -542,6 +596,19 @@ def event_map(
                 ),
             )
         )
+        if label_text:
+            fig.add_trace(
+                go.Scattergeo(
+                    lon=label_lon,
+                    lat=label_lat,
+                    mode="text",
+                    text=label_text,
+                    textposition="top center",
+                    textfont=dict(size=12, color="#222222"),
+                    hoverinfo="skip",
+                    name="country labels",
+                )
+            )
     if focus:
         pts = country_points()
         keep = [pts[c] for c in focus if c in pts]
@@ -581,9 +648,11 @@ def outcome_moves(events: pd.DataFrame) -> np.ndarray:
 def event_timeline(
     events: pd.DataFrame, reversals: list[dict] | None = None, *, min_level: int = 2
 ) -> go.Figure:
-    """Events by change date per country: ▲/▼ = the exposure rose/fell, red/blue = the outcome
-    rose/fell after it, open = level below ``min_level``; events of one country joined in
-    order, reversals (``ReplicationReport.reversals``) marked with an arrow."""
+    """Events by change date per country: ▲/▼ = the exposure rose/fell, red/blue = the
+    estimate aligned to an exposure increase says the outcome rises/falls with exposure (the
+    map's colours; whether the outcome rose or fell after the change is in the hover), open =
+    level below ``min_level``; events of one country joined in order, reversals
+    (``ReplicationReport.reversals``) marked with an arrow."""
     ev = events
     if "represents_event" in ev.columns:
         ev = ev[ev["represents_event"].astype(bool)]
@@ -609,7 +678,10 @@ def event_timeline(
             )
     moves = outcome_moves(ev)
     good = ev["level"].astype(float).ge(min_level).fillna(False).to_numpy()
-    colours = [ROSE if m > 0 else FELL if m < 0 else FLAT for m in moves]
+    # one colour meaning per page: the sign of the estimate aligned to an exposure increase,
+    # as on the map (red: the outcome rises with exposure, blue: it falls)
+    effect = np.sign(ev["estimate"].astype(float).to_numpy())
+    colours = [ROSE if e > 0 else FELL if e < 0 else FLAT for e in np.nan_to_num(effect)]
     symbols = [
         (UP if d == "increase" else DOWN) + ("" if g else "-open")
         for d, g in zip(ev["direction"], good, strict=True)
@@ -677,8 +749,8 @@ def event_timeline(
     for label, sym, col in (
         ("exposure rose", UP, "#555555"),
         ("exposure fell", DOWN, "#555555"),
-        ("outcome rose", "circle", ROSE),
-        ("outcome fell", "circle", FELL),
+        ("outcome rises with exposure", "circle", ROSE),
+        ("outcome falls with exposure", "circle", FELL),
         (f"open: level below {min_level}", "circle-open", "#555555"),
     ):
         fig.add_trace(
@@ -790,6 +862,8 @@ def gap_heatmap(cells: pd.DataFrame) -> go.Figure:
         z[i, j] = idx.get(str(c["state"]), np.nan)
         if int(c["events"]):
             text[i, j] = f"{int(c['events'])} ev · {int(c['studies'])} st"
+            if str(c["state"]) == "replicated-in-part" and c.get("not_yet"):
+                text[i, j] += f"<br>not yet: {c['not_yet']}"  # in part, never "settled"
         level = "-" if pd.isna(c["best_level"]) else int(c["best_level"])
         hover[i, j] = (
             f"<b>{c['exposure']} × {c['outcome_group']}</b><br>state {c['state']}"

@@ -56,7 +56,11 @@ with st.sidebar:
     elif summary.any_demo:
         st.markdown(":blue-background[**Contains invented demo records**]")
     signin.sidebar_box()
-    if st.button("Reload data", help="Read the evidence base again (after an import)."):
+    if st.button(
+        "Reload data",
+        help="Pages follow the evidence base by themselves (every write moves its data "
+        "version); this forgets every cached result and reads everything again.",
+    ):
         data.clear()
         st.rerun()
     if not st.get_option("server.enableStaticServing"):

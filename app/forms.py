@@ -20,8 +20,12 @@ def _store(db: str | None):
 
 
 def store():
-    """The evidence base the dashboard shows; each write names its acting user itself."""
-    return _store(data.db_target())
+    """The evidence base as the person signed in (:func:`identity.who`): a write records their
+    name and is checked against their role in the services (a reader's view refuses every
+    write), and reads apply their blinding."""
+    from exposhift.services.accounts import acting_store
+
+    return acting_store(_store(data.db_target()), identity.who())
 
 
 def me() -> identity.Identity:

@@ -62,6 +62,12 @@ def status_box(status: str, rule: str, provisional: bool = False) -> None:
     getattr(st, tone)(f"**Replication status: {label}**\n\n{rule}")
 
 
+def region_name(key: str) -> str:
+    """A region of the replication settings as every page writes it: ``western-europe`` ->
+    ``Western Europe``."""
+    return str(key).replace("-", " ").replace("_", " ").title()
+
+
 def level_text(value) -> str:
     return "not appraised" if value is None or pd.isna(value) else f"{int(value)}"
 
@@ -85,3 +91,61 @@ def pick(
         default = wanted
     index = options.index(default) if default in options else 0
     return st.selectbox(label, options, index=index, key=key, help=help)
+
+
+# ----------------------------------------------------------------------------- tables
+#: rows shown per page of a table (a table of 100,000 rows is sent one page at a time)
+PAGE_ROWS = 50
+
+
+def title_of(column: str) -> str:
+    """A column title for people: ``design_family`` -> ``design family``."""
+    return str(column).replace("_", " ")
+
+
+def readable(frame: pd.DataFrame, titles: dict[str, str] | None = None) -> pd.DataFrame:
+    """``frame`` with human column titles (``titles``, else :func:`title_of`) and empty cells
+    where a text column holds None or NaN (numbers keep NaN: Streamlit shows it blank)."""
+    out = frame.copy()
+    for c in out.columns:
+        if not (pd.api.types.is_numeric_dtype(out[c]) or pd.api.types.is_bool_dtype(out[c])):
+            out[c] = out[c].astype(object).where(out[c].notna(), "")
+    names = titles or {}
+    return out.rename(columns={c: names.get(c, title_of(c)) for c in out.columns})
+
+
+def paged(frame: pd.DataFrame, key: str, per_page: int = PAGE_ROWS) -> pd.DataFrame:
+    """The rows of the page chosen under the table (all rows when they fit on one page)."""
+    n = len(frame)
+    if n <= per_page:
+        return frame
+    pages = (n + per_page - 1) // per_page
+    left, right = st.columns([1, 4])
+    page = left.number_input(
+        "Page", min_value=1, max_value=pages, value=1, step=1, key=f"{key}_page"
+    )
+    first = (int(page) - 1) * per_page
+    right.caption(f"rows {first + 1}–{min(first + per_page, n)} of {n:,} ({pages:,} pages)")
+    return frame.iloc[first : first + per_page]
+
+
+def table(
+    frame: pd.DataFrame,
+    key: str,
+    titles: dict[str, str] | None = None,
+    column_config: dict | None = None,
+    per_page: int = PAGE_ROWS,
+    **kwargs,
+) -> pd.DataFrame:
+    """Show ``frame`` one page at a time with human titles and empty cells; returns the rows
+    shown. ``column_config`` is keyed by the *shown* titles."""
+    shown = readable(paged(frame, key, per_page), titles)
+    st.dataframe(
+        shown,
+        hide_index=True,
+        width="stretch",
+        key=key,
+        column_config=column_config or {},
+        **kwargs,
+    )
+    return shown

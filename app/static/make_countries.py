@@ -34,6 +34,8 @@ from pathlib import Path
 import pycountry
 
 HERE = Path(__file__).resolve().parent
+#: outlines and marker points are package data (the dossier reads them from an installed wheel)
+PACKAGE_MAPS = HERE.parents[1] / "src" / "exposhift" / "data" / "maps"
 SPECIAL = {"Kosovo": "XKX"}
 
 
@@ -194,9 +196,11 @@ def main(package_dir: str) -> None:
     src = Path(package_dir)
     small = json.loads((src / "countries-110m.json").read_text())
     medium = json.loads((src / "countries-50m.json").read_text())
-    (HERE / "countries-110m.geojson").write_text(json.dumps(shapes(small), separators=(",", ":")))
+    (PACKAGE_MAPS / "countries-110m.geojson").write_text(
+        json.dumps(shapes(small), separators=(",", ":"))
+    )
     (HERE / "world_110m.json").write_text(json.dumps(plotly_topology(small), separators=(",", ":")))
-    (HERE / "country_points.json").write_text(
+    (PACKAGE_MAPS / "country_points.json").write_text(
         json.dumps(points(medium, prefer=largest_polygons(small)), separators=(",", ":"))
     )
 

@@ -28,7 +28,9 @@ if hi <= lo:
 with st.expander("Filters", expanded=True):
     f1, f2, f3 = st.columns(3)
     families = f1.multiselect("Design families", list(DESIGN_FAMILIES), key="gap_families")
-    regions = f2.multiselect("Regions", sorted(settings.regions), key="gap_regions")
+    regions = f2.multiselect(
+        "Regions", sorted(settings.regions), key="gap_regions", format_func=ui.region_name
+    )
     countries = f3.multiselect(
         "Countries",
         summary.countries,
@@ -78,11 +80,14 @@ st.caption(
 )
 
 with st.expander("Cells as a table"):
-    st.dataframe(
+    ui.table(
         cells.assign(best_level=cells["best_level"].map(ui.level_text)),
-        hide_index=True,
-        width="stretch",
         key="gap_cells",
+        titles={
+            "status_outcome": "outcome behind the status",
+            "not_yet": "not yet replicated in",
+            "state_rule": "why this state",
+        },
     )
 
 # 3. opportunities ---------------------------------------------------------------------------
@@ -109,24 +114,20 @@ else:
         "designs_used_elsewhere",
         "needs",
     ]
-    st.dataframe(
+    on_page = ui.table(
         pd.DataFrame(shown[cols]),
-        hide_index=True,
-        width="stretch",
         key="gap_opps",
-        column_config={
+        titles={
             "event_id": "event",
-            "change_date": "date",
-            "family_events_evaluated": st.column_config.NumberColumn(
-                "events of the family evaluated"
-            ),
-            "outcomes_studied_elsewhere": "outcomes studied elsewhere",
-            "designs_used_elsewhere": "designs used elsewhere",
-            "needs": st.column_config.TextColumn("an evaluation needs", width="large"),
+            "change_date": "date of change",
+            "family": "family of change",
+            "family_events_evaluated": "events of the family evaluated",
+            "needs": "an evaluation needs",
         },
+        column_config={"an evaluation needs": st.column_config.TextColumn(width="large")},
     )
-    with st.expander("What each evaluation would need"):
-        for _, o in opps.iterrows():
+    with st.expander("What each evaluation would need (the rows shown)"):
+        for _, o in opps[opps["event_id"].isin(on_page["event"])].iterrows():
             st.markdown(
                 f"- **{o['event_id']}** ({o['exposure']}, "
                 f"{charts.country_name(o['country'])}, {o['change_date']}): "

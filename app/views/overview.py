@@ -71,7 +71,7 @@ ui.caution()
 with ui.guard():
     findings = data.findings(db)
 st.dataframe(
-    findings,
+    ui.readable(ui.paged(findings, "overview_findings"), titles={c: c for c in findings.columns}),
     hide_index=True,
     width="stretch",
     key="overview_findings",
@@ -88,6 +88,11 @@ st.dataframe(
         "ci_upper": st.column_config.NumberColumn("CI high", format="%.3f"),
         "tau2": st.column_config.NumberColumn("τ²", format="%.4f"),
         "i2": st.column_config.NumberColumn("I²", format="percent"),
+        "k_events": st.column_config.NumberColumn("events pooled"),
+        "k_estimates": st.column_config.NumberColumn("estimates pooled"),
+        "provisional": st.column_config.CheckboxColumn(
+            "provisional", help="the expected direction was inferred from these same events"
+        ),
     },
 )
 st.caption(

@@ -16,18 +16,25 @@ from exposhift.synthesis.choices import (
     WITHIN_EVENT_ROUTES,
 )
 
-# the option lists come from the library: a new estimator or stratum appears here by itself
+# the option lists come from the library: a new estimator, route or stratum appears by itself
 METHODS = ESTIMATORS
 CIS = INTERVALS
 STRATA = list(STRATA_COLUMNS)
+WITHIN = WITHIN_EVENT_ROUTES
 
 db = data.db_target()
 
 # 1. data and choices ------------------------------------------------------------------------
 with ui.guard():
     summary = data.summary(db)
+    settings = data.replication_settings(db)
 pairs = summary.pairs
-
+good = settings.min_level
+EVIDENCE = {
+    "good": f"good events only (appraisal level ≥ {good}): the set the replication page uses",
+    "not-fatal": "every appraisal level but fatal (and studies not yet appraised)",
+    "all": "every estimate, fatal studies included",
+}
 st.title("Pooling")
 ui.caution()
 ui.demo_notice(summary)
@@ -59,36 +66,88 @@ by = c5.multiselect(
     "is the primary analysis; across families it is secondary.",
 )
 align = c6.selectbox("Express effects for an exposure", list(ALIGNMENTS), key="pool_align")
-within_event = st.selectbox(
+c7, c8 = st.columns(2)
+evidence = c7.selectbox(
+    "Evidence set",
+    list(EVIDENCE),
+    format_func=EVIDENCE.get,
+    key="pool_evidence",
+    help="Which appraised studies are pooled. The first choice is the one the replication "
+    "status and its pooled number rest on, so both pages show the same events.",
+)
+within = c8.selectbox(
     "Several estimates of one event",
-    list(WITHIN_EVENT_ROUTES),
-    format_func=lambda k: f"{k}: {WITHIN_EVENT_ROUTES[k]}",
-    key="pool_within_event",
+    list(WITHIN),
+    format_func=lambda k: f"{k}: {WITHIN[k]}",
+    key="pool_within",
 )
-include_fatal = st.checkbox(
-    "Keep studies appraised fatal overall (left out by default)", key="pool_fatal"
-)
+include_fatal = evidence == "all"
+min_level = good if evidence == "good" else None
 
 with ui.guard():
-    view = data.pool(
-        db, exposure, outcome, method, ci, tuple(by), include_fatal, align, within_event
-    )
+    args = (db, exposure, outcome, method, ci, tuple(by), include_fatal, align, within, min_level)
+    view = data.pool(*args)
 out = view.output
 
 # 2. forest plot -----------------------------------------------------------------------------
 st.subheader(f"{exposure} → {outcome}")
+unit = (
+    "one exposure-change event each (several estimates of one event combined into one number)"
+    if within == "aggregate"
+    else "one estimate each"
+)
+st.markdown(f"**Evidence set:** {out.evidence_set}.")
 st.caption(
-    f"Effects of an exposure {align}; {METHODS[method]} τ², {CIS[ci]} interval; several "
-    f"estimates of one event: {WITHIN_EVENT_ROUTES[within_event]}. "
-    "Squares: one pooled unit each (size = weight); diamond: pooled estimate and its interval; "
-    "dashed line: 95% prediction interval (3 or more events)."
+    f"Effects of an exposure {align}; {METHODS[method]} τ², {CIS[ci]} interval. "
+    f"Squares: {unit}; size = weight; each row gives the estimate as reported, then "
+    "aligned to the exposure change shown, and the study's appraisal level. Diamond: pooled "
+    "estimate and its interval; dashed line: 95% prediction interval (3 or more events)."
 )
 if not out.groups:
     st.info("Nothing left to pool after leaving out the estimates below.")
 else:
-    st.plotly_chart(
-        charts.forest_plot(view.rows, out.groups), config=charts.PLOTLY_CONFIG, key="pool_forest"
-    )
+    st.plotly_chart(data.forest(*args), config=charts.PLOTLY_CONFIG, key="pool_forest")
+    drawn = charts.forest_budget(len(out.groups), data.FOREST_ROWS)
+    if drawn is not None and (view.rows.groupby("group").size() > drawn).any():
+        st.caption(
+            f"The plot draws the {drawn} heaviest events of each stratum; every event is in "
+            "the table below and in the pooled diamond."
+        )
+    with st.expander(f"Every pooled event ({len(view.rows):,})"):
+        rows = view.rows.assign(
+            reported_text=view.rows.apply(charts.reported_text, axis=1),
+            aligned=charts.aligned_values(view.rows),
+            weight_pct=100 * view.rows["weight"],
+            level=view.rows["level"].map(ui.level_text),
+        )
+        ui.table(
+            rows[
+                [
+                    "group_label",
+                    "event_id",
+                    "study_id",
+                    "country",
+                    "change_date",
+                    "design",
+                    "level",
+                    "reported_text",
+                    "aligned",
+                    "weight_pct",
+                ]
+            ].sort_values(["group_label", "weight_pct"], ascending=[True, False]),
+            key="pool_rows",
+            titles={
+                "group_label": "stratum",
+                "event_id": "event",
+                "study_id": "studies",
+                "change_date": "date of change",
+                "level": "appraisal level",
+                "reported_text": "as reported",
+                "aligned": f"for an exposure {align} [95% CI]",
+                "weight_pct": "weight %",
+            },
+            column_config={"weight %": st.column_config.NumberColumn(format="%.1f")},
+        )
 
     # 3. pooled results table --------------------------------------------------------------------
     def back(g, f):
@@ -139,24 +198,18 @@ else:
     certainty_panel.show(db, exposure, outcome)
 
 # 4. estimates left out ----------------------------------------------------------------------
-st.subheader(f"Estimates left out ({len(out.excluded)})")
+st.subheader(f"Estimates left out ({len(out.excluded):,})")
 if out.excluded:
     left_out = pd.DataFrame(out.excluded)[["study_id", "event_id", "reason", "estimate_uid"]]
-    st.dataframe(
+    shown = ui.table(
         left_out,
-        hide_index=True,
-        width="stretch",
         key="pool_excluded",
-        column_config={
-            "estimate_uid": "estimate",
-            "study_id": "study",
-            "event_id": "event",
-            "reason": st.column_config.TextColumn("reason", width="large"),
-        },
+        titles={"estimate_uid": "estimate", "study_id": "study", "event_id": "event"},
+        column_config={"reason": st.column_config.TextColumn("reason", width="large")},
     )
-    with st.expander("Reasons in full"):
-        for r in out.excluded:
-            st.markdown(f"- **{r['study_id']}**, event {r['event_id']}: {r['reason']}")
+    with st.expander("Reasons in full (the rows shown)"):
+        for r in shown.itertuples(index=False):
+            st.markdown(f"- **{r.study}**, event {r.event}: {r.reason}")
 else:
     st.caption("None: every estimate of this exposure and outcome was pooled.")
 

@@ -115,7 +115,7 @@ if ev.empty:
 st.subheader("Where: independent events")
 places = set(ev["country"])
 areas = {
-    name.replace("-", " ").title(): sorted(places & set(codes))
+    ui.region_name(name): sorted(places & set(codes))
     for name, codes in sorted(settings.regions.items())
     if places & set(codes)
 }
@@ -124,10 +124,15 @@ if st.session_state.get("rep_map_view") not in ("all events", *areas):
     st.session_state.pop("rep_map_view", None)
 if len(areas) > 1:
     view = st.radio("Map view", ["all events", *areas], horizontal=True, key="rep_map_view")
-st.plotly_chart(
-    charts.event_map(ev, min_level=settings.min_level, focus=areas.get(view)),
-    config=charts.PLOTLY_CONFIG,
-    key="rep_map",
+chosen = None if len(families) <= 1 or family == "all families" else family
+event_map, timeline = data.replication_figures(
+    db, exposure, outcome, expected, chosen, settings.min_level, areas.get(view)
+)
+st.plotly_chart(event_map, config=charts.PLOTLY_CONFIG, key="rep_map")
+st.caption(
+    "▲ exposure rose, ▼ exposure fell; open marker: appraisal level below "
+    f"{settings.min_level}. Colour, on this map and on the timeline below alike: the estimate "
+    "aligned to an exposure increase (red: the outcome rises with exposure; blue: it falls)."
 )
 sign = report.sign_test
 if sign.get("n"):
@@ -140,11 +145,7 @@ if sign.get("n"):
 
 # 4. time: timeline --------------------------------------------------------------------------
 st.subheader("When: events by date, per country")
-st.plotly_chart(
-    charts.event_timeline(ev, report.reversals, min_level=settings.min_level),
-    config=charts.PLOTLY_CONFIG,
-    key="rep_timeline",
-)
+st.plotly_chart(timeline, config=charts.PLOTLY_CONFIG, key="rep_timeline")
 for seq in report.temporal:
     mark = "replicated in time" if seq["replicated"] else "not replicated in time"
     st.markdown(
@@ -178,11 +179,10 @@ st.caption(
 dose = report.dose_response
 st.markdown(f"**Dose-response:** {dose.interpretation if dose.run else dose.reason}")
 with st.expander(f"Independent events ({ev['event_id'].nunique()}) and their estimates"):
-    st.dataframe(
+    ui.table(
         ev.assign(level=ev["level"].map(ui.level_text)),
-        hide_index=True,
-        width="stretch",
         key="rep_events",
+        titles={"event_id": "event", "study_id": "study", "estimate_uid": "estimate key"},
     )
 if not report.excluded.empty:
     with st.expander(f"Estimates set aside as not independent ({len(report.excluded)})"):
@@ -191,10 +191,9 @@ if not report.excluded.empty:
             for c in ("estimate_uid", "study_id", "event_id", "reason")
             if c in report.excluded.columns
         ]
-        st.dataframe(
+        ui.table(
             pd.DataFrame(report.excluded[cols]),
-            hide_index=True,
-            width="stretch",
             key="rep_excluded",
+            titles={"estimate_uid": "estimate", "study_id": "study", "event_id": "event"},
         )
 st.caption(report.caution)

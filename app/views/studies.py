@@ -46,21 +46,17 @@ with tab_studies:
         hay = shown[["study_id", "citation", "countries", "outcomes", "events"]].astype(str)
         mask &= hay.apply(lambda r: text.lower() in " ".join(r).lower(), axis=1)
     shown = shown[mask]
-    st.caption(f"{len(shown)} of {len(studies)} studies")
-    st.dataframe(
+    st.caption(f"{len(shown):,} of {len(studies):,} studies")
+    ui.table(
         shown,
-        hide_index=True,
-        width="stretch",
         key="studies_table",
+        titles={"study_id": "study", "level": "level of record"},
         column_config={
-            "study_id": "study",
-            "design_family": "design family",
-            "level": st.column_config.TextColumn(
-                "level of record",
-                help="overall level of the consensus appraisal (0 fatal … 3 strong)",
+            "level of record": st.column_config.TextColumn(
+                help="overall level of the consensus appraisal (0 fatal … 3 strong)"
             ),
-            "year": st.column_config.NumberColumn("year", format="%d"),
-            "demo": st.column_config.CheckboxColumn("demo"),
+            "year": st.column_config.NumberColumn(format="%d"),
+            "demo": st.column_config.CheckboxColumn(),
         },
     )
 
@@ -69,7 +65,12 @@ with tab_studies:
     if shown.empty:
         st.info("No study matches these filters.")
     else:
-        study = ui.pick("Study", shown["study_id"].tolist(), key="studies_pick")
+        study = ui.pick(
+            "Study",
+            shown["study_id"].tolist(),
+            key="studies_pick",
+            help="Type to search: every study that matches the filters above.",
+        )
         with ui.guard():
             view = data.appraisals(db, study, viewer)
         st.markdown(
@@ -132,8 +133,10 @@ with tab_events:
         f"{len(events)} registered exposure-change events; "
         f"{int((events['studies'] == 0).sum())} without any study."
     )
-    st.dataframe(
-        events.drop(columns=["change_year"]), hide_index=True, width="stretch", key="events_table"
+    ui.table(
+        events.drop(columns=["change_year"]),
+        key="events_table",
+        titles={"event_id": "event", "change_date": "date of change", "family": "family of change"},
     )
 
 # 5. agreement -------------------------------------------------------------------------------
@@ -146,4 +149,4 @@ with tab_agreement:
     )
     if agree.attrs.get("blinded_note"):
         st.info(agree.attrs["blinded_note"])
-    st.dataframe(agree, hide_index=True, width="stretch", key="agreement_table")
+    ui.table(agree, key="agreement_table")

@@ -18,10 +18,12 @@ from scipy import stats
 from statsmodels.stats.meta_analysis import combine_effects
 from streamlit.testing.v1 import AppTest
 
+from exposhift.replication.settings import DEFAULTS
 from exposhift.services.browse import pool_view
 from exposhift.services.replicating import replication_for
 
 CAUTION_WORDS = "support, never replace, expert judgement"
+GOOD = DEFAULTS.min_level  # the pooling page's default evidence set: good events only
 
 
 def _sql(db: str, query: str, *args) -> list[tuple]:
@@ -165,7 +167,7 @@ def test_studies_filter_reruns(app, demo_db):
     table = _frame(at, "citation")
     expected = _sql(demo_db, "SELECT count(*) FROM study WHERE design = 'synthetic-control'")
     assert len(table) == expected[0][0]
-    assert set(table["design_family"]) == {"weighted-fit"}
+    assert set(table["design family"]) == {"weighted-fit"}  # human column titles
 
 
 # ----------------------------------------------------------------------------- pooling
@@ -175,7 +177,7 @@ def test_pooling_forest_table_excluded_and_caution(app, demo_store):
     assert CAUTION_WORDS in at.warning[0].value
     exposure = at.selectbox(key="pool_exposure").value
     outcome = at.selectbox(key="pool_outcome").value
-    view = pool_view(demo_store, exposure, outcome)
+    view = pool_view(demo_store, exposure, outcome, min_level=GOOD)
     table = _frame(at, "pooled")
     assert list(table["events"]) == [g["k_events"] for g in view.output.groups]
     excluded = _frame(at, "reason")
@@ -183,6 +185,45 @@ def test_pooling_forest_table_excluded_and_caution(app, demo_store):
     forest = _charts(at)[0]
     squares = [t for t in forest["data"] if t.get("marker", {}).get("symbol") == "square"]
     assert sum(len(values(t["x"])) for t in squares) == len(view.rows)
+    # each row: as reported, then aligned; the study's appraisal level on its label
+    notes = " ".join(a.get("text", "") for a in forest["layout"]["annotations"])
+    one = view.rows[view.rows["k_units"] == 1].iloc[0]
+    assert f"{one['measure']} " in notes and f"after a {one['change_kind']}" in notes
+    ticks = " ".join(forest["layout"]["yaxis"]["ticktext"])
+    assert f"level {int(one['level'])}" in ticks
+    assert "Evidence set:" in _texts(at)
+
+
+def test_pooling_default_evidence_set_is_the_replication_pages(app, demo_store):
+    """Both pages pool the same events: the pooling page's main stratum has the k of the
+    replication page's headline (the issue's case: k = 9 on one page, 8 on the next)."""
+    at = _open(app, "pooling")
+    exposure = at.selectbox(key="pool_exposure").value
+    outcome = at.selectbox(key="pool_outcome").value
+    headline = replication_for(demo_store, exposure, outcome).headline
+    table = _frame(at, "pooled")
+    assert headline["k_events"] in list(table["events"])
+    assert table["pooled"].iloc[list(table["events"]).index(headline["k_events"])] == (
+        pytest.approx(headline["estimate"], rel=1e-9)
+    )
+    at.selectbox(key="pool_evidence").set_value("not-fatal").run()
+    view = pool_view(demo_store, exposure, outcome)  # the CLI's default set
+    assert list(_frame(at, "pooled")["events"]) == [g["k_events"] for g in view.output.groups]
+
+
+def test_pooling_within_event_route_choice(app, demo_store):
+    at = _open(app, "pooling")
+    at.selectbox(key="pool_within").set_value("independent").run()
+    assert not at.exception
+    exposure = at.selectbox(key="pool_exposure").value
+    outcome = at.selectbox(key="pool_outcome").value
+    view = pool_view(demo_store, exposure, outcome, min_level=GOOD, within_event="independent")
+    table = _frame(at, "pooled")
+    assert list(table["estimates"]) == [g["k_estimates"] for g in view.output.groups]
+    assert table["pooled"].iloc[0] == pytest.approx(
+        view.output.groups[0]["back_transformed"]["estimate"], rel=1e-9
+    )
+    assert "independent route" in _texts(at)
 
 
 @pytest.mark.parametrize("method, method_re", [("dl", "dl"), ("pm", "pm")])
@@ -193,7 +234,7 @@ def test_pooling_method_change_matches_statsmodels(app, demo_store, method, meth
     assert not at.exception
     exposure = at.selectbox(key="pool_exposure").value
     outcome = at.selectbox(key="pool_outcome").value
-    rows = pool_view(demo_store, exposure, outcome, method=method, ci="wald").rows
+    rows = pool_view(demo_store, exposure, outcome, method=method, ci="wald", min_level=GOOD).rows
     first = rows[rows["group"] == 0]
     # statsmodels combine_effects: "dl" is DerSimonian-Laird (method_re="chi2"), "pm" is
     # Paule-Mandel (method_re="iterated"); reference library, not exposhift code
@@ -217,7 +258,7 @@ def test_pooling_strata_rerun_adds_groups(app, demo_store):
     assert not at.exception
     exposure = at.selectbox(key="pool_exposure").value
     outcome = at.selectbox(key="pool_outcome").value
-    view = pool_view(demo_store, exposure, outcome, by=["design-family"])
+    view = pool_view(demo_store, exposure, outcome, by=["design-family"], min_level=GOOD)
     table = _frame(at, "pooled")
     assert len(table) == len(view.output.groups) > before
     assert all("·" in s for s in table["stratum"])
@@ -347,7 +388,7 @@ def test_gap_map_cells_opportunities_and_filter(app, demo_db):
     never = _sql(
         demo_db, "SELECT count(*) FROM event WHERE id NOT IN (SELECT event_id FROM estimate)"
     )[0][0]
-    assert len(_frame(at, "needs")) == never
+    assert len(_frame(at, "an evaluation needs")) == never
     # filter: only studied cells
     at.toggle(key="gap_studied").set_value(True).run()
     assert not at.exception

@@ -20,6 +20,7 @@ import pytest
 from scipy import stats
 from statsmodels.stats.meta_analysis import combine_effects
 
+from exposhift import mapdata
 from exposhift.replication.gaps import GAP_STATES
 from exposhift.services.browse import pool_view
 from exposhift.services.replicating import gap_report, replication_for
@@ -103,7 +104,7 @@ def test_event_map_markers_colours_and_offline_layers(corvane):
     ev = corvane.events
     shown = ev[ev["represents_event"]]
     fig = charts.event_map(ev, min_level=2)
-    (geo,) = [t for t in fig.data if t.type == "scattergeo"]
+    (geo,) = [t for t in fig.data if t.type == "scattergeo" and t.name == "events"]
     assert len(geo.lon) == len(shown) == shown["event_id"].nunique()
     ids = list(geo.customdata[:, 0])
     assert sorted(ids) == sorted(shown["event_id"])
@@ -114,11 +115,27 @@ def test_event_map_markers_colours_and_offline_layers(corvane):
         row = by_id.loc[eid]
         assert sym.startswith("triangle-up" if row["direction"] == "increase" else "triangle-down")
         assert sym.endswith("-open") == (pd.isna(row["level"]) or row["level"] < 2)
-    # every event within a few degrees of its country's point
-    pts = charts.country_points()
+    # every marker inside its own country's outline, none in the sea or a neighbour, and
+    # several events of one country at distinct places (the vendored Natural Earth outlines)
     for lon, lat, eid in zip(geo.lon, geo.lat, ids, strict=True):
-        p = pts[by_id.loc[eid, "country"]]
-        assert math.hypot(lon - p[0], lat - p[1]) < 3
+        code = by_id.loc[eid, "country"]
+        assert mapdata.in_country(code, lon, lat), (eid, code, lon, lat)
+        others = [c for c in set(shown["country"]) if c != code]
+        assert not any(mapdata.in_country(c, lon, lat) for c in others)
+    for code, n in shown["country"].value_counts().items():
+        if n > 1:
+            mine = [
+                (x, y)
+                for x, y, e in zip(geo.lon, geo.lat, ids, strict=True)
+                if by_id.loc[e, "country"] == code
+            ]
+            assert len(set(mine)) == n, code
+    # the frame holds every marker
+    lo_x, hi_x = fig.layout.geo.lonaxis.range
+    lo_y, hi_y = fig.layout.geo.lataxis.range
+    assert all(lo_x <= x <= hi_x for x in geo.lon) and all(lo_y <= y <= hi_y for y in geo.lat)
+    labels = next(t for t in fig.data if t.name == "country labels")
+    assert min(labels.textfont.size, 99) >= 11  # readable on a printed page
     places = [t for t in fig.data if t.type == "choropleth" and t.name == "places"][0]
     assert set(places.locations) == set(shown["country"])
     for t in fig.data:
@@ -152,7 +169,7 @@ def test_event_map_mixed_measures_colour_by_z():
         }
     )
     fig = charts.event_map(ev)
-    (geo,) = [t for t in fig.data if t.type == "scattergeo"]
+    (geo,) = [t for t in fig.data if t.type == "scattergeo" and t.name == "events"]
     np.testing.assert_allclose(geo.marker.color, [2.0, -2.0])
     assert geo.marker.colorbar.title.text == "z"
 
@@ -209,8 +226,8 @@ def test_timeline_directions_names_and_reversal(corvane):
     by_id = shown.set_index("event_id")
     for eid, colour, y in zip(pts.text, pts.marker.color, pts.y, strict=True):
         row = by_id.loc[eid]
-        rose = (row["estimate"] > 0) == (row["direction"] == "increase")
-        assert colour == (charts.ROSE if rose else charts.FELL)
+        # the map's meaning: the aligned estimate's sign (outcome rises/falls with exposure)
+        assert colour == (charts.ROSE if row["estimate"] > 0 else charts.FELL)
         assert y == charts.country_name(row["country"])  # names, not codes
     assert "Portugal" in list(pts.y)
     texts = [a.text for a in fig.layout.annotations if a.text]
@@ -260,6 +277,9 @@ def test_gap_heatmap_states_and_counts(demo_store):
         i, j = list(h.y).index(c["exposure"]), list(h.x).index(c["outcome_group"])
         assert states[int(h.z[i][j])] == c["state"]
         expected = f"{int(c['events'])} ev · {int(c['studies'])} st" if c["events"] else ""
+        if c["state"] == "replicated-in-part":  # never reads as settled: says what is missing
+            expected += f"<br>not yet: {c['not_yet']}"
+            assert c["not_yet"]
         assert h.text[i][j] == expected
     assert list(h.colorbar.ticktext) == states
 
@@ -274,3 +294,78 @@ def test_overview_bars(demo_store):
     assert charts.plural(2, "study", "studies") == "2 studies"
     fam = charts.count_bars(o.by_design_family, "design_family", "studies", "t")
     assert sum(fam.data[0].x) == o.counts["studies"]
+
+
+def test_event_map_several_events_in_small_neighbouring_countries():
+    """Four events in the Netherlands and three in Belgium: each marker inside its own
+    country (Natural Earth outlines), at distinct places, and the country labelled."""
+    n = {"NLD": 4, "BEL": 3, "LUX": 2}
+    codes = [c for c, k in n.items() for _ in range(k)]
+    ev = pd.DataFrame(
+        {
+            "event_id": [f"E{i}" for i in range(len(codes))],
+            "country": codes,
+            "change_date": ["2000"] * len(codes),
+            "direction": ["decrease"] * len(codes),
+            "design": ["did"] * len(codes),
+            "level": [3.0] * len(codes),
+            "estimate": np.linspace(-0.2, 0.2, len(codes)),
+            "se": [0.1] * len(codes),
+            "measure_group": ["ratio"] * len(codes),
+            "represents_event": [True] * len(codes),
+        }
+    )
+    fig = charts.event_map(ev)
+    (geo,) = [t for t in fig.data if t.name == "events"]
+    placed = list(zip(geo.lon, geo.lat, geo.customdata[:, 0], strict=True))
+    by_id = ev.set_index("event_id")["country"]
+    for x, y, eid in placed:
+        if by_id[eid] != "LUX":  # too small at 1:110m for two places: stacked on its point
+            assert mapdata.in_country(by_id[eid], x, y), (eid, x, y)
+    for code in ("NLD", "BEL"):
+        mine = {(x, y) for x, y, e in placed if by_id[e] == code}
+        assert len(mine) == n[code]
+    labels = next(t for t in fig.data if t.name == "country labels")
+    assert any("Netherlands" in t and "4 events" in t for t in labels.text)
+    assert any("2 events" in t for t in labels.text)  # the stacked pair says how many
+
+
+def test_forest_draws_at_most_the_heaviest_rows_and_says_how_many_more():
+    k = 100
+    rows = pd.DataFrame(
+        {
+            "group": [0] * k,
+            "group_label": ["ratio · change"] * k,
+            "estimate_uid": [f"u{i}" for i in range(k)],
+            "study_id": [f"S{i}" for i in range(k)],
+            "event_id": [f"E{i}" for i in range(k)],
+            "country": ["NLD"] * k,
+            "change_date": ["2001-01"] * k,
+            "change_kind": ["ban"] * k,
+            "design": ["its"] * k,
+            "level": [2.0] * k,
+            "measure": ["RR"] * k,
+            "reported": [0.8] * k,
+            "reported_low": [0.7] * k,
+            "reported_high": [0.9] * k,
+            "subgroup": [None] * k,
+            "y": np.full(k, 0.22),
+            "se": np.full(k, 0.05),
+            "ci_lower": np.full(k, 0.12),
+            "ci_upper": np.full(k, 0.32),
+            "weight": np.arange(1, k + 1) / np.arange(1, k + 1).sum(),
+            "scale": ["log"] * k,
+            "k_units": [1] * k,
+        }
+    )
+    group = {"scale": "log", "estimate": 0.22, "ci_lower": 0.2, "ci_upper": 0.24, "k": k}
+    fig = charts.forest_plot(rows, [group], max_rows=40)
+    (squares,) = [t for t in fig.data if t.marker and t.marker.symbol == "square"]
+    assert len(squares.x) == 40
+    shown = set(squares.customdata[:, 1])
+    assert shown == {f"E{i}" for i in range(60, 100)}  # the 40 heaviest events
+    ticks = " ".join(fig.layout.yaxis.ticktext)
+    assert "60 more events" in ticks
+    notes = " ".join(a.text for a in fig.layout.annotations)
+    assert "RR 0.80 [0.70, 0.90] after a ban" in notes  # as reported, beside the aligned value
+    assert "1.25 [1.13, 1.38]" in notes  # exp(0.22), exp(0.12), exp(0.32)

@@ -5,26 +5,22 @@ are only placed on axes. Ratio measures use a log axis (1 = no effect).
 
 The map never uses plotly's geo base layers (plotly.js would fetch a topology from its CDN):
 countries are drawn as filled polygons in longitude/latitude (plate carrée) from the vendored
-Natural Earth shapes in ``app/static`` (public domain; see its README), so the same figure works
-inline in the offline HTML and in the image renderer.
+Natural Earth shapes of the package data (:mod:`exposhift.mapdata`; public domain), so the same
+figure works inline in the offline HTML and in the image renderer.
 """
 
 from __future__ import annotations
 
-import functools
 import html
-import json
 import math
-from pathlib import Path
 from typing import Any
 
 import plotly.graph_objects as go
 from plotly.subplots import make_subplots
 
+from exposhift import mapdata
 from exposhift.dossier.content import Dossier, EstimateRow, OutcomeSection, Pooled
 
-#: the vendored map shapes (app/static next to src/ in a checkout)
-STATIC = Path(__file__).resolve().parents[3] / "app" / "static"
 INK, SOFT, POOL, PI = "#1f3b57", "#a6b4c2", "#b35806", "#7f3b08"
 FONT = dict(family="DejaVu Sans, Arial, sans-serif", size=12)
 PALETTE = (
@@ -329,13 +325,13 @@ def sensitivity(section: OutcomeSection) -> go.Figure | None:
     return _base(fig, int(160 + 20 * sum(sizes)))
 
 
-@functools.lru_cache(maxsize=1)
 def country_shapes() -> dict | None:
-    """The vendored Natural Earth 1:110m countries (GeoJSON), or None when not found."""
-    path = STATIC / "countries-110m.geojson"
-    if not path.is_file():
+    """The vendored Natural Earth 1:110m countries (GeoJSON, package data read by
+    :mod:`exposhift.mapdata`), or None when the installed package lacks them."""
+    try:
+        return mapdata.country_shapes()
+    except (OSError, ValueError):
         return None
-    return json.loads(path.read_text(encoding="utf-8"))
 
 
 def _rings(geometry: dict) -> list[list[list[float]]]:

@@ -16,6 +16,7 @@ import pandas as pd
 
 from exposhift.services.pooling import STRATA, PoolOutput, pool_evidence
 from exposhift.services.setup import database_info
+from exposhift.services.snapshot import EvidenceSnapshot
 from exposhift.store.appraisals import studies_by_key
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame, events_frame
@@ -61,12 +62,16 @@ def _level_text(level: float) -> str:
     return "not appraised" if pd.isna(level) else f"level {int(level)}"
 
 
-def evidence_overview(store: Store) -> EvidenceOverview:
-    """Counts, demo flags, exposure × outcome pairs with evidence, studies per design family."""
+def evidence_overview(store: Store, snapshot: EvidenceSnapshot | None = None) -> EvidenceOverview:
+    """Counts, demo flags, exposure × outcome pairs with evidence, studies per design family
+    (from ``snapshot`` when given: :mod:`exposhift.services.snapshot`)."""
     info = database_info(store.url)
-    with store.read() as conn:
-        frame = analysis_frame(conn)
-        events = events_frame(conn)
+    if snapshot is not None:
+        frame, events = snapshot.analysis, snapshot.events
+    else:
+        with store.read() as conn:
+            frame = analysis_frame(conn)
+            events = events_frame(conn)
     studies = frame.drop_duplicates("study_id")
     pairs = (
         frame.groupby(["exposure", "outcome"], sort=True)
@@ -121,12 +126,12 @@ def evidence_overview(store: Store) -> EvidenceOverview:
     )
 
 
-def list_studies(store: Store) -> pd.DataFrame:
+def list_studies(store: Store, snapshot: EvidenceSnapshot | None = None) -> pd.DataFrame:
     """One row per study: design, design family, appraisal level of record, exposures,
     outcomes, events and countries it analyses, number of estimates, demo flag. Studies without
     an estimate are listed too (with empty exposures)."""
     with store.read() as conn:
-        frame = analysis_frame(conn)
+        frame = analysis_frame(conn) if snapshot is None else snapshot.analysis
         studies = studies_by_key(conn)
     base = pd.DataFrame(
         [
@@ -142,21 +147,27 @@ def list_studies(store: Store) -> pd.DataFrame:
         columns=["study_id", "citation", "year", "design", "demo"],
     )
 
-    def joined(s: pd.Series) -> str:
-        return ", ".join(sorted({str(v) for v in s.dropna()}))
+    def joined(col: str) -> pd.Series:
+        """Per study: the distinct values of ``col``, sorted, joined by ", " (deduplicated
+        before grouping, so each study joins a handful of strings, not one per estimate)."""
+        sub = frame.loc[frame[col].notna(), ["study_id", col]]
+        sub = sub.assign(**{col: sub[col].astype(str)}).drop_duplicates()
+        sub = sub.sort_values(["study_id", col], kind="stable")
+        return sub.groupby("study_id", sort=True)[col].agg(", ".join)
 
-    agg = (
-        frame.groupby("study_id", sort=True)
-        .agg(
-            level=("level", "first"),
-            exposures=("exposure", joined),
-            outcomes=("outcome", joined),
-            events=("event_id", joined),
-            countries=("country", joined),
-            estimates=("estimate_uid", "size"),
-        )
-        .reset_index()
+    agg = frame.groupby("study_id", sort=True).agg(
+        level=("level", "first"), estimates=("estimate_uid", "size")
     )
+    for name, col in (
+        ("exposures", "exposure"),
+        ("outcomes", "outcome"),
+        ("events", "event_id"),
+        ("countries", "country"),
+    ):
+        agg[name] = joined(col)
+    agg = agg.reset_index()[
+        ["study_id", "level", "exposures", "outcomes", "events", "countries", "estimates"]
+    ]
     out = base.merge(agg, on="study_id", how="left")
     out["design_family"] = out["design"].map(lambda d: DESIGNS[d][0] if d in DESIGNS else None)
     out["estimates"] = out["estimates"].fillna(0).astype(np.int64)
@@ -181,8 +192,10 @@ def list_studies(store: Store) -> pd.DataFrame:
     return out[cols].sort_values(["year", "study_id"], kind="stable").reset_index(drop=True)
 
 
-def list_events(store: Store) -> pd.DataFrame:
+def list_events(store: Store, snapshot: EvidenceSnapshot | None = None) -> pd.DataFrame:
     """Every registered exposure-change event with the number of studies analysing it."""
+    if snapshot is not None:
+        return snapshot.events.copy()
     with store.read() as conn:
         return events_frame(conn)
 
@@ -228,14 +241,19 @@ def pool_view(
     hksj_floor: bool = True,
     within_event: str = "aggregate",
     rubric=None,
+    min_level: int | None = None,
+    snapshot: EvidenceSnapshot | None = None,
+    prepared: PoolOutput | None = None,
+    light: bool = False,
 ) -> PoolView:
     """:func:`~exposhift.services.pooling.pool_evidence` plus one row per pooled *event*.
 
     The rows are exactly the rows the pooling service pooled
     (:attr:`~exposhift.services.pooling.PoolOutput.pooled_rows`: one number per event and
     group, with its share of the group's random-effects weight computed by the engine), with
-    the event's Wald interval ``y ± z·se`` for display (z for ``alpha``), the studies and the
-    number of estimates combined (``k_units``).
+    the event's Wald interval ``y ± z·se`` for display (z for ``alpha``), the studies, the
+    number of estimates combined (``k_units``) and, for an event with one estimate, that
+    estimate as reported (``reported``, ``reported_low``, ``reported_high``: before alignment).
     """
     by = list(by or [])
     out = pool_evidence(
@@ -251,6 +269,10 @@ def pool_view(
         hksj_floor=hksj_floor,
         within_event=within_event,
         rubric=rubric,
+        min_level=min_level,
+        snapshot=snapshot,
+        prepared=prepared,
+        light=light,
     )
     options = {
         "method": method,
@@ -261,6 +283,7 @@ def pool_view(
         "alpha": alpha,
         "hksj_floor": hksj_floor,
         "within_event": within_event,
+        "min_level": min_level,
     }
     columns = [
         "group",
@@ -273,10 +296,14 @@ def pool_view(
         "country",
         "change_date",
         "change_direction",
+        "change_kind",
         "design",
         "design_family",
         "level",
         "measure",
+        "reported",
+        "reported_low",
+        "reported_high",
         "estimate_kind",
         "subgroup",
         "y",

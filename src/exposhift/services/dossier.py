@@ -59,6 +59,7 @@ from exposhift.services.certainty import cell_certainty
 from exposhift.services.lookup import require_name
 from exposhift.services.pooling import pool_evidence
 from exposhift.services.replicating import gap_report, replication_for
+from exposhift.services.snapshot import EvidenceSnapshot, take_snapshot
 from exposhift.store.database import Store
 from exposhift.store.dossier_records import outcomes_of_exposure, records_used
 from exposhift.synthesis.harmonise import GROUP_SCALES
@@ -215,13 +216,23 @@ def _sensitivity(pool, by_level, opts: PoolOptions) -> Sensitivity | None:
 
 
 def _section(
-    store: Store, exposure: str, outcome: str, records, settings, opts: PoolOptions, rubric=None
+    store: Store,
+    exposure: str,
+    outcome: str,
+    records,
+    settings,
+    opts: PoolOptions,
+    rubric=None,
+    snapshot: EvidenceSnapshot | None = None,
 ):
+    """One outcome's section. The estimates are read from ``snapshot`` (one read for the whole
+    dossier), prepared once for pooling (harmonised, independent) and pooled three ways: in
+    full with the details, by design family (forest plot) and by level (sensitivity)."""
     kw = dict(dataclasses.asdict(opts), rubric=rubric)
     group = next(
         (o.get("outcome_group") or "" for o in records["outcome"] if o["name"] == outcome), ""
     )
-    rep = replication_for(store, exposure, outcome, settings=settings)
+    rep = replication_for(store, exposure, outcome, settings=settings, snapshot=snapshot)
     replication = ev.replication(rep, STATUSES)
     question = _question(outcome, records)
     certainty = certainty_of(exposure, outcome, cell_certainty(store, exposure, outcome))
@@ -240,9 +251,10 @@ def _section(
             [],
             note="no estimate of this exposure for this outcome",
         ), None
-    pool = pool_evidence(store, exposure, outcome, details=True, **kw)
-    view = pool_view(store, exposure, outcome, by=["design-family"], **kw)
-    by_level = pool_evidence(store, exposure, outcome, by=["level"], **kw)
+    pool = pool_evidence(store, exposure, outcome, details=True, snapshot=snapshot, **kw)
+    again = dict(snapshot=snapshot, prepared=pool, light=True, **kw)
+    view = pool_view(store, exposure, outcome, by=["design-family"], **again)
+    by_level = pool_evidence(store, exposure, outcome, by=["level"], **again)
     section = OutcomeSection(
         outcome=outcome,
         outcome_group=group,
@@ -347,10 +359,12 @@ def gather(
             for name, p in method.parts.items()
         },
     }
+    snapshot = take_snapshot(store)  # one read of the evidence base for every section
     sections = [
-        _section(store, exposure, o, records, rep_settings, opts, rubric)[0] for o in outcomes
+        _section(store, exposure, o, records, rep_settings, opts, rubric, snapshot)[0]
+        for o in outcomes
     ]
-    gaps = gap_report(store, settings=rep_settings)
+    gaps = gap_report(store, settings=rep_settings, snapshot=snapshot)
     fp = fingerprint(records, rubric.content_hash, settings, __version__)
     demo = any(bool(r.get("demo")) for kind in ("study", "event") for r in records[kind])
     provenance = Provenance(
@@ -489,7 +503,9 @@ def build_dossier(
         d = dataclasses.replace(d, changes=diff_bundles(old, _as_bundle(g, "this dossier")))
     figs = dossier_figures(d) if {"html", "docx", "pdf"} & set(fmts) else {}
     if figs and "map" not in figs:
-        warnings.append("map not drawn: the vendored map shapes (app/static) were not found")
+        warnings.append(
+            "map not drawn: the map shapes (exposhift/data/maps) are missing from this install"
+        )
     files: dict[str, bytes | str] = {}
     if "html" in fmts:
         from exposhift.dossier.html import render_html

@@ -34,6 +34,7 @@ from exposhift.appraisal.rubric import Rubric, load_rubric
 from exposhift.errors import AnalysisError, ConfigError, NotFoundError
 from exposhift.services.lookup import require_name
 from exposhift.services.pool_results import Exclusion, PooledGroup
+from exposhift.services.snapshot import EvidenceSnapshot
 from exposhift.store.database import Store
 from exposhift.store.queries import analysis_frame
 from exposhift.synthesis.conversions import from_analysis_scale
@@ -248,10 +249,19 @@ def pool_evidence(
     rho: float = DEFAULT_RHO,
     details: bool = False,
     rubric: Rubric | None = None,
+    snapshot: EvidenceSnapshot | None = None,
+    prepared: PoolOutput | None = None,
+    light: bool = False,
 ) -> PoolOutput:
     """Pool one exposure x outcome; ``details`` adds leave-one-event-out, cumulative and the
     small-study test to each group (the τ² interval is always there). ``rubric``: a one-run
-    override; by default the rubric the evidence base records."""
+    override; by default the rubric the evidence base records. ``snapshot``: read the
+    estimates from it instead of the store (:mod:`exposhift.services.snapshot`).
+
+    For a second view of the same evidence (other strata): ``prepared``, an earlier result of
+    the same exposure, outcome and evidence-set options, gives its harmonised independent
+    estimates and left-out list instead of preparing them again; ``light`` leaves out what such
+    a view does not show (the within-event correlation range and the across-strata test)."""
     by = list(by or [])
     if rubric is None:
         from exposhift.services.workspace import stored_rubric
@@ -261,7 +271,10 @@ def pool_evidence(
     with store.read() as conn:
         exposure = require_name(conn, "exposure", exposure)
         outcome = require_name(conn, "outcome", outcome)
-        frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
+        if snapshot is None:
+            frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
+        else:
+            frame = snapshot.pair(exposure, outcome)
     if frame.empty:
         raise NotFoundError(
             f"no estimates for exposure '{exposure}' and outcome '{outcome}'; "
@@ -279,10 +292,25 @@ def pool_evidence(
         "within_event": within_event,
         "rho": float(rho) if within_event == "aggregate" else None,
     }
+    if prepared is not None:
+        same = {k: prepared.options.get(k) for k in ("include_fatal", "min_level", "align_to")}
+        if same != {"include_fatal": include_fatal, "min_level": min_level, "align_to": align_to}:
+            raise ValueError("prepared comes from another evidence set or alignment")
     words = evidence_set_words(include_fatal, min_level, tuple(rubric.exclude_from_pooling))
-    kept, excluded = prepare_for_pooling(
-        frame, include_fatal=include_fatal, align_to=align_to, min_level=min_level, rubric=rubric
-    )
+    if within_event != "aggregate":  # the words name the route actually used
+        words = words.replace(
+            "one number per event", f"estimates pooled by the {within_event} route"
+        )
+    if prepared is not None:
+        kept, excluded = prepared.unit_rows, list(prepared.excluded)
+    else:
+        kept, excluded = prepare_for_pooling(
+            frame,
+            include_fatal=include_fatal,
+            align_to=align_to,
+            min_level=min_level,
+            rubric=rubric,
+        )
     if kept.empty:
         return PoolOutput(
             exposure, outcome, align_to, [], excluded, evidence_set=words, options=options
@@ -302,14 +330,14 @@ def pool_evidence(
     groups = [
         PooledGroup.from_record(
             _group_record(
-                rec, keys, kept, pooled.rows[pooled.rows["group"] == i], options, details
+                rec, keys, kept, pooled.rows[pooled.rows["group"] == i], options, details, light
             ),
             keys,
             excluded,
         )
         for i, rec in enumerate(pooled.table.to_dict(orient="records"))
     ]
-    overall = _overall(kept, keys, by, options) if by else []
+    overall = _overall(kept, keys, by, options) if by and not light else []
     return PoolOutput(
         exposure,
         outcome,
@@ -349,6 +377,7 @@ def _group_record(
     rows: pd.DataFrame,
     options: dict[str, Any],
     details: bool,
+    light: bool = False,
 ) -> dict[str, Any]:
     mine = rows
     units = kept[kept["estimate_uid"].isin([u for uids in rows["estimate_uids"] for u in uids])]
@@ -418,7 +447,11 @@ def _group_record(
             f: _finite(fe[f]) for f in ("estimate", "se", "ci_lower", "ci_upper", "pvalue")
         }
         g["fixed_effect"]["natural"] = natural(scale, g["fixed_effect"])
-    if options["within_event"] == "aggregate" and (units["event_id"].duplicated()).any():
+    if (
+        not light
+        and options["within_event"] == "aggregate"
+        and (units["event_id"].duplicated()).any()
+    ):
         g["rho_sensitivity"] = _rho_range(units, keys, options)
     if details:
         g["sensitivity"] = sensitivity(ev, scale=scale, options=options)

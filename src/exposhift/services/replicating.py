@@ -28,6 +28,7 @@ from exposhift.replication.settings import ReplicationSettings
 from exposhift.replication.status import CAUTION
 from exposhift.services.lookup import require_name
 from exposhift.services.options import check_countries, check_year
+from exposhift.services.snapshot import EvidenceSnapshot
 from exposhift.store.database import Store
 from exposhift.store.directions import directions_frame
 from exposhift.store.queries import analysis_frame, events_frame
@@ -56,15 +57,21 @@ def replication_for(
     settings: ReplicationSettings | None = None,
     expected: str | None = None,
     family: str | None = None,
+    snapshot: EvidenceSnapshot | None = None,
 ) -> ReplicationReport:
     """Replication report of one exposure × outcome (optionally one family of change). Unknown
-    names raise NotFoundError naming close matches."""
+    names raise NotFoundError naming close matches. ``snapshot``: read from it instead of the
+    store (:mod:`exposhift.services.snapshot`)."""
     s = _settings(store, settings, expected)
     with store.read() as conn:
         exposure = require_name(conn, "exposure", exposure)
         outcome = require_name(conn, "outcome", outcome)
-        frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
-        directions = directions_frame(conn)
+        if snapshot is None:
+            frame = analysis_frame(conn, exposure=exposure, outcome=outcome)
+            directions = directions_frame(conn)
+        else:
+            frame = snapshot.pair(exposure, outcome)
+            directions = snapshot.directions
     if family is not None:
         known = sorted(frame["family"].dropna().unique().tolist())
         if family not in known:
@@ -151,15 +158,22 @@ def gap_report(
     filters: GapFilters | None = None,
     *,
     settings: ReplicationSettings | None = None,
+    snapshot: EvidenceSnapshot | None = None,
 ) -> GapReport:
-    """The gap map of the whole evidence base within ``filters``, and the opportunities."""
+    """The gap map of the whole evidence base within ``filters``, and the opportunities
+    (``snapshot``: read from it instead of the store, :mod:`exposhift.services.snapshot`)."""
     f = filters or GapFilters()
     s = _settings(store, settings, None)
     countries = _check_filters(f, s)
-    with store.read() as conn:
-        frame = analysis_frame(conn)
-        registry = events_frame(conn)
-        directions = directions_frame(conn)
+    if snapshot is None:
+        with store.read() as conn:
+            frame = analysis_frame(conn)
+            registry = events_frame(conn)
+            directions = directions_frame(conn)
+    else:
+        frame, registry, directions = snapshot.analysis, snapshot.events, snapshot.directions
+    unfiltered = not (f.design_families or countries is not None or f.min_level is not None)
+    unfiltered = unfiltered and f.year_from is None and f.year_to is None
     frame = filter_frame(
         frame,
         design_families=f.design_families or None,
@@ -174,7 +188,10 @@ def gap_report(
         year_from=f.year_from,
         year_to=f.year_to,
     )
-    units, excluded = independent_units(frame)
+    if snapshot is not None and unfiltered:
+        units, excluded = snapshot.independent
+    else:
+        units, excluded = independent_units(frame)
     cells = gap_map(
         units,
         settings=s,

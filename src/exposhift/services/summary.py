@@ -16,6 +16,7 @@ from exposhift.replication import replication_statuses
 from exposhift.replication.families import independent_units
 from exposhift.replication.settings import ReplicationSettings
 from exposhift.services.pooling import CAUTION
+from exposhift.services.snapshot import EvidenceSnapshot
 from exposhift.store.database import Store
 from exposhift.store.directions import directions_frame
 from exposhift.store.queries import analysis_frame
@@ -48,24 +49,30 @@ def evidence_summary(
     *,
     settings: ReplicationSettings | None = None,
     directions: pd.DataFrame | None = None,
+    snapshot: EvidenceSnapshot | None = None,
 ) -> pd.DataFrame:
     """One row per exposure x outcome; ``estimate``/``ci_*`` on the natural scale.
 
     Statuses use ``settings`` (default: the thresholds in force, as the ``replication`` action
-    does), so both report the same status and the same pooled number.
+    does), so both report the same status and the same pooled number. ``snapshot``: read from
+    it instead of the store (:mod:`exposhift.services.snapshot`).
     """
     if settings is None:
         from exposhift.services.workspace import stored_settings
 
         settings = stored_settings(store)
     s = settings
-    with store.read() as conn:
-        frame = analysis_frame(conn)
-        if directions is None:
-            directions = directions_frame(conn)
+    if snapshot is not None:
+        frame = snapshot.analysis
+        directions = snapshot.directions if directions is None else directions
+    else:
+        with store.read() as conn:
+            frame = analysis_frame(conn)
+            if directions is None:
+                directions = directions_frame(conn)
     if frame.empty:
         return pd.DataFrame(columns=COLUMNS)
-    units, _ = independent_units(frame)
+    units, _ = independent_units(frame) if snapshot is None else snapshot.independent
     st = replication_statuses(units, settings=s, directions=directions)
     out = st.rename(
         columns={

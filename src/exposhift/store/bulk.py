@@ -19,6 +19,7 @@ import pandas as pd
 
 from exposhift.io.frames import python_column
 from exposhift.store.audit_chain import hash_values, last_hash
+from exposhift.store.data_version import mark_written
 from exposhift.store.writer import AUDIT, Writer
 
 _AUDIT_COLUMNS = (
@@ -92,6 +93,7 @@ class BulkWriter(Writer):
 
     def _executemany(self, sql: str, rows: list[tuple]) -> None:
         """The driver's executemany on this transaction's connection (no per-row overhead)."""
+        mark_written(self.conn)  # the driver's cursor bypasses the statement watch
         cursor = self.conn.connection.cursor()
         try:
             cursor.executemany(sql, rows)

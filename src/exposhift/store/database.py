@@ -28,6 +28,7 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, DBAPIError, IntegrityError, OperationalError
 
 from exposhift.errors import ConfigError, DatabaseError
+from exposhift.store import data_version
 
 DEFAULT_SQLITE = Path("evidence") / "evidence.db"
 SUPPORTED_DRIVERS = {"sqlite", "sqlite+pysqlite", "postgresql", "postgresql+psycopg"}
@@ -148,7 +149,8 @@ class Store:
         On SQLite it starts with ``BEGIN IMMEDIATE``: the write lock is taken up front, so a
         second writer waits (busy timeout) rather than failing half-way. A ``reader`` store
         refuses, unless ``bookkeeping`` (sign-in attempts and sessions, which every role
-        needs; never evidence).
+        needs; never evidence). When the block changed any row, the data version moves in the
+        same transaction (:mod:`exposhift.store.data_version`).
         """
         if self.role == "reader" and not bookkeeping:
             from exposhift.access import Identity
@@ -161,7 +163,10 @@ class Store:
                     if not self.is_sqlite:
                         conn.exec_driver_sql(f"SET LOCAL lock_timeout = '{PG_LOCK_TIMEOUT}'")
                         conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({PG_WRITE_LOCK})")
+                    data_version.begin(conn)
                     yield conn
+                    if data_version.wrote(conn):
+                        data_version.bump(conn)
         except OperationalError as exc:
             raise self._translate(exc) from None
         except IntegrityError as exc:
@@ -207,6 +212,11 @@ class Store:
             f"cannot use database {self.masked_url}: {msg}. Check that the server is running "
             "and the URL is right (--db or EXPOSHIFT_DB)"
         )
+
+    def data_version(self) -> int:
+        """The data version now: moves with every committed write (caches key on it)."""
+        with self.read() as conn:
+            return data_version.current(conn)
 
     def count(self, conn: Connection, table) -> int:
         return int(conn.execute(select(func.count()).select_from(table)).scalar_one())
@@ -300,6 +310,7 @@ def open_store(db: str | None = None, user: str | None = None, *, create: bool =
         engine = _sqlite_engine(url, create=create)
     else:
         engine = create_engine(url, connect_args={"connect_timeout": 5}, pool_pre_ping=True)
+    data_version.watch(engine)
     store = Store(url=url, user=user or default_user(), engine=engine)
     try:
         with engine.connect() as conn:

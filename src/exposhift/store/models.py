@@ -389,3 +389,14 @@ class CertaintyJudgement(SQLModel, table=True):
 
 VERSIONED["certainty_judgement"] = CertaintyJudgement
 # ------------------------------------------------------------ end certainty judgements
+
+
+# ---------------------------------------------------------------------- data version
+class DataVersion(SQLModel, table=True):
+    """One row (id 1): a counter moved in the same transaction as every write
+    (:mod:`exposhift.store.data_version`); caches of computed results are keyed on it."""
+
+    __tablename__ = "data_version"
+    id: int | None = Field(default=None, primary_key=True)
+    version: int = 0
+    changed_at: str | None = None

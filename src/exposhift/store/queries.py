@@ -29,66 +29,109 @@ def _consensus_levels(conn: Connection) -> dict[str, int]:
     return {k: lvl for k, lvl in conn.execute(stmt) if lvl is not None}
 
 
+STUDY_COLUMNS = (
+    ("study_id", ST.c.key),
+    ("citation", ST.c.citation),
+    ("year", ST.c.year),
+    ("doi", ST.c.doi),
+    ("design", ST.c.design),
+    ("comparison", ST.c.comparison),
+    ("population", ST.c.population),
+    ("data_source", ST.c.data_source),
+    ("same_population_as", ST.c.same_population_as),
+    ("assignment_grade", ST.c.assignment_grade),
+    ("pre_points", ST.c.pre_points),
+    ("post_points", ST.c.post_points),
+    ("checks", ST.c.checks),
+    ("demo", ST.c.demo),
+)
+EVENT_COLUMNS = (
+    ("event_id", EV.c.key),
+    ("exposure", EX.c.name),
+    ("change_kind", EV.c.change_kind),
+    ("change_direction", EV.c.change_direction),
+    ("change_size", EV.c.change_size),
+    ("change_unit", EV.c.change_unit),
+    ("country", EV.c.country),
+    ("area", EV.c.area),
+    ("change_date", EV.c.change_date),
+    ("family", EV.c.family),
+)
+ESTIMATE_COLUMNS = (
+    ("outcome", OU.c.name),
+    ("outcome_group", OU.c.outcome_group),
+    ("measure", ES.c.measure),
+    ("estimate_kind", ES.c.estimate_kind),
+    ("per_unit", ES.c.per_unit),
+    ("estimate", ES.c.point),
+    ("ci_low", ES.c.ci_low),
+    ("ci_high", ES.c.ci_high),
+    ("ci_level", ES.c.ci_level),
+    ("se", ES.c.se),
+    ("p_value", ES.c.p_value),
+    ("p_bound", ES.c.p_bound),
+    ("baseline_risk", ES.c.baseline_risk),
+    ("subgroup", ES.c.subgroup),
+    ("time_window", ES.c.time_window),
+    ("primary", ES.c.primary),
+)
+#: the analysis frame's columns before :func:`add_derived`, in order
+FRAME_COLUMNS = (
+    "estimate_uid",
+    *(n for n, _ in STUDY_COLUMNS),
+    *(n for n, _ in EVENT_COLUMNS),
+    *(n for n, _ in ESTIMATE_COLUMNS),
+)
+
+
+def _frame(conn: Connection, stmt, names: list[str], ids: set | None = None) -> pd.DataFrame:
+    """Rows of ``stmt`` as a DataFrame with ``names`` (tuples, not mappings: one object per
+    cell instead of one dict per row); with ``ids``, only rows whose first value is in it, so
+    each column's type is inferred from the rows used, as a one-query join would."""
+    rows = [tuple(r) for r in conn.execute(stmt).all()]  # plain tuples: no key lookups
+    if ids is not None:
+        rows = [r for r in rows if r[0] in ids]
+    return pd.DataFrame.from_records(rows, columns=names)
+
+
 def analysis_frame(
     conn: Connection, *, exposure: str | None = None, outcome: str | None = None
 ) -> pd.DataFrame:
-    """One row per estimate, joined with its study, event, exposure, outcome and level."""
+    """One row per estimate, joined with its study, event, exposure, outcome and level.
+
+    Read as three narrow queries (estimates; their studies; their events) joined here, so a
+    study's or event's text is read once rather than once per estimate.
+    """
+    est_cols = [("estimate_uid", ES.c.key), ("_study", ES.c.study_id), ("_event", ES.c.event_id)]
+    est_cols += ESTIMATE_COLUMNS
     stmt = (
-        select(
-            ES.c.key.label("estimate_uid"),
-            ST.c.key.label("study_id"),
-            ST.c.citation,
-            ST.c.year,
-            ST.c.doi,
-            ST.c.design,
-            ST.c.comparison,
-            ST.c.population,
-            ST.c.data_source,
-            ST.c.same_population_as,
-            ST.c.assignment_grade,
-            ST.c.pre_points,
-            ST.c.post_points,
-            ST.c.checks,
-            ST.c.demo,
-            EV.c.key.label("event_id"),
-            EX.c.name.label("exposure"),
-            EV.c.change_kind,
-            EV.c.change_direction,
-            EV.c.change_size,
-            EV.c.change_unit,
-            EV.c.country,
-            EV.c.area,
-            EV.c.change_date,
-            EV.c.family,
-            OU.c.name.label("outcome"),
-            OU.c.outcome_group,
-            ES.c.measure,
-            ES.c.estimate_kind,
-            ES.c.per_unit,
-            ES.c.point.label("estimate"),
-            ES.c.ci_low,
-            ES.c.ci_high,
-            ES.c.ci_level,
-            ES.c.se,
-            ES.c.p_value,
-            ES.c.p_bound,
-            ES.c.baseline_risk,
-            ES.c.subgroup,
-            ES.c.time_window,
-            ES.c.primary,
-        )
-        .join(ST, ES.c.study_id == ST.c.id)
-        .join(EV, ES.c.event_id == EV.c.id)
-        .join(EX, EV.c.exposure_id == EX.c.id)
+        select(*(c.label(n) for n, c in est_cols))
         .join(OU, ES.c.outcome_id == OU.c.id)
         .order_by(ES.c.key)
     )
     if exposure is not None:
+        stmt = stmt.join(EV, ES.c.event_id == EV.c.id).join(EX, EV.c.exposure_id == EX.c.id)
         stmt = stmt.where(EX.c.name == exposure)
     if outcome is not None:
         stmt = stmt.where(OU.c.name == outcome)
-    rows = conn.execute(stmt).mappings().all()
-    frame = pd.DataFrame([dict(r) for r in rows], columns=list(stmt.selected_columns.keys()))
+    est = _frame(conn, stmt, [n for n, _ in est_cols])
+    studies = _frame(
+        conn,
+        select(ST.c.id, *(c.label(n) for n, c in STUDY_COLUMNS)),
+        ["_study", *(n for n, _ in STUDY_COLUMNS)],
+        set(est["_study"].tolist()),
+    )
+    events = _frame(
+        conn,
+        select(EV.c.id, *(c.label(n) for n, c in EVENT_COLUMNS)).join(
+            EX, EV.c.exposure_id == EX.c.id
+        ),
+        ["_event", *(n for n, _ in EVENT_COLUMNS)],
+        set(est["_event"].tolist()),
+    )
+    frame = est.merge(studies, on="_study", how="left", sort=False, validate="many_to_one")
+    frame = frame.merge(events, on="_event", how="left", sort=False, validate="many_to_one")
+    frame = frame[list(FRAME_COLUMNS)]
     frame["same_population_as"] = (
         frame["same_population_as"]
         .astype(object)

@@ -38,4 +38,12 @@ def event_rows(pooled_rows: pd.DataFrame, alpha: float = 0.05) -> pd.DataFrame:
         rows["study_id"] = rows["study_ids"].where(rows["study_ids"].notna(), rows["study_id"])
     rows["estimate_uid"] = rows["estimate_uids"].map(lambda u: "; ".join(map(str, u)))
     rows["change_date"] = rows["change_date"].astype(str)
+    # the estimate as reported (before alignment), for an event with one estimate
+    single = rows["k_units"].fillna(1).to_numpy() <= 1 if "k_units" in rows else True
+    for col, src in (
+        ("reported", "estimate"),
+        ("reported_low", "ci_low"),
+        ("reported_high", "ci_high"),
+    ):
+        rows[col] = rows[src].where(single) if src in rows else np.nan
     return rows.sort_values(["group", "change_date", "event_id"], kind="stable")

@@ -1,0 +1,63 @@
+"""One read of the evidence base that several views share: the evidence snapshot.
+
+Every page of the dashboard (and the dossier) starts from the same three frames: the analysis
+frame (one row per estimate, :func:`exposhift.store.queries.analysis_frame`), the registered
+events and the committee's expected directions. :func:`take_snapshot` reads them in one read
+transaction together with the data version they belong to
+(:mod:`exposhift.store.data_version`), so a cache keyed on that version holds one copy of them
+and every view computed from it rests on the same records.
+
+The frames are shared, never copied per view: the services that take a snapshot read from it
+and build new frames (filters, ``assign``, ``copy``); nothing here or there writes into it. The
+pieces derived from the whole base that two views need (the independent units of the
+replication analysis: summary and gap map) are computed once, on first use.
+"""
+
+from __future__ import annotations
+
+import functools
+from dataclasses import dataclass
+
+import pandas as pd
+
+from exposhift.store.data_version import current
+from exposhift.store.database import Store
+from exposhift.store.directions import directions_frame
+from exposhift.store.queries import analysis_frame, events_frame
+
+
+@dataclass(frozen=True, eq=False)
+class EvidenceSnapshot:
+    """The evidence base as read at ``data_version`` (frames are shared: do not modify)."""
+
+    data_version: int
+    analysis: pd.DataFrame
+    events: pd.DataFrame
+    directions: pd.DataFrame
+
+    def pair(self, exposure: str, outcome: str) -> pd.DataFrame:
+        """The analysis frame of one exposure and outcome (exact stored names, as
+        :func:`~exposhift.store.queries.analysis_frame` filters them), a new frame."""
+        a = self.analysis
+        keep = (a["exposure"] == exposure) & (a["outcome"] == outcome)
+        return a.loc[keep].reset_index(drop=True)
+
+    @functools.cached_property
+    def independent(self) -> tuple[pd.DataFrame, pd.DataFrame]:
+        """Independent units of the whole base and the estimates set aside
+        (:func:`exposhift.replication.families.independent_units`), computed once."""
+        from exposhift.replication.families import independent_units
+
+        return independent_units(self.analysis)
+
+
+def take_snapshot(store: Store) -> EvidenceSnapshot:
+    """Read the analysis frame, the events and the directions in one read transaction."""
+    with store.read() as conn:
+        version = current(conn)
+        return EvidenceSnapshot(
+            data_version=version,
+            analysis=analysis_frame(conn),
+            events=events_frame(conn),
+            directions=directions_frame(conn),
+        )

@@ -33,13 +33,13 @@ from exposhift.io.frames import estimate_keys
 from exposhift.io.sheet import RawSheet
 from exposhift.io.validate import EVENTS_SHEET_COLUMNS, validate_events_sheet, validate_sheet
 from exposhift.services.acting import as_user
-from exposhift.store.bulk import BulkWriter
 from exposhift.services.importing import (
     Counts,
     apply_plans,
     build_plans,
     stored_study_events,
 )
+from exposhift.store.bulk import BulkWriter
 from exposhift.store.database import Store
 from exposhift.store.form_reads import (
     changes_since,

@@ -22,17 +22,17 @@ from pathlib import Path
 
 import pandas as pd
 
-from exposhift.appraisal.rubric import load_rubric
 from exposhift.appraisal.rubric_types import DesignCriteria, ReportingDef
 from exposhift.appraisal.suggestions import Suggestion, suggest_levels
 from exposhift.errors import NotFoundError
+from exposhift.io.appraisal_sheet import facts_of
 from exposhift.services.acting import as_user
 from exposhift.services.appraising import (
     REVIEWERS_BEFORE_UNBLINDING,
     AppraisalImportSummary,
     AppraisalView,
-    facts_of,
     import_appraisals,
+    rubric_in_force,
     show_appraisals,
 )
 from exposhift.store.appraisals import studies_by_key
@@ -95,7 +95,7 @@ def appraisal_form(
 ) -> AppraisalForm:
     """The rubric form for ``study``: each domain's question, its levels' criteria, the
     suggestion from the study's recorded facts; and the appraisals ``viewer`` may see."""
-    rubric = load_rubric(rubric_path)
+    rubric = rubric_in_force(store, rubric_path)
     with store.read() as conn:
         studies = studies_by_key(conn)
     if study not in studies:
@@ -173,7 +173,7 @@ def submit_appraisal(
     (every rule, one transaction). Problems raise :class:`InputFileError` whose columns are
     the domain keys; nothing is written then."""
     acting = as_user(store, reviewer, "record an appraisal")
-    rubric = load_rubric(rubric_path)
+    rubric = rubric_in_force(store, rubric_path)
     text = form_csv(
         study,
         acting.user,

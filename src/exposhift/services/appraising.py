@@ -105,7 +105,7 @@ def import_appraisals(
 ) -> AppraisalImportSummary:
     """Import appraisals from a CSV/XLSX file in one transaction (all or nothing), under the
     rubric the evidence base records (``rubric_path``: a one-run override)."""
-    rubric = _rubric(store, rubric_path)
+    rubric = rubric_in_force(store, rubric_path)
     sheet = read_sheet(path, encoding)
     frame = sheet.frame.set_axis(sheet.rows.tolist())
     label = sheet.file
@@ -235,7 +235,7 @@ def show_appraisals(
     from exposhift.services.accounts import viewer_of
 
     ident = viewer_of(store, viewer)
-    rubric = _rubric(store, rubric_path)
+    rubric = rubric_in_force(store, rubric_path)
     with store.read() as conn:
         studies = studies_by_key(conn)
         if study_key not in studies:
@@ -315,7 +315,7 @@ def visible_studies(conn, viewer: Identity) -> set[str]:
     }
 
 
-def _rubric(store: Store, rubric_path: str | Path | None):
+def rubric_in_force(store: Store, rubric_path: str | Path | None = None):
     """The rubric file of a one-run ``--rubric``, else the rubric the evidence base records."""
     if rubric_path is not None:
         return load_rubric(rubric_path)
@@ -364,7 +364,7 @@ def agreement(store: Store, viewer: Identity | str | None = None) -> pd.DataFram
         rows = [r for r in independent_ratings(conn) if r["study_id"] in seen]
         overall = [r for r in independent_overall_levels(conn) if r["study_id"] in seen]
     frame = pd.DataFrame(rows, columns=["study_id", "reviewer", "domain", "level"])
-    table = agreement_table(frame, _rubric(store, None))
+    table = agreement_table(frame, rubric_in_force(store))
     levels = pd.DataFrame(overall, columns=["study_id", "reviewer", "overall"])
     out = pd.concat([table, pd.DataFrame([overall_level_row(levels)])], ignore_index=True)
     out.attrs = dict(table.attrs)

@@ -52,6 +52,20 @@ def test_a_write_transaction_without_changes_leaves_the_version(store):
     assert store.data_version() == before
 
 
+def test_sign_in_bookkeeping_leaves_the_version(store):
+    """A sign-in (attempts, sessions: bookkeeping, never evidence) keeps every cached result."""
+    from exposhift.errors import ExposhiftError
+    from exposhift.services.accounts import sign_in
+
+    before = store.data_version()
+    with pytest.raises(ExposhiftError):
+        sign_in(store, "nobody-here", "wrong password")  # written: a failed attempt, audited
+    assert store.data_version() == before
+    with store.read() as conn:
+        attempts = conn.execute(text("SELECT COUNT(*) FROM sign_in_attempt")).scalar_one()
+    assert attempts >= 1  # the attempt was written: the version stayed for that reason
+
+
 def test_bulk_import_moves_the_version_and_a_dry_run_does_not(store):
     before = store.data_version()
     import_into(store, SHEET, dry_run=True)

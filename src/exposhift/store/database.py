@@ -150,7 +150,8 @@ class Store:
         second writer waits (busy timeout) rather than failing half-way. A ``reader`` store
         refuses, unless ``bookkeeping`` (sign-in attempts and sessions, which every role
         needs; never evidence). When the block changed any row, the data version moves in the
-        same transaction (:mod:`exposhift.store.data_version`).
+        same transaction (:mod:`exposhift.store.data_version`); bookkeeping does not move it,
+        so signing in does not make the dashboard recompute its results.
         """
         if self.role == "reader" and not bookkeeping:
             from exposhift.access import Identity
@@ -165,7 +166,7 @@ class Store:
                         conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({PG_WRITE_LOCK})")
                     data_version.begin(conn)
                     yield conn
-                    if data_version.wrote(conn):
+                    if data_version.wrote(conn) and not bookkeeping:
                         data_version.bump(conn)
         except OperationalError as exc:
             raise self._translate(exc) from None

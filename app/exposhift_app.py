@@ -25,9 +25,6 @@ import data  # noqa: E402
 
 # 1. page setup and navigation ---------------------------------------------------------------
 st.set_page_config(page_title="exposhift", layout="wide", initial_sidebar_state="expanded")
-with ui.guard():
-    if not signin.gate():
-        st.stop()
 PAGES = [
     st.Page("views/overview.py", title="Evidence at a glance", url_path="overview", default=True),
     st.Page("views/studies.py", title="Studies and appraisals", url_path="studies"),
@@ -42,7 +39,14 @@ PAGES = [
     st.Page("views/appraise.py", title="Appraise a study", url_path="appraise"),
     st.Page("views/downloads.py", title="Downloads", url_path="downloads"),
 ]
-page = st.navigation(PAGES)
+# the sign-in gate: the form when this session must sign in. The pages are registered either
+# way (hidden until signed in), so the page and query asked for in the address are kept
+allowed = False
+with ui.guard():
+    allowed = signin.gate()
+page = st.navigation(PAGES, position="sidebar" if allowed else "hidden")
+if not allowed:
+    st.stop()
 
 # 2. sidebar ---------------------------------------------------------------------------------
 db = data.db_target()

@@ -35,17 +35,15 @@ def me() -> identity.Identity:
 def who_line(role: str, action: str) -> bool:
     """True when this session may ``action`` (holds ``role``); otherwise say so and False."""
     person = me()
+    if not person.name:
+        st.info(f"Sign in to {action}: every change is recorded with the person who made it.")
+        return False
     if not person.may(role):
         st.info(
             f"You are signed in as a {person.role}: {action} needs the {role} role. Ask an "
             "administrator of this evidence base."
         )
         return False
-    if not person.name:
-        st.warning(
-            f"To {action}, give your name in the sidebar (or sign in): every change is recorded "
-            "in the audit trail with the person who made it."
-        )
     return True
 
 

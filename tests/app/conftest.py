@@ -25,6 +25,17 @@ def _loopback_address():
 
 
 @pytest.fixture(autouse=True)
+def _real_identity_seam():
+    """Tests of the writing pages replace ``identity.who`` (writing_helpers.open_page); the real
+    seam is put back after every test."""
+    import identity
+
+    real = identity.who
+    yield
+    identity.who = real
+
+
+@pytest.fixture(autouse=True)
 def _cheap_password_hashes(monkeypatch):
     """Argon2 with argon2-cffi's cheapest profile, for speed (the parameters are read from each
     hash, so verification is unchanged; production keeps the RFC 9106 defaults)."""

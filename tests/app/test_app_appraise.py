@@ -18,7 +18,6 @@ import json
 import tomllib
 from pathlib import Path
 
-import identity
 import pytest
 from sklearn.metrics import cohen_kappa_score
 from writing_helpers import copy_db, count, frame_with, open_page, sql, texts
@@ -43,8 +42,8 @@ def db(demo_db, tmp_path, monkeypatch) -> str:
     return path
 
 
-def _page(name: str | None):
-    at = open_page("appraise", name)
+def _page(name: str | None, role: str | None = None):
+    at = open_page("appraise", name, role)
     at.selectbox(key="appraise_study").set_value(STUDY)
     at.run()
     assert not at.exception, [e.value for e in at.exception]
@@ -123,7 +122,7 @@ def test_two_reviewers_then_consensus_and_agreement(db):
     differ = compare[compare["differs"]]["key"].tolist()
     assert "counterfactual" in differ and "origin" not in differ
     # the chair records the consensus, prefilled where both agree
-    at = _page("chair")
+    at = _page("chair", "editor")  # a consensus needs an editor (the chair)
     assert at.radio(key="cons_origin").value == 1
     assert at.radio(key="cons_counterfactual").value is None
     at = _fill(at, "cons", {"counterfactual": 2})
@@ -166,9 +165,8 @@ def test_two_reviewers_then_consensus_and_agreement(db):
 def test_no_name_or_reader_gets_no_appraisal_form(db, monkeypatch):
     at = _page(None)
     assert not [b for b in at.button if b.label == "Submit my independent appraisal"]
-    assert "give your name in the sidebar" in texts(at)
-    monkeypatch.setattr(identity, "who", lambda: identity.Identity("rita", "reader", True))
-    at = _page(None)
+    assert "sign in" in texts(at).lower()  # nobody is signed in: the page says so
+    at = _page("rita", "reader")
     assert not [b for b in at.button if b.label == "Submit my independent appraisal"]
     assert "needs the reviewer role" in texts(at)
 
@@ -203,8 +201,7 @@ def test_downloads_hold_what_the_evidence_base_holds(db):
 
 
 def test_a_reader_cannot_download_the_archive(db, monkeypatch):
-    monkeypatch.setattr(identity, "who", lambda: identity.Identity("rita", "reader", True))
-    at = open_page("downloads", None)
+    at = open_page("downloads", "rita", "reader")
     assert not [b for b in at.button if b.label == "Prepare the archive"]
     assert "administrator's export" in texts(at)
     assert [b for b in at.button if b.label == "Prepare the sheet"]

@@ -10,7 +10,6 @@ working controls.
 
 from __future__ import annotations
 
-import identity
 import pytest
 from writing_helpers import button, copy_db, count, frame_with, open_page, sql, texts
 
@@ -28,8 +27,8 @@ def db(demo_db, tmp_path, monkeypatch) -> str:
     return path
 
 
-def _study_page(name: str | None = "ann"):
-    at = open_page("records", name)
+def _study_page(name: str | None = "ann", role: str | None = None):
+    at = open_page("records", name, role)
     at.selectbox(key="records_study").set_value(STUDY)
     at.run()
     assert not at.exception, [e.value for e in at.exception]
@@ -192,8 +191,7 @@ def test_history_matches_the_audit_trail_and_hides_blinded_ratings(db):
 
 
 def test_a_reader_gets_no_working_controls(db, monkeypatch):
-    monkeypatch.setattr(identity, "who", lambda: identity.Identity("rita", "reader", True))
-    at = _study_page(None)
+    at = _study_page("rita", "reader")
     assert button(at, "Save").disabled
     assert at.text_input(key=P + "s_population").disabled
     assert button(at, "Register the event").disabled

@@ -36,13 +36,25 @@ def count(db: str, table: str) -> int:
     return sql(db, f"select count(*) from {table}")[0][0]  # noqa: S608 - fixed table names
 
 
-def open_page(page: str, name: str | None) -> AppTest:
-    """The dashboard on ``views/PAGE.py`` with ``name`` typed as the person in the sidebar."""
+#: the role each page's person gets by default (``open_page``): the least that page needs to write
+PAGE_ROLE = {"upload": "editor", "records": "editor", "appraise": "reviewer", "downloads": "admin"}
+
+
+def open_page(page: str, name: str | None, role: str | None = None) -> AppTest:
+    """The dashboard on ``views/PAGE.py`` as the signed-in person ``name`` with ``role``
+    (default :data:`PAGE_ROLE`); ``name`` None: nobody signed in (a reader who sees consensus
+    only). The identity seam (``identity.who``) is replaced for the test; tests/app/conftest.py
+    puts the real one back after each test, and tests/app/test_app_signin.py tests it."""
+    import identity
+
+    who = (
+        identity.Identity(name, role or PAGE_ROLE.get(page, "reviewer"), True)
+        if name
+        else identity.NOBODY
+    )
+    identity.who = lambda: who
     at = AppTest.from_file(str(ENTRY), default_timeout=180)
     at.run()
-    if name:
-        at.text_input(key="viewer").set_value(name)
-        at.run()
     at.switch_page(f"views/{page}.py")
     at.run()
     assert not at.exception, [e.value for e in at.exception]

@@ -136,6 +136,39 @@ def test_changed_judgement_is_updated_and_audited(demo_archive, tmp_path):
         fresh.dispose()
 
 
+def _judgements_only(doc: dict) -> dict:
+    """The archive with nothing but its judgements (no exposures, outcomes or records)."""
+    out = json.loads(json.dumps(doc))
+    for name in ("events", "studies", "estimates", "appraisals", "series", "series_fits"):
+        out[name] = []
+    out["vocabularies"]["exposures"] = out["vocabularies"]["outcomes"] = []
+    out["expected_directions"] = []
+    return out
+
+
+def test_names_known_to_the_base_are_accepted(demo_archive, tmp_path):
+    _, path, doc = demo_archive
+    fresh = _fresh(tmp_path)
+    empty = _fresh(tmp_path, "empty.db")
+    try:
+        import_into(fresh, path)
+        only = _write(tmp_path, _judgements_only(doc), "only.json")
+        c = import_into(fresh, only).counts["certainty judgements"]
+        assert (c.added, c.updated, c.unchanged) == (0, 0, len(doc[SECTION]))
+        # a base without those names refuses every judgement, naming section, row and column
+        before = table_dump(empty)
+        with pytest.raises(InputFileError) as info:
+            import_into(empty, only)
+        rows = {(p.file, p.row, p.column) for p in info.value.problems}
+        assert ("only.json: certainty_judgements", 1, "exposure") in rows
+        assert ("only.json: certainty_judgements", 1, "outcome") in rows
+        assert "nothing was written" in str(info.value)
+        assert table_dump(empty) == before
+    finally:
+        fresh.dispose()
+        empty.dispose()
+
+
 @pytest.mark.parametrize(
     ("field", "value", "column"),
     [

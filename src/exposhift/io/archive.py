@@ -461,13 +461,7 @@ def read_archive(
     )
     series = _series(doc, log, file, ev, st, es)
     method = read_method_section(doc, log, file)
-    certainty = read_certainty_section(
-        doc,
-        log,
-        file,
-        set(exposures["name"].dropna()) | set(ev["exposure"].dropna()),
-        set(outcomes["name"].dropna()) | set(es["outcome"].dropna()),
-    )
+    certainty = read_certainty_section(doc, log, file)
     if log.problems:
         raise InputFileError(sorted_problems(log.problems))
     warn = ProblemLog(es_log.file, es_log.rows)

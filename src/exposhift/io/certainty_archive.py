@@ -15,10 +15,11 @@ timestamps of the row are not written, so export -> import into a new base -> ex
 same bytes.
 
 Reading checks each record (row 1 = first record): every field present and of its JSON type,
-a known domain and a rating that domain accepts, ``numbers`` readable JSON, an exposure and an
-outcome the archive holds, no judgement twice. An archive without the section (written before
-it existed) leaves the stored judgements as they are. On import the judgements are written
-through the Writer in the import's transaction (:mod:`exposhift.store.certainty_records`:
+a known domain and a rating that domain accepts, ``numbers`` readable JSON, no judgement twice;
+at the import door (:func:`unknown_names`), an exposure and an outcome that the archive or the
+evidence base holds. Any problem: nothing is imported. An archive without the section (written
+before it existed) leaves the stored judgements as they are. On import the judgements are
+written through the Writer in the import's transaction (:mod:`exposhift.store.certainty_records`:
 versioned, audited); one that matches the stored judgement changes nothing.
 """
 
@@ -96,17 +97,11 @@ def _record_problem(rec: dict) -> tuple[str | None, str] | None:
     return None
 
 
-def read_certainty_section(
-    doc: dict,
-    log: ProblemLog,
-    file: str,
-    exposures: Collection[str],
-    outcomes: Collection[str],
-) -> list[dict] | None:
+def read_certainty_section(doc: dict, log: ProblemLog, file: str) -> list[dict] | None:
     """The archive's judgements, checked; None when the archive has no such section.
 
-    ``exposures`` and ``outcomes`` are the names the archive holds; a judgement naming another
-    is a problem (naming the section, the record and the field), and nothing is imported.
+    The names they rate are checked at the import door (:func:`unknown_names`), where the
+    evidence base's own exposures and outcomes are known too.
     """
     if SECTION not in doc:
         return None
@@ -125,7 +120,7 @@ def read_certainty_section(
         if bad is not None:
             log.problems.append(Problem(where, i, bad[0], bad[1]))
             continue
-        found = _value_problems(rec, exposures, outcomes)
+        found = _value_problems(rec)
         key = _order(rec)
         if key in seen:
             found.append(
@@ -139,26 +134,31 @@ def read_certainty_section(
     return out
 
 
-def _value_problems(
-    rec: dict, exposures: Collection[str], outcomes: Collection[str]
-) -> list[tuple[str, str]]:
+def unknown_names(
+    records: Sequence[dict], file: str, exposures: Collection[str], outcomes: Collection[str]
+) -> list[Problem]:
+    """A problem for every judgement whose exposure or outcome is neither in the archive nor in
+    the evidence base (``exposures``, ``outcomes``: the names of both); row 1 = first record."""
+    where = f"{file}: {SECTION}"
+    out = []
+    for i, rec in enumerate(records, start=1):
+        for column, names in (("exposure", exposures), ("outcome", outcomes)):
+            if rec[column] not in names:
+                out.append(
+                    Problem(
+                        where,
+                        i,
+                        column,
+                        f"no {column} {quote(rec[column])} in the archive or the evidence base; "
+                        "a judgement is kept only with the evidence it rates: add the "
+                        f"{column} or remove the judgement",
+                    )
+                )
+    return out
+
+
+def _value_problems(rec: dict) -> list[tuple[str, str]]:
     found: list[tuple[str, str]] = []
-    if rec["exposure"] not in exposures:
-        found.append(
-            (
-                "exposure",
-                f"no exposure {quote(rec['exposure'])} in the archive's exposures; a judgement "
-                "is kept only with the evidence it rates",
-            )
-        )
-    if rec["outcome"] not in outcomes:
-        found.append(
-            (
-                "outcome",
-                f"no outcome {quote(rec['outcome'])} in the archive's outcomes; a judgement "
-                "is kept only with the evidence it rates",
-            )
-        )
     domain = rec["domain"]
     if domain not in DOMAINS:
         found.append(("domain", f"unknown domain; accepted: {', '.join(DOMAINS)}"))

@@ -4,8 +4,13 @@ says the rules of the section)."""
 
 from __future__ import annotations
 
+from pathlib import Path
+
+from exposhift.errors import InputFileError
+from exposhift.io.certainty_archive import unknown_names
 from exposhift.io.frames import EvidenceFrames
 from exposhift.store.certainty_records import VALUES, find_judgement, upsert_judgement
+from exposhift.store.queries import vocabulary_names
 from exposhift.store.writer import Writer
 
 #: the report's name for the section's counts
@@ -14,11 +19,17 @@ COUNT_NAME = "certainty judgements"
 _NOT_COMPARED = {"decided_at"}
 
 
-def plan_judgements(conn, frames: EvidenceFrames) -> dict[str, int] | None:
+def plan_judgements(conn, frames: EvidenceFrames, file: str) -> dict[str, int] | None:
     """Counts (added, updated, unchanged) the archive's judgements would give; None when the
-    archive has no such section."""
+    archive has no such section. A judgement of an exposure or outcome that neither the
+    archive nor the evidence base has raises InputFileError (nothing is written)."""
     if frames.certainty is None:
         return None
+    exposures = set(frames.exposures["name"].dropna()) | set(vocabulary_names(conn, "exposure"))
+    outcomes = set(frames.outcomes["name"].dropna()) | set(vocabulary_names(conn, "outcome"))
+    problems = unknown_names(frames.certainty, Path(file).name, exposures, outcomes)
+    if problems:
+        raise InputFileError(problems)
     counts = {"added": 0, "updated": 0, "unchanged": 0}
     for rec in frames.certainty:
         stored = find_judgement(conn, rec["exposure"], rec["outcome"], rec["domain"])

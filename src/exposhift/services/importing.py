@@ -237,7 +237,7 @@ def import_frames(
         plans = build_plans(conn, frames)
         rating_plan = rating_changes(conn, frames, plans["appraisal"])
         directions = _direction_counts(conn, frames)
-        judged = plan_judgements(conn, frames) if kind == "archive" else None
+        judged = plan_judgements(conn, frames, file) if kind == "archive" else None
         if judged is not None:
             directions[COUNT_NAME] = Counts(**judged)
         replaced = set()

@@ -229,3 +229,25 @@ def test_archive_without_the_section_still_imports(demo_archive, tmp_path):
             other.dispose()
     finally:
         fresh.dispose()
+
+
+def test_export_of_one_exposure_keeps_its_judgements(demo_archive, tmp_path):
+    db, _, doc = demo_archive
+    exposure = doc[SECTION][0]["exposure"]
+    store = open_current(str(db))
+    fresh = _fresh(tmp_path)
+    try:
+        export_store(store, tmp_path / "one.json", exposure=exposure)
+        part = json.loads((tmp_path / "one.json").read_text(encoding="utf-8"))
+        want = [r for r in doc[SECTION] if r["exposure"] == exposure]
+        assert part[SECTION] == want
+        # the series sections are left out here: a one-exposure export can keep a series whose
+        # outcome it drops (a separate, known problem of the series subset, not of this section)
+        part["series"], part["series_fits"] = [], []
+        c = import_into(fresh, _write(tmp_path, part, "one_only.json")).counts[
+            "certainty judgements"
+        ]
+        assert c.added == len(want)
+    finally:
+        store.dispose()
+        fresh.dispose()

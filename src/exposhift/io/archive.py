@@ -11,9 +11,11 @@ Layout (``format`` = ``exposhift-evidence-base``, ``format_version`` = 1)::
                               "decided_at"}],
      "appraisals": [{..., "ratings": [...]}],
      "method": [{"part", "number", "declared", "content_hash", "source", "text"}],
+     "certainty_judgements": [{"exposure", "outcome", "domain", "rating", "why", ...}],
      "series": [{..., "points": [...]}], "series_fits": [...]}
 
-(the method section: :mod:`exposhift.io.method_archive`; the series sections:
+(the method section: :mod:`exposhift.io.method_archive`; the certainty judgements:
+:mod:`exposhift.io.certainty_archive`; the series sections:
 :mod:`exposhift.io.series_archive`)
 
 An archive without ``expected_directions`` (written before the section existed) still reads;
@@ -37,6 +39,7 @@ from exposhift import vocab
 from exposhift.errors import InputFileError, Problem
 from exposhift.io import directions as expected
 from exposhift.io import overlap, plausible, rules
+from exposhift.io.certainty_archive import judgement_lines, read_certainty_section
 from exposhift.io.frames import (
     APPRAISAL_FIELDS,
     ESTIMATE_FIELDS,
@@ -149,6 +152,7 @@ def archive_text(frames: EvidenceFrames) -> str:
     lines += _direction_lines(frames)
     lines += _list("appraisals", appraisals, "  ", False)
     lines += method_lines(frames.method, _list)
+    lines += judgement_lines(frames.certainty, _list)
     lines += series_lines(frames.series, _list)
     lines.append("}")
     return "\n".join(lines) + "\n"
@@ -457,6 +461,7 @@ def read_archive(
     )
     series = _series(doc, log, file, ev, st, es)
     method = read_method_section(doc, log, file)
+    certainty = read_certainty_section(doc, log, file)
     if log.problems:
         raise InputFileError(sorted_problems(log.problems))
     warn = ProblemLog(es_log.file, es_log.rows)
@@ -481,6 +486,7 @@ def read_archive(
         warnings=sorted_problems(warn.problems),
         series=series,
         method=method,
+        certainty=certainty,
     )
 
 

@@ -200,6 +200,8 @@ class EvidenceFrames:
     series: SeriesFrames | None = None
     #: method versions (:mod:`exposhift.io.method_archive` records); None: the file has none
     method: list | None = None
+    #: certainty judgements (:mod:`exposhift.io.certainty_archive` records); None: none to import
+    certainty: list | None = None
 
     def frame(self, entity: str) -> pd.DataFrame:
         return getattr(self, PLURAL[entity])

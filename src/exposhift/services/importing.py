@@ -29,6 +29,7 @@ from exposhift.services.archive_appraisals import (
     check_archive_appraisals,
     conflict_problems,
 )
+from exposhift.services.certainty_restore import COUNT_NAME, plan_judgements, write_judgements
 from exposhift.services.method_restore import door_rubric, method_plan, restore_method
 from exposhift.services.setup import open_current
 from exposhift.store.bulk import BulkWriter
@@ -224,7 +225,8 @@ def import_frames(
     An archive's appraisals pass the rules of ``appraise import``
     (:mod:`exposhift.services.archive_appraisals`); one that would change a stored appraisal
     is refused unless ``replace`` is given, and each replacement is audited as ``replace``.
-    An archive's series sections are written in the same transaction.
+    An archive's series sections and certainty judgements are written in the same
+    transaction.
     """
     if not dry_run:
         require(store, "edit")
@@ -235,6 +237,9 @@ def import_frames(
         plans = build_plans(conn, frames)
         rating_plan = rating_changes(conn, frames, plans["appraisal"])
         directions = _direction_counts(conn, frames)
+        judged = plan_judgements(conn, frames, file) if kind == "archive" else None
+        if judged is not None:
+            directions[COUNT_NAME] = Counts(**judged)
         replaced = set()
         method_add: list[dict] = []
         if kind == "archive":
@@ -247,6 +252,7 @@ def import_frames(
             _apply_directions(w, frames)
             w.flush()
             notes = _import_series(w, frames)
+            write_judgements(w, frames)
             w.flush()  # the method versions' audit entries follow in the chain
             notes += restore_method(conn, store.user, method_add)
     return ImportReport(

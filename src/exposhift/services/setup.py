@@ -19,6 +19,7 @@ COUNTED = {
     "exposures": "exposure",
     "outcomes": "outcome",
     "expected_directions": "expected_direction",
+    "certainty_judgements": "certainty_judgement",
     "audit_entries": "audit_entry",
 }
 

@@ -49,6 +49,10 @@ def subset_frames(
             directions["exposure"].isin(set(exposures["name"]))
             & directions["outcome"].isin(set(outcomes["name"]))
         ]
+    certainty = frames.certainty
+    if certainty is not None:  # the committee's judgements of the pairs kept come along
+        names = set(exposures["name"]), set(outcomes["name"])
+        certainty = [r for r in certainty if r["exposure"] in names[0] and r["outcome"] in names[1]]
     series = frames.series
     if series is not None and len(series):  # the series of the studies and events kept
         from exposhift.io.series_sheet import SeriesFrames
@@ -65,6 +69,7 @@ def subset_frames(
     return replace(
         frames,
         directions=directions,
+        certainty=certainty,
         series=series,
         exposures=exposures,
         outcomes=outcomes,

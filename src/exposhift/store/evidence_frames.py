@@ -87,7 +87,17 @@ def load_evidence(conn) -> EvidenceFrames:
     )
     out.series = load_series(conn)
     out.method = _method(conn)
+    out.certainty = _certainty(conn)
     return out
+
+
+def _certainty(conn) -> list[dict]:
+    """The committee's certainty judgements, as archive records
+    (:mod:`exposhift.io.certainty_archive`)."""
+    from exposhift.io.certainty_archive import judgement_records
+    from exposhift.store.certainty_records import judgements_frame
+
+    return judgement_records(judgements_frame(conn)) or []
 
 
 def _method(conn) -> list[dict]:

@@ -16,6 +16,7 @@ from exposhift.errors import NotFoundError
 from exposhift.store.models import (
     NATURAL_KEY,
     Appraisal,
+    CertaintyJudgement,
     Estimate,
     Event,
     ExpectedDirection,
@@ -35,6 +36,7 @@ TABLES: dict[str, Table] = {
     "appraisal": Appraisal.__table__,
     "rating": Rating.__table__,
     "expected_direction": ExpectedDirection.__table__,
+    "certainty_judgement": CertaintyJudgement.__table__,
 }
 
 _CODE_CHECKS = {

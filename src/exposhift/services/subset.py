@@ -42,7 +42,27 @@ def subset_frames(
     studies = frames.studies[frames.studies["key"].isin(set(est["study"]))]
     keep = set(studies["key"])
     exposures = frames.exposures[frames.exposures["name"].isin(set(events["exposure"]))]
-    outcomes = frames.outcomes[frames.outcomes["name"].isin(set(est["outcome"]))]
+    series = frames.series
+    if series is not None and len(series):  # the series of the studies and events kept
+        from exposhift.io.series_sheet import SeriesFrames
+
+        keep_s = series.series["study"].isin(keep) & series.series["event"].isin(set(events["key"]))
+        if outcome is not None:
+            keep_s &= series.series["outcome"] == outcome
+        kept = set(series.series.loc[keep_s, "key"])
+        series = SeriesFrames(
+            series=series.series[keep_s],
+            points=series.points[series.points["series"].isin(kept)],
+            fits=series.fits[
+                series.fits["series"].isin(kept) & series.fits["estimate"].isin(set(est["key"]))
+            ],
+        )
+    # the outcomes of the estimates kept, and of the series kept (a series may follow an
+    # outcome its study reports no estimate of): an import of the part then finds them all
+    named = set(est["outcome"])
+    if series is not None and len(series):
+        named |= set(series.series["outcome"])
+    outcomes = frames.outcomes[frames.outcomes["name"].isin(named)]
     directions = frames.directions
     if directions is not None:  # the committee's directions of the pairs kept come along
         directions = directions[
@@ -53,19 +73,6 @@ def subset_frames(
     if certainty is not None:  # the committee's judgements of the pairs kept come along
         names = set(exposures["name"]), set(outcomes["name"])
         certainty = [r for r in certainty if r["exposure"] in names[0] and r["outcome"] in names[1]]
-    series = frames.series
-    if series is not None and len(series):  # the series of the studies and events kept
-        from exposhift.io.series_sheet import SeriesFrames
-
-        keep_s = series.series["study"].isin(keep) & series.series["event"].isin(set(events["key"]))
-        kept = set(series.series.loc[keep_s, "key"])
-        series = SeriesFrames(
-            series=series.series[keep_s],
-            points=series.points[series.points["series"].isin(kept)],
-            fits=series.fits[
-                series.fits["series"].isin(kept) & series.fits["estimate"].isin(set(est["key"]))
-            ],
-        )
     return replace(
         frames,
         directions=directions,

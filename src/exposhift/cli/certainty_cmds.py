@@ -34,6 +34,12 @@ def _n(x: Any, digits: int = 3) -> str:
     return "n/a" if x is None else f"{x:.{digits}g}"
 
 
+def _span(lo: Any, hi: Any) -> str:
+    """``lo to hi``; "n/a" when the interval does not exist (e.g. a PI with fewer than 3
+    events)."""
+    return "n/a" if lo is None and hi is None else f"{_n(lo)} to {_n(hi)}"
+
+
 SETTINGS_HELP = (
     "One-run override: a certainty settings TOML used instead of the evidence base's "
     "(exposhift method show certainty; method set certainty FILE stores one)."
@@ -77,8 +83,8 @@ def certainty(
         typer.echo(
             f"  pooled ({p['evidence_set']}): {p['k_events']} events, {p['k_estimates']} "
             f"estimates, {p['measure']} {_n(nat.get('estimate'))} (CI "
-            f"{_n(nat.get('ci_lower'))} to {_n(nat.get('ci_upper'))}; PI "
-            f"{_n(nat.get('pi_lower'))} to {_n(nat.get('pi_upper'))}); status {c['status']}"
+            f"{_span(nat.get('ci_lower'), nat.get('ci_upper'))}; PI "
+            f"{_span(nat.get('pi_lower'), nat.get('pi_upper'))}); status {c['status']}"
             + (" (provisional)" if c["provisional"] else "")
         )
         typer.echo(f"  starts at {c['start']['level']}: {c['start']['why']}")
@@ -112,7 +118,7 @@ def certainty(
                     r["analysis"],
                     str(r["k_events"]),
                     _n(r["estimate"]),
-                    f"{_n(r['ci_lower'])} to {_n(r['ci_upper'])}",
+                    _span(r["ci_lower"], r["ci_upper"]),
                     _n(r["change"]),
                     r["note"],
                 ]
@@ -202,8 +208,8 @@ def evidence_table_cmd(
             r["outcome"],
             str(r["events"]),
             f"{r['measure']} {_n(r['effect'])}" if r["effect"] is not None else "not pooled",
-            f"{_n(r['ci_lower'])} to {_n(r['ci_upper'])}",
-            f"{_n(r['pi_lower'])} to {_n(r['pi_upper'])}",
+            _span(r["ci_lower"], r["ci_upper"]),
+            _span(r["pi_lower"], r["pi_upper"]),
             r["status"],
             r["certainty"],
             r["reasons"],

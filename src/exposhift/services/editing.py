@@ -31,7 +31,12 @@ from exposhift.io.columns import BY_NAME, EVENT_COLUMNS, STUDY_COLUMNS
 from exposhift.io.exporter import neutralise
 from exposhift.io.frames import estimate_keys
 from exposhift.io.sheet import RawSheet
-from exposhift.io.validate import EVENTS_SHEET_COLUMNS, validate_events_sheet, validate_sheet
+from exposhift.io.validate import (
+    ESTIMATE_SHEET,
+    EVENTS_SHEET_COLUMNS,
+    validate_events_sheet,
+    validate_sheet,
+)
 from exposhift.services.acting import as_user
 from exposhift.services.importing import (
     Counts,
@@ -52,25 +57,9 @@ from exposhift.store.form_reads import (
 STUDY_FORM = "study form"
 EVENT_FORM = "event form"
 #: the estimate columns of the form (the sheet's estimate columns, with the event named)
-ESTIMATE_FORM_COLUMNS = (
-    "event_id",
-    "outcome",
-    "outcome_group",
-    "measure",
-    "estimate_kind",
-    "per_unit",
-    "estimate",
-    "ci_low",
-    "ci_high",
-    "ci_level",
-    "se",
-    "p_value",
-    "p_bound",
-    "baseline_risk",
-    "subgroup",
-    "time_window",
-    "primary",
-)
+#: the estimate fields of the form: the sheet's estimate columns after its keys (one list: a
+#: column added to the sheet appears in the form), with the outcome's group
+ESTIMATE_FORM_COLUMNS = ("event_id", "outcome", "outcome_group", *ESTIMATE_SHEET[3:])
 ENTITIES = ("exposure", "outcome", "event", "study", "estimate")
 
 

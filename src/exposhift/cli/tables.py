@@ -10,8 +10,13 @@ if TYPE_CHECKING:
     import pandas as pd
 
 
-def _num(x: float, digits: int = 2) -> str:
-    return "-" if is_missing(x) else number(x, digits) if abs(x) < 100 else number(x, 0)
+def _effect(est: float, lo: float, hi: float) -> str:
+    """``est (lo to hi)`` with one number of decimals for all three (none once any reaches
+    100), so an estimate and its interval read alike."""
+    known = [abs(x) for x in (est, lo, hi) if not is_missing(x)]
+    digits = 0 if known and max(known) >= 100 else 2
+    est_s, lo_s, hi_s = ("-" if is_missing(x) else number(x, digits) for x in (est, lo, hi))
+    return f"{est_s} ({lo_s} to {hi_s}"
 
 
 def render(rows: list[list[str]], header: list[str], indent: str = "  ") -> str:
@@ -30,20 +35,17 @@ def summary_table(summary: pd.DataFrame) -> str:
         kind = "ratio" if r["scale"] == "log" else "difference"
         if r["k_events"] >= 3:
             effect = (
-                f"{kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} to "
-                f"{_num(r['ci_upper'])}), {r['k_events']} events, "
+                f"{kind} {_effect(r['estimate'], r['ci_lower'], r['ci_upper'])}), "
+                f"{r['k_events']} events, "
                 f"{r['k_estimates']} estimates"
             )
         elif r["k_events"] == 2:
             effect = (
-                f"2 events only: {kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} "
-                f"to {_num(r['ci_upper'])}, t on 1 df)"
+                f"2 events only: {kind} "
+                f"{_effect(r['estimate'], r['ci_lower'], r['ci_upper'])}, t on 1 df)"
             )
         elif r["k_events"] == 1:
-            effect = (
-                f"1 event: {kind} {_num(r['estimate'])} ({_num(r['ci_lower'])} to "
-                f"{_num(r['ci_upper'])})"
-            )
+            effect = f"1 event: {kind} {_effect(r['estimate'], r['ci_lower'], r['ci_upper'])})"
         else:
             effect = "no good event to pool"
         status = r["status"] + (" (provisional)" if r.get("provisional") else "")

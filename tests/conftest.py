@@ -93,3 +93,16 @@ def sqlite_store(sqlite_url) -> Iterator[Store]:
     s = open_current(sqlite_url, user="tester")
     yield s
     s.dispose()
+
+
+@pytest.fixture(autouse=True, scope="session")
+def _loopback_address():
+    """The dashboard as ``exposhift dashboard`` serves it: on 127.0.0.1 (AppTest has no server,
+    and Streamlit's default address - every interface - would ask everyone to sign in).
+    Shared by the dashboard and certainty-panel tests."""
+    from streamlit import config
+
+    before = config.get_option("server.address")
+    config.set_option("server.address", "127.0.0.1")
+    yield
+    config.set_option("server.address", before)

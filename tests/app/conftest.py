@@ -12,18 +12,6 @@ from exposhift.services.setup import open_current
 app_on_path()
 
 
-@pytest.fixture(autouse=True, scope="session")
-def _loopback_address():
-    """The dashboard as ``exposhift dashboard`` serves it: on 127.0.0.1 (AppTest has no server,
-    and Streamlit's default address - every interface - would ask everyone to sign in)."""
-    from streamlit import config
-
-    before = config.get_option("server.address")
-    config.set_option("server.address", "127.0.0.1")
-    yield
-    config.set_option("server.address", before)
-
-
 @pytest.fixture(autouse=True)
 def _real_identity_seam():
     """Tests of the writing pages replace ``identity.who`` (writing_helpers.open_page); the real

@@ -33,16 +33,3 @@ def demo_copy(demo_db, tmp_path):
     store = open_current(str(path), user="tester")
     yield store
     store.dispose()
-
-
-@pytest.fixture(autouse=True, scope="session")
-def _loopback_address():
-    """The dashboard as ``exposhift dashboard`` serves it: on 127.0.0.1 (AppTest has no server,
-    and Streamlit's default address - every interface - would ask everyone to sign in); the
-    same fixture as tests/app/conftest.py."""
-    from streamlit import config
-
-    before = config.get_option("server.address")
-    config.set_option("server.address", "127.0.0.1")
-    yield
-    config.set_option("server.address", before)

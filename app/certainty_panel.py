@@ -13,6 +13,7 @@ import streamlit as st
 
 import data
 from exposhift.errors import ExposhiftError
+from exposhift.replication.status import status_label
 from exposhift.services.certainty import cell_certainty
 
 
@@ -49,7 +50,7 @@ def show(db: str | None, exposure: str, outcome: str) -> None:
     st.caption(
         f"Rests on the pooled result with the default evidence set and options "
         f"({c['pooled']['evidence_set']}; REML, Hartung-Knapp): {c['pooled']['k_events']} "
-        f"events, status {c['status']}{' (provisional)' if c['provisional'] else ''}. "
+        f"events, status {status_label(c['status'], c['provisional'], c['imprecise'])}. "
         f"Settings fingerprint {c['settings_fingerprint'][:12]}. An E-value speaks to "
         "unmeasured confounding only."
     )

@@ -9,6 +9,7 @@ import pandas as pd
 import streamlit as st
 
 from exposhift.errors import ExposhiftError
+from exposhift.replication.status import status_label
 from exposhift.services.browse import DEMO_NOTE
 from exposhift.synthesis.pooling import CAUTION  # the library's caution, as the CLI prints it
 
@@ -54,11 +55,14 @@ def demo_notice(summary) -> None:
         )
 
 
-def status_box(status: str, rule: str, provisional: bool = False) -> None:
+def status_box(status: str, rule: str, provisional: bool = False, imprecise: bool = False) -> None:
     """The replication status in a coloured box (its tone from the status), with the rule that
-    produced it in words; a provisional status says so in its title."""
+    produced it in words; a provisional or imprecise status says so in its title, and an
+    imprecise one is never shown in the colour of success."""
     tone = STATUS_TONE.get(status, "info")
-    label = status + (" (provisional)" if provisional else "")
+    if imprecise and tone == "success":
+        tone = "warning"
+    label = status_label(status, provisional, imprecise)
     getattr(st, tone)(f"**Replication status: {label}**\n\n{rule}")
 
 

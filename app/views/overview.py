@@ -93,6 +93,10 @@ st.dataframe(
         "provisional": st.column_config.CheckboxColumn(
             "provisional", help="the expected direction was inferred from these same events"
         ),
+        "imprecise": st.column_config.CheckboxColumn(
+            "imprecise",
+            help="a replication status whose pooled interval does not exclude no effect",
+        ),
     },
 )
 st.caption(

@@ -73,7 +73,7 @@ if len(families) > 1:
             report = data.replication(db, exposure, outcome, expected, family)
 
 # 2. status with its rule, and the caution ---------------------------------------------------
-ui.status_box(report.status, report.rule, report.provisional)
+ui.status_box(report.status, report.rule, report.provisional, report.imprecise)
 ui.caution()
 basis = {
     "pre-specified": "pre-specified by the committee",

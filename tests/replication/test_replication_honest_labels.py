@@ -173,3 +173,64 @@ def test_significance_threshold_is_the_normal_quantile():
     )
     assert status_of(below)["places_count"] == 0
     assert status_of(above)["places_count"] == 2
+
+
+# --- a replication status beside a pooled interval that includes no effect ------------------
+
+
+def _two_significant_places_far_apart():
+    # two events, each significant on its own in the expected direction (z = 4 and z = 5, a
+    # decrease lowering the outcome), but far apart: with two events the HKSJ interval uses t
+    # on 1 df (scipy: t.ppf(0.975, 1) = 12.71), so the pooled interval includes no effect
+    return frame(
+        unit("A", "FRA", 2000, "decrease", 0.20, 0.05, 2),
+        unit("B", "ESP", 2004, "decrease", 1.50, 0.30, 2),
+    )
+
+
+def test_replicated_place_with_an_inconclusive_pool_is_marked_imprecise():
+    from exposhift.replication.status import status_label
+
+    df = _two_significant_places_far_apart()
+    row = status_of(df, directions=lowers().assign(direction="raises"))
+    # each event's own Wald interval excludes no effect (scipy normal quantile)
+    z975 = stats.norm.ppf(0.975)
+    assert 0.20 - z975 * 0.05 > 0 and 1.50 - z975 * 0.30 > 0
+    assert row["status"] == "replicated-place"
+    # the pooled interval shown beside it is the engine's; check it against statsmodels'
+    # combine_effects (REML is not offered there: its DL tau2 with the HKSJ scale, floored at
+    # 1 as ours, gives an interval that also includes no effect)
+    from statsmodels.stats.meta_analysis import combine_effects
+
+    ref = combine_effects(np.array([0.20, 1.50]), np.array([0.05**2, 0.30**2]), use_t=True)
+    lo_ref, hi_ref = ref.conf_int()[1]  # row 1: the random-effects pool
+    assert lo_ref < 0 < hi_ref  # the reference pool is inconclusive too
+    assert row["pooled_ci_lower"] < 0 < row["pooled_ci_upper"]
+    assert not row["pooled_supports"]
+    assert bool(row["imprecise"]) and not bool(row["provisional"])
+    assert "imprecise: the pooled estimate of the 2 good events does not exclude" in row["rule"]
+    assert status_label(row["status"], row["provisional"], row["imprecise"]) == (
+        "replicated-place (imprecise)"
+    )
+
+
+def test_a_pool_that_backs_the_status_is_not_imprecise():
+    # the same two places with close, precise effects: the pooled interval excludes no effect
+    df = frame(
+        unit("A", "FRA", 2000, "decrease", 0.20, 0.02, 2),
+        unit("B", "ESP", 2004, "decrease", 0.21, 0.02, 2),
+    )
+    row = status_of(df, directions=lowers().assign(direction="raises"))
+    assert row["status"] == "replicated-place"
+    assert row["pooled_ci_lower"] > 0 and row["pooled_supports"]
+    assert not bool(row["imprecise"])
+    assert "imprecise" not in row["rule"]
+
+
+def test_an_imprecise_cell_is_not_shown_as_settled_on_the_gap_map():
+    df = _two_significant_places_far_apart()
+    cells = gap_map(df, directions=lowers().assign(direction="raises"))
+    cell = cells.iloc[0]
+    assert cell["status"] == "replicated-place" and bool(cell["imprecise"])
+    assert cell["state"] == "replicated-in-part"
+    assert "imprecise: the pooled interval" in cell["state_rule"]

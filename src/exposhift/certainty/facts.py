@@ -36,6 +36,8 @@ class CellFacts:
     status: str = "none"
     status_rule: str = ""
     provisional: bool = False
+    #: the pooled number of the replication status does not back it (see status_label)
+    imprecise: bool = False
     #: +1 (an increase raises the outcome), -1 (lowers) or 0 (no direction)
     expected: int = 0
     expected_source: str = "inferred"
@@ -90,6 +92,7 @@ def cell_facts(
         "status": str(report.status),
         "status_rule": str(report.rule),
         "provisional": bool(report.provisional),
+        "imprecise": bool(getattr(report, "imprecise", False)),
         "expected": int(report.expected),
         "expected_source": str(report.expected_source),
         "dose_response": report.dose_response.to_dict(),

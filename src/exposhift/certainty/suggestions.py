@@ -38,7 +38,9 @@ concern (the GRADE series rates up evidence without serious limitations; from me
 rate-ups count for at most ``max_steps_up`` steps together (a committee setting).
 
 Reversal, replication and triangulation are never suggested while the status is provisional
-(the expected direction was inferred from the same data).
+(the expected direction was inferred from the same data). Replication is not suggested while
+the status is imprecise (its pooled interval does not exclude no effect): that is a question
+of imprecision, rated down under its own domain, not a strength to rate up.
 """
 
 from __future__ import annotations
@@ -422,6 +424,14 @@ def _replication(f: CellFacts, reversal: Suggestion) -> Suggestion:
         return Suggestion("replication", "none", f"status {f.status}: {f.status_rule}", nums)
     if (p := _provisional("replication", f)) is not None:
         return p
+    if f.imprecise:
+        return Suggestion(
+            "replication",
+            "none",
+            f"status {f.status}, but imprecise: the pooled interval of its good events does "
+            "not exclude no effect, so replication is not rated up (see imprecision)",
+            nums | {"imprecise": True},
+        )
     if f.status == "replicated-time" and reversal.steps > 0:
         return Suggestion(
             "replication",

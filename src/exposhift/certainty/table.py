@@ -16,6 +16,7 @@ import pandas as pd
 
 from exposhift.certainty.domains import FINAL
 from exposhift.certainty.suggestions import CellSuggestions
+from exposhift.replication.status import status_label
 
 COLUMNS: tuple[str, ...] = (
     "outcome",
@@ -90,7 +91,7 @@ def table_row(cell: CellSuggestions, judgements: pd.DataFrame | None) -> dict[st
         "ci_upper": nat.get("ci_upper"),
         "pi_lower": nat.get("pi_lower"),
         "pi_upper": nat.get("pi_upper"),
-        "status": f.status + (" (provisional)" if f.provisional else ""),
+        "status": status_label(f.status, f.provisional, f.imprecise),
         "certainty": certainty,
         "certainty_basis": basis,
         "reasons": reasons_in_words(cell, judgements),

@@ -75,6 +75,7 @@ def certainty(
         print_json(with_overrides(rep.to_dict(), ws))
         return
     from exposhift.cli.tables import render
+    from exposhift.replication.status import status_label
 
     for c in rep.to_dict()["outcomes"]:
         p = c["pooled"]
@@ -84,8 +85,8 @@ def certainty(
             f"  pooled ({p['evidence_set']}): {p['k_events']} events, {p['k_estimates']} "
             f"estimates, {p['measure']} {_n(nat.get('estimate'))} (CI "
             f"{_span(nat.get('ci_lower'), nat.get('ci_upper'))}; PI "
-            f"{_span(nat.get('pi_lower'), nat.get('pi_upper'))}); status {c['status']}"
-            + (" (provisional)" if c["provisional"] else "")
+            f"{_span(nat.get('pi_lower'), nat.get('pi_upper'))}); status "
+            + status_label(c["status"], c["provisional"], c.get("imprecise", False))
         )
         typer.echo(f"  starts at {c['start']['level']}: {c['start']['why']}")
         rows = []

@@ -53,7 +53,7 @@ def _scale_of(group: str) -> str:
 
 
 def render_replication(rep: ReplicationReport) -> str:
-    status = rep.status + (" (provisional)" if rep.provisional else "")
+    status = rep.label
     basis = {
         "pre-specified": "pre-specified by the committee",
         "settings": "fixed for this run or in the replication settings",
@@ -199,6 +199,7 @@ def render_replication(rep: ReplicationReport) -> str:
 
 def render_gaps(rep: GapReport) -> str:
     from exposhift.replication.gaps import GAP_STATES
+    from exposhift.replication.status import status_label
 
     cells = rep.cells
     counts = cells["state"].value_counts()
@@ -211,7 +212,7 @@ def render_gaps(rep: GapReport) -> str:
             r.events,
             r.studies,
             None if math.isnan(r.best_level) else int(r.best_level),
-            r.status,
+            status_label(r.status, r.provisional, r.imprecise),
             r.state,
             r.not_yet,
         ]

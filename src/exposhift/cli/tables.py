@@ -30,6 +30,8 @@ def render(rows: list[list[str]], header: list[str], indent: str = "  ") -> str:
 
 def summary_table(summary: pd.DataFrame) -> str:
     """The per exposure x outcome summary of :func:`exposhift.services.summary.evidence_summary`."""
+    from exposhift.replication.status import status_label  # pandas is loaded by now
+
     rows = []
     for r in summary.to_dict(orient="records"):
         kind = "ratio" if r["scale"] == "log" else "difference"
@@ -48,6 +50,18 @@ def summary_table(summary: pd.DataFrame) -> str:
             effect = f"1 event: {kind} {_effect(r['estimate'], r['ci_lower'], r['ci_upper'])})"
         else:
             effect = "no good event to pool"
-        status = r["status"] + (" (provisional)" if r.get("provisional") else "")
+        status = status_label(r["status"], bool(r.get("provisional")), bool(r.get("imprecise")))
         rows.append([r["exposure"], r["outcome"], str(r["events"]), status, effect])
-    return render(rows, ["exposure", "outcome", "events", "status", "pooled effect"])
+    out = render(rows, ["exposure", "outcome", "events", "status", "pooled effect"])
+    legend = [
+        words
+        for col, words in (
+            (
+                "provisional",
+                "provisional: the expected direction was inferred from these same events",
+            ),
+            ("imprecise", "imprecise: the pooled interval beside the status includes no effect"),
+        )
+        if col in summary.columns and summary[col].astype(bool).any()
+    ]
+    return out + "".join(f"\n  {w}" for w in legend)

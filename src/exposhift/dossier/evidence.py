@@ -211,6 +211,11 @@ def _replication_extra(d: dict[str, Any]) -> dict[str, Any]:
             "yes: the expected direction was inferred from these same events, "
             "not pre-specified by the committee"
         )
+    if d.get("imprecise"):
+        out["imprecise"] = (
+            "yes: the pooled interval of the good events does not exclude no effect, so the "
+            "size of the average effect is not settled"
+        )
     basis = (d.get("expected_direction") or {}).get("basis")
     if basis:
         out["expected direction"] = basis

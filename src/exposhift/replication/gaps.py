@@ -6,6 +6,7 @@ register, all outcome groups in the evidence base): ``events`` (distinct indepen
 (the strongest replication status among the cell's outcomes, in the order of
 :data:`~exposhift.replication.status.STATUSES`; ``status_outcome`` names the outcome),
 ``not_yet`` (for that outcome, which of place / time / designs is not yet replicated),
+``imprecise`` (the status's pooled interval does not exclude no effect),
 ``ready_for_synthesis`` (some outcome has ≥ ``ready_min_events`` independent good events) and a
 ``state`` (ours) that *explains the status* of the best-covered outcome in the words of the gap
 map, the first that applies of:
@@ -20,8 +21,10 @@ map, the first that applies of:
    the expected direction (status ``discordant`` or ``replicated-against``);
 6. ``not-replicated`` — two or more good events, no replication rule met;
 7. ``replicated-in-part`` — replicated in place or in time, not yet in every dimension
-   (``not_yet`` says which);
-8. ``replicated`` — replicated in place, in time and across design families (``convergent``).
+   (``not_yet`` says which), or ``convergent`` but imprecise (the pooled interval of its good
+   events does not exclude no effect);
+8. ``replicated`` — replicated in place, in time and across design families, and the pooled
+   interval excludes no effect (``convergent``, not imprecise).
 
 A state can therefore never contradict the status beside it.
 Event counts for states are per outcome (a synthesis pools one outcome). Everything is grouped
@@ -52,8 +55,10 @@ GAP_STATES: dict[str, str] = {
     "conflicting": "good events or design families disagree, or the effect replicates "
     "against the expected direction",
     "not-replicated": "two or more good events, but no replication rule is met",
-    "replicated-in-part": "replicated in place or in time, not yet in every dimension",
-    "replicated": "replicated in place, in time and across design families",
+    "replicated-in-part": "replicated in place or in time, not yet in every dimension (or "
+    "the pooled interval does not yet exclude no effect)",
+    "replicated": "replicated in place, in time and across design families, with a pooled "
+    "interval that excludes no effect",
 }
 #: the gap state that explains each status
 STATE_OF_STATUS: dict[str, str] = {
@@ -83,6 +88,7 @@ CELL_COLUMNS: tuple[str, ...] = (
     "not_yet",
     "ready_for_synthesis",
     "provisional",
+    "imprecise",
     "unevaluated_events",
     "state_rule",
 )
@@ -192,7 +198,7 @@ def gap_map(
             ~best[flag], np.where(not_yet == "", word, not_yet + ", " + word), not_yet
         )
     best = best.assign(not_yet=np.where(best["n_good"] > 0, not_yet, ""))
-    best = best[[*cell, "status", "outcome", "not_yet", "provisional"]].rename(
+    best = best[[*cell, "status", "outcome", "not_yet", "provisional", "imprecise"]].rename(
         columns={"outcome": "status_outcome"}
     )
     per_outcome = st.groupby(cell, sort=False, observed=True).agg(
@@ -220,6 +226,7 @@ def gap_map(
     out["status_outcome"] = out["status_outcome"].fillna("")
     out["not_yet"] = out["not_yet"].fillna("")
     out["provisional"] = out["provisional"].fillna(False).astype(bool)
+    out["imprecise"] = out["imprecise"].fillna(False).astype(bool)
     out["ready_for_synthesis"] = out["good_events"] >= settings.ready_min_events
     out["unevaluated_events"] = (
         out["exposure"].map(_unevaluated_counts(registry)).fillna(0).astype(np.int64)
@@ -267,9 +274,15 @@ def _states(
         else np.nan_to_num(newest, nan=-np.inf) <= stale_after
     )
     state = out["status"].map(STATE_OF_STATUS).fillna("no-study").to_numpy(dtype=object)
+    # a convergent cell whose pooled interval includes no effect is not shown as settled
+    state = np.where(
+        (state == "replicated") & out["imprecise"].to_numpy(dtype=bool),
+        "replicated-in-part",
+        state,
+    ).astype(object)
     state = np.where((events > 0) & stale, "stale", state).astype(object)
     rules = []
-    for st, status, outcome, good, ready, yr, not_yet in zip(
+    for st, status, outcome, good, ready, yr, not_yet, imprecise in zip(
         state.tolist(),
         out["status"].tolist(),
         out["status_outcome"].tolist(),
@@ -277,6 +290,7 @@ def _states(
         out["ready_for_synthesis"].tolist(),
         newest.tolist(),
         out["not_yet"].tolist(),
+        out["imprecise"].tolist(),
         strict=True,
     ):
         if st == "stale":
@@ -286,6 +300,10 @@ def _states(
             rules.append("no estimate in this cell")
             continue
         text = f"status of {outcome}: {status} ({STATUSES[status]})"
+        if imprecise:
+            text += (
+                "; imprecise: the pooled interval of its good events does not exclude no effect"
+            )
         if not_yet and st != "replicated":
             text += f"; not yet replicated in: {not_yet}"
         text += (

@@ -22,7 +22,7 @@ from exposhift.replication.dose import DoseResponse, dose_response
 from exposhift.replication.entries import FamilyEntry, PlaceSequence, Reversal
 from exposhift.replication.families import direction_words
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
-from exposhift.replication.status import CAUTION, analyse
+from exposhift.replication.status import CAUTION, analyse, status_label
 from exposhift.replication.temporal import place_sequences, reversals
 from exposhift.replication.triangulation import STRATA
 
@@ -95,9 +95,15 @@ class ReplicationReport:
     settings: ReplicationSettings = DEFAULTS
     caution: str = CAUTION
     provisional: bool = False
+    imprecise: bool = False
     expected_source: str = "inferred"
     headline: dict[str, Any] = field(default_factory=dict)
     event_level: pd.DataFrame = field(default_factory=pd.DataFrame)
+
+    @property
+    def label(self) -> str:
+        """The status with its qualifiers (:func:`~exposhift.replication.status.status_label`)."""
+        return status_label(self.status, self.provisional, self.imprecise)
 
     @property
     def expected_words(self) -> str:
@@ -119,6 +125,7 @@ class ReplicationReport:
             "status": self.status,
             "rule": self.rule,
             "provisional": self.provisional,
+            "imprecise": self.imprecise,
             "expected_direction": {
                 "sign": self.expected,
                 "meaning": self.expected_words,
@@ -264,6 +271,7 @@ def replication_report(
         settings=settings,
         families=family_summary(ev),
         provisional=bool(row["provisional"]),
+        imprecise=bool(row["imprecise"]),
         expected_source=str(row["expected_source"]),
         headline=_headline(row, settings),
         event_level=_event_level(ev, z),

@@ -32,7 +32,14 @@ Statuses (ours), checked in this order; the first that applies is the status:
 
 When the expected direction was inferred from the same data (no committee direction, setting
 ``expected_direction = "pooled"``) the status is **provisional** (``provisional`` column, and the
-rule says so). Every rule states the number of good events, the sign test with its minimum
+rule says so). A replication status (``convergent``, ``replicated-place``, ``replicated-time``,
+``replicated-against``) whose headline pooled interval does not exclude no effect in the
+direction it claims is **imprecise** (``imprecise`` column, and the rule says so): the events
+each found the effect, but their average is not pinned down — with two events a Hartung–Knapp
+interval rests on a t with 1 df and is wide. The status stays (each event's own interval is the
+replication rule, METHODS §5) and the qualifier keeps the label from saying more than the
+pooled number beside it. :func:`status_label` writes both qualifiers one way everywhere.
+Every rule states the number of good events, the sign test with its minimum
 attainable p at that number, and the headline pooled number.
 
 The whole computation is grouped (one pass over the evidence base, no loop over exposure ×
@@ -78,6 +85,22 @@ STATUSES: dict[str, str] = {
     "none": "no natural-experiment estimate",
 }
 STATUS_RANK: dict[str, int] = {s: i for i, s in enumerate(STATUSES)}
+#: the replication statuses and the headline flag that must hold for the pooled number beside
+#: them to back them (else the status is marked imprecise)
+BACKED_BY: dict[str, str] = {
+    "convergent": "pooled_supports",
+    "replicated-place": "pooled_supports",
+    "replicated-time": "pooled_supports",
+    "replicated-against": "pooled_against",
+}
+
+
+def status_label(status: str, provisional: bool = False, imprecise: bool = False) -> str:
+    """A status with its qualifiers, written one way wherever a status is shown:
+    ``replicated-place (provisional, imprecise)``."""
+    quals = [w for w, on in (("provisional", provisional), ("imprecise", imprecise)) if on]
+    return f"{status} ({', '.join(quals)})" if quals else status
+
 
 #: the caution shown beside statuses (exposhift.cautions)
 CAUTION = cautions.REPLICATION
@@ -193,6 +216,11 @@ def analyse(
     out["provisional"] = (out["expected_source"] == "inferred") & ~out["status"].isin(
         ["none", "weak-only", "single-event"]
     )
+    # a replication status whose pooled number does not back it says so
+    imprecise = np.zeros(len(out), dtype=bool)
+    for status, flag in BACKED_BY.items():
+        imprecise |= ((out["status"] == status) & ~out[flag].astype(bool)).to_numpy(dtype=bool)
+    out["imprecise"] = imprecise
     out["rule"] = rule_texts(out, settings)
     return Analysis(units=units, events=events, expected=expected, pools=pools, statuses=out)
 
@@ -276,6 +304,7 @@ def rule_texts(t: pd.DataFrame, s: ReplicationSettings) -> list[str]:
         "sign_min_p",
         "expected",
         "provisional",
+        "imprecise",
         "pooled_k_events",
         "pooled_k_estimates",
         "pooled_estimate",
@@ -289,8 +318,20 @@ def rule_texts(t: pd.DataFrame, s: ReplicationSettings) -> list[str]:
     Row = namedtuple("Row", cols)
     data = [t[c].tolist() for c in cols]  # plain Python values: fast to format
     for r in map(Row._make, zip(*data, strict=True)):
-        out.append(f"{r.status}: {_rule(r, s, lv)}{_numbers(r, lv)}")
+        out.append(f"{r.status}: {_rule(r, s, lv)}{_imprecise(r)}{_numbers(r, lv)}")
     return out
+
+
+def _imprecise(r: tuple) -> str:
+    if not r.imprecise:
+        return ""
+    if not r.pooled_k_events:
+        return "; imprecise: no pooled estimate of the good events backs it"
+    return (
+        f"; imprecise: the pooled estimate of the {_n(r.pooled_k_events, 'good event')} does "
+        "not exclude no effect, so the size of the average effect (even its sign) is not "
+        "settled"
+    )
 
 
 def _route(r: tuple, against: bool = False) -> str:

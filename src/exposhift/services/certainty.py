@@ -89,6 +89,7 @@ class CellCertainty:
             },
             "status": f.status,
             "provisional": f.provisional,
+            "imprecise": f.imprecise,
             "e_value": s.e_value.to_dict() | {"words": s.e_value.words()},
             "sensitivity": self.sensitivity,
             "settings_fingerprint": s.settings_fingerprint,

@@ -28,6 +28,7 @@ COLUMNS = [
     "events",
     "status",
     "provisional",
+    "imprecise",
     "stratum",
     "k_events",
     "k_estimates",

@@ -301,9 +301,7 @@ def _states(
             continue
         text = f"status of {outcome}: {status} ({STATUSES[status]})"
         if imprecise:
-            text += (
-                "; imprecise: the pooled interval of its good events does not exclude no effect"
-            )
+            text += "; imprecise: the pooled interval of its good events does not exclude no effect"
         if not_yet and st != "replicated":
             text += f"; not yet replicated in: {not_yet}"
         text += (

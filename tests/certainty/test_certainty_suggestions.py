@@ -35,6 +35,7 @@ def facts(
     measure="RR",
     status="replicated-place",
     provisional=False,
+    imprecise=False,
     expected=1,
     dose=None,
     reversals=(),
@@ -83,6 +84,7 @@ def facts(
         status=status,
         status_rule="crafted",
         provisional=provisional,
+        imprecise=imprecise,
         expected=expected,
         dose_response=dose or {"run": False, "reason": "not run: crafted"},
         reversals=list(reversals),
@@ -219,6 +221,9 @@ def test_replication():
     assert rating(facts(status="replicated-place"), "replication") == "up-one"
     assert rating(facts(status="not-replicated"), "replication") == "none"
     assert rating(facts(status="replicated-place", provisional=True), "replication") == "none"
+    # replicated, but its pooled interval includes no effect: imprecision, not a strength
+    # (our rule: an imprecise status is rated under imprecision, never rated up)
+    assert rating(facts(status="replicated-place", imprecise=True), "replication") == "none"
     # replicated in time only through a counting reversal: rated under reversal, not twice
     only_rev = facts(status="replicated-time", reversals=[{**REV, "counts": True}])
     assert rating(only_rev, "replication") == "none" and rating(only_rev, "reversal") == "up-one"

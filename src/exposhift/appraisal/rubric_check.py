@@ -144,6 +144,12 @@ class _Checker:
             )
         return value
 
+    def need_level(self, table: dict, key: str, path: Path) -> int:
+        """A required level (:meth:`level` raises rather than return None)."""
+        value = self.level(table, key, path, required=True)
+        assert value is not None  # required=True fails instead of returning None
+        return value
+
     def count(self, table: dict, key: str, path: Path) -> int | None:
         value = table.get(key)
         if value is None:
@@ -188,7 +194,7 @@ def _scale(c: _Checker, raw: dict) -> tuple[LevelDef, ...]:
     for i, t in enumerate(c.tables(raw, "scale", ())):
         path = ("scale", i)
         c.keys(t, _SCALE, path)
-        level = c.level(t, "level", path)
+        level = c.need_level(t, "level", path)
         if level in out:
             raise c.fail((*path, "level"), f"level {level} is defined twice in [[scale]]")
         out[level] = LevelDef(level, c.text(t, "key", path), c.text(t, "meaning", path))
@@ -263,7 +269,7 @@ def _domains(c: _Checker, raw: dict) -> tuple[Domain, ...]:
         for j, lt in enumerate(c.tables(t, "level", path)):
             lp = (*path, "level", j)
             c.keys(lt, _DOMAIN_LEVEL, lp)
-            lv = c.level(lt, "level", lp)
+            lv = c.need_level(lt, "level", lp)
             if lv in levels:
                 raise c.fail((*lp, "level"), f"domain '{key}' defines level {lv} twice")
             crit = c.strings(lt, "criteria", lp, required=True)

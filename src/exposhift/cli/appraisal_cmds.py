@@ -6,7 +6,7 @@ from pathlib import Path
 
 import typer
 
-from exposhift.cli.common import print_json, user_errors, with_overrides, workspace
+from exposhift.cli.common import print_json, user_errors, with_method, workspace
 from exposhift.cli.helptext import Group
 from exposhift.cli.numbers import is_missing, number
 
@@ -83,7 +83,7 @@ def appraise_show(
     with workspace(ctx, as_json=as_json, rubric=rubric) as ws:
         data = show_appraisals(ws.store, study_id, None, rubric)
     if as_json:
-        print_json(with_overrides(data.to_dict(), ws))
+        print_json(with_method(data.to_dict(), ws))
         return
     typer.echo(f"{data['study_id']}  {data['citation']}  [{data['design']}]")
     if not data["appraisals"]:

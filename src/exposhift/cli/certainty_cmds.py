@@ -11,7 +11,14 @@ from typing import Any
 
 import typer
 
-from exposhift.cli.common import fail, print_json, user_errors, with_overrides, workspace
+from exposhift.cli.common import (
+    fail,
+    method_line,
+    print_json,
+    user_errors,
+    with_method,
+    workspace,
+)
 from exposhift.cli.helptext import Group
 
 certainty_app = typer.Typer(
@@ -72,7 +79,7 @@ def certainty(
         store, cs = ws.store, ws.method["certainty"]
         rep = certainty_for(store, exposure, outcome, settings=cs)
     if as_json:
-        print_json(with_overrides(rep.to_dict(), ws))
+        print_json(with_method(rep.to_dict(), ws))
         return
     from exposhift.cli.tables import render
     from exposhift.replication.status import status_label
@@ -132,6 +139,7 @@ def certainty(
             )
         typer.echo("")
     typer.echo(f"settings: {rep.settings.source} (fingerprint {rep.settings.fingerprint()[:16]})")
+    typer.echo(method_line(ws))
     typer.echo(f"note: {rep.caution}")
 
 
@@ -159,7 +167,7 @@ def certainty_record(
         store, cs = ws.store, ws.method["certainty"]
         res = record_judgements(store, file, settings=cs, encoding=encoding, dry_run=dry_run)
     if as_json:
-        print_json(with_overrides(res.to_dict(), ws))
+        print_json(with_method(res.to_dict(), ws))
         return
     if res.dry_run:
         typer.echo(
@@ -195,7 +203,7 @@ def evidence_table_cmd(
         store, cs = ws.store, ws.method["certainty"]
         tab = evidence_table(store, exposure, settings=cs)
     if as_json:
-        print_json(with_overrides(tab.to_dict(), ws))
+        print_json(with_method(tab.to_dict(), ws))
         return
     if as_csv:
         import sys
@@ -220,6 +228,8 @@ def evidence_table_cmd(
         for r in tab.to_dict()["rows"]
     ]
     typer.echo(f"summary of evidence: {tab.exposure} (effects of an exposure increase)")
+    if tab.evidence_set:
+        typer.echo(f"evidence set: {tab.evidence_set}")
     typer.echo(
         render(
             rows,
@@ -236,4 +246,5 @@ def evidence_table_cmd(
             ],
         )
     )
+    typer.echo(method_line(ws))
     typer.echo(f"note: {tab.caution}")

@@ -43,7 +43,7 @@ def workspace(
 
     ``overrides`` (``rubric=FILE``, ``settings=FILE``) are one-run overrides. Their notes
     ``one-run override: ...`` are printed first: on stdout for text output, on stderr with
-    ``as_json`` (JSON objects also carry them as a field, :func:`with_overrides`). The store is
+    ``as_json`` (JSON objects also carry them as a field, :func:`with_method`). The store is
     closed when the block ends.
     """
     from exposhift.services.workspace import open_workspace
@@ -56,11 +56,22 @@ def workspace(
         yield ws
 
 
-def with_overrides(value: Any, ws: Workspace) -> Any:
-    """A JSON object with the field ``one_run_override`` when this run used an override."""
-    if ws.overrides and isinstance(value, dict):
-        return {**value, "one_run_override": ws.overrides}
-    return value
+def with_method(value: Any, ws: Workspace) -> Any:
+    """A JSON result with the method that produced it: the field ``method`` names each part's
+    stored version and content hash (:meth:`MethodInForce.used`), and ``one_run_override``
+    lists the one-run overrides when there were any."""
+    if not isinstance(value, dict):
+        return value
+    out = {**value, "method": ws.method.used()}
+    if ws.overrides:
+        out["one_run_override"] = ws.overrides
+    return out
+
+
+def method_line(ws: Workspace) -> str:
+    """The method of a text result in one line:
+    ``method parts: rubric version 1 (1a2b3c4d5e6f), ...``."""
+    return "method parts: " + ws.method.words() + " ('exposhift method show' gives them in full)"
 
 
 def fail(message: str, code: int = 1) -> None:

@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING, Any
 
 import typer
 
-from exposhift.cli.common import print_json, user_errors, with_overrides, workspace
+from exposhift.cli.common import method_line, print_json, user_errors, with_method, workspace
 from exposhift.cli.numbers import number
 from exposhift.cli.tables import render
 
@@ -320,9 +320,10 @@ def replication(
             family=family,
         )
     if as_json:
-        print_json(with_overrides(rep.to_dict(), ws))
+        print_json(with_method(rep.to_dict(), ws))
     else:
         typer.echo(render_replication(rep))
+        typer.echo(method_line(ws))
 
 
 def _split(values: list[str] | None) -> tuple[str, ...]:
@@ -386,6 +387,7 @@ def gaps(
     with workspace(ctx, as_json=as_json, settings=settings_file) as ws:
         rep = gap_report(ws.store, filters, settings=ws.method.settings)
     if as_json:
-        print_json(with_overrides(rep.to_dict(), ws))
+        print_json(with_method(rep.to_dict(), ws))
     else:
         typer.echo(render_gaps(rep))
+        typer.echo(method_line(ws))

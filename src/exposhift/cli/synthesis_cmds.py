@@ -7,7 +7,7 @@ from pathlib import Path
 
 import typer
 
-from exposhift.cli.common import print_json, user_errors, with_overrides, workspace
+from exposhift.cli.common import method_line, print_json, user_errors, with_method, workspace
 from exposhift.cli.numbers import number
 
 #: the --by choices (the keys of exposhift.services.pooling.STRATA; a test checks they agree)
@@ -111,7 +111,7 @@ def pool_cmd(
             rubric=ws.method.rubric,
         )
     if as_json:
-        print_json(with_overrides(out.to_dict(), ws))
+        print_json(with_method(out.to_dict(), ws))
         return
     typer.echo(f"{out.exposure} -> {out.outcome}: effects of an exposure {out.align_to}")
     typer.echo(f"  evidence set: {out.evidence_set}")
@@ -121,6 +121,7 @@ def pool_cmd(
         + f"; within events: {WITHIN_EVENT[within_event]}"
         + (f", rho {rho:g}" if within_event == "aggregate" else "")
     )
+    typer.echo(f"  {method_line(ws)}")
     if not out.groups:
         typer.echo("  nothing left to pool")
     for g in out.groups:

@@ -181,11 +181,14 @@ class EvidenceTable:
     rows: pd.DataFrame
     settings_fingerprint: str
     caution: str = CERTAINTY_CAUTION
+    #: the evidence set every row's pooled number rests on (the pool command's default)
+    evidence_set: str = ""
 
     def to_dict(self) -> dict[str, Any]:
         rows = self.rows.astype(object).where(self.rows.notna(), None).to_dict("records")
         return {
             "exposure": self.exposure,
+            "evidence_set": self.evidence_set,
             "rows": rows,
             "settings_fingerprint": self.settings_fingerprint,
             "scale_note": "effects of an exposure increase on the natural scale (ratios "
@@ -200,8 +203,12 @@ def evidence_table(
     """The summary-of-evidence table of one exposure: one row per outcome with evidence."""
     rep = certainty_for(store, exposure, settings=settings, sensitivity=False)
     rows = [table_row(c.suggestions, c.judgements) for c in rep.cells]
+    sets = sorted({c.suggestions.facts.evidence_set for c in rep.cells} - {""})
     return EvidenceTable(
-        rep.exposure, pd.DataFrame(rows, columns=list(COLUMNS)), rep.settings.fingerprint()
+        rep.exposure,
+        pd.DataFrame(rows, columns=list(COLUMNS)),
+        rep.settings.fingerprint(),
+        evidence_set="; ".join(sets),
     )
 
 

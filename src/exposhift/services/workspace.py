@@ -96,6 +96,32 @@ class MethodInForce:
     def to_dict(self) -> dict[str, Any]:
         return {name: p.to_dict() for name, p in self.parts.items()}
 
+    def used(self) -> dict[str, dict[str, Any]]:
+        """Per part, what a result records of the method that produced it: the stored version
+        number (None when not stored), the content hash, the version the text declares and the
+        file of a one-run override (None when none)."""
+        return {
+            name: {
+                "number": p.number,
+                "content_hash": p.content_hash,
+                "declared": p.declared,
+                "one_run_override": p.override,
+            }
+            for name, p in self.parts.items()
+        }
+
+    def words(self) -> str:
+        """The parts in one phrase: ``rubric version 1 (1a2b3c4d5e6f), settings ...``."""
+        out = []
+        for name, p in self.parts.items():
+            which = (
+                f"file {p.override}"
+                if p.override is not None
+                else (f"version {p.number}" if p.number is not None else "packaged default")
+            )
+            out.append(f"{name} {which} ({p.content_hash[:12]})")
+        return ", ".join(out)
+
 
 @dataclass
 class Workspace:

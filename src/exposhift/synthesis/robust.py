@@ -234,7 +234,7 @@ def robust_blocks(
         L[ids] = ex.transpose(0, 2, 1) @ phi @ ex
     half = meat_rows @ bread
     vcov = half.T @ half
-    notes = ()
+    notes: tuple[str, ...] = ()
     if pinv_clusters:
         notes = (
             f"CR2 adjustment used a pseudo-inverse in {pinv_clusters} event(s) fitted "
@@ -274,7 +274,7 @@ def _block_source(
     y: np.ndarray,
     groups: ClusterIndex,
     working: Any,
-) -> tuple[Callable[[np.ndarray, int], np.ndarray], np.ndarray]:
+) -> tuple[Callable[[np.ndarray, int], np.ndarray], np.ndarray | None]:
     """(Φ blocks by cluster ids and size, per-row inverse-variance weights for a diagonal Φ or
     None) for the working covariance ``working`` (see :func:`cr2_vcov`)."""
     if working is None:

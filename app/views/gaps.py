@@ -2,6 +2,7 @@
 with filters; and the registered exposure changes nobody has evaluated (opportunities)."""
 
 import charts
+import method_view
 import pandas as pd
 import streamlit as st
 import ui
@@ -134,3 +135,4 @@ else:
                 f"{o['needs']}"
             )
 st.caption(report.caution)
+method_view.caption(db)

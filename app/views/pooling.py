@@ -3,6 +3,7 @@ forest plot, the prediction interval, and every estimate left out with its reaso
 
 import certainty_panel
 import charts
+import method_view
 import pandas as pd
 import streamlit as st
 import ui
@@ -214,3 +215,4 @@ else:
     st.caption("None: every estimate of this exposure and outcome was pooled.")
 
 st.caption(out.caution)
+method_view.caption(db)

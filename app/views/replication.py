@@ -3,6 +3,7 @@ evaluated, whether its effect pointed the same way, and whether designs agree.""
 
 import certainty_panel
 import charts
+import method_view
 import pandas as pd
 import streamlit as st
 import ui
@@ -197,3 +198,4 @@ if not report.excluded.empty:
             titles={"estimate_uid": "estimate", "study_id": "study", "event_id": "event"},
         )
 st.caption(report.caution)
+method_view.caption(db)

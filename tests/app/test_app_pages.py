@@ -411,3 +411,22 @@ def test_gap_map_level_filter_reruns(app):
     after = {m.label: int(m.value) for m in at.metric}
     # keeping only studies at level >= 2 leaves no weak-only cell
     assert before["weak-only"] > 0 and after["weak-only"] == 0
+
+
+# ----------------------------------------------------------------------------- the method
+@pytest.mark.parametrize("page", ["pooling", "replication", "gaps"])
+def test_results_pages_name_the_method_they_were_made_with(app, demo_db, page):
+    import hashlib
+
+    at = _open(app, page)
+    captions = [c.value for c in at.caption if c.value.startswith("Method parts:")]
+    assert len(captions) == 1
+    # each part's newest stored version and its hash, recomputed with hashlib from the text
+    # read straight from the file with sqlite3
+    for part, number, body in _sql(
+        demo_db,
+        "SELECT part, number, text FROM method_version m WHERE number = "
+        "(SELECT max(number) FROM method_version WHERE part = m.part)",
+    ):
+        digest = hashlib.sha256(body.encode("utf-8")).hexdigest()[:12]
+        assert f"{part} version {number} ({digest})" in captions[0]

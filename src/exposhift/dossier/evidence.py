@@ -193,7 +193,8 @@ def replication(report: Any, meanings: dict[str, str]) -> Replication:
     events = report.events
     n = int(events["event_id"].nunique()) if len(events) else 0
     return Replication(
-        status=str(d["status"]),
+        # with its qualifiers (provisional, imprecise), as every output writes a status
+        status=str(report.label),
         meaning=meanings.get(str(d["status"]), ""),
         rule=str(d["rule"]),
         expected=str(d["expected_direction"].get("meaning", "")),

@@ -51,12 +51,23 @@ def _view(page: str):
     return at
 
 
+def _serve_on_loopback() -> None:
+    """Serve as ``exposhift dashboard`` does, on 127.0.0.1: Streamlit's default address (every
+    interface) would put every page behind the sign-in form, and the benchmark would time the
+    form instead of the page."""
+    from streamlit import config
+
+    config.set_option("server.address", "127.0.0.1")
+
+
 def _run(at) -> float:
     t = time.perf_counter()
     at.run()
     took = time.perf_counter() - t
     if at.exception:
         raise SystemExit(f"page failed: {[e.value for e in at.exception]}")
+    if any(t.value.startswith("Sign in") for t in at.title):
+        raise SystemExit("the page asked to sign in: the benchmark would time the form")
     return took
 
 
@@ -100,6 +111,7 @@ def main() -> None:
     ap.add_argument("--pages", nargs="+", choices=PAGES, default=list(PAGES))
     args = ap.parse_args()
     sys.path.insert(0, str(ROOT / "app"))
+    _serve_on_loopback()
     from exposhift.services.demo import build_demo
 
     with tempfile.TemporaryDirectory() as tmp:

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 from sqlalchemy import Connection, select
 
+from exposhift.store.cursor_frames import select_frame
 from exposhift.store.models import Appraisal, Estimate, Event, Exposure, Outcome, Study
 from exposhift.vocab import DESIGNS
 
@@ -85,13 +86,10 @@ FRAME_COLUMNS = (
 
 
 def _frame(conn: Connection, stmt, names: list[str], ids: set | None = None) -> pd.DataFrame:
-    """Rows of ``stmt`` as a DataFrame with ``names`` (tuples, not mappings: one object per
-    cell instead of one dict per row); with ``ids``, only rows whose first value is in it, so
+    """Rows of ``stmt`` as a DataFrame with ``names`` (read through the driver cursor,
+    :func:`~exposhift.store.cursor_frames.select_frame`); with ``ids``, only rows whose first value is in it, so
     each column's type is inferred from the rows used, as a one-query join would."""
-    rows = [tuple(r) for r in conn.execute(stmt).all()]  # plain tuples: no key lookups
-    if ids is not None:
-        rows = [r for r in rows if r[0] in ids]
-    return pd.DataFrame.from_records(rows, columns=names)
+    return select_frame(conn, stmt, names, ids)
 
 
 def analysis_frame(

@@ -91,10 +91,13 @@ CACHE = dict(show_spinner=False, max_entries=KEEP)
 
 @st.cache_data(**CACHE)
 def _summary(db: str | None, key: tuple) -> browse.EvidenceOverview:
-    return browse.evidence_overview(_store(db), snapshot(db, key))
+    return browse.evidence_overview(_store(db))
 
 
 def summary(db: str | None) -> browse.EvidenceOverview:
+    """Counts, pairs, designs and levels, counted by the database: it reads no estimate, so a
+    page that shows only the summary (and the sidebar of every page) does not pay for the
+    snapshot."""
     return _summary(db, stamp(db))
 
 

@@ -19,6 +19,7 @@ from exposhift.services.setup import database_info
 from exposhift.services.snapshot import EvidenceSnapshot
 from exposhift.store.appraisals import studies_by_key
 from exposhift.store.database import Store
+from exposhift.store.overview_reads import pair_counts, studies_with_estimates
 from exposhift.store.queries import analysis_frame, events_frame
 from exposhift.synthesis.forest_rows import event_rows
 from exposhift.synthesis.independence import pooling_keys
@@ -64,34 +65,23 @@ def _level_text(level: float) -> str:
 
 def evidence_overview(store: Store, snapshot: EvidenceSnapshot | None = None) -> EvidenceOverview:
     """Counts, demo flags, exposure × outcome pairs with evidence, studies per design family
-    (from ``snapshot`` when given: :mod:`exposhift.services.snapshot`)."""
+    and per level of record. Counted by the database (:mod:`exposhift.store.overview_reads`):
+    no estimate is read, so every page can show it on a large evidence base. ``snapshot``
+    gives the registered events when the caller holds one."""
     info = database_info(store.url)
-    if snapshot is not None:
-        frame, events = snapshot.analysis, snapshot.events
-    else:
-        with store.read() as conn:
-            frame = analysis_frame(conn)
-            events = events_frame(conn)
-    studies = frame.drop_duplicates("study_id")
-    pairs = (
-        frame.groupby(["exposure", "outcome"], sort=True)
-        .agg(
-            outcome_group=("outcome_group", "first"),
-            studies=("study_id", "nunique"),
-            events=("event_id", "nunique"),
-            estimates=("estimate_uid", "size"),
-        )
-        .reset_index()
-        .sort_values(
-            ["studies", "events", "exposure", "outcome"],
-            ascending=[False, False, True, True],
-            kind="stable",
-        )
-        .reset_index(drop=True)
-    )
+    with store.read() as conn:
+        pairs = pair_counts(conn)
+        studies = studies_with_estimates(conn)
+        events = events_frame(conn) if snapshot is None else snapshot.events
+    pairs = pairs.sort_values(
+        ["studies", "events", "exposure", "outcome"],
+        ascending=[False, False, True, True],
+        kind="stable",
+    ).reset_index(drop=True)
     pairs["outcome_group"] = pairs["outcome_group"].fillna("")
+    family = studies["design"].map(lambda d: DESIGNS[d][0] if d in DESIGNS else None)
     fam = (
-        studies.assign(design_family=studies["design_family"].fillna("unknown"))
+        studies.assign(design_family=family.fillna("unknown"))
         .groupby("design_family")
         .size()
         .rename("studies")

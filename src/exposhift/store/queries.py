@@ -20,7 +20,7 @@ ST, EV, ES = Study.__table__, Event.__table__, Estimate.__table__
 EX, OU, AP = Exposure.__table__, Outcome.__table__, Appraisal.__table__
 
 
-def _consensus_levels(conn: Connection) -> dict[str, int]:
+def consensus_levels(conn: Connection) -> dict[str, int]:
     """Overall level of each study's appraisal of record (the consensus appraisal)."""
     stmt = (
         select(ST.c.key, AP.c.overall)
@@ -135,7 +135,7 @@ def analysis_frame(
         .astype(object)
         .where(frame["same_population_as"].notna() & (frame["same_population_as"] != ""), None)
     )
-    out = add_derived(frame, _consensus_levels(conn))
+    out = add_derived(frame, consensus_levels(conn))
     from exposhift.store.series_records import re_estimated_keys
 
     out["re_estimated"] = out["estimate_uid"].isin(re_estimated_keys(conn)).astype(bool)

@@ -29,6 +29,9 @@ DB_ENV = "EXPOSHIFT_DB"
 KEEP = 64
 #: event rows a forest plot draws at most (the heaviest; the page's table lists every event)
 FOREST_ROWS = 40
+#: events a replication timeline draws at most (the heaviest; the page's table lists every
+#: event and the page says how many are not drawn)
+TIMELINE_EVENTS = 40
 
 
 def db_target() -> str | None:
@@ -66,6 +69,8 @@ def clear() -> None:
     """Forget cached results and the shared snapshot (the store connection is kept)."""
     st.cache_data.clear()
     _snapshot.clear()
+    for shared in (_gaps, _forest, _replication_figures):
+        shared.clear()
 
 
 def stamp(db: str | None) -> tuple:
@@ -113,16 +118,18 @@ def findings(db: str | None) -> pd.DataFrame:
 
 @st.cache_data(**CACHE)
 def _studies(db: str | None, key: tuple) -> pd.DataFrame:
-    return browse.list_studies(_store(db), snapshot(db, key))
+    return browse.list_studies(_store(db))
 
 
 def studies(db: str | None) -> pd.DataFrame:
+    """One row per study, joined and counted by the database (no snapshot: the study list
+    and the writing pages' study pickers do not pay for reading every estimate)."""
     return _studies(db, stamp(db))
 
 
 @st.cache_data(**CACHE)
 def _events(db: str | None, key: tuple) -> pd.DataFrame:
-    return browse.list_events(_store(db), snapshot(db, key))
+    return browse.list_events(_store(db))
 
 
 def events(db: str | None) -> pd.DataFrame:
@@ -251,11 +258,14 @@ def _replication_figures(
     family,
     min_level: int,
     focus: tuple[str, ...] | None,
+    timeline_events: int | None,
 ):
     report = _replication(db, key, exposure, outcome, expected, family)
     return (
         charts.event_map(report.events, min_level=min_level, focus=list(focus) if focus else None),
-        charts.event_timeline(report.events, report.reversals, min_level=min_level),
+        charts.event_timeline(
+            report.events, report.reversals, min_level=min_level, max_events=timeline_events
+        ),
     )
 
 
@@ -269,13 +279,19 @@ def replication_figures(
     focus: list[str] | None,
 ):
     """The map and the timeline of :func:`replication` (built once per stamp and view;
-    shared: do not modify the figures)."""
+    shared: do not modify the figures). The timeline draws at most :data:`TIMELINE_EVENTS`
+    events."""
     view = tuple(focus) if focus else None
-    return _replication_figures(db, stamp(db), exposure, outcome, expected, family, min_level, view)
+    return _replication_figures(
+        db, stamp(db), exposure, outcome, expected, family, min_level, view, TIMELINE_EVENTS
+    )
 
 
-@st.cache_data(**CACHE)
+@st.cache_resource(**CACHE)
 def _gaps(db: str | None, key: tuple, filters: replicating.GapFilters) -> replicating.GapReport:
+    """Shared, not copied (a resource: the report carries every estimate set aside, tens of
+    megabytes on a large base, which a data cache would pickle on every view; pages only read
+    it)."""
     return replicating.gap_report(_store(db), filters, snapshot=snapshot(db, key))
 
 

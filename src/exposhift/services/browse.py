@@ -19,7 +19,13 @@ from exposhift.services.setup import database_info
 from exposhift.services.snapshot import EvidenceSnapshot
 from exposhift.store.appraisals import studies_by_key
 from exposhift.store.database import Store
-from exposhift.store.overview_reads import pair_counts, studies_with_estimates
+from exposhift.store.overview_reads import (
+    STUDY_LINKS,
+    estimates_per_study,
+    pair_counts,
+    studies_with_estimates,
+    study_links,
+)
 from exposhift.store.queries import analysis_frame, events_frame
 from exposhift.synthesis.forest_rows import event_rows
 from exposhift.synthesis.independence import pooling_keys
@@ -119,10 +125,24 @@ def evidence_overview(store: Store, snapshot: EvidenceSnapshot | None = None) ->
 def list_studies(store: Store, snapshot: EvidenceSnapshot | None = None) -> pd.DataFrame:
     """One row per study: design, design family, appraisal level of record, exposures,
     outcomes, events and countries it analyses, number of estimates, demo flag. Studies without
-    an estimate are listed too (with empty exposures)."""
+    an estimate are listed too (with empty exposures). Without ``snapshot`` the database
+    joins and counts (:mod:`exposhift.store.overview_reads`: no estimate is read); with one,
+    the same from its analysis frame."""
     with store.read() as conn:
-        frame = analysis_frame(conn) if snapshot is None else snapshot.analysis
         studies = studies_by_key(conn)
+        if snapshot is None:
+            links = study_links(conn)
+            agg = estimates_per_study(conn)
+    if snapshot is not None:
+        frame = snapshot.analysis
+        links = {
+            name: frame.loc[frame[col].notna(), ["study_id", col]].drop_duplicates()
+            for name, (col, _) in STUDY_LINKS.items()
+        }
+        agg = frame.groupby("study_id", sort=True).agg(
+            estimates=("estimate_uid", "size"), level=("level", "first")
+        )
+        agg = agg.reset_index()
     base = pd.DataFrame(
         [
             {
@@ -137,24 +157,17 @@ def list_studies(store: Store, snapshot: EvidenceSnapshot | None = None) -> pd.D
         columns=["study_id", "citation", "year", "design", "demo"],
     )
 
-    def joined(col: str) -> pd.Series:
-        """Per study: the distinct values of ``col``, sorted, joined by ", " (deduplicated
-        before grouping, so each study joins a handful of strings, not one per estimate)."""
-        sub = frame.loc[frame[col].notna(), ["study_id", col]]
+    def joined(sub: pd.DataFrame) -> pd.Series:
+        """Per study: its distinct values, sorted, joined by ", " (each study joins a handful
+        of strings, not one per estimate)."""
+        col = sub.columns[1]
         sub = sub.assign(**{col: sub[col].astype(str)}).drop_duplicates()
         sub = sub.sort_values(["study_id", col], kind="stable")
         return sub.groupby("study_id", sort=True)[col].agg(", ".join)
 
-    agg = frame.groupby("study_id", sort=True).agg(
-        level=("level", "first"), estimates=("estimate_uid", "size")
-    )
-    for name, col in (
-        ("exposures", "exposure"),
-        ("outcomes", "outcome"),
-        ("events", "event_id"),
-        ("countries", "country"),
-    ):
-        agg[name] = joined(col)
+    agg = agg.set_index("study_id").sort_index()
+    for name in STUDY_LINKS:
+        agg[name] = joined(links[name])
     agg = agg.reset_index()[
         ["study_id", "level", "exposures", "outcomes", "events", "countries", "estimates"]
     ]

@@ -56,3 +56,46 @@ def studies_with_estimates(conn: Connection) -> pd.DataFrame:
     frame = select_frame(conn, stmt, ["study_id", "design", "demo"])
     frame["level"] = frame["study_id"].map(consensus_levels(conn)).astype("float64")
     return frame
+
+
+#: what a study list joins per study: the listing's column -> the column read for it
+STUDY_LINKS = {
+    "exposures": ("exposure", EX.c.name),
+    "outcomes": ("outcome", OU.c.name),
+    "events": ("event_id", EV.c.key),
+    "countries": ("country", EV.c.country),
+}
+
+
+def study_links(conn: Connection) -> dict[str, pd.DataFrame]:
+    """Per entry of :data:`STUDY_LINKS`: the distinct (``study_id``, value) pairs of the
+    studies' estimates (values that are not NULL), one small query each."""
+    out = {}
+    for name, (col, column) in STUDY_LINKS.items():
+        stmt = (
+            select(ST.c.key, column)
+            .distinct()
+            .select_from(ES)
+            .join(ST, ES.c.study_id == ST.c.id)
+            .join(EV, ES.c.event_id == EV.c.id)
+            .join(EX, EV.c.exposure_id == EX.c.id)
+            .join(OU, ES.c.outcome_id == OU.c.id)
+            .where(column.is_not(None))
+        )
+        out[name] = select_frame(conn, stmt, ["study_id", col])
+    return out
+
+
+def estimates_per_study(conn: Connection) -> pd.DataFrame:
+    """``study_id`` and ``estimates`` (how many) of every study with at least one estimate,
+    with its ``level`` of record (NaN without a consensus appraisal)."""
+    stmt = (
+        select(ST.c.key, func.count())
+        .select_from(ES)
+        .join(ST, ES.c.study_id == ST.c.id)
+        .group_by(ST.c.key)
+    )
+    frame = select_frame(conn, stmt, ["study_id", "estimates"])
+    frame["estimates"] = frame["estimates"].astype("int64")
+    frame["level"] = frame["study_id"].map(consensus_levels(conn)).astype("float64")
+    return frame

@@ -18,12 +18,12 @@ import math
 from pathlib import Path
 from typing import Any
 
+import chart_caps
 import numpy as np
 import pandas as pd
 import plotly.graph_objects as go
 import pycountry
 
-import chart_caps
 from exposhift import mapdata
 from exposhift.synthesis.harmonise import GROUP_SCALES
 

@@ -26,7 +26,7 @@ from exposhift.store.overview_reads import (
     studies_with_estimates,
     study_links,
 )
-from exposhift.store.queries import analysis_frame, events_frame
+from exposhift.store.queries import events_frame
 from exposhift.synthesis.forest_rows import event_rows
 from exposhift.synthesis.independence import pooling_keys
 from exposhift.vocab import DESIGNS

@@ -86,9 +86,10 @@ FRAME_COLUMNS = (
 
 
 def _frame(conn: Connection, stmt, names: list[str], ids: set | None = None) -> pd.DataFrame:
-    """Rows of ``stmt`` as a DataFrame with ``names`` (read through the driver cursor,
-    :func:`~exposhift.store.cursor_frames.select_frame`); with ``ids``, only rows whose first value is in it, so
-    each column's type is inferred from the rows used, as a one-query join would."""
+    """Rows of ``stmt`` as a DataFrame with ``names`` (read through the driver cursor:
+    :func:`~exposhift.store.cursor_frames.select_frame`); with ``ids``, only rows whose first
+    value is in it, so each column's type is inferred from the rows used, as a one-query join
+    would."""
     return select_frame(conn, stmt, names, ids)
 
 

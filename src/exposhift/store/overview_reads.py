@@ -12,11 +12,7 @@ import pandas as pd
 from sqlalchemy import Connection, func, select
 
 from exposhift.store.cursor_frames import select_frame
-from exposhift.store.models import Estimate, Event, Exposure, Outcome, Study
-from exposhift.store.queries import consensus_levels
-
-ST, EV, ES = Study.__table__, Event.__table__, Estimate.__table__
-EX, OU = Exposure.__table__, Outcome.__table__
+from exposhift.store.queries import ES, EV, EX, OU, ST, consensus_levels
 
 PAIR_COLUMNS = ["exposure", "outcome", "outcome_group", "studies", "events", "estimates"]
 

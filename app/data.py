@@ -24,6 +24,13 @@ from exposhift.services import summary as summary_service
 from exposhift.services.snapshot import EvidenceSnapshot, take_snapshot
 from exposhift.store.database import Store, mask_url, resolve_url
 
+# Text columns held in Python objects rather than Arrow buffers. Both are pandas' ``str`` dtype
+# with the same values and semantics (missing is NaN); on a large base the dashboard's shared
+# frames are filtered, merged and re-indexed many times, which costs an Arrow copy of every
+# string each time, and the first view of a page about half as much CPU with Python storage
+# (benchmarks/bench_dashboard.py). Set before any frame is built; the CLI keeps the default.
+pd.set_option("mode.string_storage", "python")
+
 DB_ENV = "EXPOSHIFT_DB"
 #: cached results kept per function (older data versions fall out first)
 KEEP = 64

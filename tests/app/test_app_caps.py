@@ -186,3 +186,26 @@ def test_timeline_events_rule():
     assert (two.events, two.drawn, two.left_out) == (4, 2, 2)
     # an event without a standard error comes last
     assert sorted(chart_caps.timeline_events(ev, 3).rows["event_id"]) == ["A", "C", "D"]
+
+
+@pytest.mark.parametrize(
+    ("page", "snapshots"),
+    [("series", 0), ("upload", 0), ("appraise", 0), ("records", 0), ("downloads", 0)]
+    + [("overview", 1)],  # the control: a page that analyses reads every estimate once
+)
+def test_pages_that_only_count_never_read_every_estimate(big_db, monkeypatch, page, snapshots):
+    """These pages show the summary and the study list (counted by the database): a cold
+    first view takes no snapshot (the one read of every estimate)."""
+    monkeypatch.setenv("EXPOSHIFT_DB", big_db)
+    app = AppTest.from_file(str(ENTRY), default_timeout=120)
+    app.switch_page(f"views/{page}.py")
+    app.run()  # imports the dashboard's modules
+    data = sys.modules["data"]
+    reads = []
+    real = data.take_snapshot
+    monkeypatch.setattr(data, "take_snapshot", lambda store: reads.append(1) or real(store))
+    data.clear()
+    app.run()
+    assert not app.exception, [e.value for e in app.exception]
+    assert app.title and not app.title[0].value.startswith("Sign in")
+    assert len(reads) == snapshots

@@ -44,7 +44,11 @@ with tab_studies:
         mask &= shown["level"].isin(lvl_pick)
     if text:
         cols = ["study_id", "citation", "countries", "outcomes", "events"]
-        hay = shown[cols[0]].astype(str).str.cat([shown[c].astype(str) for c in cols[1:]], sep=" ")
+        hay = (
+            shown[cols[0]]
+            .astype(str)
+            .str.cat([shown[c].astype(str) for c in cols[1:]], sep=" ", na_rep="")
+        )
         mask &= hay.str.lower().str.contains(text.lower(), regex=False)
     shown = shown[mask]
     st.caption(f"{len(shown):,} of {len(studies):,} studies")

@@ -27,8 +27,9 @@ from exposhift.store.database import Store, mask_url, resolve_url
 # Text columns held in Python objects rather than Arrow buffers. Both are pandas' ``str`` dtype
 # with the same values and semantics (missing is NaN); on a large base the dashboard's shared
 # frames are filtered, merged and re-indexed many times, which costs an Arrow copy of every
-# string each time, and the first view of a page about half as much CPU with Python storage
-# (benchmarks/bench_dashboard.py). Set before any frame is built; the CLI keeps the default.
+# string each time (measured on 100,000 estimates: the independence step takes about half the
+# CPU with Python storage, the read of the analysis frame about a tenth less). Set before any
+# frame is built; the CLI keeps the default.
 pd.set_option("mode.string_storage", "python")
 
 DB_ENV = "EXPOSHIFT_DB"

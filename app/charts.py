@@ -18,6 +18,7 @@ import math
 from pathlib import Path
 from typing import Any
 
+import chart_caps
 import numpy as np
 import pandas as pd
 import plotly.graph_objects as go
@@ -646,16 +647,21 @@ def outcome_moves(events: pd.DataFrame) -> np.ndarray:
 
 
 def event_timeline(
-    events: pd.DataFrame, reversals: list[dict] | None = None, *, min_level: int = 2
+    events: pd.DataFrame,
+    reversals: list[dict] | None = None,
+    *,
+    min_level: int = 2,
+    max_events: int | None = None,
 ) -> go.Figure:
     """Events by change date per country: ▲/▼ = the exposure rose/fell, red/blue = the
     estimate aligned to an exposure increase says the outcome rises/falls with exposure (the
     map's colours; whether the outcome rose or fell after the change is in the hover), open =
     level below ``min_level``; events of one country joined in order, reversals
-    (``ReplicationReport.reversals``) marked with an arrow."""
-    ev = events
-    if "represents_event" in ev.columns:
-        ev = ev[ev["represents_event"].astype(bool)]
+    (``ReplicationReport.reversals``) marked with an arrow. At most ``max_events`` events
+    (the heaviest: :func:`chart_caps.timeline_events`); the title says how many are not
+    drawn."""
+    drawn = chart_caps.timeline_events(events, max_events)
+    ev = drawn.rows
     if ev.empty:
         return empty_figure("no independent events")
     ev = ev.assign(
@@ -766,10 +772,25 @@ def event_timeline(
         categoryorder="array", categoryarray=order[::-1], showgrid=True, gridcolor="#eeeeee"
     )
     fig.update_xaxes(title="date of the exposure change", gridcolor="#eeeeee")
+    if drawn.left_out:
+        fig.add_annotation(
+            text=f"{drawn.drawn} of {drawn.events} events drawn (the heaviest: smallest "
+            f"standard error); {drawn.left_out} more not drawn: see the table of independent "
+            "events",
+            xref="paper",
+            yref="paper",
+            x=0,
+            y=0,
+            xanchor="left",
+            yanchor="top",
+            yshift=-48,
+            showarrow=False,
+            font=dict(size=12, color="#444444"),
+        )
     fig.update_layout(
-        height=max(260, 150 + 55 * len(order)),
+        height=max(260, 150 + 55 * len(order)) + (30 if drawn.left_out else 0),
         plot_bgcolor="white",
-        margin=dict(l=10, r=10, t=30, b=40),
+        margin=dict(l=10, r=10, t=30, b=70 if drawn.left_out else 40),
         font=FONT,
         legend=dict(orientation="h", y=1.02, yanchor="bottom", x=0),
     )

@@ -97,6 +97,50 @@ def pick(
     return st.selectbox(label, options, index=index, key=key, help=help)
 
 
+#: choices a picker lists at most (a selectbox of thousands of studies is sent to the browser
+#: whole and cannot be read; the rest are reached by narrowing the search)
+PICK_LIMIT = 200
+
+
+def pick_capped(
+    label: str,
+    options: list[str],
+    key: str,
+    *,
+    limit: int | None = None,
+    noun: str = "choices",
+    narrow: str = "narrow the search",
+    help: str | None = None,
+    param: str | None = None,
+) -> str:
+    """:func:`pick` over the first ``limit`` (default :data:`PICK_LIMIT`) of ``options``; when
+    there are more, a caption says how many are not listed and how to reach them. A choice
+    asked for in the address (``param``) is kept listed even beyond the limit."""
+    limit = PICK_LIMIT if limit is None else limit
+    listed = list(options[:limit])
+    wanted = st.query_params.get(param) if param else None
+    if wanted in options and wanted not in listed:
+        listed.append(wanted)
+    more = len(options) - len(listed)
+    chosen = pick(label, listed, key=key, help=help, param=param)
+    if more > 0:
+        st.caption(
+            f"The first {len(listed):,} of {len(options):,} {noun} are listed: "
+            f"{more:,} more, {narrow}."
+        )
+    return chosen
+
+
+def search_options(options: list[str], text: str, haystack: list[str] | None = None) -> list[str]:
+    """The options whose text (``haystack``, default the options themselves) contains
+    ``text``, case-insensitively, in their order (all of them for an empty search)."""
+    needle = text.strip().lower()
+    if not needle:
+        return list(options)
+    hay = options if haystack is None else haystack
+    return [o for o, h in zip(options, hay, strict=True) if needle in str(h).lower()]
+
+
 # ----------------------------------------------------------------------------- tables
 #: rows shown per page of a table (a table of 100,000 rows is sent one page at a time)
 PAGE_ROWS = 50

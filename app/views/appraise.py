@@ -23,7 +23,15 @@ with ui.guard():
     studies = data.studies(db)
 
 person = forms.me()
-study = ui.pick("Study", studies["study_id"].tolist(), key="appraise_study", param="study")
+found = ui.search_options(
+    studies["study_id"].tolist(),
+    st.text_input("Search studies (key or citation)", key="appraise_search"),
+    (studies["study_id"] + " " + studies["citation"].fillna("")).tolist(),
+)
+if not found:
+    st.info("No study matches this search.")
+    st.stop()
+study = ui.pick_capped("Study", found, key="appraise_study", param="study", noun="matching studies")
 with ui.guard():
     form = af.appraisal_form(forms.store(), study, person.name)
 st.markdown(

@@ -2,6 +2,7 @@
 evaluated, whether its effect pointed the same way, and whether designs agree."""
 
 import certainty_panel
+import chart_caps
 import charts
 import method_view
 import pandas as pd
@@ -147,6 +148,13 @@ if sign.get("n"):
 # 4. time: timeline --------------------------------------------------------------------------
 st.subheader("When: events by date, per country")
 st.plotly_chart(timeline, config=charts.PLOTLY_CONFIG, key="rep_timeline")
+drawn = chart_caps.timeline_events(ev, data.TIMELINE_EVENTS)
+if drawn.left_out:
+    st.caption(
+        f"The timeline draws the {drawn.drawn} heaviest of the {drawn.events} independent "
+        f"events (smallest standard error, then the most recent); **{drawn.left_out} more are "
+        "not drawn**. Every event is in the table of independent events below."
+    )
 for seq in report.temporal:
     mark = "replicated in time" if seq["replicated"] else "not replicated in time"
     st.markdown(

@@ -43,8 +43,13 @@ with tab_studies:
     if lvl_pick:
         mask &= shown["level"].isin(lvl_pick)
     if text:
-        hay = shown[["study_id", "citation", "countries", "outcomes", "events"]].astype(str)
-        mask &= hay.apply(lambda r: text.lower() in " ".join(r).lower(), axis=1)
+        cols = ["study_id", "citation", "countries", "outcomes", "events"]
+        hay = (
+            shown[cols[0]]
+            .astype(str)
+            .str.cat([shown[c].astype(str) for c in cols[1:]], sep=" ", na_rep="")
+        )
+        mask &= hay.str.lower().str.contains(text.lower(), regex=False)
     shown = shown[mask]
     st.caption(f"{len(shown):,} of {len(studies):,} studies")
     ui.table(
@@ -65,11 +70,14 @@ with tab_studies:
     if shown.empty:
         st.info("No study matches these filters.")
     else:
-        study = ui.pick(
+        study = ui.pick_capped(
             "Study",
             shown["study_id"].tolist(),
             key="studies_pick",
-            help="Type to search: every study that matches the filters above.",
+            noun="matching studies",
+            narrow="narrow the filters or the search above",
+            help="Type to search the studies listed; the filters and the search above "
+            "choose which studies are listed.",
         )
         with ui.guard():
             view = data.appraisals(db, study, viewer)

@@ -39,7 +39,7 @@ from exposhift.errors import AnalysisError
 from exposhift.replication.settings import DEFAULTS, ReplicationSettings
 from exposhift.synthesis.events import aggregate_within_event
 from exposhift.synthesis.harmonise import harmonise
-from exposhift.synthesis.independence import select_independent
+from exposhift.synthesis.independence import keep_independent, select_independent
 
 DEFAULT_BY: tuple[str, ...] = ("exposure", "outcome")
 
@@ -280,6 +280,14 @@ def independent_units(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
         empty = frame.assign(y=np.nan, v=np.nan, measure_group="", sign_flipped=False)
         return empty, empty.assign(reason="")
     return select_independent(harmonise(frame, align_to="increase"))
+
+
+def independent_kept(frame: pd.DataFrame) -> pd.DataFrame:
+    """The ``units`` of :func:`independent_units` alone (the same rows), without writing a
+    reason for every estimate set aside."""
+    if frame.empty:
+        return independent_units(frame)[0]
+    return keep_independent(harmonise(frame, align_to="increase"))
 
 
 def grouped_join(

@@ -19,7 +19,14 @@ from exposhift.services.setup import database_info
 from exposhift.services.snapshot import EvidenceSnapshot
 from exposhift.store.appraisals import studies_by_key
 from exposhift.store.database import Store
-from exposhift.store.queries import analysis_frame, events_frame
+from exposhift.store.overview_reads import (
+    STUDY_LINKS,
+    estimates_per_study,
+    pair_counts,
+    studies_with_estimates,
+    study_links,
+)
+from exposhift.store.queries import events_frame
 from exposhift.synthesis.forest_rows import event_rows
 from exposhift.synthesis.independence import pooling_keys
 from exposhift.vocab import DESIGNS
@@ -64,34 +71,23 @@ def _level_text(level: float) -> str:
 
 def evidence_overview(store: Store, snapshot: EvidenceSnapshot | None = None) -> EvidenceOverview:
     """Counts, demo flags, exposure × outcome pairs with evidence, studies per design family
-    (from ``snapshot`` when given: :mod:`exposhift.services.snapshot`)."""
+    and per level of record. Counted by the database (:mod:`exposhift.store.overview_reads`):
+    no estimate is read, so every page can show it on a large evidence base. ``snapshot``
+    gives the registered events when the caller holds one."""
     info = database_info(store.url)
-    if snapshot is not None:
-        frame, events = snapshot.analysis, snapshot.events
-    else:
-        with store.read() as conn:
-            frame = analysis_frame(conn)
-            events = events_frame(conn)
-    studies = frame.drop_duplicates("study_id")
-    pairs = (
-        frame.groupby(["exposure", "outcome"], sort=True)
-        .agg(
-            outcome_group=("outcome_group", "first"),
-            studies=("study_id", "nunique"),
-            events=("event_id", "nunique"),
-            estimates=("estimate_uid", "size"),
-        )
-        .reset_index()
-        .sort_values(
-            ["studies", "events", "exposure", "outcome"],
-            ascending=[False, False, True, True],
-            kind="stable",
-        )
-        .reset_index(drop=True)
-    )
+    with store.read() as conn:
+        pairs = pair_counts(conn)
+        studies = studies_with_estimates(conn)
+        events = events_frame(conn) if snapshot is None else snapshot.events
+    pairs = pairs.sort_values(
+        ["studies", "events", "exposure", "outcome"],
+        ascending=[False, False, True, True],
+        kind="stable",
+    ).reset_index(drop=True)
     pairs["outcome_group"] = pairs["outcome_group"].fillna("")
+    family = studies["design"].map(lambda d: DESIGNS[d][0] if d in DESIGNS else None)
     fam = (
-        studies.assign(design_family=studies["design_family"].fillna("unknown"))
+        studies.assign(design_family=family.fillna("unknown"))
         .groupby("design_family")
         .size()
         .rename("studies")
@@ -129,10 +125,24 @@ def evidence_overview(store: Store, snapshot: EvidenceSnapshot | None = None) ->
 def list_studies(store: Store, snapshot: EvidenceSnapshot | None = None) -> pd.DataFrame:
     """One row per study: design, design family, appraisal level of record, exposures,
     outcomes, events and countries it analyses, number of estimates, demo flag. Studies without
-    an estimate are listed too (with empty exposures)."""
+    an estimate are listed too (with empty exposures). Without ``snapshot`` the database
+    joins and counts (:mod:`exposhift.store.overview_reads`: no estimate is read); with one,
+    the same from its analysis frame."""
     with store.read() as conn:
-        frame = analysis_frame(conn) if snapshot is None else snapshot.analysis
         studies = studies_by_key(conn)
+        if snapshot is None:
+            links = study_links(conn)
+            agg = estimates_per_study(conn)
+    if snapshot is not None:
+        frame = snapshot.analysis
+        links = {
+            name: frame.loc[frame[col].notna(), ["study_id", col]].drop_duplicates()
+            for name, (col, _) in STUDY_LINKS.items()
+        }
+        agg = frame.groupby("study_id", sort=True).agg(
+            estimates=("estimate_uid", "size"), level=("level", "first")
+        )
+        agg = agg.reset_index()
     base = pd.DataFrame(
         [
             {
@@ -147,24 +157,17 @@ def list_studies(store: Store, snapshot: EvidenceSnapshot | None = None) -> pd.D
         columns=["study_id", "citation", "year", "design", "demo"],
     )
 
-    def joined(col: str) -> pd.Series:
-        """Per study: the distinct values of ``col``, sorted, joined by ", " (deduplicated
-        before grouping, so each study joins a handful of strings, not one per estimate)."""
-        sub = frame.loc[frame[col].notna(), ["study_id", col]]
+    def joined(sub: pd.DataFrame) -> pd.Series:
+        """Per study: its distinct values, sorted, joined by ", " (each study joins a handful
+        of strings, not one per estimate)."""
+        col = sub.columns[1]
         sub = sub.assign(**{col: sub[col].astype(str)}).drop_duplicates()
         sub = sub.sort_values(["study_id", col], kind="stable")
         return sub.groupby("study_id", sort=True)[col].agg(", ".join)
 
-    agg = frame.groupby("study_id", sort=True).agg(
-        level=("level", "first"), estimates=("estimate_uid", "size")
-    )
-    for name, col in (
-        ("exposures", "exposure"),
-        ("outcomes", "outcome"),
-        ("events", "event_id"),
-        ("countries", "country"),
-    ):
-        agg[name] = joined(col)
+    agg = agg.set_index("study_id").sort_index()
+    for name in STUDY_LINKS:
+        agg[name] = joined(links[name])
     agg = agg.reset_index()[
         ["study_id", "level", "exposures", "outcomes", "events", "countries", "estimates"]
     ]

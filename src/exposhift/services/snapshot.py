@@ -10,7 +10,9 @@ and every view computed from it rests on the same records.
 The frames are shared, never copied per view: the services that take a snapshot read from it
 and build new frames (filters, ``assign``, ``copy``); nothing here or there writes into it. The
 pieces derived from the whole base that two views need (the independent units of the
-replication analysis: summary and gap map) are computed once, on first use.
+replication analysis: summary and gap map) are computed once, on first use; the summary asks
+only for the units (:attr:`EvidenceSnapshot.units`), not for the reason each estimate set
+aside was set aside.
 """
 
 from __future__ import annotations
@@ -49,6 +51,16 @@ class EvidenceSnapshot:
         from exposhift.replication.families import independent_units
 
         return independent_units(self.analysis)
+
+    @functools.cached_property
+    def units(self) -> pd.DataFrame:
+        """The independent units of :attr:`independent` alone (the same rows), for views that
+        do not list the estimates set aside: computed without writing a reason for each."""
+        if "independent" in self.__dict__:
+            return self.independent[0]
+        from exposhift.replication.families import independent_kept
+
+        return independent_kept(self.analysis)
 
 
 def take_snapshot(store: Store) -> EvidenceSnapshot:

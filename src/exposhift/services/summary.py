@@ -13,7 +13,7 @@ import numpy as np
 import pandas as pd
 
 from exposhift.replication import replication_statuses
-from exposhift.replication.families import independent_units
+from exposhift.replication.families import independent_kept
 from exposhift.replication.settings import ReplicationSettings
 from exposhift.services.pooling import CAUTION
 from exposhift.services.snapshot import EvidenceSnapshot
@@ -73,7 +73,7 @@ def evidence_summary(
                 directions = directions_frame(conn)
     if frame.empty:
         return pd.DataFrame(columns=COLUMNS)
-    units, _ = independent_units(frame) if snapshot is None else snapshot.independent
+    units = independent_kept(frame) if snapshot is None else snapshot.units
     st = replication_statuses(units, settings=s, directions=directions)
     out = st.rename(
         columns={

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 from sqlalchemy import Connection, select
 
+from exposhift.store.cursor_frames import select_frame
 from exposhift.store.models import Appraisal, Estimate, Event, Exposure, Outcome, Study
 from exposhift.vocab import DESIGNS
 
@@ -19,7 +20,7 @@ ST, EV, ES = Study.__table__, Event.__table__, Estimate.__table__
 EX, OU, AP = Exposure.__table__, Outcome.__table__, Appraisal.__table__
 
 
-def _consensus_levels(conn: Connection) -> dict[str, int]:
+def consensus_levels(conn: Connection) -> dict[str, int]:
     """Overall level of each study's appraisal of record (the consensus appraisal)."""
     stmt = (
         select(ST.c.key, AP.c.overall)
@@ -85,13 +86,11 @@ FRAME_COLUMNS = (
 
 
 def _frame(conn: Connection, stmt, names: list[str], ids: set | None = None) -> pd.DataFrame:
-    """Rows of ``stmt`` as a DataFrame with ``names`` (tuples, not mappings: one object per
-    cell instead of one dict per row); with ``ids``, only rows whose first value is in it, so
-    each column's type is inferred from the rows used, as a one-query join would."""
-    rows = [tuple(r) for r in conn.execute(stmt).all()]  # plain tuples: no key lookups
-    if ids is not None:
-        rows = [r for r in rows if r[0] in ids]
-    return pd.DataFrame.from_records(rows, columns=names)
+    """Rows of ``stmt`` as a DataFrame with ``names`` (read through the driver cursor:
+    :func:`~exposhift.store.cursor_frames.select_frame`); with ``ids``, only rows whose first
+    value is in it, so each column's type is inferred from the rows used, as a one-query join
+    would."""
+    return select_frame(conn, stmt, names, ids)
 
 
 def analysis_frame(
@@ -137,7 +136,7 @@ def analysis_frame(
         .astype(object)
         .where(frame["same_population_as"].notna() & (frame["same_population_as"] != ""), None)
     )
-    out = add_derived(frame, _consensus_levels(conn))
+    out = add_derived(frame, consensus_levels(conn))
     from exposhift.store.series_records import re_estimated_keys
 
     out["re_estimated"] = out["estimate_uid"].isin(re_estimated_keys(conn)).astype(bool)

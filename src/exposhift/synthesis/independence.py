@@ -58,7 +58,16 @@ def _flag(s: pd.Series) -> np.ndarray:
     return np.isin(np.char.lower(_clean_text(s).astype(str)), list(_TRUE))
 
 
-def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
+def keep_independent(frame: pd.DataFrame) -> pd.DataFrame:
+    """The ``kept`` frame of :func:`select_independent` (the same rows, by the same code),
+    without writing the reason for each estimate left out: for views that show only the
+    units (on a large base the reasons are tens of thousands of sentences)."""
+    return select_independent(frame, explain=False)[0]
+
+
+def select_independent(
+    frame: pd.DataFrame, *, explain: bool = True
+) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Keep one estimate per :data:`UNIT_KEYS` combination; return ``(kept, excluded)``.
 
     Preference, in order: the ``primary`` flag; an estimate as published over one
@@ -68,7 +77,8 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
     (blank ``subgroup``) over a subgroup; the smaller variance ``v``; then ``estimate_uid`` and
     ``study_id`` (alphabetical) so the choice never depends on row order. Both frames keep the
     input index and columns; ``excluded`` adds ``kept_estimate`` and ``reason`` (in words).
-    Needs a harmonised frame (``measure_group``, ``estimate_kind``).
+    Needs a harmonised frame (``measure_group``, ``estimate_kind``). ``explain=False``
+    (:func:`keep_independent`): ``excluded`` is left empty and no reason is written.
     """
     required = [c for c in UNIT_KEYS if c not in OPTIONAL_UNIT_KEYS]
     missing = [c for c in required if c not in frame.columns]
@@ -151,6 +161,11 @@ def select_independent(frame: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]
     is_kept = np.zeros(n, dtype=bool)
     is_kept[kept_pos] = True
 
+    if not explain:
+        ex = frame.iloc[0:0].copy()
+        ex["kept_estimate"] = pd.Series(dtype=object)
+        ex["reason"] = pd.Series(dtype=object)
+        return frame.iloc[np.flatnonzero(is_kept)].copy(), ex
     ex_pos = np.flatnonzero(~is_kept)
     kp = best_of_unit[unit[ex_pos]]
     event = keys["event_id"]

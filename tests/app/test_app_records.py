@@ -70,7 +70,7 @@ def test_every_problem_of_a_bad_form_is_shown_and_nothing_written(db):
     audit = count(db, "audit_entry")
     at = _save(at)
     problems = _problems(at)
-    found = set(zip(problems["where"], problems["field"], strict=True))
+    found = set(zip(problems["where"], problems["sheet column"], strict=True))
     assert {
         ("estimate row 1", "year"),
         ("estimate row 1", "design"),
@@ -100,7 +100,7 @@ def test_a_stale_edit_is_refused_with_the_other_change_shown(db):
     at = _save(at)
     assert any("someone else changed this record" in e.value for e in at.error)
     theirs_table = frame_with(at, "their value")
-    row = theirs_table[theirs_table["field"] == "comparison"].iloc[0]
+    row = theirs_table[theirs_table["sheet column"] == "comparison"].iloc[0]
     assert row["who"] == "bob" and row["their value"] == "states that banned it later (bob)"
     assert sql(db, "select comparison from study where key = ?", STUDY) == [
         ("states that banned it later (bob)",)
@@ -167,7 +167,7 @@ def test_a_bad_event_lists_every_problem(db):
         open_page("records", "ann"),
         dict(EVENT, change_kind="closure?", change_direction="down", change_date="2011-13"),
     )
-    fields = set(_problems(at)["field"])
+    fields = set(_problems(at)["sheet column"])
     assert {"change_kind", "change_direction", "change_date"} <= fields
     assert count(db, "audit_entry") == before
 

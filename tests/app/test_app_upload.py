@@ -76,7 +76,7 @@ def test_a_sheet_with_errors_lists_every_problem_and_writes_nothing(db):
     before = _counts(db)
     at = _upload(open_page("upload", "carol"), "bad-sheet.csv", buf.getvalue().encode())
     problems = _problem_table(at)
-    found = set(zip(problems["where"], problems["field"], strict=True))
+    found = set(zip(problems["where"], problems["sheet column"], strict=True))
     assert {
         ("row 2", "year"),
         ("row 3", "design"),

@@ -196,3 +196,23 @@ def test_a_reader_gets_no_working_controls(db, monkeypatch):
     assert at.text_input(key=P + "s_population").disabled
     assert button(at, "Register the event").disabled
     assert "needs the editor role" in texts(at)
+
+
+def test_history_names_records_by_their_keys_not_their_ids(db):
+    """An estimate's insert entry names its study and event by key (read back with sqlite3),
+    never by the integer ids the audit entry stores."""
+    at = open_page("records", "ann")
+    at.selectbox(key="history_key").set_value(STUDY)
+    at.run()
+    trail = next(d.value for d in at.dataframe if "record type" in d.value.columns)
+    ((event, study_id, event_id),) = sql(
+        db,
+        "select v.key, e.study_id, e.event_id from estimate e join event v on v.id = e.event_id "
+        "join study s on s.id = e.study_id where s.key = ?",
+        STUDY,
+    )
+    inserted = trail[(trail["record type"] == "estimate") & (trail["action"] == "insert")]
+    change = inserted["change"].iloc[0]
+    assert f"Event key: {event}" in change and f"Study key: {STUDY}" in change
+    assert f"event_id: {event_id}" not in change and f"study_id: {study_id}" not in change
+    assert "Lower CI limit" in change or "Estimate: " in change  # fields by their labels

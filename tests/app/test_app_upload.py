@@ -144,6 +144,7 @@ def test_a_changed_record_is_listed_with_its_fields(db, demo_store):
     changed = listed[listed["status"] == "changed"]
     assert changed["record"].tolist() == [first]
     assert "an invented correction" in changed["fields"].iloc[0]
+    assert changed["fields"].iloc[0].startswith("Population: ")  # the field by its label
 
 
 def test_a_reader_gets_no_upload_control(db, monkeypatch):

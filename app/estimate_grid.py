@@ -31,8 +31,7 @@ def _digest(frame: pd.DataFrame) -> str:
 
 def _config() -> dict:
     config = {
-        c: st.column_config.TextColumn(label(c), help=help_text(c), width="small")
-        for c in GRID_COLUMNS
+        c: st.column_config.TextColumn(label(c), help=help_text(c)) for c in GRID_COLUMNS
     }
     config["_index"] = st.column_config.NumberColumn(
         "row", help="The grid row named in problems", disabled=True
@@ -94,6 +93,7 @@ def show(studies: pd.DataFrame) -> None:
         grid,
         key=f"grid_{choice}_{gen}",
         num_rows="add",
+        hide_index=False,
         column_config=_config(),
         placeholder=ui.EMPTY,
         width="stretch",

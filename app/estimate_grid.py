@@ -30,9 +30,7 @@ def _digest(frame: pd.DataFrame) -> str:
 
 
 def _config() -> dict:
-    config = {
-        c: st.column_config.TextColumn(label(c), help=help_text(c)) for c in GRID_COLUMNS
-    }
+    config = {c: st.column_config.TextColumn(label(c), help=help_text(c)) for c in GRID_COLUMNS}
     config["_index"] = st.column_config.NumberColumn(
         "row", help="The grid row named in problems", disabled=True
     )

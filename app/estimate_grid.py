@@ -80,8 +80,9 @@ def show(studies: pd.DataFrame) -> None:
     st.caption(
         f"{len(draft.estimates)} estimates of study `{choice}` (study version {v}); each row "
         "is one row of the extraction sheet. Correct cells or add rows at the bottom (a new "
-        "row is numbered on from the last one in the check), then check. A row someone else saves before you is refused with both versions shown; "
-        "nothing of the grid is written then. The grid does not delete estimates, nor change "
+        "row is numbered on from the last one in the check), then check. A row someone else "
+        "saves before you is refused with both versions shown; nothing of the grid is written "
+        "then. The grid does not delete estimates, nor change "
         "an estimate's key cells (event, outcome, measure, kind, subgroup, time window): add "
         "a new row instead."
     )

@@ -10,6 +10,7 @@ import streamlit as st
 
 import data
 from exposhift.errors import InputFileError
+from exposhift.io import column_labels
 from exposhift.io.columns import BY_NAME
 from exposhift.services.setup import open_current
 
@@ -62,10 +63,12 @@ def section(column: str | None) -> str:
 
 #: problems listed on a page (all are counted)
 SHOWN = 200
+PROBLEM_COLUMNS = ["file", "where", "field", "sheet column", "problem"]
 
 
 def problems(exc: InputFileError, row_word: str = "row", key: str | None = None) -> None:
-    """Every problem of a refused input, in one table (where, field, what to do)."""
+    """Every problem of a refused input, in one table (where, field by its label, the sheet's
+    column name, what to do)."""
     n = len(exc.problems)
     st.error(f"**{n} problem{'s' if n != 1 else ''} found; nothing was written.**")
     frame = pd.DataFrame(
@@ -73,37 +76,43 @@ def problems(exc: InputFileError, row_word: str = "row", key: str | None = None)
             {
                 "file": p.file,
                 "where": where(p, row_word),
-                "field": p.column or "",
+                "field": column_labels.LABELS.get(p.column or "", p.column or ""),
+                "sheet column": p.column or "",
                 "problem": p.message,
             }
             for p in exc.problems[:SHOWN]
         ],
-        columns=["file", "where", "field", "problem"],
+        columns=PROBLEM_COLUMNS,
     )
     st.table(frame.set_index("where"))
     if n > SHOWN:
         st.caption(f"… and {n - SHOWN} more; correct these and check again.")
 
 
-def conflict(exc) -> None:
-    """A stale edit: the other person's change from the audit trail, beside the stored values."""
+def conflict(exc, yours: dict[str, dict[str, str]] | None = None) -> None:
+    """A stale edit: the other person's change from the audit trail, beside the values the
+    edit was based on and (``yours``: record key -> stored field -> text) the edit's own."""
     st.error(f"**Not saved: someone else changed this record.** {exc}")
     for c in exc.conflicts:
+        mine = (yours or {}).get(c.key)
         rows = []
         for e in c.changes:
             before, after = e.get("before") or {}, e.get("after") or {}
             for f in sorted((set(before) | set(after)) - {"version"}):
-                rows.append(
-                    {
-                        "who": e["user"],
-                        "when": e["at"],
-                        "field": f,
-                        "before": "" if before.get(f) is None else str(before.get(f)),
-                        "their value": "" if after.get(f) is None else str(after.get(f)),
-                    }
-                )
+                row = {
+                    "who": e["user"],
+                    "when": e["at"],
+                    "field": column_labels.field_label(c.entity, f),
+                    "sheet column": column_labels.STORED_AS.get(c.entity, {}).get(f, f),
+                    "before": "" if before.get(f) is None else str(before.get(f)),
+                    "their value": "" if after.get(f) is None else str(after.get(f)),
+                }
+                if mine is not None:
+                    row["your value"] = mine.get(f, "")
+                rows.append(row)
+        columns = ["who", "when", "field", "sheet column", "before", "their value"]
         st.markdown(f"**{c.entity} `{c.key}`** — their change (from the audit trail):")
-        st.table(pd.DataFrame(rows, columns=["who", "when", "field", "before", "their value"]))
+        st.table(pd.DataFrame(rows, columns=columns + ([] if mine is None else ["your value"])))
 
 
 def after_write() -> None:

@@ -144,6 +144,8 @@ def search_options(options: list[str], text: str, haystack: list[str] | None = N
 # ----------------------------------------------------------------------------- tables
 #: rows shown per page of a table (a table of 100,000 rows is sent one page at a time)
 PAGE_ROWS = 50
+#: what an empty cell shows (a missing number or text: nothing, never "None" or "nan")
+EMPTY = ""
 
 
 def title_of(column: str) -> str:
@@ -186,8 +188,10 @@ def table(
     **kwargs,
 ) -> pd.DataFrame:
     """Show ``frame`` one page at a time with human titles and empty cells; returns the rows
-    shown. ``column_config`` is keyed by the *shown* titles."""
+    shown. ``column_config`` is keyed by the *shown* titles. A missing value is drawn as an
+    empty cell (``EMPTY``; Streamlit would write "None")."""
     shown = readable(paged(frame, key, per_page), titles)
+    kwargs.setdefault("placeholder", EMPTY)
     st.dataframe(
         shown,
         hide_index=True,

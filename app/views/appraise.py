@@ -154,14 +154,13 @@ with tab_mine:
             f"Your independent appraisal is in: overall level {ui.level_text(own.overall)} "
             f"(decided by `{own.decided_by}`)."
         )
-        st.dataframe(
+        ui.table(
             pd.DataFrame(
                 [
                     {"domain": d.title, "your rating": (own.ratings or {}).get(d.key)}
                     for d in form.domains
                 ]
             ),
-            hide_index=True,
             key="appraise_own",
         )
     elif form.unblinded:
@@ -233,6 +232,6 @@ with tab_agree:
         "domain, over the studies whose two independent appraisals are in. 'all domains' "
         "counts study × domain pairs; the 'overall level' row counts studies (n = studies)."
     )
-    st.dataframe(agree, hide_index=True, width="stretch", key="appraise_agreement")
+    ui.table(agree, key="appraise_agreement")
     st.caption(form.caution)
 ui.caution()

@@ -75,6 +75,7 @@ st.dataframe(
     hide_index=True,
     width="stretch",
     key="overview_findings",
+    placeholder=ui.EMPTY,
     column_config={
         "events": st.column_config.NumberColumn("independent events"),
         "stratum": st.column_config.TextColumn(

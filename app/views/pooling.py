@@ -178,11 +178,10 @@ else:
             )
         ]
     )
-    st.dataframe(
+    ui.table(
         table,
-        hide_index=True,
-        width="stretch",
         key="pool_table",
+        titles={c: c for c in table.columns},
         column_config={
             c: st.column_config.NumberColumn(format="%.3f")
             for c in ("pooled", "CI low", "CI high", "PI low", "PI high", "τ²", "Q", "Q p")
@@ -212,7 +211,7 @@ if out.excluded:
         for r in shown.itertuples(index=False):
             st.markdown(f"- **{r.study}**, event {r.event}: {r.reason}")
 else:
-    st.caption("None: every estimate of this exposure and outcome was pooled.")
+    st.caption("No estimate left out: every estimate of this exposure and outcome was pooled.")
 
 st.caption(out.caution)
 method_view.caption(db)

@@ -1,11 +1,13 @@
 """Add or correct records: a study with its events and estimates, an exposure-change event
 without a study, and the history of a record from the audit trail.
 
-The forms hold the cells of an extraction sheet and are checked by the import's own validation
+The grid tab (estimate_grid.py) edits all estimates of one study at once. The forms hold the
+cells of an extraction sheet and are checked by the import's own validation
 (same rules, same messages); a save is refused when someone else has changed a record the form
 showed, with their change shown. One service call per action (services/editing.py,
 services/history.py)."""
 
+import estimate_grid
 import forms
 import pandas as pd
 import streamlit as st
@@ -13,7 +15,8 @@ import ui
 
 import data
 from exposhift.errors import ExposhiftError, InputFileError
-from exposhift.io.columns import BY_NAME, EVENT_COLUMNS, STUDY_COLUMNS
+from exposhift.io import column_labels
+from exposhift.io.columns import EVENT_COLUMNS, STUDY_COLUMNS
 from exposhift.io.validate import EVENTS_SHEET_COLUMNS
 from exposhift.services import editing, history
 from exposhift.services.editing import StaleEditError
@@ -26,8 +29,8 @@ with ui.guard():
     studies = data.studies(db)
     events = data.events(db)
 
-tab_study, tab_event, tab_history = st.tabs(
-    ["Study, events and estimates", "Register an event", "Record history"]
+tab_study, tab_grid, tab_event, tab_history = st.tabs(
+    ["Study, events and estimates", "Estimates in a grid", "Register an event", "Record history"]
 )
 
 
@@ -40,10 +43,10 @@ def _fields(title: str, columns, shown: dict, prefix: str, may: bool, locked: se
     cols = st.columns(3)
     return {
         c: cols[i % 3].text_input(
-            c,
+            column_labels.label(c),
             value=str(shown.get(c, "") or ""),
             key=prefix + c,
-            help=BY_NAME[c].help,
+            help=column_labels.help_text(c),
             disabled=not may or c in locked,
         )
         for i, c in enumerate(columns)
@@ -124,7 +127,7 @@ with tab_study:
     ]
     if labels:
         st.markdown(f"**Estimates of this study** ({len(labels)})")
-        st.dataframe(draft.estimates, hide_index=True, width="stretch", key="records_estimates")
+        ui.table(draft.estimates, key="records_estimates", titles=column_labels.LABELS)
     pick = st.selectbox(
         "Estimate to correct or add",
         [*labels, NEW_ESTIMATE],
@@ -141,7 +144,7 @@ with tab_study:
         values = _fields("Study", STUDY_COLUMNS, draft.study, p + "s_", may, locked)
         est_values = _fields("Estimate", editing.ESTIMATE_FORM_COLUMNS, est, p + "e_", may, set())
         ev_values = _fields(
-            "Its event (an event already in the evidence base needs only its event_id above)",
+            "Its event (an event already in the evidence base needs only its event key above)",
             EVENT_COLUMNS[1:],
             ev,
             p + "v_",
@@ -176,7 +179,11 @@ with tab_study:
                 st.session_state["records_study"] = key
             st.rerun()
 
-# 2. an event with no study yet ----------------------------------------------------------------
+# 2. a study's estimates in a grid ------------------------------------------------------------
+with tab_grid:
+    estimate_grid.show(studies)
+
+# 3. an event with no study yet ----------------------------------------------------------------
 with tab_event:
     st.caption(
         "An exposure change that no study has evaluated yet: it appears in the gap map's "
@@ -188,10 +195,10 @@ with tab_event:
         ev_values = {}
         for i, c in enumerate(EVENTS_SHEET_COLUMNS):
             ev_values[c] = cols[i % 3].text_input(
-                c,
+                column_labels.label(c),
                 value="no" if c == "demo" else "",
                 key=f"event_{c}",
-                help=BY_NAME[c].help,
+                help=column_labels.help_text(c),
                 disabled=not may_event,
             )
         register = st.form_submit_button(
@@ -209,7 +216,7 @@ with tab_event:
             st.rerun()
     _show_message()
 
-# 3. history -----------------------------------------------------------------------------------
+# 4. history -----------------------------------------------------------------------------------
 with tab_history:
     keys = studies["study_id"].tolist() + sorted(events["event_id"].tolist())
     key = ui.pick("Study or event", keys, key="history_key")

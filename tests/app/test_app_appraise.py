@@ -136,7 +136,7 @@ def test_two_reviewers_then_consensus_and_agreement(db):
         STUDY,
     ) == [("chair", 1)]
     # agreement: kappa per domain against scikit-learn, overall-level row on n = studies
-    agree = next(d.value for d in at.dataframe if "kappa_linear" in d.value.columns)
+    agree = next(d.value for d in at.dataframe if "kappa linear" in d.value.columns)
     rows = sql(
         db,
         "select s.key, a.reviewer, r.level from rating r join appraisal a on a.id = "
@@ -152,7 +152,7 @@ def test_two_reviewers_then_consensus_and_agreement(db):
     )
     row = agree[agree["domain"] == "counterfactual"].iloc[0]
     assert row["n"] == len(both)
-    assert row["kappa_linear"] == pytest.approx(expected, abs=1e-9)
+    assert row["kappa linear"] == pytest.approx(expected, abs=1e-9)
     studies_with_two = sql(
         db,
         "select count(*) from (select study_id from appraisal where stage = 'independent' "

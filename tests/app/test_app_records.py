@@ -70,7 +70,7 @@ def test_every_problem_of_a_bad_form_is_shown_and_nothing_written(db):
     audit = count(db, "audit_entry")
     at = _save(at)
     problems = _problems(at)
-    found = set(zip(problems["where"], problems["field"], strict=True))
+    found = set(zip(problems["where"], problems["sheet column"], strict=True))
     assert {
         ("estimate row 1", "year"),
         ("estimate row 1", "design"),
@@ -100,7 +100,7 @@ def test_a_stale_edit_is_refused_with_the_other_change_shown(db):
     at = _save(at)
     assert any("someone else changed this record" in e.value for e in at.error)
     theirs_table = frame_with(at, "their value")
-    row = theirs_table[theirs_table["field"] == "comparison"].iloc[0]
+    row = theirs_table[theirs_table["sheet column"] == "comparison"].iloc[0]
     assert row["who"] == "bob" and row["their value"] == "states that banned it later (bob)"
     assert sql(db, "select comparison from study where key = ?", STUDY) == [
         ("states that banned it later (bob)",)
@@ -167,7 +167,7 @@ def test_a_bad_event_lists_every_problem(db):
         open_page("records", "ann"),
         dict(EVENT, change_kind="closure?", change_direction="down", change_date="2011-13"),
     )
-    fields = set(_problems(at)["field"])
+    fields = set(_problems(at)["sheet column"])
     assert {"change_kind", "change_direction", "change_date"} <= fields
     assert count(db, "audit_entry") == before
 
@@ -196,3 +196,23 @@ def test_a_reader_gets_no_working_controls(db, monkeypatch):
     assert at.text_input(key=P + "s_population").disabled
     assert button(at, "Register the event").disabled
     assert "needs the editor role" in texts(at)
+
+
+def test_history_names_records_by_their_keys_not_their_ids(db):
+    """An estimate's insert entry names its study and event by key (read back with sqlite3),
+    never by the integer ids the audit entry stores."""
+    at = open_page("records", "ann")
+    at.selectbox(key="history_key").set_value(STUDY)
+    at.run()
+    trail = next(d.value for d in at.dataframe if "record type" in d.value.columns)
+    ((event, study_id, event_id),) = sql(
+        db,
+        "select v.key, e.study_id, e.event_id from estimate e join event v on v.id = e.event_id "
+        "join study s on s.id = e.study_id where s.key = ?",
+        STUDY,
+    )
+    inserted = trail[(trail["record type"] == "estimate") & (trail["action"] == "insert")]
+    change = inserted["change"].iloc[0]
+    assert f"Event key: {event}" in change and f"Study key: {STUDY}" in change
+    assert f"event_id: {event_id}" not in change and f"study_id: {study_id}" not in change
+    assert "Lower CI limit" in change or "Estimate: " in change  # fields by their labels

@@ -76,7 +76,7 @@ def test_a_sheet_with_errors_lists_every_problem_and_writes_nothing(db):
     before = _counts(db)
     at = _upload(open_page("upload", "carol"), "bad-sheet.csv", buf.getvalue().encode())
     problems = _problem_table(at)
-    found = set(zip(problems["where"], problems["field"], strict=True))
+    found = set(zip(problems["where"], problems["sheet column"], strict=True))
     assert {
         ("row 2", "year"),
         ("row 3", "design"),
@@ -144,6 +144,7 @@ def test_a_changed_record_is_listed_with_its_fields(db, demo_store):
     changed = listed[listed["status"] == "changed"]
     assert changed["record"].tolist() == [first]
     assert "an invented correction" in changed["fields"].iloc[0]
+    assert changed["fields"].iloc[0].startswith("Population: ")  # the field by its label
 
 
 def test_a_reader_gets_no_upload_control(db, monkeypatch):

@@ -193,12 +193,16 @@ def form_sheet(
     study: dict[str, Any],
     events: pd.DataFrame,
     estimates: pd.DataFrame,
+    file: str = STUDY_FORM,
 ) -> tuple[RawSheet, dict[str, int], list[Problem]]:
-    """The form as extraction-sheet rows (row n = estimate row n of the form); the versions of
-    stored events the rows name without showing them; and the form's own problems."""
+    """The form as extraction-sheet rows (row n = estimate row n of the form, blank rows left
+    out but counted, so that a problem names the row the user sees); the versions of stored
+    events the rows name without showing them; and the form's own problems. ``file`` names
+    the form in the problems."""
     problems: list[Problem] = []
-    ests = _cells(estimates, ESTIMATE_FORM_COLUMNS)
-    ests = ests[(ests != "").any(axis=1)].reset_index(drop=True)
+    ests = _cells(estimates, ESTIMATE_FORM_COLUMNS).reset_index(drop=True)
+    kept = (ests != "").any(axis=1).to_numpy()
+    ests = ests[kept].reset_index(drop=True)
     evs = _cells(events, EVENT_COLUMNS)
     evs = evs[(evs != "").any(axis=1)].reset_index(drop=True)
     by_event = {r["event_id"]: r for r in evs.to_dict("records") if r["event_id"]}
@@ -235,7 +239,7 @@ def form_sheet(
         rows.append({**study_cells, **ev, **r, "event_id": r["event_id"]})
     columns = [*STUDY_COLUMNS, *EVENT_COLUMNS, *ESTIMATE_FORM_COLUMNS[1:]]
     frame = pd.DataFrame(rows, columns=columns).fillna("")
-    return RawSheet(STUDY_FORM, frame, np.arange(1, len(frame) + 1)), extra_versions, problems
+    return RawSheet(file, frame, np.flatnonzero(kept) + 1), extra_versions, problems
 
 
 def _form_problems(draft: StudyDraft, frames, sheet: RawSheet) -> list[Problem]:
@@ -270,7 +274,9 @@ def _form_problems(draft: StudyDraft, frames, sheet: RawSheet) -> list[Problem]:
     return problems
 
 
-def _conflicts(conn, expected: dict[str, dict[str, int]]) -> list[Conflict]:
+def conflicts_of(conn, expected: dict[str, dict[str, int]]) -> list[Conflict]:
+    """The records of ``expected`` (entity -> key -> version) that are no longer at that
+    version, each with the changes since from the audit trail and the record as stored."""
     out = []
     for entity, wanted in expected.items():
         if not wanted:
@@ -305,9 +311,13 @@ def _new_keys_taken(conn, draft: StudyDraft, frames) -> list[Conflict]:
     ]
 
 
-def _write(store: Store, frames, expected, check_new) -> dict[str, Counts]:
+def write_checked(store: Store, frames, expected, check_new) -> dict[str, Counts]:
+    """Write validated ``frames`` through the import's planning and writing, in one
+    transaction that first checks the ``expected`` versions (entity -> key -> version) and
+    ``check_new(conn)`` (more conflicts): any conflict raises :class:`StaleEditError` and
+    nothing is written."""
     with store.write() as conn:
-        conflicts = _conflicts(conn, expected) + check_new(conn)
+        conflicts = conflicts_of(conn, expected) + check_new(conn)
         if conflicts:
             raise StaleEditError(conflicts)
         plans = build_plans(conn, frames)
@@ -352,7 +362,9 @@ def save_study(
         raise InputFileError(problems)
     expected = {e: dict(v) for e, v in draft.versions.items()}
     expected.setdefault("event", {}).update(extra_versions)
-    counts = _write(acting, frames, expected, lambda conn: _new_keys_taken(conn, draft, frames))
+    counts = write_checked(
+        acting, frames, expected, lambda conn: _new_keys_taken(conn, draft, frames)
+    )
     return SaveResult(acting.user, counts, list(frames.warnings))
 
 
@@ -386,5 +398,5 @@ def register_event(store: Store, values: dict[str, Any], *, user: str | None) ->
             ]
         )
 
-    counts = _write(acting, frames, {}, taken)
+    counts = write_checked(acting, frames, {}, taken)
     return SaveResult(acting.user, counts, list(frames.warnings))

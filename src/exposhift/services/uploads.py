@@ -5,7 +5,8 @@ under their own file name to a private temporary directory and read by
 :func:`exposhift.services.importing.read_input` (signature check, input limits, validation),
 then :func:`~exposhift.services.importing.import_frames` plans (``dry_run``) or writes the
 import. The preview adds the list of records that would be added or changed, with the fields
-that change (from the import's own plan). The temporary copy is removed when the call returns.
+that change by their labels (:mod:`exposhift.io.column_labels`; from the import's own plan).
+The temporary copy is removed when the call returns.
 
 An upload larger than the file-size limit of :mod:`exposhift.io.limits` is refused before it is
 written anywhere; a file that is not a CSV or XLSX sheet is refused by the sheet reader with its
@@ -23,6 +24,7 @@ from pathlib import Path
 import pandas as pd
 
 from exposhift.errors import InputFileError, Problem
+from exposhift.io.column_labels import field_label
 from exposhift.io.frames import EvidenceFrames
 from exposhift.io.limits import current_limits
 from exposhift.services.acting import as_user
@@ -119,7 +121,8 @@ def _records(store: Store, frames: EvidenceFrames) -> tuple[pd.DataFrame, bool]:
             rows.append({"what": entity, "record": k, "status": "added", "fields": ""})
         for before, changed, k in plan.changes:
             fields = "; ".join(
-                f"{f}: {_short(before.get(f))} → {_short(v)}" for f, v in changed.items()
+                f"{field_label(entity, f)}: {_short(before.get(f))} → {_short(v)}"
+                for f, v in changed.items()
             )
             rows.append({"what": entity, "record": k, "status": "changed", "fields": fields})
     frame = pd.DataFrame(rows, columns=["what", "record", "status", "fields"])

@@ -15,6 +15,7 @@ from sqlalchemy import Connection, select
 
 from exposhift.store.models import (
     NATURAL_KEY,
+    Appraisal,
     AuditEntry,
     Estimate,
     Event,
@@ -27,6 +28,16 @@ from exposhift.store.records import TABLES
 ST, EV, ES = Study.__table__, Event.__table__, Estimate.__table__
 EX, OU = Exposure.__table__, Outcome.__table__
 AUDIT = AuditEntry.__table__
+AP = Appraisal.__table__
+
+#: a stored field holding another record's integer id -> that record's entity
+ID_FIELDS: dict[str, str] = {
+    "study_id": "study",
+    "event_id": "event",
+    "exposure_id": "exposure",
+    "outcome_id": "outcome",
+    "appraisal_id": "appraisal",
+}
 
 
 def study_rows(conn: Connection, key: str) -> dict[str, list[dict[str, Any]]] | None:
@@ -114,4 +125,27 @@ def changes_since(
             r["action"] == "update" and before and int(before.get("version") or 0) >= version
         ):
             out.append(dict(r, before=before, after=after))
+    return out
+
+
+def natural_keys(conn: Connection, ids: dict[str, set[int]]) -> dict[str, dict[int, str]]:
+    """The natural key of each record named by its integer id (entity -> id -> key); an
+    appraisal's key is ``study|reviewer|stage``. Ids of records deleted since are absent."""
+    out: dict[str, dict[int, str]] = {}
+    for entity, wanted in ids.items():
+        wanted_ids = sorted(int(i) for i in wanted)
+        if not wanted_ids:
+            continue
+        if entity == "appraisal":
+            stmt = (
+                select(AP.c.id, ST.c.key, AP.c.reviewer, AP.c.stage)
+                .join(ST, ST.c.id == AP.c.study_id)
+                .where(AP.c.id.in_(wanted_ids))
+            )
+            out[entity] = {i: f"{k}|{r}|{g}" for i, k, r, g in conn.execute(stmt)}
+            continue
+        table = TABLES[entity]
+        col = table.c[NATURAL_KEY[entity]]
+        rows = conn.execute(select(table.c.id, col).where(table.c.id.in_(wanted_ids)))
+        out[entity] = {int(i): str(k) for i, k in rows}
     return out

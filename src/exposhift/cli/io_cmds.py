@@ -110,6 +110,8 @@ def _run_import(
         if rubric is not None
         else None
     )
+    for w in report.warnings:  # on standard error, as export's warnings, even with --quiet
+        typer.echo(f"warning: {w}", err=True)
     if as_json:
         out = report.to_dict()
         print_json({**out, "one_run_override": [note]} if note else out)

@@ -110,8 +110,6 @@ def _run_import(
         if rubric is not None
         else None
     )
-    for w in report.warnings:  # on standard error, as export's warnings, even with --quiet
-        typer.echo(f"warning: {w}", err=True)
     if as_json:
         out = report.to_dict()
         print_json({**out, "one_run_override": [note]} if note else out)
@@ -119,6 +117,8 @@ def _run_import(
         if note:
             typer.echo(note)
         _print_report(report)
+    for w in report.warnings:  # after the report, on standard error (as export's warnings),
+        typer.echo(f"warning: {w}", err=True)  # even with --quiet
 
 
 _FILE = typer.Argument(

@@ -41,7 +41,7 @@ def refusal(viewer: Identity, study: str, reviewer: str) -> str:
         f"{who} ({viewer.role}) may not import '{reviewer}''s independent appraisal of study "
         f"'{study}': an import compares it with the appraisal stored under that name, which "
         "you may not see yet. Ask the reviewer to import her own appraisal, or an "
-        "administrator to import this file; nothing was written"
+        "administrator to import this file"
     )
 
 

@@ -8,8 +8,9 @@ Four roles, each holding every right of the ones before it (``ROLES`` order):
   independent reviewers of a study with two or more), or once the consensus is recorded.
 - ``editor``: also imports and edits records and records the consensus. As the chair who
   settles a consensus, an editor sees the independent appraisals of a study once two are in.
-- ``admin``: also manages accounts and exports the whole evidence base, blinded appraisals
-  included.
+- ``admin``: also manages accounts, exports the whole evidence base, blinded appraisals
+  included, and imports any reviewer's independent appraisal (anyone else imports another
+  reviewer's only where the base already shows it to her: ``services/blind_imports.py``).
 
 These names are the generic ones of shared editing tools; the rules above are this project's
 own (see ``docs/accounts.md``). A person always sees her own appraisals.

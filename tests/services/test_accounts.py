@@ -248,7 +248,13 @@ def test_an_editor_imports_but_only_an_admin_replaces_appraisals(store, tmp_path
     export_store(store, archive)
     ed = open_current(store.url, user="ed")
     try:
-        assert import_into(ed, archive).kind  # nothing new, but allowed
+        own = tmp_path / "ed.json"  # the editor's own export: what she may see
+        export_store(ed, own)
+        assert import_into(ed, own).kind  # nothing new, but allowed
+        # the administrator's archive holds B0's appraisal, still blinded for the editor: an
+        # import must not compare with it (services/blind_imports.py)
+        with pytest.raises(InputFileError, match="may not import 'ana''s independent"):
+            import_into(ed, archive)
         with pytest.raises(AccessError, match="'ed' has the role editor and may not replace"):
             import_into(ed, archive, replace=True)
     finally:

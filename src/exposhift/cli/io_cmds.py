@@ -117,6 +117,8 @@ def _run_import(
         if note:
             typer.echo(note)
         _print_report(report)
+    for w in report.warnings:  # after the report, on standard error (as export's warnings),
+        typer.echo(f"warning: {w}", err=True)  # even with --quiet
 
 
 _FILE = typer.Argument(

@@ -459,7 +459,7 @@ def read_archive(
     directions = _directions_section(
         doc, log, file, ev["exposure"], es["outcome"], exposures, outcomes
     )
-    series = _series(doc, log, file, ev, st, es)
+    series = _series(doc, log, file, ev, st, es, outcomes)
     method = read_method_section(doc, log, file)
     certainty = read_certainty_section(doc, log, file)
     if log.problems:
@@ -532,9 +532,16 @@ def _section_types(doc: dict, log: ProblemLog) -> None:
 
 
 def _series(
-    doc: dict, log: ProblemLog, file: str, ev: pd.DataFrame, st: pd.DataFrame, es: pd.DataFrame
+    doc: dict,
+    log: ProblemLog,
+    file: str,
+    ev: pd.DataFrame,
+    st: pd.DataFrame,
+    es: pd.DataFrame,
+    outcomes: pd.DataFrame,
 ):
-    """The series sections (:mod:`exposhift.io.series_archive`)."""
+    """The series sections (:mod:`exposhift.io.series_archive`); a series must name an outcome
+    the archive holds (listed, or named by an estimate)."""
     dates = {
         k: d
         for k, d in zip(ev["key"], ev["change_date"], strict=True)
@@ -547,6 +554,7 @@ def _series(
         event_dates=dates,
         studies=set(st["key"].dropna()),
         estimates=set(es["key"].dropna()),
+        outcomes=set(outcomes["name"].dropna()) | set(es["outcome"].dropna()),
     )
 
 

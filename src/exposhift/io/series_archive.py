@@ -92,8 +92,14 @@ def read_series_sections(
     event_dates: dict,
     studies: set[str],
     estimates: set[str],
+    outcomes: set[str] | None = None,
 ) -> SeriesFrames:
-    """Validate the series sections of an archive (problems go to ``log``)."""
+    """Validate the series sections of an archive (problems go to ``log``).
+
+    ``outcomes``: the outcome names the archive holds (its ``vocabularies.outcomes`` and the
+    outcomes of its estimates); a series naming any other is refused, so that an archive
+    imports only whole (None: not checked).
+    """
     records = doc.get("series", [])
     if not isinstance(records, list):
         log.add(None, "series", "'series' must be a list of records")
@@ -108,6 +114,15 @@ def read_series_sections(
             continue
         for extra in sorted(set(rec) - set(SERIES_FIELDS) - {"points"}):
             sec.add(i + 1, extra, "unknown field; remove it (is this an exposhift export?)")
+        named = rec.get("outcome")
+        if outcomes is not None and isinstance(named, str) and named and named not in outcomes:
+            sec.add(
+                i + 1,
+                "outcome",
+                f"outcome {quote(named)} is not in the archive (neither in "
+                "vocabularies.outcomes nor named by an estimate); add it to "
+                "vocabularies.outcomes with its outcome_group, or export the archive again",
+            )
         points = rec.get("points", [])
         if not isinstance(points, list) or not points:
             sec.add(i + 1, "points", "a series needs a list of points")

@@ -7,8 +7,11 @@ Rules enforced here (not only in a user interface):
   consensus is in; an editor or admin (the chair) once ``REVIEWERS_BEFORE_UNBLINDING`` are in;
   a reader never: readers see consensus appraisals only. Everyone sees her own. The viewer is
   the identity passed in, else the store's own (``--user`` and its account's role).
-- **Who may write.** A reviewer records only her own independent appraisals; a consensus, or an
-  appraisal under another reviewer's name, needs an editor; a reader writes nothing.
+- **Who may write.** A reviewer records only her own independent appraisals; a consensus needs
+  an editor; a reader writes nothing. Another reviewer's independent appraisal is imported
+  only by an admin, or by an editor where the base already shows it to her, and this is
+  checked before any comparison with the stored ones (:mod:`exposhift.services.blind_imports`:
+  no answer tells a blinded rating).
 - **Consensus** may be recorded only after two independent appraisals exist; it becomes the
   study's appraisal of record (``analysis_frame``'s ``level``).
 - One appraisal per study, reviewer and stage. Re-importing an identical appraisal changes
@@ -95,6 +98,28 @@ def _check_authorship(frame: pd.DataFrame, label: str, actor: Identity) -> None:
         raise InputFileError(problems)
 
 
+def _refuse_blinded(conn, frame: pd.DataFrame, label: str, actor: Identity) -> None:
+    """Before any comparison with the stored appraisals: refuse the rows that would compare
+    with an independent appraisal ``actor`` may not see
+    (:mod:`exposhift.services.blind_imports`)."""
+    from exposhift.services.blind_imports import blinded_problems
+
+    if not {"study_id", "reviewer", "stage"} <= set(frame.columns):
+        return  # (missing columns are reported by the validation)
+    rows = [
+        (
+            row,
+            str(frame.at[row, "study_id"]),
+            str(frame.at[row, "reviewer"]),
+            frame.at[row, "stage"],
+        )
+        for row in frame.index
+    ]
+    problems = blinded_problems(conn, actor, rows, label)
+    if problems:
+        raise InputFileError(problems)
+
+
 def import_appraisals(
     store: Store,
     path: str | Path,
@@ -113,6 +138,7 @@ def import_appraisals(
     require(store, "appraise")
     _check_authorship(frame, label, Identity(store.user, store.role))
     with store.write() as conn:
+        _refuse_blinded(conn, frame, label, Identity(store.user, store.role))
         studies = studies_by_key(conn)
         parsed = validate_appraisal_sheet(frame, label, rubric, studies, existing_appraisals(conn))
         w = Writer(conn, store.user)

@@ -16,7 +16,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from exposhift.access import require
+from exposhift.access import Identity, require
 from exposhift.errors import InputFileError, Problem
 from exposhift.io.archive import read_archive
 from exposhift.io.frames import PLURAL, EvidenceFrames
@@ -66,6 +66,8 @@ class ImportReport:
     dry_run: bool
     counts: dict[str, Counts]
     notes: list[str] = field(default_factory=list)
+    #: what the file's checks warn about without refusing it (e.g. an implausible value)
+    warnings: list[Problem] = field(default_factory=list)
 
     @property
     def changed(self) -> bool:
@@ -79,6 +81,10 @@ class ImportReport:
             "rows": self.rows,
             "dry_run": self.dry_run,
             "notes": self.notes,
+            "warnings": [
+                {"file": w.file, "row": w.row, "column": w.column, "message": w.message}
+                for w in self.warnings
+            ],
             "counts": {k: vars(v) for k, v in self.counts.items()},
         }
 
@@ -209,6 +215,25 @@ def _archive_door(
     return conflicts
 
 
+def _refuse_blinded(conn, frames: EvidenceFrames, file: str, viewer: Identity) -> None:
+    """An archive's independent appraisals that would be compared with one ``viewer`` may not
+    see are refused first (:mod:`exposhift.services.blind_imports`)."""
+    from exposhift.services.blind_imports import blinded_problems
+
+    apps = frames.appraisals
+    if apps.empty:
+        return
+    rows = [
+        (i + 1, study, reviewer, stage)
+        for i, (study, reviewer, stage) in enumerate(
+            apps[["study", "reviewer", "stage"]].itertuples(index=False, name=None)
+        )
+    ]
+    problems = blinded_problems(conn, viewer, rows, f"{Path(file).name}: appraisals")
+    if problems:
+        raise InputFileError(problems)
+
+
 def import_frames(
     store: Store,
     frames: EvidenceFrames,
@@ -234,6 +259,8 @@ def import_frames(
             require(store, "replace")
     notes: list[str] = []
     with store.read() if dry_run else store.write() as conn:
+        if kind == "archive":  # before any comparison with the stored appraisals
+            _refuse_blinded(conn, frames, file, Identity(store.user, store.role))
         plans = build_plans(conn, frames)
         rating_plan = rating_changes(conn, frames, plans["appraisal"])
         directions = _direction_counts(conn, frames)
@@ -263,6 +290,7 @@ def import_frames(
         dry_run=dry_run,
         counts={**_counts(plans, kind, rating_plan), **directions},
         notes=list(frames.notes) + notes,
+        warnings=list(frames.warnings),
     )
 
 

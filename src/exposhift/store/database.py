@@ -243,21 +243,22 @@ def not_a_database(url: str, msg: str = "") -> DatabaseError:
     )
 
 
-#: the first 16 bytes of every SQLite 3 database file (https://sqlite.org/fileformat.html)
-SQLITE_HEADER = b"SQLite format 3\x00"
-
-
 def _check_sqlite_file(url: str, path: Path) -> None:
-    """Refuse a directory, or a non-empty file without the SQLite header, before connecting."""
+    """Refuse a directory before connecting; a file that is no SQLite database is refused by
+    SQLite itself on the first statement ("file is not a database", :meth:`Store._translate`).
+
+    The file is never opened here with a plain ``open``: closing any descriptor of a file
+    releases every POSIX advisory lock the process holds on it, those of its SQLite
+    connections included (SQLite, "How To Corrupt An SQLite Database File", section 2.2,
+    https://www.sqlite.org/howtocorrupt.html). A header check next to a long-lived connection
+    (the dashboard's cached store, which opens further stores for some pages) silently dropped
+    that connection's shared lock; the next process to close its connection then took itself
+    for the last one, checkpointed and deleted the ``-wal`` and ``-shm`` files, and the
+    long-lived connection read stale pages or failed with "disk I/O error". Only SQLite opens
+    the file (its unix VFS keeps the descriptors of one file shared inside a process).
+    """
     if path.is_dir():
         raise not_a_database(url)
-    try:
-        with open(path, "rb") as fh:
-            head = fh.read(len(SQLITE_HEADER))
-    except OSError as exc:
-        raise not_a_database(url, exc.strerror or str(exc)) from None
-    if head and head != SQLITE_HEADER:
-        raise not_a_database(url, "it does not start with the SQLite file header")
 
 
 def _sqlite_engine(url: str, *, create: bool) -> Engine:

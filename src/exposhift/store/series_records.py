@@ -16,6 +16,7 @@ from typing import Any
 import pandas as pd
 from sqlalchemy import Connection, delete, select
 
+from exposhift.errors import ExposhiftError
 from exposhift.store.models import (
     Estimate,
     Event,
@@ -147,6 +148,7 @@ def write_series(w: Writer, series: pd.DataFrame, points: pd.DataFrame) -> dict[
     by_series: dict[str, list[dict]] = {}
     for p in points.to_dict(orient="records"):
         by_series.setdefault(p["series"], []).append(p)
+    _refuse_unknown(series, studies, events, outcomes)
     counts = {"added": 0, "updated": 0, "unchanged": 0}
     for rec in series.to_dict(orient="records"):
         key = rec["key"]
@@ -207,6 +209,21 @@ def write_series(w: Writer, series: pd.DataFrame, points: pd.DataFrame) -> dict[
             _insert_points(w, old["id"], key, new_pts)
         counts["updated"] += 1
     return counts
+
+
+def _refuse_unknown(series: pd.DataFrame, studies: dict, events: dict, outcomes: dict) -> None:
+    """A clear error, before anything is written, when a series names a study, event or
+    outcome the evidence base does not hold (the readers check this first; this guard keeps a
+    caller that skipped them from failing half-way with a bare lookup error)."""
+    known = {"study": studies, "event": events, "outcome": outcomes}
+    for rec in series.to_dict(orient="records"):
+        for field, ids in known.items():
+            if rec[field] not in ids:
+                raise ExposhiftError(
+                    f"series {rec['key']!r} names the {field} {rec[field]!r}, which the "
+                    f"evidence base does not hold; add that {field} first (import it with "
+                    "its records), then the series. Nothing was written"
+                )
 
 
 def _insert_points(w: Writer, sid: int, key: str, pts: list[tuple]) -> None:

@@ -55,6 +55,30 @@ def _wait_for(page, text: str, timeout: float = 90_000) -> None:
     page.get_by_text(text, exact=False).filter(visible=True).first.wait_for(timeout=timeout)
 
 
+def _open_grid(page, server):
+    """The records page's grid tab with the study chosen: (its panel, the grid)."""
+    page.goto(f"http://127.0.0.1:{server}/records")
+    shots.wait_rendered(page, "Add or correct records")
+    page.get_by_role("tab", name="Estimates in a grid").click()
+    panel = page.locator('[role="tabpanel"]:visible').first
+    panel.locator('[data-testid="stSelectbox"]').first.click()
+    page.keyboard.type(STUDY)
+    page.keyboard.press("Enter")
+    _wait_for(page, f"estimates of study {STUDY}")
+    _idle(page)
+    return panel, panel.locator('[data-testid="stDataFrame"]').first
+
+
+def _idle(page, timeout: float = 90_000) -> None:
+    """Wait until Streamlit has finished the rerun an edit or a click started (its status
+    widget gone, twice, a second apart: a rerun can start a moment after the event)."""
+    for _ in range(2):
+        page.wait_for_timeout(1000)
+        page.wait_for_function(
+            "() => !document.querySelector('[data-testid=\"stStatusWidget\"]')", timeout=timeout
+        )
+
+
 def _type_estimate(page, grid, value: str) -> None:
     """Select row 1's first cell, move to row 2's Estimate cell with the keyboard, type."""
     box = grid.bounding_box()
@@ -64,11 +88,12 @@ def _type_estimate(page, grid, value: str) -> None:
     for _ in range(ESTIMATE_COLUMN - 1):
         page.keyboard.press("ArrowRight")
     page.keyboard.press("Enter")
-    page.wait_for_timeout(200)
+    page.wait_for_timeout(800)  # the cell editor opens (slowly on a loaded machine)
     page.keyboard.press("Control+a")
     page.keyboard.type(value)
+    page.wait_for_timeout(300)
     page.keyboard.press("Enter")
-    page.wait_for_timeout(1500)
+    _idle(page)  # the edit reaches the server before the next click (slow on a loaded machine)
 
 
 def test_grid_bad_cell_listed_then_fixed_and_saved(browser, server, db, tmp_path_factory):
@@ -78,16 +103,7 @@ def test_grid_bad_cell_listed_then_fixed_and_saved(browser, server, db, tmp_path
     print(f"screenshots: {out}")
     blocked: list[str] = []
     page = shots.offline_page(browser, server, blocked, width=1500)
-    page.goto(f"http://127.0.0.1:{server}/records")
-    shots.wait_rendered(page, "Add or correct records")
-    page.get_by_role("tab", name="Estimates in a grid").click()
-    panel = page.locator('[role="tabpanel"]:visible').first
-    panel.locator('[data-testid="stSelectbox"]').first.click()
-    page.keyboard.type(STUDY)
-    page.keyboard.press("Enter")
-    _wait_for(page, f"estimates of study {STUDY}")
-    page.wait_for_timeout(1500)
-    grid = panel.locator('[data-testid="stDataFrame"]').first
+    panel, grid = _open_grid(page, server)
     page.screenshot(path=str(out / "01-grid.png"), full_page=True)
     audit = sql(db, "select count(*) from audit_entry", read_only=True)[0][0]
 
@@ -101,8 +117,10 @@ def test_grid_bad_cell_listed_then_fixed_and_saved(browser, server, db, tmp_path
 
     panel.get_by_role("button", name="Reload").click()  # a fresh grid: the stored values
     _wait_for(page, "Check the grid to see what saving would do")
-    page.wait_for_timeout(1500)
-    grid = panel.locator('[data-testid="stDataFrame"]').first
+    _idle(page)
+    # the grid keeps its cell cursor across the reload; open the page afresh so the keyboard
+    # walk to row 2 starts from the same place as the first time
+    panel, grid = _open_grid(page, server)
     _type_estimate(page, grid, "0.84")
     page.screenshot(path=str(out / "03-typed.png"), full_page=True)
     panel.get_by_role("button", name="Check").click()

@@ -116,7 +116,9 @@ def summary(db: str | None) -> browse.EvidenceOverview:
 
 @st.cache_data(**CACHE)
 def _findings(db: str | None, key: tuple) -> pd.DataFrame:
-    return summary_service.evidence_summary(_store(db), snapshot=snapshot(db, key))
+    return summary_service.evidence_summary(
+        _store(db), settings=_replication_settings(db, key), snapshot=snapshot(db, key)
+    )
 
 
 def findings(db: str | None) -> pd.DataFrame:
@@ -300,7 +302,9 @@ def _gaps(db: str | None, key: tuple, filters: replicating.GapFilters) -> replic
     """Shared, not copied (a resource: the report carries every estimate set aside, tens of
     megabytes on a large base, which a data cache would pickle on every view; pages only read
     it)."""
-    return replicating.gap_report(_store(db), filters, snapshot=snapshot(db, key))
+    return replicating.gap_report(
+        _store(db), filters, settings=_replication_settings(db, key), snapshot=snapshot(db, key)
+    )
 
 
 def gaps(

@@ -19,7 +19,15 @@ import pandas as pd
 import streamlit as st
 
 from exposhift.access import Identity
-from exposhift.services import accounts, appraising, browse, replicating, setup, workspace
+from exposhift.services import (
+    accounts,
+    appraising,
+    browse,
+    history,
+    replicating,
+    setup,
+    workspace,
+)
 from exposhift.services import summary as summary_service
 from exposhift.services.snapshot import EvidenceSnapshot, take_snapshot
 from exposhift.store.database import Store, mask_url, resolve_url
@@ -155,6 +163,18 @@ def appraisals(db: str | None, study: str, viewer: Identity) -> dict:
     """A study's appraisals as ``viewer`` (``identity.who()``) may see them (blinding by
     identity applied by the service)."""
     return _appraisals(db, stamp(db), study, viewer)
+
+
+@st.cache_data(**CACHE)
+def _record_history(db: str | None, key: tuple, record: str, viewer: Identity) -> pd.DataFrame:
+    return history.record_history(acting(db, viewer), record, viewer.name)
+
+
+def record_history(db: str | None, record: str, viewer: Identity) -> pd.DataFrame:
+    """The audit entries of a study or event and the records under it, as ``viewer``
+    (``identity.who()``) may see them (blinding by identity applied by the service). Every
+    write adds its audit entries and moves the data version, so the stamp keys this too."""
+    return _record_history(db, stamp(db), record, viewer)
 
 
 @st.cache_data(**CACHE)

@@ -18,7 +18,7 @@ from exposhift.errors import ExposhiftError, InputFileError
 from exposhift.io import column_labels
 from exposhift.io.columns import EVENT_COLUMNS, STUDY_COLUMNS
 from exposhift.io.validate import EVENTS_SHEET_COLUMNS
-from exposhift.services import editing, history
+from exposhift.services import editing
 from exposhift.services.editing import StaleEditError
 
 db = data.db_target()
@@ -245,7 +245,7 @@ with tab_history:
         st.stop()
     key = ui.pick_capped("Study or event", found, key="history_key", noun="matching records")
     with ui.guard():
-        trail = history.record_history(forms.store(), key, forms.me().name)
+        trail = data.record_history(db, key, forms.me())
     st.caption(
         f"{len(trail)} audit entries for `{key}` and the records under it (estimates, "
         "appraisals, ratings), oldest first. Another reviewer's independent ratings stay "

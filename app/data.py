@@ -19,7 +19,15 @@ import pandas as pd
 import streamlit as st
 
 from exposhift.access import Identity
-from exposhift.services import accounts, appraising, browse, replicating, setup, workspace
+from exposhift.services import (
+    accounts,
+    appraising,
+    browse,
+    history,
+    replicating,
+    setup,
+    workspace,
+)
 from exposhift.services import summary as summary_service
 from exposhift.services.snapshot import EvidenceSnapshot, take_snapshot
 from exposhift.store.database import Store, mask_url, resolve_url
@@ -116,7 +124,9 @@ def summary(db: str | None) -> browse.EvidenceOverview:
 
 @st.cache_data(**CACHE)
 def _findings(db: str | None, key: tuple) -> pd.DataFrame:
-    return summary_service.evidence_summary(_store(db), snapshot=snapshot(db, key))
+    return summary_service.evidence_summary(
+        _store(db), settings=_replication_settings(db, key), snapshot=snapshot(db, key)
+    )
 
 
 def findings(db: str | None) -> pd.DataFrame:
@@ -153,6 +163,18 @@ def appraisals(db: str | None, study: str, viewer: Identity) -> dict:
     """A study's appraisals as ``viewer`` (``identity.who()``) may see them (blinding by
     identity applied by the service)."""
     return _appraisals(db, stamp(db), study, viewer)
+
+
+@st.cache_data(**CACHE)
+def _record_history(db: str | None, key: tuple, record: str, viewer: Identity) -> pd.DataFrame:
+    return history.record_history(acting(db, viewer), record, viewer.name)
+
+
+def record_history(db: str | None, record: str, viewer: Identity) -> pd.DataFrame:
+    """The audit entries of a study or event and the records under it, as ``viewer``
+    (``identity.who()``) may see them (blinding by identity applied by the service). Every
+    write adds its audit entries and moves the data version, so the stamp keys this too."""
+    return _record_history(db, stamp(db), record, viewer)
 
 
 @st.cache_data(**CACHE)
@@ -300,7 +322,9 @@ def _gaps(db: str | None, key: tuple, filters: replicating.GapFilters) -> replic
     """Shared, not copied (a resource: the report carries every estimate set aside, tens of
     megabytes on a large base, which a data cache would pickle on every view; pages only read
     it)."""
-    return replicating.gap_report(_store(db), filters, snapshot=snapshot(db, key))
+    return replicating.gap_report(
+        _store(db), filters, settings=_replication_settings(db, key), snapshot=snapshot(db, key)
+    )
 
 
 def gaps(

@@ -73,7 +73,11 @@ def show(studies: pd.DataFrame) -> None:
     if not keys:
         st.info("No study yet: add one on the first tab or upload a sheet.")
         return
-    choice = ui.pick("Study", keys, key="grid_study")
+    found = ui.study_search(studies, "grid_search")
+    if not found:
+        st.info("No study matches this search.")
+        return
+    choice = ui.pick_capped("Study", found, key="grid_study", noun="matching studies")
     gen = st.session_state.setdefault("grid_gen", 0)
     draft = _draft(choice, gen)
     v = draft.versions["study"][choice]

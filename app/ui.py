@@ -112,17 +112,22 @@ def pick_capped(
     narrow: str = "narrow the search",
     help: str | None = None,
     param: str | None = None,
+    first: tuple[str, ...] = (),
 ) -> str:
     """:func:`pick` over the first ``limit`` (default :data:`PICK_LIMIT`) of ``options``; when
     there are more, a caption says how many are not listed and how to reach them. A choice
-    asked for in the address (``param``) is kept listed even beyond the limit."""
+    asked for in the address (``param``) and the choice already made (the widget's value) are
+    kept listed even beyond the limit. ``first``: choices listed ahead of ``options`` and not
+    counted among them (such as "a new study")."""
     limit = PICK_LIMIT if limit is None else limit
     listed = list(options[:limit])
     wanted = st.query_params.get(param) if param else None
-    if wanted in options and wanted not in listed:
-        listed.append(wanted)
+    current = st.session_state.get(key)
+    for keep in (wanted, current):
+        if keep is not None and keep not in listed and keep in options:
+            listed.append(keep)
     more = len(options) - len(listed)
-    chosen = pick(label, listed, key=key, help=help, param=param)
+    chosen = pick(label, [*first, *listed], key=key, help=help, param=param)
     if more > 0:
         st.caption(
             f"The first {len(listed):,} of {len(options):,} {noun} are listed: "
@@ -139,6 +144,17 @@ def search_options(options: list[str], text: str, haystack: list[str] | None = N
         return list(options)
     hay = options if haystack is None else haystack
     return [o for o, h in zip(options, hay, strict=True) if needle in str(h).lower()]
+
+
+def study_search(studies: pd.DataFrame, key: str) -> list[str]:
+    """A search box over the study list's keys and citations; the matching study keys, in
+    the list's order (every study for an empty search)."""
+    text = st.text_input("Search studies (key or citation)", key=key)
+    return search_options(
+        studies["study_id"].tolist(),
+        text,
+        (studies["study_id"] + " " + studies["citation"].fillna("")).tolist(),
+    )
 
 
 # ----------------------------------------------------------------------------- tables

@@ -18,7 +18,7 @@ from exposhift.errors import ExposhiftError, InputFileError
 from exposhift.io import column_labels
 from exposhift.io.columns import EVENT_COLUMNS, STUDY_COLUMNS
 from exposhift.io.validate import EVENTS_SHEET_COLUMNS
-from exposhift.services import editing, history
+from exposhift.services import editing
 from exposhift.services.editing import StaleEditError
 
 db = data.db_target()
@@ -95,7 +95,13 @@ def _show_message() -> None:
 with tab_study:
     _show_message()
     may = forms.who_line("editor", "add or correct a study")
-    choice = ui.pick("Study", [NEW, *studies["study_id"].tolist()], key="records_study")
+    choice = ui.pick_capped(
+        "Study",
+        ui.study_search(studies, "records_search"),
+        key="records_study",
+        first=(NEW,),
+        noun="matching studies",
+    )
     gen = st.session_state.setdefault("records_gen", 0)
     locked = {"study_id"} if choice != NEW else set()
     loaded = st.session_state.get("records_draft")
@@ -219,9 +225,27 @@ with tab_event:
 # 4. history -----------------------------------------------------------------------------------
 with tab_history:
     keys = studies["study_id"].tolist() + sorted(events["event_id"].tolist())
-    key = ui.pick("Study or event", keys, key="history_key")
+    ev_text = events.sort_values("event_id")
+    hay = (studies["study_id"] + " " + studies["citation"].fillna("")).tolist() + (
+        ev_text["event_id"]
+        + " "
+        + ev_text["exposure"].fillna("")
+        + " "
+        + ev_text["country"].fillna("")
+    ).tolist()
+    found = ui.search_options(
+        keys,
+        st.text_input(
+            "Search studies and events (key, citation, exposure or country)", key="history_search"
+        ),
+        hay,
+    )
+    if not found:
+        st.info("No study or event matches this search.")
+        st.stop()
+    key = ui.pick_capped("Study or event", found, key="history_key", noun="matching records")
     with ui.guard():
-        trail = history.record_history(forms.store(), key, forms.me().name)
+        trail = data.record_history(db, key, forms.me())
     st.caption(
         f"{len(trail)} audit entries for `{key}` and the records under it (estimates, "
         "appraisals, ratings), oldest first. Another reviewer's independent ratings stay "

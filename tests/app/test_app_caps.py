@@ -111,6 +111,45 @@ def test_appraise_picker_has_a_search_and_the_same_cap(at, big_db):
     assert any("No study matches" in i.value for i in at.info)
 
 
+def test_records_pickers_have_a_search_and_the_same_cap(at, big_db):
+    """The records page's three pickers (study form, estimate grid, record history) list at
+    most the cap, say how many more, and a search narrows them."""
+    n = _count(big_db, "SELECT count(*) FROM study")
+    n_events = _count(big_db, "SELECT count(*) FROM event")
+    _open(at, "records")
+    study_form = at.selectbox(key="records_study")
+    # "(a new study)" stays first and is not counted among the studies
+    assert study_form.options[0] == "(a new study)"
+    assert len(study_form.options) == PICK + 1
+    assert len(at.selectbox(key="grid_study").options) == PICK
+    assert len(at.selectbox(key="history_key").options) == PICK
+    captions = _captions(at)
+    assert (
+        captions.count(f"The first {PICK} of {n} matching studies are listed: {n - PICK} more") == 2
+    )
+    records = n + n_events
+    assert f"The first {PICK} of {records} matching records are listed: {records - PICK} more" in (
+        captions
+    )
+    key = _count(big_db, "SELECT max(key) FROM study")
+    at.text_input(key="records_search").set_value(key).run()
+    at.text_input(key="grid_search").set_value(key).run()
+    event = _count(big_db, "SELECT max(key) FROM event")
+    at.text_input(key="history_search").set_value(event).run()
+    assert not at.exception, [e.value for e in at.exception]
+    assert at.selectbox(key="records_study").options == ["(a new study)", key]
+    assert at.selectbox(key="grid_study").options == [key]
+    assert at.selectbox(key="history_key").options == [event]
+    assert "more," not in _captions(at)
+    # a choice made stays listed when the search is cleared, even beyond the cap
+    at.selectbox(key="history_key").set_value(event).run()
+    at.text_input(key="history_search").set_value("").run()
+    history = at.selectbox(key="history_key")
+    assert history.value == event and len(history.options) == PICK + 1
+    at.text_input(key="history_search").set_value("no such record anywhere").run()
+    assert any("No study or event matches" in i.value for i in at.info)
+
+
 def _timeline(at: AppTest) -> dict:
     charts = [json.loads(c.proto.spec) for c in at.get("plotly_chart")]
     return next(c for c in charts if c["layout"].get("xaxis", {}).get("title", {}).get("text"))

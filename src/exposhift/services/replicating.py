@@ -161,7 +161,8 @@ def gap_report(
     snapshot: EvidenceSnapshot | None = None,
 ) -> GapReport:
     """The gap map of the whole evidence base within ``filters``, and the opportunities
-    (``snapshot``: read from it instead of the store, :mod:`exposhift.services.snapshot`)."""
+    (``snapshot``: read from it instead of the store, :mod:`exposhift.services.snapshot`;
+    without filters, the statuses are the snapshot's shared analysis)."""
     f = filters or GapFilters()
     s = _settings(store, settings, None)
     countries = _check_filters(f, s)
@@ -188,8 +189,10 @@ def gap_report(
         year_from=f.year_from,
         year_to=f.year_to,
     )
+    analysis = None
     if snapshot is not None and unfiltered:
         units, excluded = snapshot.independent
+        analysis = snapshot.replication(s)  # the statuses the summary shows, computed once
     else:
         units, excluded = independent_units(frame)
     cells = gap_map(
@@ -198,6 +201,7 @@ def gap_report(
         stale_after=f.stale_after,
         all_estimates=frame,
         registry=registry,
+        analysis=analysis,
         directions=directions,
     )
     if f.studied_only:

@@ -12,16 +12,22 @@ and build new frames (filters, ``assign``, ``copy``); nothing here or there writ
 pieces derived from the whole base that two views need (the independent units of the
 replication analysis: summary and gap map) are computed once, on first use; the summary asks
 only for the units (:attr:`EvidenceSnapshot.units`), not for the reason each estimate set
-aside was set aside.
+aside was set aside. The replication analysis of those units (statuses and the counts behind
+them, :func:`exposhift.replication.status.analyse`) is also computed once per thresholds
+(:meth:`EvidenceSnapshot.replication`): the summary's findings and the unfiltered gap map show
+the same statuses from one computation.
 """
 
 from __future__ import annotations
 
 import functools
-from dataclasses import dataclass
+import threading
+from dataclasses import dataclass, field
 
 import pandas as pd
 
+from exposhift.replication.settings import ReplicationSettings
+from exposhift.replication.status import Analysis, analyse
 from exposhift.store.data_version import current
 from exposhift.store.database import Store
 from exposhift.store.directions import directions_frame
@@ -36,6 +42,10 @@ class EvidenceSnapshot:
     analysis: pd.DataFrame
     events: pd.DataFrame
     directions: pd.DataFrame
+    #: (settings, analysis) pairs computed so far, and the lock that guards them (the
+    #: dashboard's sessions share one snapshot from several threads)
+    _analyses: list = field(default_factory=list, init=False, repr=False)
+    _lock: threading.Lock = field(default_factory=threading.Lock, init=False, repr=False)
 
     def pair(self, exposure: str, outcome: str) -> pd.DataFrame:
         """The analysis frame of one exposure and outcome (exact stored names, as
@@ -61,6 +71,19 @@ class EvidenceSnapshot:
         from exposhift.replication.families import independent_kept
 
         return independent_kept(self.analysis)
+
+    def replication(self, settings: ReplicationSettings) -> Analysis:
+        """The replication analysis of :attr:`units` by exposure × outcome under ``settings``
+        with the snapshot's expected directions
+        (:func:`exposhift.replication.status.analyse`), computed once per ``settings``
+        (shared: do not modify)."""
+        with self._lock:
+            for known, done in self._analyses:
+                if known == settings:
+                    return done
+            done = analyse(self.units, ("exposure", "outcome"), settings, self.directions)
+            self._analyses.append((settings, done))
+            return done
 
 
 def take_snapshot(store: Store) -> EvidenceSnapshot:

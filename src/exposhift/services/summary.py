@@ -56,13 +56,16 @@ def evidence_summary(
 
     Statuses use ``settings`` (default: the thresholds in force, as the ``replication`` action
     does), so both report the same status and the same pooled number. ``snapshot``: read from
-    it instead of the store (:mod:`exposhift.services.snapshot`).
+    it instead of the store (:mod:`exposhift.services.snapshot`); with the snapshot's own
+    directions, the statuses are the snapshot's shared analysis
+    (:meth:`~exposhift.services.snapshot.EvidenceSnapshot.replication`).
     """
     if settings is None:
         from exposhift.services.workspace import stored_settings
 
         settings = stored_settings(store)
     s = settings
+    shared = snapshot is not None and directions is None  # the snapshot's analysis applies
     if snapshot is not None:
         frame = snapshot.analysis
         directions = snapshot.directions if directions is None else directions
@@ -73,8 +76,11 @@ def evidence_summary(
                 directions = directions_frame(conn)
     if frame.empty:
         return pd.DataFrame(columns=COLUMNS)
-    units = independent_kept(frame) if snapshot is None else snapshot.units
-    st = replication_statuses(units, settings=s, directions=directions)
+    if shared:
+        st = snapshot.replication(s).statuses  # shared with the unfiltered gap map
+    else:
+        units = independent_kept(frame) if snapshot is None else snapshot.units
+        st = replication_statuses(units, settings=s, directions=directions)
     out = st.rename(
         columns={
             "n_events": "events",

@@ -45,7 +45,11 @@ _TRUE = frozenset({"true", "yes", "y", "1", "t"})
 
 def _clean_text(s: pd.Series) -> np.ndarray:
     codes, uniques = pd.factorize(s, use_na_sentinel=True)
-    clean = np.array([str(u).strip() for u in uniques] + [""], dtype=object)
+    # the distinct values as plain Python objects (iterating a pandas array is slower)
+    values = np.asarray(uniques, dtype=object)
+    clean = np.empty(len(values) + 1, dtype=object)
+    clean[:-1] = [u.strip() if type(u) is str else str(u).strip() for u in values]
+    clean[-1] = ""
     return clean[codes]
 
 
@@ -168,55 +172,139 @@ def select_independent(
         return frame.iloc[np.flatnonzero(is_kept)].copy(), ex
     ex_pos = np.flatnonzero(~is_kept)
     kp = best_of_unit[unit[ex_pos]]
-    event = keys["event_id"]
-
-    def name(i: int) -> str:
-        label = f"estimate {uid[i]}" if uid[i] else f"row {frame.index[i]}"
-        return f"study {study[i]}'s {label}" if study[i] else label
-
-    reasons, kept_names = [], []
-    for i, j in zip(ex_pos, kp, strict=True):
-        if primary[j] and not primary[i]:
-            why = "it is flagged primary"
-        elif re_est[i] and not re_est[j]:
-            why = (
-                "it is the published estimate (this one is re-estimated from an extracted "
-                "series; flag it primary to use it instead)"
-            )
-        elif has_level and level_key[j] < level_key[i]:
-            why = (
-                f"it is better appraised (level {level[j]:g} vs "
-                f"{'not appraised' if np.isnan(level[i]) else f'{level[i]:g}'})"
-            )
-        elif subgroup[j] == "" and subgroup[i] != "":
-            why = f"it covers the whole population (this one is subgroup '{subgroup[i]}')"
-        elif v_key[j] < v_key[i]:
-            why = f"it is more precise (variance {v[j]:.4g} vs {v[i]:.4g})"
-        else:
-            why = "it comes first by identifier (tie on every other criterion)"
-        kept_names.append(uid[j] if uid[j] else str(frame.index[j]))
-        reasons.append(
-            f"same event {event[i]}, population, data source and outcome as {name(j)}"
-            f"{_how_same(i, j, raw_text, overlap)}, kept because {why}"
-        )
+    kept_names, reasons = _reasons(
+        frame.index,
+        ex_pos,
+        kp,
+        keys["event_id"],
+        raw_text,
+        overlap,
+        uid,
+        study,
+        primary,
+        re_est,
+        has_level,
+        level,
+        level_key,
+        subgroup,
+        v,
+        v_key,
+    )
     kept = frame.iloc[np.flatnonzero(is_kept)].copy()
     excluded = frame.iloc[ex_pos].copy()
-    excluded["kept_estimate"] = np.array(kept_names, dtype=object)
-    excluded["reason"] = np.array(reasons, dtype=object)
+    excluded["kept_estimate"] = kept_names
+    excluded["reason"] = reasons
     return kept, excluded
 
 
-def _how_same(i: int, j: int, raw: dict[str, np.ndarray], overlap: np.ndarray) -> str:
-    """Why two units with different wording count as one (empty when the text is identical)."""
-    if overlap[i] and overlap[i] == overlap[j]:
-        return f" (populations overlap: {overlap[i]}, marked with same_population_as)"
-    differ = [f"{c} '{raw[c][i]}' and '{raw[c][j]}'" for c in sorted(raw) if raw[c][i] != raw[c][j]]
-    if differ:
-        return (
-            f" ({'; '.join(differ)} read as the same after ignoring case, plural, "
-            "punctuation and spacing)"
+def _obj(values) -> np.ndarray:
+    return np.asarray(values, dtype=object)
+
+
+def _cat(*parts) -> np.ndarray:
+    """Element-wise concatenation of object arrays of text (and plain strings)."""
+    out = _obj(parts[0]) if isinstance(parts[0], np.ndarray) else parts[0]
+    for p in parts[1:]:
+        out = out + p
+    return _obj(out)
+
+
+def _reasons(
+    index: pd.Index,
+    i: np.ndarray,
+    j: np.ndarray,
+    event: np.ndarray,
+    raw: dict[str, np.ndarray],
+    overlap: np.ndarray,
+    uid: np.ndarray,
+    study: np.ndarray,
+    primary: np.ndarray,
+    re_est: np.ndarray,
+    has_level: bool,
+    level: np.ndarray,
+    level_key: np.ndarray,
+    subgroup: np.ndarray,
+    v: np.ndarray,
+    v_key: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray]:
+    """The kept estimate's name and the reason, in words, for each estimate set aside (row
+    positions ``i``, kept in its place ``j``): the first preference of
+    :func:`select_independent` that tells them apart, computed for every row at once."""
+    rows = _obj(index.astype(str))
+    uid_o, study_o = _obj(uid), _obj(study)
+
+    def name(k: np.ndarray) -> np.ndarray:
+        label = np.where(uid_o[k] != "", _cat("estimate ", uid_o[k]), _cat("row ", rows[k]))
+        return np.where(study_o[k] != "", _cat("study ", study_o[k], "'s ", label), label)
+
+    n = len(i)
+    why = np.full(n, "it comes first by identifier (tie on every other criterion)", dtype=object)
+    decided = np.zeros(n, dtype=bool)
+
+    def take(mask: np.ndarray) -> np.ndarray:
+        """Rows where ``mask`` holds and no earlier preference decided (now decided)."""
+        hit = mask & ~decided
+        decided[hit] = True
+        return hit
+
+    hit = take(primary[j] & ~primary[i])
+    why[hit] = "it is flagged primary"
+    hit = take(re_est[i] & ~re_est[j])
+    why[hit] = (
+        "it is the published estimate (this one is re-estimated from an extracted "
+        "series; flag it primary to use it instead)"
+    )
+    if has_level:
+        hit = take(level_key[j] < level_key[i])
+        if hit.any():
+            lj, li = level[j[hit]], level[i[hit]]
+            why[hit] = [
+                f"it is better appraised (level {a:g} vs "
+                f"{'not appraised' if np.isnan(b) else f'{b:g}'})"
+                for a, b in zip(lj.tolist(), li.tolist(), strict=True)
+            ]
+    hit = take((subgroup[j] == "") & (subgroup[i] != ""))
+    if hit.any():
+        why[hit] = _cat(
+            "it covers the whole population (this one is subgroup '", _obj(subgroup[i[hit]]), "')"
         )
-    return ""
+    hit = take(v_key[j] < v_key[i])
+    if hit.any():
+        why[hit] = [
+            f"it is more precise (variance {a:.4g} vs {b:.4g})"
+            for a, b in zip(v[j[hit]].tolist(), v[i[hit]].tolist(), strict=True)
+        ]
+
+    # why two units with different wording count as one (empty when the text is identical)
+    how = np.full(n, "", dtype=object)
+    ov_i, ov_j = _obj(overlap)[i], _obj(overlap)[j]
+    linked = (ov_i != "") & (ov_i == ov_j)
+    how[linked] = _cat(" (populations overlap: ", ov_i[linked], ", marked with same_population_as)")
+    differ = np.full(n, "", dtype=object)
+    for c in sorted(raw):
+        ri, rj = _obj(raw[c])[i], _obj(raw[c])[j]
+        d = ~linked & (ri != rj)
+        if d.any():
+            text = _cat(f"{c} '", ri[d], "' and '", rj[d], "'")
+            differ[d] = np.where(differ[d] != "", _cat(differ[d], "; ", text), text)
+    some = differ != ""
+    how[some] = _cat(
+        " (",
+        differ[some],
+        " read as the same after ignoring case, plural, punctuation and spacing)",
+    )
+
+    kept_names = np.where(uid_o[j] != "", uid_o[j], rows[j])
+    reasons = _cat(
+        "same event ",
+        _obj(event)[i],
+        ", population, data source and outcome as ",
+        name(j),
+        how,
+        ", kept because ",
+        why,
+    )
+    return _obj(kept_names), reasons
 
 
 def pooling_keys(by: Sequence[str] = ()) -> list[str]:

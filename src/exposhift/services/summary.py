@@ -76,7 +76,7 @@ def evidence_summary(
                 directions = directions_frame(conn)
     if frame.empty:
         return pd.DataFrame(columns=COLUMNS)
-    if shared:
+    if shared and snapshot is not None:
         st = snapshot.replication(s).statuses  # shared with the unfiltered gap map
     else:
         units = independent_kept(frame) if snapshot is None else snapshot.units

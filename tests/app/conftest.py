@@ -3,6 +3,8 @@ and the dashboard's own modules (``app/``) on the import path for the chart buil
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import pytest
 from dashboard_helpers import app_on_path, cheap_hasher
 
@@ -43,3 +45,19 @@ def demo_store(demo_db):
     store = open_current(demo_db, user="tester")
     yield store
     store.dispose()
+
+
+@pytest.fixture(scope="module")
+def browser():
+    """Headless Debian Chromium through Playwright (fails, never skips, when it is missing)."""
+    from playwright.sync_api import sync_playwright
+    from test_app_browser import shots  # scripts/screenshots.py, loaded once
+
+    assert Path(shots.CHROMIUM).exists(), (
+        f"Chromium is missing at {shots.CHROMIUM}: apt-get install -y chromium "
+        "(scripts/run_tests.sh does this when run as root)"
+    )
+    with sync_playwright() as pw:
+        b = pw.chromium.launch(executable_path=shots.CHROMIUM, args=shots.CHROMIUM_ARGS)
+        yield b
+        b.close()

@@ -70,20 +70,6 @@ def server(demo_db, tmp_path_factory):
 
 
 @pytest.fixture(scope="module")
-def browser():
-    from playwright.sync_api import sync_playwright
-
-    assert Path(shots.CHROMIUM).exists(), (
-        f"Chromium is missing at {shots.CHROMIUM}: apt-get install -y chromium "
-        "(scripts/run_tests.sh does this when run as root)"
-    )
-    with sync_playwright() as pw:
-        b = pw.chromium.launch(executable_path=shots.CHROMIUM, args=shots.CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
-@pytest.fixture(scope="module")
 def shot_dir(tmp_path_factory) -> Path:
     return tmp_path_factory.mktemp("screenshots")
 

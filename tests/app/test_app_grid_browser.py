@@ -37,20 +37,6 @@ def server(db, tmp_path_factory):
     shots.stop(proc)
 
 
-@pytest.fixture(scope="module")
-def browser():
-    from playwright.sync_api import sync_playwright
-
-    assert Path(shots.CHROMIUM).exists(), (
-        f"Chromium is missing at {shots.CHROMIUM}: apt-get install -y chromium "
-        "(scripts/run_tests.sh does this when run as root)"
-    )
-    with sync_playwright() as pw:
-        b = pw.chromium.launch(executable_path=shots.CHROMIUM, args=shots.CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
 def _wait_for(page, text: str, timeout: float = 90_000) -> None:
     page.get_by_text(text, exact=False).filter(visible=True).first.wait_for(timeout=timeout)
 

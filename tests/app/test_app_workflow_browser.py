@@ -97,20 +97,6 @@ def server(db, tmp_path_factory):
     shots.stop(proc)
 
 
-@pytest.fixture(scope="module")
-def browser():
-    from playwright.sync_api import sync_playwright
-
-    assert Path(shots.CHROMIUM).exists(), (
-        f"Chromium is missing at {shots.CHROMIUM}: apt-get install -y chromium "
-        "(scripts/run_tests.sh does this when run as root)"
-    )
-    with sync_playwright() as pw:
-        b = pw.chromium.launch(executable_path=shots.CHROMIUM, args=shots.CHROMIUM_ARGS)
-        yield b
-        b.close()
-
-
 class Steps:
     def __init__(self, page, port: int, out: Path):
         self.page, self.port, self.out, self.n = page, port, out, 0
